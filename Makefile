@@ -1,0 +1,32 @@
+# Two commands: `make demo` and `make test`. Both bootstrap .venv themselves.
+PYTHON ?= $(shell command -v python3.11 || command -v python3)
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP_BASE := $(VENV)/.installed-base
+STAMP_TEST := $(VENV)/.installed-test
+
+.PHONY: demo test bench clips clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+$(STAMP_BASE): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e .
+	touch $@
+
+$(STAMP_TEST): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $@ $(STAMP_BASE)
+
+demo: $(STAMP_BASE)
+	$(BIN)/audiobw demo --out audiobw-out/demo
+
+test: $(STAMP_TEST)
+	$(BIN)/python -m pytest
+
+clips: $(STAMP_BASE)
+	$(BIN)/python clips/make_clips.py
+
+clean:
+	rm -rf $(VENV) audiobw-out .pytest_cache

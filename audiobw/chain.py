@@ -1,0 +1,177 @@
+"""The chain model: source, amplifier, candidate filter, converter.
+
+::
+
+    source (Rs, T) -> amplifier (G, e_n, i_n, h2, h3) -> [filter] -> converter (N bits, FS, dither)
+
+With ``stage='digital'`` the converter comes ahead of the filter, which is
+then DSP.
+
+Levels follow AES17: digital full scale is the peak of a full-scale sine, and
+``full_scale_vrms`` is the rms voltage of that sine at the converter input.
+The file's samples are the clean program as it arrives at the converter
+input, so a sample value x corresponds to x·√2·full_scale_vrms volts.
+
+References
+----------
+.. [1] J. B. Johnson, "Thermal agitation of electricity in conductors",
+   Phys. Rev. 32, 97 (1928); H. Nyquist, "Thermal agitation of electric
+   charge in conductors", Phys. Rev. 32, 110 (1928): v² = 4kTRB.
+.. [2] AES17-2020, *AES standard method for digital audio engineering -
+   Measurement of digital audio equipment*, §3 (definitions: full-scale
+   amplitude, dBFS).
+.. [3] W. R. Bennett, "Spectra of quantized signals", Bell Syst. Tech. J.
+   27, 446 (1948): quantisation error power q²/12.
+.. [4] R. A. Wannamaker, S. P. Lipshitz, J. Vanderkooy, J. N. Wright, "A
+   theory of nonsubtractive dither", IEEE Trans. Signal Process. 48(2),
+   2000: TPDF dither of 2 LSB peak-to-peak adds q²/6 (total 3·q²/12).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, fields
+
+from scipy import constants
+
+from .errors import ParameterError
+
+BOLTZMANN = constants.k  # J/K, exact SI value since 2019
+DBU_REF_VRMS = math.sqrt(0.6)  # 0 dBu: 1 mW into 600 Ω
+DITHERS = ("tpdf", "none")
+
+
+@dataclass(frozen=True)
+class Chain:
+    """Every parameter of the modelled chain, in SI units.
+
+    Parameters
+    ----------
+    source_ohms : float, >= 0
+        Source resistance Rs in Ω (0 is an ideal source).
+    temperature_k : float, > 0
+        Source temperature T in K.
+    gain_db : float
+        Amplifier voltage gain G in dB.
+    en_v_rthz : float, >= 0
+        Amplifier input voltage noise density in V/√Hz.
+    in_a_rthz : float, >= 0
+        Amplifier input current noise density in A/√Hz.
+    h2_db, h3_db : float or None, <= 0
+        2nd and 3rd harmonic levels in dB relative to the fundamental for a
+        full-scale sine (None: a linear amplifier).
+    amp_bandwidth_hz : float or None, > 0
+        The amplifier's own −3 dB bandwidth, modelled as one real pole; None:
+        unlimited (then an analog-stage highpass is assumed to have its noise
+        stopped at fs/2 by the converter's anti-alias filter).
+    bits : int, 1 <= bits <= 32
+        Converter resolution N.
+    full_scale_vrms : float, > 0
+        rms voltage of a full-scale sine at the converter input, V.
+    dither : {'tpdf', 'none'}
+        Converter dither.
+    stage : {'analog', 'digital'}
+        Where the candidate filter sits: ahead of the converter (analog) or
+        after it (digital).
+    input_gain_db : float
+        Gain applied to the file's program before it enters the model
+        (from ``--input-level``); 0 leaves the samples as they are.
+    """
+
+    source_ohms: float = 200.0
+    temperature_k: float = 290.0
+    gain_db: float = 40.0
+    en_v_rthz: float = 1.5e-9
+    in_a_rthz: float = 1.0e-12
+    h2_db: float | None = None
+    h3_db: float | None = None
+    amp_bandwidth_hz: float | None = None
+    bits: int = 24
+    full_scale_vrms: float = 1.228
+    dither: str = "tpdf"
+    stage: str = "analog"
+    input_gain_db: float = 0.0
+
+    def __post_init__(self):
+        checks = [
+            ("--source-ohms", self.source_ohms, self.source_ohms >= 0, "a resistance >= 0 ohm"),
+            ("--temperature", self.temperature_k, self.temperature_k > 0, "a temperature > 0 K"),
+            ("--en", self.en_v_rthz, self.en_v_rthz >= 0, "a density >= 0 V/rtHz"),
+            ("--in", self.in_a_rthz, self.in_a_rthz >= 0, "a density >= 0 A/rtHz"),
+            ("--bits", self.bits, float(self.bits).is_integer() and 1 <= self.bits <= 32, "an integer 1 to 32"),
+            ("--full-scale", self.full_scale_vrms, self.full_scale_vrms > 0, "a voltage > 0 V rms"),
+            ("--dither", self.dither, self.dither in DITHERS, "tpdf or none"),
+            ("--stage", self.stage, self.stage in ("analog", "digital"), "analog or digital"),
+            ("--gain", self.gain_db, math.isfinite(self.gain_db) and abs(self.gain_db) <= 200, "a gain in dB, |G| <= 200"),
+        ]
+        for opt, value in (("--h2", self.h2_db), ("--h3", self.h3_db)):
+            if value is not None:
+                checks.append((opt, value, value < 0, "a level below 0 dB re the fundamental"))
+        if self.amp_bandwidth_hz is not None:
+            checks.append(("--amp-bandwidth", self.amp_bandwidth_hz, self.amp_bandwidth_hz > 0, "a frequency > 0 Hz"))
+        for opt, value, ok, accepted in checks:
+            if not ok:
+                raise ParameterError(f"{opt}: {value!r} is out of range; accepted: {accepted}")
+
+    # -- derived quantities -------------------------------------------------
+    @property
+    def gain(self) -> float:
+        """Linear voltage gain G."""
+        return 10.0 ** (self.gain_db / 20.0)
+
+    @property
+    def volts_per_unit(self) -> float:
+        """Volts at the converter input per unit sample value (√2·FS rms)."""
+        return math.sqrt(2.0) * self.full_scale_vrms * 10.0 ** (self.input_gain_db / 20.0)
+
+    @property
+    def full_scale_power_v2(self) -> float:
+        """Power of a full-scale sine at the converter input, V²."""
+        return self.full_scale_vrms**2
+
+    def density_source_v2_hz(self) -> float:
+        """Source thermal noise at the converter input, G²·4kT·Rs (V²/Hz)."""
+        return self.gain**2 * 4.0 * BOLTZMANN * self.temperature_k * self.source_ohms
+
+    def density_en_v2_hz(self) -> float:
+        """Amplifier voltage noise at the converter input, G²·e_n² (V²/Hz)."""
+        return self.gain**2 * self.en_v_rthz**2
+
+    def density_in_v2_hz(self) -> float:
+        """Amplifier current noise through the source, G²·(i_n·Rs)² (V²/Hz)."""
+        return self.gain**2 * (self.in_a_rthz * self.source_ohms) ** 2
+
+    def density_amplifier_v2_hz(self) -> float:
+        """All analog white noise at the converter input, G²(4kTRs + e_n² + (i_n Rs)²)."""
+        return self.density_source_v2_hz() + self.density_en_v2_hz() + self.density_in_v2_hz()
+
+    @property
+    def lsb_v(self) -> float:
+        """Quantisation step q = 2·√2·FS / 2^N in V."""
+        return 2.0 * math.sqrt(2.0) * self.full_scale_vrms / 2.0 ** int(self.bits)
+
+    def quantisation_power_v2(self) -> float:
+        """Rounding error power q²/12 (V²), white over 0…fs/2."""
+        return self.lsb_v**2 / 12.0
+
+    def dither_power_v2(self) -> float:
+        """TPDF dither power 2·q²/12 (V²); 0 without dither."""
+        return 2.0 * self.lsb_v**2 / 12.0 if self.dither == "tpdf" else 0.0
+
+    def to_json(self) -> dict:
+        """Every parameter with its SI unit in the key name."""
+        return asdict(self)
+
+    @classmethod
+    def field_names(cls) -> tuple[str, ...]:
+        return tuple(f.name for f in fields(cls))
+
+
+def vrms_to_dbu(v: float) -> float:
+    """Voltage in V rms to dBu (0 dBu = √0.6 V, common practice)."""
+    return 20.0 * math.log10(v / DBU_REF_VRMS) if v > 0 else -math.inf
+
+
+def johnson_noise_vrms(resistance_ohms: float, temperature_k: float, bandwidth_hz: float) -> float:
+    """Open-circuit thermal noise voltage √(4kTRB) in V rms (Johnson–Nyquist)."""
+    return math.sqrt(4.0 * BOLTZMANN * temperature_k * resistance_ohms * bandwidth_hz)

@@ -1,0 +1,361 @@
+"""Candidate filters: design, magnitude response, −3 dB edges and ENBW.
+
+Every candidate is kept as its prototype (zeros, poles, gain), so its response
+is evaluated analytically on any frequency grid and its realisable form
+(second-order sections) is available for rendering.
+
+Edge conventions (stated once, used everywhere):
+
+* Butterworth: the given edge is the −3.01 dB (half-power) frequency.
+* Bessel: designed with ``norm='mag'`` so the given edge is also the −3.01 dB
+  frequency (scipy's default ``norm='phase'`` is not).
+* Chebyshev type I and elliptic: the given edge is the passband (ripple) edge,
+  where the response leaves the ripple band; the −3.01 dB edges lie outside
+  it and are computed and reported.
+
+The passband peak gain of every design is 0 dB.  ``order`` is the prototype
+order: each skirt falls at 6·order dB/octave; a bandpass has ``2·order`` poles.
+
+References
+----------
+.. [1] scipy.signal.butter, bessel, cheby1, ellip (filter design), and
+   freqs_zpk / freqz_zpk (frequency responses), SciPy reference guide.
+.. [2] A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*,
+   3rd ed., §7.1 (bilinear transformation with frequency prewarping).
+.. [3] Equivalent noise bandwidth of a transfer function from its state-space
+   form through the controllability Gramian (Lyapunov equation):
+   ∫|h(t)|² dt = C P Cᵀ with A P + P Aᵀ + B Bᵀ = 0 (Parseval).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+from scipy import linalg, optimize, signal
+
+from .errors import ParameterError
+
+FAMILIES = ("butterworth", "bessel", "chebyshev1", "elliptic")
+FAMILY_ALIASES = {
+    "butter": "butterworth", "bw": "butterworth",
+    "cheby1": "chebyshev1", "chebyshev": "chebyshev1", "cheb1": "chebyshev1",
+    "ellip": "elliptic", "cauer": "elliptic",
+}
+RESPONSES = ("lowpass", "highpass", "bandpass")
+RESPONSE_ALIASES = {"lp": "lowpass", "hp": "highpass", "bp": "bandpass"}
+STAGES = ("analog", "digital")
+MIN_ORDER, MAX_ORDER = 1, 8
+HALF_POWER = 0.5  # the "−3 dB" point is the half-power point, −3.0103 dB
+
+
+@dataclass(frozen=True)
+class FilterSpec:
+    """One candidate filter.
+
+    Parameters
+    ----------
+    response : {'lowpass', 'highpass', 'bandpass'}
+    family : {'butterworth', 'bessel', 'chebyshev1', 'elliptic'}
+    order : int, 1 <= order <= 8
+        Prototype order.
+    low_hz, high_hz : float or None
+        Design edges in Hz (see module notes for each family's convention);
+        ``low_hz`` is None for a lowpass, ``high_hz`` None for a highpass.
+    ripple_db : float, 0 < ripple_db < 3
+        Passband ripple (Chebyshev I, elliptic).
+    stopband_db : float, > ripple_db
+        Minimum stopband attenuation (elliptic).
+    stage : {'analog', 'digital'}
+        Analog prototype ahead of the converter, or its bilinear, prewarped
+        digital form after it.
+    fs_hz : float or None
+        Sample rate in Hz; required for the digital stage.
+    """
+
+    response: str
+    family: str
+    order: int
+    low_hz: float | None
+    high_hz: float | None
+    ripple_db: float = 0.1
+    stopband_db: float = 60.0
+    stage: str = "analog"
+    fs_hz: float | None = None
+
+    @property
+    def poles(self) -> int:
+        """The true number of poles (a bandpass doubles the prototype order)."""
+        return 2 * self.order if self.response == "bandpass" else self.order
+
+    def label(self) -> str:
+        """Short human label, e.g. ``'butterworth 4 lowpass 9.5 kHz'``."""
+        from .units import format_quantity
+
+        lo = format_quantity(self.low_hz, "Hz") if self.low_hz else ""
+        hi = format_quantity(self.high_hz, "Hz") if self.high_hz else ""
+        band = {"lowpass": f"below {hi}", "highpass": f"above {lo}"}.get(
+            self.response, f"{lo} to {hi}")
+        return f"{self.family} order {self.order} {self.response} {band}"
+
+
+def validate_spec(spec: FilterSpec, *, fs_hz: float, name: str = "filter") -> None:
+    """Refuse a spec that cannot be designed at sample rate ``fs_hz``.
+
+    Raises
+    ------
+    ParameterError
+        With the offending value and the accepted range, e.g.
+        ``--cutoffs: 30000 Hz must be 0 < edge < fs/2 (fs=48000 -> fs/2=24000)``.
+    """
+    if spec.family not in FAMILIES:
+        raise ParameterError(f"--family: {spec.family!r} is not known; accepted: {', '.join(FAMILIES)}")
+    if spec.response not in RESPONSES:
+        raise ParameterError(f"--response: {spec.response!r} is not known; accepted: {', '.join(RESPONSES)}")
+    if spec.stage not in STAGES:
+        raise ParameterError(f"--stage: {spec.stage!r} is not known; accepted: {', '.join(STAGES)}")
+    if not (MIN_ORDER <= int(spec.order) <= MAX_ORDER) or int(spec.order) != spec.order:
+        raise ParameterError(f"--order: {spec.order!r} is out of range; accepted: integers {MIN_ORDER} to {MAX_ORDER}")
+    nyq = fs_hz / 2.0
+    needs = {"lowpass": ("high_hz",), "highpass": ("low_hz",), "bandpass": ("low_hz", "high_hz")}[spec.response]
+    for attr in ("low_hz", "high_hz"):
+        value = getattr(spec, attr)
+        if attr in needs:
+            if value is None:
+                raise ParameterError(f"{name}: a {spec.response} needs a {'low' if attr == 'low_hz' else 'high'} edge")
+            # 2 % below Nyquist: the bilinear prewarp (tan) and the program
+            # grid both degenerate at fs/2 itself.
+            if not (0.0 < value < 0.98 * nyq):
+                raise ParameterError(
+                    f"{name}: edge {value:g} Hz must be 0 < edge < 0.98*fs/2 "
+                    f"(fs={fs_hz:g} -> 0.98*fs/2={0.98 * nyq:g} Hz)")
+    if spec.response == "bandpass" and not spec.low_hz < spec.high_hz:
+        raise ParameterError(
+            f"{name}: low edge {spec.low_hz:g} Hz is not below high edge {spec.high_hz:g} Hz; "
+            "accepted: LOW < HIGH")
+    if spec.family in ("chebyshev1", "elliptic") and not (0.0 < spec.ripple_db < 3.0):
+        raise ParameterError(f"--ripple: {spec.ripple_db!r} dB is out of range; accepted: 0 < ripple < 3 dB")
+    if spec.family == "elliptic" and not (spec.stopband_db > spec.ripple_db and spec.stopband_db <= 200):
+        raise ParameterError(
+            f"--stopband: {spec.stopband_db!r} dB is out of range; accepted: ripple < stopband <= 200 dB")
+
+
+def _design(spec: FilterSpec, wn, *, analog: bool, fs: float | None, output: str):
+    btype = {"lowpass": "lowpass", "highpass": "highpass", "bandpass": "bandpass"}[spec.response]
+    kw = dict(btype=btype, analog=analog, output=output)
+    if not analog:
+        kw["fs"] = fs
+    n = int(spec.order)
+    if spec.family == "butterworth":
+        return signal.butter(n, wn, **kw)
+    if spec.family == "bessel":
+        return signal.bessel(n, wn, norm="mag", **kw)
+    if spec.family == "chebyshev1":
+        return signal.cheby1(n, spec.ripple_db, wn, **kw)
+    return signal.ellip(n, spec.ripple_db, spec.stopband_db, wn, **kw)
+
+
+def _wn(spec: FilterSpec):
+    if spec.response == "lowpass":
+        return spec.high_hz
+    if spec.response == "highpass":
+        return spec.low_hz
+    return [spec.low_hz, spec.high_hz]
+
+
+@dataclass
+class Filter:
+    """A designed candidate: prototype, responses, edges and noise bandwidth.
+
+    Use :func:`design` to build one.
+    """
+
+    spec: FilterSpec
+    z: np.ndarray
+    p: np.ndarray
+    k: float
+    ref_rad_s: float = 1.0  # analog: zpk normalised by this frequency
+    _cache: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def analog(self) -> bool:
+        return self.spec.stage == "analog"
+
+    def zpk(self):
+        """Prototype as (zeros, poles, gain): rad/s for analog, z-plane for digital."""
+        if self.analog:
+            w = self.ref_rad_s
+            return self.z * w, self.p * w, self.k * w ** (len(self.p) - len(self.z))
+        return self.z, self.p, self.k
+
+    def sos(self) -> np.ndarray:
+        """Second-order sections (digital stage only; the analog prototype is
+        discretised by the renderer at its own oversampled rate)."""
+        if self.analog:
+            raise ValueError("an analog prototype has no discrete-time SOS; discretise it first")
+        return signal.zpk2sos(self.z, self.p, self.k)
+
+    def power_response(self, freq_hz) -> np.ndarray:
+        """|H(f)|² at the given frequencies in Hz (linear power gain)."""
+        f = np.asarray(freq_hz, dtype=float)
+        if self.analog:
+            # evaluated on the normalised prototype: s/ω_ref keeps the
+            # products of up to 16 factors well inside float range
+            s = 1j * (2.0 * np.pi * f / self.ref_rad_s)
+        else:
+            s = np.exp(1j * 2.0 * np.pi * f / self.spec.fs_hz)
+        num = np.ones_like(s)
+        for zero in self.z:
+            num = num * (s - zero)
+        den = np.ones_like(s)
+        for pole in self.p:
+            den = den * (s - pole)
+        h = self.k * num / den
+        return (h.real**2 + h.imag**2)
+
+    def response_db(self, freq_hz) -> np.ndarray:
+        with np.errstate(divide="ignore"):
+            return 10.0 * np.log10(self.power_response(freq_hz))
+
+    def _state_space(self):
+        if "ss" not in self._cache:
+            self._cache["ss"] = signal.zpk2ss(self.z, self.p, self.k)
+        return self._cache["ss"]
+
+    def floor_gain(self) -> float:
+        """|H(∞)|² of an analog response: 1 for a highpass, 10^(−stopband/10) for an
+        even-order elliptic, 0 for responses that fall; 0 for the digital stage."""
+        if not self.analog or len(self.z) < len(self.p):
+            return 0.0
+        return float(self.k) ** 2
+
+    def varying_integral_hz(self) -> float:
+        """∫₀^∞ (|H(f)|² − |H(∞)|²) df in Hz, exactly (analog only).
+
+        With H = H_sp + D (H_sp strictly proper, state space A, B, C):
+        ∫|H_sp|² comes from the controllability Gramian, and the cross term
+        from the initial value of the impulse response,
+        ∫₀^∞ Re H_sp(jω) dω = (π/2)·C·B.  For H(s) = Hn(s/ω_ref):
+        ∫₀^∞ … df = ω_ref/2 · C P Cᵀ + D · ω_ref/2 · C B.
+        """
+        if "varying" in self._cache:
+            return self._cache["varying"]
+        a, b, c, d = self._state_space()
+        if a.size == 0:
+            value = 0.0
+        else:
+            gram = linalg.solve_continuous_lyapunov(a, -b @ b.T)
+            value = float(self.ref_rad_s / 2.0 * (np.real(c @ gram @ c.T)[0, 0]
+                                                  + float(np.real(d[0, 0])) * np.real(c @ b)[0, 0]))
+        self._cache["varying"] = value
+        return value
+
+    def power_integral_hz(self) -> float:
+        """∫|H(f)|² df over 0…∞ (analog, exact) or 0…fs/2 (digital), in Hz.
+
+        Analog: from the controllability Gramian of the normalised state-space
+        form (reference [3] of the module); infinite when the response keeps a
+        floor at high frequencies (a highpass, an even-order elliptic).
+        Digital: trapezoidal integration on a dense grid, linear plus
+        logarithmic near DC.
+        """
+        if "power_integral" in self._cache:
+            return self._cache["power_integral"]
+        if self.analog:
+            value = math.inf if self.floor_gain() > 0 else self.varying_integral_hz()
+        else:
+            nyq = self.spec.fs_hz / 2.0
+            f = np.union1d(np.linspace(0.0, nyq, 65537), np.geomspace(1e-3 * nyq / 65536, nyq, 8193))
+            value = float(np.trapezoid(self.power_response(f), f))
+        self._cache["power_integral"] = value
+        return value
+
+    @cached_property
+    def edges_3db(self) -> tuple[float | None, float | None]:
+        """Half-power (−3.01 dB) edges in Hz: (low, high); None where open."""
+        spec = self.spec
+        lo = hi = None
+        if spec.response in ("lowpass", "bandpass"):
+            hi = self._crossing(spec.high_hz, upward=True)
+        if spec.response in ("highpass", "bandpass"):
+            lo = self._crossing(spec.low_hz, upward=False)
+        return lo, hi
+
+    def _crossing(self, edge_hz: float, *, upward: bool) -> float:
+        """Find where |H|² crosses one half, searching outward from a design edge."""
+        if self.spec.family in ("butterworth", "bessel"):
+            start = edge_hz
+        else:
+            start = edge_hz
+        g = lambda logf: float(self.power_response(math.exp(logf))) - HALF_POWER  # noqa: E731
+        a = math.log(start)
+        if abs(g(a)) < 1e-12:
+            return start
+        step = math.log(1.02)
+        limit = math.log(self.spec.fs_hz / 2.0) if not self.analog else a + math.log(1e3)
+        b = a
+        for _ in range(2000):
+            b = b + step if upward else b - step
+            if upward and not self.analog and b >= limit:
+                b = limit - 1e-9
+                break
+            if g(b) < 0:
+                break
+            step *= 1.25
+        if g(b) >= 0:
+            return math.exp(b)  # digital response never falls to half before fs/2
+        root = optimize.brentq(g, min(a, b), max(a, b), xtol=1e-12, rtol=1e-12)
+        return math.exp(root)
+
+    def bandwidth_3db(self, nyquist_hz: float) -> float:
+        """Width between the −3 dB edges in Hz; an open side counts to 0 or ``nyquist_hz``."""
+        lo, hi = self.edges_3db
+        return min(hi, nyquist_hz) if lo is None else (nyquist_hz if hi is None else hi) - lo
+
+    def enbw_hz(self, nyquist_hz: float | None = None) -> float:
+        """Equivalent noise bandwidth ∫|H|² df / |H|²max in Hz.
+
+        The passband peak is 0 dB by design, so |H|²max = 1.  An analog
+        response with a high-frequency floor (highpass, even-order elliptic)
+        has no finite ENBW; with ``nyquist_hz`` given, its floor is counted up
+        to that frequency only (the converter's anti-alias filter is taken to
+        stop it there; see :mod:`audiobw.noise`).
+        """
+        value = self.power_integral_hz()
+        if math.isinf(value):
+            if nyquist_hz is None:
+                return math.inf
+            value = self.varying_integral_hz() + self.floor_gain() * nyquist_hz
+        return value
+
+
+def design(spec: FilterSpec) -> Filter:
+    """Design one candidate (validate it first with :func:`validate_spec`).
+
+    Examples
+    --------
+    >>> f = design(FilterSpec("lowpass", "butterworth", 2, None, 1000.0))
+    >>> round(float(f.response_db(1000.0)), 2)
+    -3.01
+    """
+    if spec.stage == "analog":
+        wn = _wn(spec)
+        ref = 2 * math.pi * (math.sqrt(wn[0] * wn[1]) if isinstance(wn, list) else wn)
+        wn_norm = [2 * math.pi * w / ref for w in wn] if isinstance(wn, list) else 2 * math.pi * wn / ref
+        z, p, k = _design(spec, wn_norm, analog=True, fs=None, output="zpk")
+        return Filter(spec, np.asarray(z, complex), np.asarray(p, complex), float(np.real(k)), ref)
+    z, p, k = _design(spec, _wn(spec), analog=False, fs=spec.fs_hz, output="zpk")
+    return Filter(spec, np.asarray(z, complex), np.asarray(p, complex), float(np.real(k)))
+
+
+def butterworth_enbw_ratio(order: int) -> float:
+    """ENBW/f_c of an n-th order Butterworth lowpass: (π/2n)/sin(π/2n).
+
+    Closed form from integrating 1/(1 + x^(2n)); see e.g. H. W. Ott,
+    *Electromagnetic Compatibility Engineering* (Wiley, 2009), Table 8-1
+    (from memory), or any table of noise bandwidths of Butterworth filters.
+    """
+    x = math.pi / (2 * order)
+    return x / math.sin(x)
