@@ -38,16 +38,9 @@ from scipy import linalg, optimize, signal
 
 from .errors import ParameterError
 
-FAMILIES = ("butterworth", "bessel", "chebyshev1", "elliptic")
-FAMILY_ALIASES = {
-    "butter": "butterworth", "bw": "butterworth",
-    "cheby1": "chebyshev1", "chebyshev": "chebyshev1", "cheb1": "chebyshev1",
-    "ellip": "elliptic", "cauer": "elliptic",
-}
-RESPONSES = ("lowpass", "highpass", "bandpass")
-RESPONSE_ALIASES = {"lp": "lowpass", "hp": "highpass", "bp": "bandpass"}
-STAGES = ("analog", "digital")
-MIN_ORDER, MAX_ORDER = 1, 8
+from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, RESPONSE_ALIASES,  # noqa: F401
+                      RESPONSES, STAGES)
+
 HALF_POWER = 0.5  # the "−3 dB" point is the half-power point, −3.0103 dB
 
 

@@ -1,0 +1,225 @@
+"""The command line.  Parsing and printing only: every computation lives in the library.
+
+Exit status: 0 done; 1 unusable data or a failed write; 2 a usage mistake
+(a bad option or config value); 130 interrupted.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import warnings
+from pathlib import Path
+
+import click
+
+from . import __version__
+from .options import OPTIONS, option_name
+
+CONTEXT = dict(help_option_names=["-h", "--help"], max_content_width=100)
+
+LISTENING_CAUTION = ("Listening caution: start playback at a low volume and raise it gradually; "
+                     "prolonged listening at high levels can damage hearing.")
+ESTIMATE_CAUTION = ("These figures are engineering estimates from a model; verify them by measurement, "
+                    "and defer to the applicable product standards, local codes and licensed practice.")
+
+
+def _dest(key: str) -> str:
+    return "in_" if key == "in" else key
+
+
+def _options(keys, group: str):
+    """Declare ``--key`` options from the one table in settings.OPTIONS."""
+    def deco(fn):
+        for key in reversed(keys):
+            _, _, text = OPTIONS[key]
+            fn = click.option(option_name(key), _dest(key), default=None, metavar="VALUE",
+                              help=text)(fn)
+        return fn
+    return deco
+
+
+CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
+         "bits", "full_scale", "dither", "stage")
+GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
+TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser")
+METER = ("meter", "tone", "tone_level")
+
+
+def _cli_values(kwargs) -> dict:
+    return {("in" if k == "in_" else k): v for k, v in kwargs.items() if (k == "in_" or k in OPTIONS)}
+
+
+def _settings(kwargs, chain_file):
+    from .settings import build, load_toml, merge
+
+    file_values = load_toml(chain_file) if chain_file else {}
+    return build(merge(file_values, _cli_values(kwargs)))
+
+
+class _Progress:
+    """A progress bar on stderr for long files, only when stderr is a terminal."""
+
+    def __init__(self, label: str, min_frames: int = 48000 * 30):
+        self.label, self.min_frames, self.bar = label, min_frames, None
+
+    def __call__(self, done: int, total: int):
+        if self.bar is None:
+            if total < self.min_frames or not sys.stderr.isatty():
+                self.bar = False
+                return
+            self.bar = click.progressbar(length=total, label=self.label, file=sys.stderr)
+            self.bar.__enter__()
+            self._last = 0
+        if self.bar:
+            self.bar.update(done - self._last)
+            self._last = done
+
+    def close(self):
+        if self.bar:
+            self.bar.__exit__(None, None, None)
+
+
+@click.group(context_settings=CONTEXT)
+@click.version_option(__version__, prog_name="audiobw")
+@click.option("--debug", is_flag=True, help="Show full tracebacks (for bug reports).")
+def cli(debug):
+    """audiobw: find the narrowest passband that keeps a recording's fidelity
+    while letting in the least noise.
+
+    Frequencies in Hz, levels in dB/dBFS/dBu, voltages in V rms.  Values take
+    SI prefixes and units: 4n, 2.2k, 20k, 2Vrms, +4dBu, 27C.
+    """
+
+
+def _default_out(input_path: Path) -> Path:
+    return Path.cwd() / "audiobw-out" / input_path.stem
+
+
+@cli.command(context_settings=CONTEXT)
+@click.argument("input", type=click.Path(path_type=Path))
+@click.option("--out", type=click.Path(path_type=Path), default=None,
+              help="Output folder for sweep.json and sweep.csv [default: audiobw-out/<input name>/].")
+@click.option("--json", "as_json", is_flag=True, help="Print sweep.json to stdout instead of the table.")
+@click.option("--chain", "chain_file", type=click.Path(path_type=Path), default=None,
+              help="TOML file with [source] [amplifier] [converter] [grid] [targets] [meter]; options override it.")
+@_options(GRID, "grid")
+@_options(CHAIN, "chain")
+@_options(TARGETS, "targets")
+@_options(METER, "meter")
+def sweep(input, out, as_json, chain_file, **kwargs):
+    """Sweep candidate filters over INPUT and choose the narrowest passing passband.
+
+    Example:
+
+      audiobw sweep take3.flac --response lowpass --family butterworth,bessel
+      --order 2,4 --cutoffs 2k:20k:40 --source-ohms 150 --gain 40 --en 1.2n
+      --in 1.5p --bits 24 --full-scale 2Vrms --max-loss 0.2 --min-snr-a 90
+    """
+    from .jobs import sweep_file
+    from .report.sweepio import dumps
+    from .report.text import case_table, closing_paragraph
+
+    settings = _settings(kwargs, chain_file)
+    progress = _Progress(f"analysing {input.name}")
+    try:
+        doc, paths = sweep_file(input, settings, out_dir=out or _default_out(input), progress=progress)
+    finally:
+        progress.close()
+    if as_json:
+        click.echo(dumps(doc), nl=False)
+        return
+    click.echo(case_table(doc))
+    click.echo()
+    click.echo(closing_paragraph(doc))
+    click.echo(f"Wrote {paths['json']} and {paths['csv']}.")
+    click.echo(ESTIMATE_CAUTION)
+
+
+@cli.command(context_settings=CONTEXT)
+@click.option("--band", required=True, metavar="LOW:HIGH",
+              help="Passband edges in Hz, e.g. 20:20k; :20k for a lowpass, 40: for a highpass.")
+@click.option("--family", "family", default="butterworth", show_default=True, metavar="NAME",
+              help="Filter family: butterworth, bessel, chebyshev1, elliptic.")
+@click.option("--order", "order", default="4", show_default=True, metavar="N", help="Prototype order (1 to 8).")
+@click.option("--ripple", default=None, metavar="DB", help="Passband ripple, dB [default: 0.1].")
+@click.option("--stopband", default=None, metavar="DB", help="Elliptic stopband attenuation, dB [default: 60].")
+@click.option("--rate", default="48k", show_default=True, metavar="HZ", help="Converter sample rate, Hz.")
+@click.option("--json", "as_json", is_flag=True, help="Print the budget as JSON.")
+@click.option("--chain", "chain_file", type=click.Path(path_type=Path), default=None,
+              help="TOML chain file; options override it.")
+@_options(CHAIN, "chain")
+@_options(("meter",), "meter")
+def noise(band, family, order, ripple, stopband, rate, as_json, chain_file, **kwargs):
+    """Print the noise budget of a chain with one filter.
+
+    Each contributor in V rms, dBu and dBFS and as a share of the total; the
+    filter's ENBW; the total; the dynamic range for a full-scale sine.
+    """
+    import json
+
+    from .jobs import noise_budget
+
+    kwargs.update(family=family, order=order, ripple=ripple, stopband=stopband)
+    settings = _settings(kwargs, chain_file)
+    b, header = noise_budget(settings, band=band, rate=rate)
+    if as_json:
+        click.echo(json.dumps(b, indent=2, allow_nan=False, default=str))
+        return
+    from .report.text import budget_text
+
+    click.echo(budget_text(b, header=header))
+    click.echo(ESTIMATE_CAUTION)
+
+
+@cli.command(context_settings=CONTEXT)
+@click.option("--out", type=click.Path(path_type=Path), default=Path("audiobw-out/demo"), show_default=True,
+              help="Output folder.")
+@click.option("--clips", "clips_dir", type=click.Path(path_type=Path), default=None,
+              help="Folder of the bundled clips [default: the repository's clips/].")
+def demo(out, clips_dir):
+    """Run the whole job on the bundled clips and print what it found."""
+    from .jobs import run_demo
+
+    for line in run_demo(out, clips_dir=clips_dir):
+        click.echo(line)
+
+
+def main(argv=None) -> int:
+    """Console entry point: one line per user mistake, no traceback (unless --debug)."""
+    from .errors import AudiobwError
+
+    args = list(sys.argv[1:] if argv is None else argv)
+    debug = "--debug" in args or os.environ.get("AUDIOBW_DEBUG") == "1"
+
+    def _show(message, category, filename, lineno, file=None, line=None):
+        click.echo(f"audiobw: warning: {message}", err=True)
+
+    warnings.showwarning = _show
+    try:
+        cli.main(args=args, prog_name="audiobw", standalone_mode=False)
+        return 0
+    except click.exceptions.Abort:
+        click.echo("audiobw: interrupted", err=True)
+        return 130
+    except click.ClickException as exc:
+        exc.show()
+        return exc.exit_code
+    except AudiobwError as exc:
+        if debug:
+            raise
+        click.echo(f"audiobw: error: {exc}", err=True)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        click.echo("audiobw: interrupted; no partial output was left", err=True)
+        return 130
+    except BrokenPipeError:
+        return 0
+
+
+def entry():  # pragma: no cover - console script
+    sys.exit(main())
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

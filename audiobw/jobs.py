@@ -1,0 +1,83 @@
+"""The jobs behind the commands: sweep one file, a noise budget, the demo.
+
+Kept apart from :mod:`audiobw.cli` so that the library, the CLI and the
+batch runner share one code path.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from .errors import OutputError, ParameterError
+from .settings import Settings
+
+
+def sweep_file(path, settings: Settings, *, out_dir=None, progress=None):
+    """Analyse ``path``, sweep the grid, write sweep.json/sweep.csv to ``out_dir``.
+
+    Returns
+    -------
+    (doc, paths)
+        The sweep.json mapping and the written paths (empty if ``out_dir`` is None).
+    """
+    from .audio import open_info
+    from .report.sweepio import write_outputs
+    from .spectrum import analyse
+    from .sweep import run_sweep
+
+    path = Path(path)
+    if out_dir is not None:
+        out_dir = Path(out_dir)
+        if out_dir.exists() and not out_dir.is_dir():
+            raise OutputError(f"--out: {str(out_dir)!r} exists and is not a folder")
+    info = open_info(path)
+    if not settings.targets:
+        raise ParameterError(
+            "targets: none given; accepted: at least one of --min-snr, --min-snr-a, --max-thdn, "
+            "--max-loss, --max-lsd, --min-ser")
+    grid = settings.grid_for(info.sample_rate_hz / 2.0)
+    grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
+    analysis = analyse(path, progress=progress)
+    chain = settings.chain_for(analysis)
+    result = run_sweep(path, chain=chain, grid=grid, meter=settings.meter, targets=settings.targets,
+                       analysis=analysis)
+    doc = result.to_json()
+    paths = write_outputs(doc, out_dir, inputs=[path]) if out_dir is not None else {}
+    return doc, paths
+
+
+def noise_budget(settings: Settings, *, band: str, rate: str):
+    """The noise budget for one filter given as LOW:HIGH at sample rate ``rate``."""
+    from . import units
+    from .filters import FilterSpec, design, validate_spec
+    from .noise import budget
+
+    fs = units.parse_quantity(rate, "frequency", name="--rate")
+    lo, hi = units.parse_band(band, name="--band")
+    response = "bandpass" if lo and hi else ("lowpass" if hi else "highpass")
+    g = settings.grid_values
+    families, orders = g.get("family", ("butterworth",)), g.get("order", (4,))
+    if len(families) != 1 or len(orders) != 1:
+        raise ParameterError("--family/--order: the noise budget takes one family and one order")
+    spec = FilterSpec(response, families[0], orders[0], lo, hi, g.get("ripple", 0.1), g.get("stopband", 60.0),
+                      settings.chain.stage, fs)
+    validate_spec(spec, fs_hz=fs, name="--band")
+    filt = design(spec)
+    b = budget(settings.chain, filt, fs, meter=settings.meter.band(fs / 2.0))
+    c = settings.chain
+    header = (f"Noise budget: {spec.label()}, {c.stage} stage, fs {fs:g} Hz; Rs {c.source_ohms:g} Ω at "
+              f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {c.en_v_rthz:.3g} V/√Hz, "
+              f"i_n {c.in_a_rthz:.3g} A/√Hz, {c.bits} bits, full scale {c.full_scale_vrms:g} V rms, "
+              f"dither {c.dither}")
+    b["filter"] = {"response": response, "family": spec.family, "order": spec.order,
+                   "low_hz": filt.edges_3db[0], "high_hz": filt.edges_3db[1]}
+    b["chain"] = c.to_json()
+    b["sample_rate_hz"] = fs
+    return b, header
+
+
+def run_demo(out, *, clips_dir=None):
+    """Sweep the bundled clips with the demo scenario; yields lines to print."""
+    from .demo import run
+
+    yield from run(Path(out), clips_dir=clips_dir)

@@ -1,0 +1,60 @@
+"""The public option table and name lists, free of heavy imports.
+
+The CLI builds its options from :data:`OPTIONS` and the TOML loader accepts
+exactly these keys, so the two cannot drift apart.  Importing this module
+costs nothing beyond the standard library (``audiobw --help`` stays fast).
+"""
+
+from __future__ import annotations
+
+FAMILIES = ("butterworth", "bessel", "chebyshev1", "elliptic")
+FAMILY_ALIASES = {
+    "butter": "butterworth", "bw": "butterworth",
+    "cheby1": "chebyshev1", "chebyshev": "chebyshev1", "cheb1": "chebyshev1",
+    "ellip": "elliptic", "cauer": "elliptic",
+}
+RESPONSES = ("lowpass", "highpass", "bandpass")
+RESPONSE_ALIASES = {"lp": "lowpass", "hp": "highpass", "bp": "bandpass"}
+STAGES = ("analog", "digital")
+MIN_ORDER, MAX_ORDER = 1, 8
+
+#: key -> (TOML section, parser kind, help text).  The option is --key-with-dashes.
+OPTIONS: dict[str, tuple[str, str, str]] = {
+    "source_ohms": ("source", "resistance", "source resistance Rs, Ω (e.g. 150, 2.2k; 0 = ideal source)"),
+    "temperature": ("source", "temperature", "source temperature, K or °C (e.g. 290, 27C)"),
+    "input_level": ("source", "input_level", "rescale the program: its rms level at the converter input "
+                    "(-18dBFS, +4dBu, 0.5V) or a gain (6dB)"),
+    "gain": ("amplifier", "gain_db", "amplifier voltage gain, dB (e.g. 40)"),
+    "en": ("amplifier", "voltage_density", "amplifier input voltage noise, V/√Hz (e.g. 1.2n)"),
+    "in": ("amplifier", "current_density", "amplifier input current noise, A/√Hz (e.g. 1.5p)"),
+    "h2": ("amplifier", "gain_db", "2nd harmonic at full scale, dB re fundamental (e.g. -110)"),
+    "h3": ("amplifier", "gain_db", "3rd harmonic at full scale, dB re fundamental (e.g. -120)"),
+    "amp_bandwidth": ("amplifier", "frequency", "amplifier's own -3 dB bandwidth, Hz (one pole; default unlimited)"),
+    "bits": ("converter", "bits", "converter resolution, bits (1 to 32)"),
+    "full_scale": ("converter", "voltage", "rms of a full-scale sine at the converter input (2Vrms, +4dBu)"),
+    "dither": ("converter", "choice:tpdf,none", "converter dither: tpdf or none"),
+    "stage": ("converter", "choice:analog,digital", "filter ahead of the converter (analog) or after it (digital)"),
+    "response": ("grid", "choice:lowpass,highpass,bandpass", "lowpass, highpass or bandpass"),
+    "family": ("grid", "families", "filter families, comma list: butterworth,bessel,chebyshev1,elliptic"),
+    "order": ("grid", "orders", f"prototype orders, comma list ({MIN_ORDER} to {MAX_ORDER})"),
+    "cutoffs": ("grid", "grid", "lowpass/highpass edges, Hz: START:STOP:COUNT (log-spaced) or a list"),
+    "low_edges": ("grid", "grid", "bandpass low edges, Hz: START:STOP:COUNT or a list"),
+    "high_edges": ("grid", "grid", "bandpass high edges, Hz: START:STOP:COUNT or a list"),
+    "ripple": ("grid", "db", "passband ripple for chebyshev1/elliptic, dB (0 < r < 3)"),
+    "stopband": ("grid", "db", "elliptic stopband attenuation, dB"),
+    "min_snr": ("targets", "db_any", "target: minimum SNR, dB"),
+    "min_snr_a": ("targets", "db_any", "target: minimum A-weighted SNR, dB"),
+    "max_thdn": ("targets", "thdn", "target: maximum THD+N (0.05% or -66dB)"),
+    "max_loss": ("targets", "db", "target: maximum program power removed, dB"),
+    "max_lsd": ("targets", "db", "target: maximum log-spectral distance, dB"),
+    "min_ser": ("targets", "db_any", "target: minimum signal-to-error ratio, dB"),
+    "meter": ("meter", "choice:full,aes17", "meter band: full (0 to fs/2) or aes17 (20 Hz to 20 kHz)"),
+    "tone": ("meter", "frequency", "THD+N test tone, Hz (default 997)"),
+    "tone_level": ("meter", "level_dbfs", "THD+N test tone level, dBFS (default -1)"),
+}
+
+
+
+def option_name(key: str) -> str:
+    """The command-line spelling of a key: ``source_ohms`` -> ``--source-ohms``."""
+    return "--" + key.replace("_", "-")

@@ -1,0 +1,161 @@
+"""What a sweep and a noise budget look like in a terminal."""
+
+from __future__ import annotations
+
+import math
+
+from ..units import format_quantity
+
+TARGET_LABEL = {
+    "min_snr_db": ("SNR", "snr_db", "dB", "≥"),
+    "min_snr_a_db": ("A-weighted SNR", "snr_a_db", "dB", "≥"),
+    "max_thdn_pct": ("THD+N", "thdn_pct", "%", "≤"),
+    "max_loss_db": ("program loss", "loss_db", "dB", "≤"),
+    "max_lsd_db": ("log-spectral distance", "lsd_db", "dB", "≤"),
+    "min_ser_db": ("signal-to-error", "ser_db", "dB", "≥"),
+}
+#: table column -> (header, unit, key, format, target that marks it)
+COLUMNS = (
+    ("id", "", "id", "{:>4d}", None),
+    ("family", "", "family", "{:<11s}", None),
+    ("ord", "", "order", "{:>3d}", None),
+    ("low", "Hz", "low_hz", "{:>8.1f}", None),
+    ("high", "Hz", "high_hz", "{:>8.0f}", None),
+    ("ENBW", "Hz", "enbw_hz", "{:>8.0f}", None),
+    ("noise", "dBFS", "noise_dbfs", "{:>7.1f}", None),
+    ("SNR", "dB", "snr_db", "{:>6.1f}", "min_snr_db"),
+    ("SNR-A", "dB", "snr_a_db", "{:>6.1f}", "min_snr_a_db"),
+    ("loss", "dB", "loss_db", "{:>6.3f}", "max_loss_db"),
+    ("LSD", "dB", "lsd_db", "{:>6.2f}", "max_lsd_db"),
+    ("SER", "dB", "ser_db", "{:>6.1f}", "min_ser_db"),
+    ("THD+N", "%", "thdn_pct", "{:>8.5f}", "max_thdn_pct"),
+)
+
+
+def _cell(fmt: str, value) -> str:
+    width = int("".join(ch for ch in fmt.split(":")[1] if ch.isdigit()).split(".")[0] or 0) if ":" in fmt else 0
+    if value is None:
+        return "—".rjust(width)
+    return fmt.format(value)
+
+
+def case_table(doc: dict, *, mark: str = "*") -> str:
+    """The case table: one row per case, units in the header, failing values marked."""
+    heads, unitrow, widths = [], [], []
+    for head, unit, _key, fmt, _t in COLUMNS:
+        w = max(len(_cell(fmt, 0 if "d}" in fmt else ("x" if "s}" in fmt else 0.0))), len(head), len(unit)) + 1
+        widths.append(w)
+        heads.append(head.rjust(w) if ">" in fmt else head.ljust(w))
+        unitrow.append((f"[{unit}]" if unit else "").rjust(w) if ">" in fmt else "".ljust(w))
+    lines = [" ".join(heads) + "  result", " ".join(unitrow)]
+    choice = (doc.get("choice") or {}).get("case")
+    for case in doc["cases"]:
+        cells = []
+        for (head, unit, key, fmt, target), w in zip(COLUMNS, widths):
+            text = _cell(fmt, case.get(key))
+            flag = mark if target and target in case["fails"] else " "
+            cells.append((text + flag).rjust(w + 1)[-(w + 1):] if ">" in fmt else (text.ljust(w) + " "))
+        result = "pass" if case["passes"] else "fail: " + ", ".join(TARGET_LABEL[t][0] for t in case["fails"])
+        if case["id"] == choice:
+            result += "   <== chosen"
+        lines.append("".join(cells) + " " + result)
+    lines.append(f"({mark} marks a value that fails its target; — : not defined for this case)")
+    return "\n".join(lines)
+
+
+def _fmt_metric(key: str, value) -> str:
+    if value is None:
+        return "n/a"
+    if key == "thdn_pct":
+        return f"{value:.5f} %"
+    if key == "noise_dbfs":
+        return f"{value:.1f} dBFS"
+    if key == "noise_vrms":
+        return format_quantity(value, "V rms")
+    if key.endswith("_hz"):
+        return format_quantity(value, "Hz")
+    return f"{value:.2f} dB"
+
+
+def passband_text(case: dict) -> str:
+    lo, hi = case.get("low_hz"), case.get("high_hz")
+    if case["response"] == "lowpass":
+        band = f"lowpass, −3 dB edge {format_quantity(hi, 'Hz')}"
+    elif case["response"] == "highpass":
+        band = f"highpass, −3 dB edge {format_quantity(lo, 'Hz')}"
+    else:
+        band = f"bandpass, −3 dB edges {format_quantity(lo, 'Hz')} to {format_quantity(hi, 'Hz')}"
+    return f"{case['family']} order {case['order']} {band}"
+
+
+def closing_paragraph(doc: dict) -> str:
+    """The answer in words: the chosen passband, the binding target, its metrics — or what cannot be met."""
+    cases = {c["id"]: c for c in doc["cases"]}
+    targets = doc["targets"]
+    inp = doc["input"]
+    head = (f"{inp['path']}: {inp['duration_s']:.1f} s, {inp['channels']} ch, {inp['sample_rate_hz']} Hz; "
+            f"peak {inp['peak_dbfs']:.1f} dBFS, rms {inp['rms_dbfs']:.1f} dBFS, 99 % occupied bandwidth "
+            f"{format_quantity(inp['occupied_bw_hz'], 'Hz')} "
+            f"({format_quantity(inp['occupied_low_hz'], 'Hz')} to {format_quantity(inp['occupied_high_hz'], 'Hz')}).")
+    n_pass = sum(1 for c in doc["cases"] if c["passes"])
+    lines = [head, f"{n_pass} of {len(cases)} cases meet every target."]
+    choice = doc.get("choice")
+    if choice:
+        c = cases[choice["case"]]
+        lines.append(f"Chosen: case {c['id']} — {passband_text(c)}; −3 dB bandwidth "
+                     f"{format_quantity(c['bandwidth_hz'], 'Hz')}, ENBW {format_quantity(c['enbw_hz'], 'Hz')}.")
+        b = choice.get("binding")
+        if b:
+            label, metric, unit, sense = TARGET_LABEL[b]
+            margin = choice.get("binding_margin_db")
+            lines.append(f"Binding target: {label} {sense} {_target_text(b, targets[b])} "
+                         f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin:.3g} dB).")
+        if choice.get("grid_limited"):
+            lines.append("This is the narrowest case of its family and order in the grid: extend the grid "
+                         "to see whether a narrower passband also passes.")
+        elif choice.get("next_narrower"):
+            nn = cases[choice["next_narrower"]]
+            fails = ", ".join(TARGET_LABEL[t][0] for t in nn["fails"]) or "none"
+            lines.append(f"The next narrower case ({nn['id']}, {format_quantity(nn['bandwidth_hz'], 'Hz')}) "
+                         f"fails: {fails}.")
+        figs = ", ".join(f"{name} {_fmt_metric(k, c[k])}".strip() for name, k in (
+            ("noise", "noise_vrms"), ("", "noise_dbfs"), ("SNR", "snr_db"), ("SNR-A", "snr_a_db"),
+            ("loss", "loss_db"), ("LSD", "lsd_db"), ("SER", "ser_db"), ("THD+N", "thdn_pct")))
+        lines.append("Its figures: " + figs + ".")
+    else:
+        lines.append("No case meets every target.")
+        for key, best in doc.get("unmet", {}).items():
+            label, metric, unit, sense = TARGET_LABEL[key]
+            lines.append(f"Cannot be met: {label} {sense} {_target_text(key, targets[key])}; the best any case "
+                         f"reached is {_fmt_metric(metric, best)}.")
+    for note in doc.get("notes", []):
+        lines.append("Note: " + note)
+    return "\n".join(lines)
+
+
+def _target_text(key: str, value: float) -> str:
+    return f"{value:g} %" if key == "max_thdn_pct" else f"{value:g} dB"
+
+
+def budget_text(b: dict, *, header: str) -> str:
+    """The noise budget as a table of contributors."""
+    names = {"source_thermal": "source thermal (4kTRs)", "amplifier_voltage": "amplifier voltage noise e_n",
+             "amplifier_current": "amplifier current noise i_n·Rs", "quantisation": "quantisation q²/12",
+             "dither": "dither (TPDF, 2q²/12)"}
+    lines = [header, f"{'contributor':<34s}{'noise':>14s}{'[dBu]':>10s}{'[dBFS]':>10s}{'share':>9s}"]
+
+    def row(label, e):
+        dbu = f"{e['dbu']:.1f}" if math.isfinite(e["dbu"]) else "−∞"
+        dbfs = f"{e['dbfs']:.1f}" if math.isfinite(e["dbfs"]) else "−∞"
+        return f"{label:<34s}{format_quantity(e['vrms'], 'V rms'):>14s}{dbu:>10s}{dbfs:>10s}{100 * e['share']:>8.1f}%"
+
+    for key, e in b["components"].items():
+        lines.append(row(names.get(key, key), e))
+    lines.append(row("total", b["total"]))
+    ta = dict(b["total_a_weighted"], share=float("nan"))
+    lines.append(row("total, A-weighted", ta).replace("nan%", "   —"))
+    lines.append(f"ENBW of the filter: {format_quantity(b['enbw_hz'], 'Hz')}; meter band "
+                 f"{format_quantity(b['meter']['low_hz'], 'Hz')} to {format_quantity(b['meter']['high_hz'], 'Hz')}")
+    lines.append(f"Dynamic range for a full-scale sine: {b['dynamic_range_db']:.1f} dB "
+                 f"({b['dynamic_range_a_db']:.1f} dB A-weighted)")
+    return "\n".join(lines)

@@ -1,0 +1,233 @@
+"""Options, defaults and the TOML chain file: one table, one parser.
+
+Every option of the chain, the grid, the targets and the meter is declared
+once in :data:`OPTIONS`.  The CLI and the TOML loader both hand raw values to
+:func:`build`, which parses them with :mod:`audiobw.units` and returns the
+typed objects.  Command-line values override the file's.
+
+TOML layout (same names as the options, in snake_case)::
+
+    [source]      source_ohms, temperature, input_level
+    [amplifier]   gain, en, in, h2, h3, amp_bandwidth
+    [converter]   bits, full_scale, dither, stage
+    [grid]        response, family, order, cutoffs, low_edges, high_edges, ripple, stopband
+    [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser
+    [meter]       meter, tone, tone_level
+
+Numbers are taken in the option's base unit (Ω, K, dB, V/√Hz, A/√Hz, V rms,
+Hz); strings may carry units and prefixes exactly as on the command line.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+from . import units
+from .chain import Chain
+from .errors import ConfigError, ParameterError
+from .metrics import Meter
+from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, RESPONSE_ALIASES,
+                      option_name)
+
+CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
+              "amp_bandwidth", "bits", "full_scale", "dither", "stage")
+GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
+TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
+                 "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db"}
+METER_KEYS = ("meter", "tone", "tone_level")
+
+
+@dataclass
+class Raw:
+    """A raw value and where it came from (for error messages)."""
+
+    value: object
+    origin: str
+
+
+def load_toml(path) -> dict[str, Raw]:
+    """Read a chain/grid TOML file into raw values; unknown keys are refused.
+
+    Raises
+    ------
+    ConfigError
+        Unreadable file, invalid TOML, an unknown section or key, or a value
+        of the wrong TOML type.
+    """
+    import tomllib
+
+    p = Path(path)
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise ConfigError(f"--chain: {str(p)!r}: no such file") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"--chain: {str(p)!r}: cannot read ({exc})") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"--chain: {str(p)!r}: not valid TOML ({exc})") from None
+    sections = sorted({s for s, _, _ in OPTIONS.values()})
+    out: dict[str, Raw] = {}
+    for section, table in data.items():
+        if section not in sections:
+            raise ConfigError(f"{p}: unknown section [{section}]; accepted: {', '.join(f'[{s}]' for s in sections)}")
+        if not isinstance(table, dict):
+            raise ConfigError(f"{p}: {section!r} must be a table [{section}]")
+        allowed = [k for k, (s, _, _) in OPTIONS.items() if s == section]
+        for key, value in table.items():
+            if key not in allowed:
+                raise ConfigError(f"{p}: unknown key {key!r} in [{section}]; accepted: {', '.join(allowed)}")
+            if isinstance(value, dict) or (isinstance(value, list) and any(isinstance(v, (dict, list)) for v in value)):
+                raise ConfigError(f"{p}: [{section}] {key} must be a number, a string or a flat list")
+            if isinstance(value, bool):
+                raise ConfigError(f"{p}: [{section}] {key} = {value!r} is a boolean; accepted: a number or a string")
+            out[key] = Raw(value, f"{p} [{section}] {key}")
+    return out
+
+
+def merge(file_values: dict[str, Raw], cli_values: dict[str, object]) -> dict[str, Raw]:
+    """File values overridden by every command-line value that was given."""
+    merged = dict(file_values)
+    for key, value in cli_values.items():
+        if value is not None and key in OPTIONS:
+            merged[key] = Raw(value, option_name(key))
+    return merged
+
+
+def _parse(key: str, raw: Raw):
+    _, kind, _ = OPTIONS[key]
+    v, name = raw.value, raw.origin
+    if kind.startswith("choice:"):
+        choices = kind.split(":", 1)[1].split(",")
+        aliases = RESPONSE_ALIASES if key == "response" else {}
+        text = str(v).strip().lower()
+        text = aliases.get(text, text)
+        if text not in choices:
+            raise ParameterError(f"{name}: {v!r} is not accepted; accepted: {', '.join(choices)}")
+        return text
+    if kind == "families":
+        return tuple(units.parse_name_list(v, name=name, choices=FAMILIES, aliases=FAMILY_ALIASES))
+    if kind == "orders":
+        return tuple(units.parse_int_list(v, name=name, low=MIN_ORDER, high=MAX_ORDER))
+    if kind == "grid":
+        return tuple(units.parse_grid(v, name=name))
+    if kind == "db_any":
+        return units.parse_quantity(v, "gain_db", name=name)
+    if kind == "input_level":
+        return _parse_input_level(v, name)
+    return units.parse_quantity(v, kind, name=name)
+
+
+def _parse_input_level(v, name):
+    """('gain', dB) or ('dbfs', level) or ('vrms', volts)."""
+    text = str(v).strip()
+    if isinstance(v, (int, float)) and not isinstance(v, bool):
+        return ("gain", float(v))
+    if text.endswith("dBFS"):
+        return ("dbfs", units.parse_quantity(text, "level_dbfs", name=name))
+    if text.endswith("dB"):
+        return ("gain", units.parse_quantity(text, "gain_db", name=name))
+    try:
+        return ("vrms", units.parse_quantity(text, "voltage", name=name))
+    except ParameterError:
+        raise ParameterError(
+            f"{name}: {v!r} is not an input level; accepted: a level such as -18dBFS, +4dBu, 0.5Vrms, "
+            "or a gain such as 6dB") from None
+
+
+@dataclass
+class Settings:
+    """Everything a sweep needs besides the input: typed and validated."""
+
+    chain: Chain
+    grid_values: dict
+    meter: Meter
+    targets: dict
+    input_level: tuple | None
+
+    def grid_for(self, nyquist_hz: float):
+        """The Grid, with defaults for the edges that were not given, fitted to ``nyquist_hz``."""
+        from .sweep import Grid
+
+        g = dict(self.grid_values)
+        response = g.get("response", "lowpass")
+        top = min(20000.0, 0.95 * nyquist_hz)
+        if response in ("lowpass", "highpass") and not g.get("cutoffs"):
+            lo, hi = (min(2000.0, top / 4), top) if response == "lowpass" else (10.0, min(500.0, top / 4))
+            g["cutoffs"] = tuple(units.parse_grid(f"{lo}:{hi}:24", name="default --cutoffs"))
+        if response == "bandpass":
+            if not g.get("low_edges"):
+                g["low_edges"] = tuple(units.parse_grid(f"10:{min(400.0, top / 8)}:8", name="default --low-edges"))
+            if not g.get("high_edges"):
+                g["high_edges"] = tuple(units.parse_grid(f"{min(2000.0, top / 4)}:{top}:12",
+                                                         name="default --high-edges"))
+        return Grid(
+            response=response,
+            families=g.get("family", ("butterworth",)),
+            orders=g.get("order", (4,)),
+            cutoffs_hz=g.get("cutoffs", ()),
+            low_edges_hz=g.get("low_edges", ()),
+            high_edges_hz=g.get("high_edges", ()),
+            ripple_db=g.get("ripple", 0.1),
+            stopband_db=g.get("stopband", 60.0),
+        )
+
+    def chain_for(self, analysis) -> Chain:
+        """The chain with ``--input-level`` resolved against the program's measured rms."""
+        if self.input_level is None:
+            return self.chain
+        kind, value = self.input_level
+        if kind == "gain":
+            gain = value
+        else:
+            rms_dbfs = analysis.rms_dbfs
+            if kind == "dbfs":
+                gain = value - rms_dbfs
+            else:
+                program_v = self.chain.full_scale_vrms * 10 ** (rms_dbfs / 20)
+                gain = 20 * math.log10(value / program_v)
+        from dataclasses import replace
+
+        return replace(self.chain, input_gain_db=gain)
+
+
+def build(raw: dict[str, Raw]) -> Settings:
+    """Parse every raw value and build the typed settings."""
+    parsed = {key: _parse(key, r) for key, r in raw.items()}
+    chain_kw = {}
+    mapping = {"source_ohms": "source_ohms", "temperature": "temperature_k", "gain": "gain_db",
+               "en": "en_v_rthz", "in": "in_a_rthz", "h2": "h2_db", "h3": "h3_db",
+               "amp_bandwidth": "amp_bandwidth_hz", "bits": "bits", "full_scale": "full_scale_vrms",
+               "dither": "dither", "stage": "stage"}
+    for key, field_name in mapping.items():
+        if key in parsed:
+            chain_kw[field_name] = int(parsed[key]) if key == "bits" else parsed[key]
+    for key in ("h2", "h3"):
+        if key in parsed and parsed[key] >= 0:
+            raise ParameterError(f"{raw[key].origin}: {raw[key].value!r} is not below 0 dB; "
+                                 "accepted: a harmonic level in dB re the fundamental, e.g. -110")
+    try:
+        chain = Chain(**chain_kw)
+    except ParameterError as exc:
+        # name the origin (file key) when the value came from the file
+        msg = str(exc)
+        for key, r in raw.items():
+            if msg.startswith(option_name(key) + ":") and r.origin != option_name(key):
+                msg = r.origin + msg[len(option_name(key)):]
+        raise ParameterError(msg) from None
+    meter = Meter(mode=parsed.get("meter", "full"), tone_hz=parsed.get("tone", 997.0),
+                  tone_level_dbfs=parsed.get("tone_level", -1.0))
+    if meter.tone_level_dbfs > 0:
+        raise ParameterError(f"{raw['tone_level'].origin}: {raw['tone_level'].value!r} is above full scale; "
+                             "accepted: a level <= 0 dBFS")
+    targets = {TARGET_OPTION[k]: parsed[k] for k in TARGET_OPTION if k in parsed}
+    if "ripple" in parsed and not 0 < parsed["ripple"] < 3:
+        raise ParameterError(f"{raw['ripple'].origin}: {raw['ripple'].value!r} is out of range; "
+                             "accepted: 0 < ripple < 3 dB")
+    if "stopband" in parsed and not 0 < parsed["stopband"] <= 200:
+        raise ParameterError(f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; "
+                             "accepted: 0 < stopband <= 200 dB")
+    grid_values = {k: parsed[k] for k in GRID_KEYS if k in parsed}
+    return Settings(chain=chain, grid_values=grid_values, meter=meter, targets=targets,
+                    input_level=parsed.get("input_level"))
