@@ -14,71 +14,9 @@ from pathlib import Path
 import click
 
 from . import __version__
-from .options import OPTIONS, option_name
 
-CONTEXT = dict(help_option_names=["-h", "--help"], max_content_width=100)
-
-LISTENING_CAUTION = ("Listening caution: start playback at a low volume and raise it gradually; "
-                     "prolonged listening at high levels can damage hearing.")
-ESTIMATE_CAUTION = ("These figures are engineering estimates from a model; verify them by measurement, "
-                    "and defer to the applicable product standards, local codes and licensed practice.")
-
-
-def _dest(key: str) -> str:
-    return "in_" if key == "in" else key
-
-
-def _options(keys, group: str):
-    """Declare ``--key`` options from the one table in settings.OPTIONS."""
-    def deco(fn):
-        for key in reversed(keys):
-            _, _, text = OPTIONS[key]
-            fn = click.option(option_name(key), _dest(key), default=None, metavar="VALUE",
-                              help=text)(fn)
-        return fn
-    return deco
-
-
-CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
-         "bits", "full_scale", "dither", "stage")
-GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
-TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser")
-METER = ("meter", "tone", "tone_level")
-
-
-def _cli_values(kwargs) -> dict:
-    return {("in" if k == "in_" else k): v for k, v in kwargs.items() if (k == "in_" or k in OPTIONS)}
-
-
-def _settings(kwargs, chain_file):
-    from .settings import build, load_toml, merge
-
-    file_values = load_toml(chain_file) if chain_file else {}
-    return build(merge(file_values, _cli_values(kwargs)))
-
-
-class _Progress:
-    """A progress bar on stderr for long files, only when stderr is a terminal."""
-
-    def __init__(self, label: str, min_frames: int = 48000 * 30):
-        self.label, self.min_frames, self.bar = label, min_frames, None
-
-    def __call__(self, done: int, total: int):
-        if self.bar is None:
-            if total < self.min_frames or not sys.stderr.isatty():
-                self.bar = False
-                return
-            self.bar = click.progressbar(length=total, label=self.label, file=sys.stderr)
-            self.bar.__enter__()
-            self._last = 0
-        if self.bar:
-            self.bar.update(done - self._last)
-            self._last = done
-
-    def close(self):
-        if self.bar:
-            self.bar.__exit__(None, None, None)
-
+from .clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, GRID, LISTENING_CAUTION, METER, TARGETS,  # noqa: F401
+                     Progress, chain_file_option, options, settings_from)
 
 @click.group(context_settings=CONTEXT)
 @click.version_option(__version__, prog_name="audiobw")
@@ -101,12 +39,11 @@ def _default_out(input_path: Path) -> Path:
 @click.option("--out", type=click.Path(path_type=Path), default=None,
               help="Output folder for sweep.json and sweep.csv [default: audiobw-out/<input name>/].")
 @click.option("--json", "as_json", is_flag=True, help="Print sweep.json to stdout instead of the table.")
-@click.option("--chain", "chain_file", type=click.Path(path_type=Path), default=None,
-              help="TOML file with [source] [amplifier] [converter] [grid] [targets] [meter]; options override it.")
-@_options(GRID, "grid")
-@_options(CHAIN, "chain")
-@_options(TARGETS, "targets")
-@_options(METER, "meter")
+@chain_file_option
+@options(GRID, "grid")
+@options(CHAIN, "chain")
+@options(TARGETS, "targets")
+@options(METER, "meter")
 def sweep(input, out, as_json, chain_file, **kwargs):
     """Sweep candidate filters over INPUT and choose the narrowest passing passband.
 
@@ -120,8 +57,8 @@ def sweep(input, out, as_json, chain_file, **kwargs):
     from .report.sweepio import dumps
     from .report.text import case_table, closing_paragraph
 
-    settings = _settings(kwargs, chain_file)
-    progress = _Progress(f"analysing {input.name}")
+    settings = settings_from(kwargs, chain_file)
+    progress = Progress(f"analysing {input.name}")
     try:
         doc, paths = sweep_file(input, settings, out_dir=out or _default_out(input), progress=progress)
     finally:
@@ -146,10 +83,9 @@ def sweep(input, out, as_json, chain_file, **kwargs):
 @click.option("--stopband", default=None, metavar="DB", help="Elliptic stopband attenuation, dB [default: 60].")
 @click.option("--rate", default="48k", show_default=True, metavar="HZ", help="Converter sample rate, Hz.")
 @click.option("--json", "as_json", is_flag=True, help="Print the budget as JSON.")
-@click.option("--chain", "chain_file", type=click.Path(path_type=Path), default=None,
-              help="TOML chain file; options override it.")
-@_options(CHAIN, "chain")
-@_options(("meter",), "meter")
+@chain_file_option
+@options(CHAIN, "chain")
+@options(("meter",), "meter")
 def noise(band, family, order, ripple, stopband, rate, as_json, chain_file, **kwargs):
     """Print the noise budget of a chain with one filter.
 
@@ -161,7 +97,7 @@ def noise(band, family, order, ripple, stopband, rate, as_json, chain_file, **kw
     from .jobs import noise_budget
 
     kwargs.update(family=family, order=order, ripple=ripple, stopband=stopband)
-    settings = _settings(kwargs, chain_file)
+    settings = settings_from(kwargs, chain_file)
     b, header = noise_budget(settings, band=band, rate=rate)
     if as_json:
         click.echo(json.dumps(b, indent=2, allow_nan=False, default=str))
@@ -185,6 +121,22 @@ def demo(out, clips_dir):
         click.echo(line)
 
 
+def _add_plugin_commands() -> None:
+    """Commands kept in audiobw/commands/*.py (each module exports ``command``)."""
+    import importlib
+    import pkgutil
+
+    from . import commands
+
+    for info in sorted(pkgutil.iter_modules(commands.__path__), key=lambda m: m.name):
+        if not info.name.startswith("_"):
+            module = importlib.import_module(f"{commands.__name__}.{info.name}")
+            cli.add_command(module.command)
+
+
+_add_plugin_commands()
+
+
 def main(argv=None) -> int:
     """Console entry point: one line per user mistake, no traceback (unless --debug)."""
     from .errors import AudiobwError
@@ -197,8 +149,8 @@ def main(argv=None) -> int:
 
     warnings.showwarning = _show
     try:
-        cli.main(args=args, prog_name="audiobw", standalone_mode=False)
-        return 0
+        result = cli.main(args=args, prog_name="audiobw", standalone_mode=False)
+        return result if isinstance(result, int) else 0
     except click.exceptions.Abort:
         click.echo("audiobw: interrupted", err=True)
         return 130

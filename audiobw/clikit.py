@@ -1,0 +1,84 @@
+"""Shared pieces of the command line: option decorators built from the one
+option table, settings from CLI values and a TOML file, progress, cautions.
+
+Imports only click and the standard library at module level, so every
+command module can use it without slowing ``audiobw --help``.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import click
+
+from .options import OPTIONS, option_name
+
+CONTEXT = dict(help_option_names=["-h", "--help"], max_content_width=100)
+
+LISTENING_CAUTION = ("Listening caution: start playback at a low volume and raise it gradually; "
+                     "prolonged listening at high levels can damage hearing.")
+ESTIMATE_CAUTION = ("These figures are engineering estimates from a model; verify them by measurement, "
+                    "and defer to the applicable product standards, local codes and licensed practice.")
+
+
+def dest(key: str) -> str:
+    return "in_" if key == "in" else key
+
+
+def options(keys, group: str):
+    """Declare ``--key`` options from the one table in settings.OPTIONS."""
+    def deco(fn):
+        for key in reversed(keys):
+            _, _, text = OPTIONS[key]
+            fn = click.option(option_name(key), dest(key), default=None, metavar="VALUE",
+                              help=text)(fn)
+        return fn
+    return deco
+
+
+CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
+         "bits", "full_scale", "dither", "stage")
+GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
+TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser")
+METER = ("meter", "tone", "tone_level")
+
+
+def cli_values(kwargs) -> dict:
+    return {("in" if k == "in_" else k): v for k, v in kwargs.items() if (k == "in_" or k in OPTIONS)}
+
+
+def settings_from(kwargs, chain_file):
+    from .settings import build, load_toml, merge
+
+    file_values = load_toml(chain_file) if chain_file else {}
+    return build(merge(file_values, cli_values(kwargs)))
+
+
+class Progress:
+    """A progress bar on stderr for long files, only when stderr is a terminal."""
+
+    def __init__(self, label: str, min_frames: int = 48000 * 30):
+        self.label, self.min_frames, self.bar = label, min_frames, None
+
+    def __call__(self, done: int, total: int):
+        if self.bar is None:
+            if total < self.min_frames or not sys.stderr.isatty():
+                self.bar = False
+                return
+            self.bar = click.progressbar(length=total, label=self.label, file=sys.stderr)
+            self.bar.__enter__()
+            self._last = 0
+        if self.bar:
+            self.bar.update(done - self._last)
+            self._last = done
+
+    def close(self):
+        if self.bar:
+            self.bar.__exit__(None, None, None)
+
+
+
+chain_file_option = click.option(
+    "--chain", "chain_file", type=click.Path(path_type=Path), default=None,
+    help="TOML file with [source] [amplifier] [converter] [grid] [targets] [meter]; options override it.")
