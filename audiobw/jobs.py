@@ -42,8 +42,30 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None):
     result = run_sweep(path, chain=chain, grid=grid, meter=settings.meter, targets=settings.targets,
                        analysis=analysis)
     doc = result.to_json()
-    paths = write_outputs(doc, out_dir, inputs=[path]) if out_dir is not None else {}
+    paths = {}
+    if out_dir is not None:
+        paths = write_outputs(doc, out_dir, inputs=[path])
+        paths["spectrum"] = write_spectrum(analysis, out_dir / "spectrum.npz", inputs=[path])
     return doc, paths
+
+
+def write_spectrum(analysis, target, *, inputs=()):
+    """Save the program's long-term spectrum beside sweep.json (numpy .npz, no pickled objects).
+
+    Keys: ``freqs_hz``, ``psd`` (channel mean, FS²/Hz: sample units), ``psd_channels``,
+    ``weights_hz``, ``band_edges_hz``, ``sample_rate_hz``, ``sha256``.  Reports read it
+    with ``numpy.load(..., allow_pickle=False)``.
+    """
+    import numpy as np
+
+    from .audio import atomic_path
+
+    with atomic_path(target, inputs=inputs) as tmp:
+        with open(tmp, "wb") as fh:
+            np.savez(fh, freqs_hz=analysis.freqs_hz, psd=analysis.psd, psd_channels=analysis.psd_channels,
+                     weights_hz=analysis.weights_hz, band_edges_hz=analysis.band_edges_hz,
+                     sample_rate_hz=np.int64(analysis.sample_rate_hz), sha256=np.str_(analysis.sha256))
+    return target
 
 
 def noise_budget(settings: Settings, *, band: str, rate: str):
