@@ -87,9 +87,10 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     filt = design(spec)
     b = budget(settings.chain, filt, fs, meter=settings.meter.band(fs / 2.0))
     c = settings.chain
-    header = (f"Noise budget: {spec.label()}, {c.stage} stage, fs {fs:g} Hz; Rs {c.source_ohms:g} Ω at "
-              f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {c.en_v_rthz:.3g} V/√Hz, "
-              f"i_n {c.in_a_rthz:.3g} A/√Hz, {c.bits} bits, full scale {c.full_scale_vrms:g} V rms, "
+    fq = units.format_quantity
+    header = (f"Noise budget: {spec.label()}, {c.stage} stage, fs {fq(fs, 'Hz')}; Rs {fq(c.source_ohms, 'Ω')} at "
+              f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {fq(c.en_v_rthz, 'V/√Hz')}, "
+              f"i_n {fq(c.in_a_rthz, 'A/√Hz')}, {c.bits} bits, full scale {fq(c.full_scale_vrms, 'V rms')}, "
               f"dither {c.dither}")
     b["filter"] = {"response": response, "family": spec.family, "order": spec.order,
                    "low_hz": filt.edges_3db[0], "high_hz": filt.edges_3db[1]}
