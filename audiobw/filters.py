@@ -171,6 +171,9 @@ class Filter:
     k: float
     ref_rad_s: float = 1.0  # analog: zpk normalised by this frequency
     _cache: dict = field(default_factory=dict, repr=False)
+    # shared by every filter with the same normalised prototype (an analog
+    # lowpass or highpass at any cutoff): state space, Gramian term, edge ratios
+    _proto: dict | None = field(default=None, repr=False)
 
     @property
     def analog(self) -> bool:
@@ -213,9 +216,10 @@ class Filter:
             return 10.0 * np.log10(self.power_response(freq_hz))
 
     def _state_space(self):
-        if "ss" not in self._cache:
-            self._cache["ss"] = signal.zpk2ss(self.z, self.p, self.k)
-        return self._cache["ss"]
+        cache = self._proto if self._proto is not None else self._cache
+        if "ss" not in cache:
+            cache["ss"] = signal.zpk2ss(self.z, self.p, self.k)
+        return cache["ss"]
 
     def floor_gain(self) -> float:
         """|H(∞)|² of an analog response: 1 for a highpass, 10^(−stopband/10) for an
@@ -235,13 +239,16 @@ class Filter:
         """
         if "varying" in self._cache:
             return self._cache["varying"]
-        a, b, c, d = self._state_space()
-        if a.size == 0:
-            value = 0.0
-        else:
-            gram = linalg.solve_continuous_lyapunov(a, -b @ b.T)
-            value = float(self.ref_rad_s / 2.0 * (np.real(c @ gram @ c.T)[0, 0]
-                                                  + float(np.real(d[0, 0])) * np.real(c @ b)[0, 0]))
+        shared = self._proto if self._proto is not None else {}
+        if "gram_term" not in shared:
+            a, b, c, d = self._state_space()
+            if a.size == 0:
+                shared["gram_term"] = 0.0
+            else:
+                gram = linalg.solve_continuous_lyapunov(a, -b @ b.T)
+                shared["gram_term"] = float(np.real(c @ gram @ c.T)[0, 0]
+                                            + float(np.real(d[0, 0])) * np.real(c @ b)[0, 0])
+        value = float(self.ref_rad_s / 2.0 * shared["gram_term"])
         self._cache["varying"] = value
         return value
 
@@ -278,6 +285,15 @@ class Filter:
 
     def _crossing(self, edge_hz: float, *, upward: bool) -> float:
         """Find where |H|² crosses one half, searching outward from a design edge."""
+        if self._proto is not None:
+            # same normalised prototype: the crossing scales with the design edge
+            key = ("cross", upward)
+            if key not in self._proto:
+                self._proto[key] = self._crossing_search(edge_hz, upward=upward) / edge_hz
+            return edge_hz * self._proto[key]
+        return self._crossing_search(edge_hz, upward=upward)
+
+    def _crossing_search(self, edge_hz: float, *, upward: bool) -> float:
         if self.spec.family in ("butterworth", "bessel"):
             start = edge_hz
         else:
@@ -324,6 +340,10 @@ class Filter:
         return value
 
 
+#: Normalised analog lowpass/highpass prototypes, keyed by (response, family, order, ripple, stopband).
+_PROTOTYPES: dict = {}
+
+
 def design(spec: FilterSpec) -> Filter:
     """Design one candidate (validate it first with :func:`validate_spec`).
 
@@ -333,6 +353,18 @@ def design(spec: FilterSpec) -> Filter:
     >>> round(float(f.response_db(1000.0)), 2)
     -3.01
     """
+    if spec.stage == "analog" and spec.response != "bandpass":
+        # normalised to its own edge, a lowpass or highpass prototype is the
+        # same at every cutoff: design it once and share its derived values
+        key = (spec.response, spec.family, int(spec.order), float(spec.ripple_db), float(spec.stopband_db))
+        if key not in _PROTOTYPES:
+            z, p, k = _design(spec, 1.0, analog=True, fs=None, output="zpk")
+            z, p = np.asarray(z, complex), np.asarray(p, complex)
+            z.setflags(write=False)
+            p.setflags(write=False)
+            _PROTOTYPES[key] = (z, p, float(np.real(k)), {})
+        z, p, k, shared = _PROTOTYPES[key]
+        return Filter(spec, z, p, k, 2 * math.pi * _wn(spec), _proto=shared)
     if spec.stage == "analog":
         wn = _wn(spec)
         ref = 2 * math.pi * (math.sqrt(wn[0] * wn[1]) if isinstance(wn, list) else wn)
