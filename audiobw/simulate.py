@@ -1,0 +1,385 @@
+"""Time-domain simulation of one chain, block by block.
+
+::
+
+    analog stage:   program -> amplifier polynomial -> analog filter -> (+ amplifier noise, folded) -> converter
+    digital stage:  program -> amplifier polynomial -> (+ amplifier noise) -> converter -> digital filter (SOS)
+
+Units are converter sample units throughout: a full-scale sine has peak 1.0
+(AES17), so a voltage v at the converter input is v / (√2·full_scale_vrms).
+
+How each part is made
+---------------------
+* **Analog filter.** The analog response H(f) is sampled on an M-point FFT
+  grid, turned into an M-tap FIR (with a few samples of precursor room, since
+  a response band-limited to fs/2 rings a little before t = 0), and run by
+  overlap-save convolution.  On the grid the FIR's response *is* H(f); between
+  grid points it interpolates, and M is doubled until the FIR's response on a
+  grid four times finer stays within 10⁻³ (relative) + 10⁻⁶ (absolute) of
+  H(f) up to 0.45·fs — about 0.01 dB where the response is above −60 dB, far
+  inside the 0.1 dB required.  No bilinear warping, no oversampling.
+* **Noise.** Generated in the time domain: seeded Gaussian white noise with
+  the chain model's density at the converter input (amplifier noise
+  G²·(4kT·Rs + e_n² + (i_n·Rs)²)), shaped by an FIR whose power response is
+  the *folded* noise gain of the analog path (:func:`audiobw.noise.folded_noise_gain`):
+  what the filter passes above fs/2 aliases into 0…fs/2 at the converter, so
+  the noise is synthesised directly with that folded shape and its exact total.
+  The noise shaper is started one block early, so the noise is stationary from
+  the first sample.  Digital stage: the converter's anti-alias filter confines
+  the amplifier's noise to 0…fs/2, so it is white there (times the amplifier's
+  own pole when it has a bandwidth).
+* **Amplifier nonlinearity.** The memoryless polynomial y = x + a2·x² + a3·x³
+  with a2 = 2·10^(h2/20) and a3 = 4·10^(h3/20): for a full-scale sine (peak 1)
+  the 2nd and 3rd harmonics are then h2 and h3 dB re the fundamental, and they
+  scale as r and r² at amplitude r (trigonometric identities for sin² and
+  sin³).  The polynomial acts on the program at the file's rate, so a harmonic
+  above fs/2 folds before an analog filter rather than after it (the model
+  filters it at its true frequency); the two agree whenever the harmonics lie
+  below fs/2.
+* **Converter.** Rounding to q = 2·√2·FS/2^N (2/2^N in sample units), with
+  TPDF dither of 2 LSB peak to peak when asked; codes run from −1 to 1 − q and
+  every sample beyond them is clipped *and counted*.
+
+Streaming: every stage runs on a fixed grid of hops counted from the first
+sample, with filter states and random streams carried from hop to hop, so the
+output does not depend on how the input is cut into blocks: a run block by
+block is identical, sample for sample, to a one-shot run.
+
+References
+----------
+.. [1] A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*,
+   3rd ed., §8.7 (linear convolution with the DFT; overlap-save), §4.2
+   (sampling and aliasing).
+.. [2] scipy.signal.freqs_zpk (analog response from zeros, poles, gain) and
+   scipy.signal.sosfilt (second-order sections with carried state), SciPy
+   reference guide.
+.. [3] R. A. Wannamaker, S. P. Lipshitz, J. Vanderkooy, J. N. Wright, "A
+   theory of nonsubtractive dither", IEEE Trans. Signal Process. 48(2), 2000
+   (TPDF dither of 2 LSB peak to peak).
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .chain import Chain
+from .errors import NumericalWarning
+from .filters import Filter
+
+#: The FIR's response is checked (and must hold) up to this fraction of fs.
+ACCURACY_FRACTION = 0.45
+MIN_TAPS = 1 << 12
+MAX_TAPS = 1 << 20
+REL_TOL = 1e-3
+ABS_TOL = 1e-6
+
+
+def harmonic_coefficients(chain: Chain) -> tuple[float, float]:
+    """(a2, a3) of the amplifier polynomial y = x + a2·x² + a3·x³.
+
+    For x = sin: x² = (1 − cos 2ωt)/2 and x³ = (3 sin ωt − sin 3ωt)/4, so the
+    2nd harmonic is a2/2 and the 3rd a3/4 of a full-scale fundamental.
+    """
+    a2 = 2.0 * 10 ** (chain.h2_db / 20.0) if chain.h2_db is not None else 0.0
+    a3 = 4.0 * 10 ** (chain.h3_db / 20.0) if chain.h3_db is not None else 0.0
+    return a2, a3
+
+
+def analog_response(filt: Filter, freqs_hz: np.ndarray) -> np.ndarray:
+    """Complex analog response H(j2πf), from the normalised zpk (scipy.signal.freqs_zpk)."""
+    from scipy import signal
+
+    w = 2.0 * np.pi * np.asarray(freqs_hz, float) / filt.ref_rad_s
+    _, h = signal.freqs_zpk(filt.z, filt.p, filt.k, worN=w)
+    return h
+
+
+def _grid(m: int, fs_hz: float) -> np.ndarray:
+    return np.arange(m // 2 + 1) * fs_hz / m
+
+
+def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS) -> tuple[np.ndarray, int, float]:
+    """An FIR whose response matches the analog filter below fs/2.
+
+    Returns
+    -------
+    h : ndarray, (M,)
+        Taps.
+    delay : int
+        Samples of precursor room: h[n] stands for the response at n − delay.
+    max_error : float
+        Worst |H_fir − H| / (|H| + 1e-3) found up to 0.45·fs on a 4× finer grid.
+    """
+    m = MIN_TAPS
+    while True:
+        f = _grid(m, fs_hz)
+        h_grid = analog_response(filt, f)
+        h_grid[-1] = h_grid[-1].real  # the DFT of real taps is real at fs/2
+        delay = m // 8
+        taps = np.roll(np.fft.irfft(h_grid, m), delay)
+        fine = _grid(4 * m, fs_hz)
+        band = fine <= ACCURACY_FRACTION * fs_hz
+        got = np.fft.rfft(taps, 4 * m)[band] * np.exp(2j * np.pi * fine[band] * delay / fs_hz)
+        want = analog_response(filt, fine[band])
+        err = np.abs(got - want)
+        ok = bool(np.all(err <= REL_TOL * np.abs(want) + ABS_TOL))
+        worst = float(np.max(err / (np.abs(want) + 1e-3)))
+        if ok or m >= max_taps:
+            if not ok:
+                warnings.warn(f"analog filter {filt.spec.label()}: FIR of {m} taps misses the analog "
+                              f"response by up to {worst:.2g} (relative) below 0.45*fs",
+                              NumericalWarning, stacklevel=2)
+            return taps, delay, worst
+        m *= 2
+
+
+def noise_shaper(gain: np.ndarray, m: int) -> np.ndarray:
+    """Linear-phase FIR of M taps whose power response on the M-grid is ``gain``.
+
+    Its energy Σh² is the mean of ``gain`` over the two-sided grid, so white
+    noise of variance σ² comes out with power σ²·Σ(gain·w)/(fs/2), w the
+    trapezoid widths of the one-sided grid: the exact total of the gain shape.
+    """
+    return np.roll(np.fft.irfft(np.sqrt(np.maximum(gain, 0.0)), m), m // 2)
+
+
+class OverlapSave:
+    """Overlap-save FIR convolution of multichannel hops of a fixed length.
+
+    Parameters
+    ----------
+    taps : ndarray, (M,)
+    hop : int, >= 1
+        Samples consumed and produced per call.
+    channels : int
+    """
+
+    def __init__(self, taps: np.ndarray, hop: int, channels: int):
+        self.m = int(taps.size)
+        self.hop = int(hop)
+        self.nfft = 1 << math.ceil(math.log2(self.hop + self.m - 1))
+        self.spectrum = np.fft.rfft(taps, self.nfft)[:, None]
+        self.history = np.zeros((self.m - 1, channels))
+
+    def process(self, x: np.ndarray) -> np.ndarray:
+        buf = np.concatenate([self.history, x]) if self.m > 1 else x
+        y = np.fft.irfft(np.fft.rfft(buf, self.nfft, axis=0) * self.spectrum, self.nfft, axis=0)
+        if self.m > 1:
+            self.history = buf[-(self.m - 1):]
+        return y[self.m - 1:self.m - 1 + x.shape[0]]
+
+
+def quantise(x: np.ndarray, bits: int,
+             dither_rng: np.random.Generator | None) -> tuple[np.ndarray, np.ndarray, int | None]:
+    """Round to the converter's codes, optionally with TPDF dither; clip and count.
+
+    Parameters
+    ----------
+    x : ndarray, (n, channels)
+        Converter input in sample units (full-scale sine peak 1.0).
+    bits : int, 1 <= bits <= 32
+    dither_rng : numpy.random.Generator or None
+        Source of TPDF dither (difference of two uniform variates, 2 LSB peak
+        to peak); None for no dither.
+
+    Returns
+    -------
+    y : ndarray
+        Quantised samples, in [−1, 1 − q].
+    clipped : ndarray of int, (channels,)
+        Samples that fell outside the code range, per channel.
+    first : int or None
+        Row of the first clipped sample.
+    """
+    q = 2.0 / 2.0 ** int(bits)
+    codes = x / q
+    if dither_rng is not None:
+        codes = codes + (dither_rng.random(x.shape) - dither_rng.random(x.shape))
+    codes = np.round(codes)
+    top, bottom = 2.0 ** (int(bits) - 1) - 1.0, -(2.0 ** (int(bits) - 1))
+    over = (codes > top) | (codes < bottom)
+    clipped = over.sum(axis=0)
+    first = None
+    if np.any(over):
+        codes = np.clip(codes, bottom, top)
+        first = int(np.argmax(np.any(over, axis=1)))
+    return codes * q, clipped, first
+
+
+@dataclass
+class ClipReport:
+    """Converter clipping seen during a run."""
+
+    samples: np.ndarray            # per channel
+    first_frame: int | None = None
+
+    @property
+    def total(self) -> int:
+        return int(np.sum(self.samples))
+
+
+@dataclass
+class ChainSimulator:
+    """Stream a program through one chain.
+
+    Parameters
+    ----------
+    chain : Chain
+    filt : Filter
+        The candidate, designed for ``chain.stage`` (analog prototype or
+        digital form at ``fs_hz``).
+    fs_hz : float, > 0
+    channels : int, >= 1
+    seed : int
+        Seeds the noise and dither streams (numpy SeedSequence).
+    noise : bool
+        Add the chain's noise (False: a noiseless run, for checks).
+    quantise : bool
+        Round at the converter (False: an ideal converter).
+
+    Use :meth:`push` with blocks of shape (frames, channels) and
+    :meth:`finish` at the end; both return output blocks.  :meth:`run` does a
+    whole array at once.
+    """
+
+    chain: Chain
+    filt: Filter
+    fs_hz: float
+    channels: int
+    seed: int = 0
+    noise: bool = True
+    quantise: bool = True
+    fir_max_taps: int = MAX_TAPS
+    info: dict = field(default_factory=dict)
+
+    def __post_init__(self):
+        c, fs = self.chain, float(self.fs_hz)
+        self.analog = self.filt.analog
+        self.in_gain = 10 ** (c.input_gain_db / 20.0)
+        self.a2, self.a3 = harmonic_coefficients(c)
+        units_v2 = 2.0 * c.full_scale_vrms ** 2  # (V per sample unit)²
+        density = c.density_amplifier_v2_hz() / units_v2  # one-sided, units²/Hz
+        noise_seq, dither_seq = np.random.SeedSequence(int(self.seed)).spawn(2)
+        self.noise_rng = np.random.default_rng(noise_seq)
+        self.dither_rng = np.random.default_rng(dither_seq) if c.dither == "tpdf" else None
+        self.delay = 0
+        if self.analog:
+            taps, self.delay, worst = analog_fir(self.filt, fs, max_taps=self.fir_max_taps)
+            m = taps.size
+            self.info.update(fir_taps=m, fir_precursor=self.delay, fir_max_rel_error=worst)
+        else:
+            m = MIN_TAPS
+            self.sos = self.filt.sos()
+            self.zi = np.zeros((self.sos.shape[0], 2, self.channels))
+            self.info.update(sos_sections=int(self.sos.shape[0]))
+        self.hop = m
+        if self.analog:
+            self.conv = OverlapSave(taps, self.hop, self.channels)
+        # noise: white of variance density·fs/2, shaped by the (folded) gain
+        self.noise_sigma = math.sqrt(density * fs / 2.0)
+        self.noise_conv = None
+        if self.noise and density > 0:
+            gain = self._noise_gain(m)
+            if gain is not None:
+                self.noise_conv = OverlapSave(noise_shaper(gain, m), self.hop, self.channels)
+                self.noise_conv.process(self._white())  # pre-roll: stationary from sample 0
+        self._pending = np.zeros((0, self.channels))
+        self._frames_in = 0
+        self._frames_out = 0
+        self._to_skip = self.delay
+        self._zhop = 0
+        self.clipping = ClipReport(np.zeros(self.channels, dtype=np.int64))
+
+    def _noise_gain(self, m: int):
+        """Power gain shape of the amplifier noise on the M-grid (None: white)."""
+        from .noise import folded_noise_gain
+        from .spectrum import trapezoid_weights
+
+        fs = float(self.fs_hz)
+        f = _grid(m, fs)
+        if self.analog:
+            w = trapezoid_weights(f.size, fs / m)
+            gain, _ = folded_noise_gain(self.filt, f, w, fs, self.chain.amp_bandwidth_hz)
+            return gain
+        if self.chain.amp_bandwidth_hz is not None:
+            return 1.0 / (1.0 + (f / self.chain.amp_bandwidth_hz) ** 2)
+        return None
+
+    def _white(self) -> np.ndarray:
+        return self.noise_rng.standard_normal((self.hop, self.channels)) * self.noise_sigma
+
+    # -- the fixed hop grid --------------------------------------------------
+    def _process_hop(self, x: np.ndarray) -> np.ndarray:
+        s = x * self.in_gain if self.in_gain != 1.0 else x.copy()
+        if self.a2 or self.a3:
+            s = s + self.a2 * s**2 + self.a3 * s**3
+        if self.analog:
+            s = self.conv.process(s)
+        if self.noise and self.noise_sigma > 0:
+            n = self.noise_conv.process(self._white()) if self.noise_conv is not None else self._white()
+            s = s + n
+        if self.quantise:
+            s, clipped, first = quantise(s, self.chain.bits, self.dither_rng)
+            if first is not None:
+                if self.clipping.first_frame is None:
+                    self.clipping.first_frame = max(0, self._zhop * self.hop + first - self.delay)
+                self.clipping.samples += clipped
+        if not self.analog:
+            from scipy import signal
+
+            s, self.zi = signal.sosfilt(self.sos, s, axis=0, zi=self.zi)
+        self._zhop += 1
+        return s
+
+    def _emit(self, z: np.ndarray) -> np.ndarray:
+        if self._to_skip:
+            cut = min(self._to_skip, z.shape[0])
+            z = z[cut:]
+            self._to_skip -= cut
+        room = self._frames_in - self._frames_out if self._finished else z.shape[0]
+        z = z[:max(room, 0)]
+        self._frames_out += z.shape[0]
+        return z
+
+    _finished = False
+
+    def push(self, block: np.ndarray) -> np.ndarray:
+        """Feed a block (frames, channels); return whatever output is ready."""
+        block = np.asarray(block, dtype=float)
+        if block.ndim == 1:
+            block = block[:, None]
+        self._frames_in += block.shape[0]
+        buf = np.concatenate([self._pending, block]) if self._pending.size else block
+        outs = []
+        n_full = buf.shape[0] // self.hop
+        for i in range(n_full):
+            outs.append(self._emit(self._process_hop(buf[i * self.hop:(i + 1) * self.hop])))
+        self._pending = buf[n_full * self.hop:]
+        return np.concatenate(outs) if outs else np.zeros((0, self.channels))
+
+    def finish(self) -> np.ndarray:
+        """Flush the pending input and the filter's precursor room; return the tail."""
+        self._finished = True
+        outs = []
+        need = self._frames_in - self._frames_out
+        pending = self._pending
+        while need > 0:
+            x = np.zeros((self.hop, self.channels))
+            x[:pending.shape[0]] = pending
+            pending = np.zeros((0, self.channels))
+            out = self._emit(self._process_hop(x))
+            outs.append(out)
+            need -= out.shape[0]
+        self._pending = np.zeros((0, self.channels))
+        return np.concatenate(outs) if outs else np.zeros((0, self.channels))
+
+    def run(self, x: np.ndarray) -> np.ndarray:
+        """One-shot: the whole program in, the whole output out (same length)."""
+        x = np.asarray(x, dtype=float)
+        squeeze = x.ndim == 1
+        y = np.concatenate([self.push(x), self.finish()])
+        return y[:, 0] if squeeze else y
