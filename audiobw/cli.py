@@ -15,7 +15,7 @@ import click
 
 from . import __version__
 
-from .clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, GRID, LISTENING_CAUTION, METER, TARGETS,  # noqa: F401
+from .clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, GRID, LISTENING_CAUTION, METER, PROGRAM, TARGETS,  # noqa: F401
                      Progress, chain_file_option, options, settings_from)
 
 @click.group(context_settings=CONTEXT)
@@ -44,6 +44,7 @@ def _default_out(input_path: Path) -> Path:
 @options(CHAIN, "chain")
 @options(TARGETS, "targets")
 @options(METER, "meter")
+@options(PROGRAM, "program")
 def sweep(input, out, as_json, chain_file, **kwargs):
     """Sweep candidate filters over INPUT and choose the narrowest passing passband.
 

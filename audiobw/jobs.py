@@ -39,8 +39,13 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None):
     grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
     analysis = analyse(path, progress=progress)
     chain = settings.chain_for(analysis)
+    data = None
+    if settings.program == "data":
+        from .datalink import data_program_for
+
+        data = data_program_for(analysis, chain, settings.bit_rate)
     result = run_sweep(path, chain=chain, grid=grid, meter=settings.meter, targets=settings.targets,
-                       analysis=analysis)
+                       analysis=analysis, data=data)
     doc = result.to_json()
     paths = {}
     if out_dir is not None:

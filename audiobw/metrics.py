@@ -32,7 +32,8 @@ from .weighting import a_weighting_power
 #: Per-band floor for the log-spectral distance, dB re full-scale sine power.
 LSD_FLOOR_DBFS = -120.0
 
-TARGET_KEYS = ("min_snr_db", "min_snr_a_db", "max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db")
+TARGET_KEYS = ("min_snr_db", "min_snr_a_db", "max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db",
+               "max_ber", "min_eye")
 #: target key -> (metric key, sense): +1 means the metric must be at least the target.
 TARGET_METRIC = {
     "min_snr_db": ("snr_db", +1),
@@ -41,6 +42,8 @@ TARGET_METRIC = {
     "max_loss_db": ("loss_db", -1),
     "max_lsd_db": ("lsd_db", -1),
     "min_ser_db": ("ser_db", +1),
+    "max_ber": ("ber", -1),
+    "min_eye": ("eye_fraction", +1),
 }
 
 
@@ -197,7 +200,8 @@ def check_targets(row: dict, targets: dict) -> tuple[bool, list[str], dict]:
         Target keys that fail (a metric that cannot be evaluated fails).
     margins_db : dict
         Target key -> margin in dB (positive: met with room to spare).
-        THD+N margins are 20·lg(limit/value).
+        THD+N margins are 20·lg(limit/value); BER margins 10·lg(limit/value);
+        eye margins 20·lg(value/limit).
     """
     fails, margins = [], {}
     for key in TARGET_KEYS:
@@ -212,6 +216,10 @@ def check_targets(row: dict, targets: dict) -> tuple[bool, list[str], dict]:
             continue
         if key == "max_thdn_pct":
             margin = 20 * math.log10(limit / value) if value > 0 else math.inf
+        elif key == "max_ber":
+            margin = 10 * math.log10(limit / value) if value > 0 else math.inf
+        elif key == "min_eye":
+            margin = 20 * math.log10(value / limit) if value > 0 else -math.inf
         else:
             margin = (value - limit) * sense
         margins[key] = margin

@@ -48,6 +48,13 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "max_loss": ("targets", "db", "target: maximum program power removed, dB"),
     "max_lsd": ("targets", "db", "target: maximum log-spectral distance, dB"),
     "min_ser": ("targets", "db_any", "target: minimum signal-to-error ratio, dB"),
+    "max_ber": ("targets", "probability", "target (data programs): maximum bit-error rate, e.g. 1e-9"),
+    "min_eye": ("targets", "fraction", "target (data programs): minimum eye opening, fraction of the "
+                "unfiltered one (0.6 or 60%)"),
+    "program": ("program", "choice:audio,data", "what the recording is: audio (default) or data (a polar "
+                "NRZ bit stream, scored by eye opening and bit-error rate)"),
+    "bit_rate": ("program", "bit_rate", "bit rate of a data program, bit/s (2k, 9600) or auto (recovered "
+                 "from the recording)"),
     "meter": ("meter", "choice:full,aes17", "meter band: full (0 to fs/2) or aes17 (20 Hz to 20 kHz)"),
     "tone": ("meter", "frequency", "THD+N test tone, Hz (default 997)"),
     "tone_level": ("meter", "level_dbfs", "THD+N test tone level, dBFS (default -1)"),

@@ -35,7 +35,8 @@ CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "
               "amp_bandwidth", "bits", "full_scale", "dither", "stage")
 GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
 TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
-                 "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db"}
+                 "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
+                 "max_ber": "max_ber", "min_eye": "min_eye"}
 METER_KEYS = ("meter", "tone", "tone_level")
 
 
@@ -116,7 +117,37 @@ def _parse(key: str, raw: Raw):
         return units.parse_quantity(v, "gain_db", name=name)
     if kind == "input_level":
         return _parse_input_level(v, name)
+    if kind == "bit_rate":
+        return _parse_bit_rate(v, name)
+    if kind == "probability":
+        return _parse_probability(v, name)
     return units.parse_quantity(v, kind, name=name)
+
+
+def _parse_bit_rate(v, name):
+    """'auto' or a rate in bit/s (SI prefixes; 'bit/s', 'bps' or 'Hz' accepted)."""
+    text = str(v).strip()
+    if text.lower() == "auto":
+        return "auto"
+    for suffix in ("bit/s", "bits/s", "b/s", "bps", "baud", "Bd"):
+        if text.endswith(suffix):
+            text = text[: -len(suffix)].strip() + "Hz"
+            break
+    try:
+        return units.parse_quantity(text if not isinstance(v, (int, float)) else v, "frequency", name=name)
+    except ParameterError:
+        raise ParameterError(f"{name}: {v!r} is not a bit rate; accepted: a rate such as 2k, 9600bit/s, "
+                             "1.2kbps, or auto") from None
+
+
+def _parse_probability(v, name):
+    try:
+        p = float(str(v).strip())
+    except ValueError:
+        p = math.nan
+    if not (0 < p <= 0.5):
+        raise ParameterError(f"{name}: {v!r} is not a bit-error rate; accepted: a number 0 < BER <= 0.5, e.g. 1e-9")
+    return p
 
 
 def _parse_input_level(v, name):
@@ -145,6 +176,8 @@ class Settings:
     meter: Meter
     targets: dict
     input_level: tuple | None
+    program: str = "audio"
+    bit_rate: object = None
 
     def grid_for(self, nyquist_hz: float):
         """The Grid, with defaults for the edges that were not given, fitted to ``nyquist_hz``."""
@@ -229,5 +262,13 @@ def build(raw: dict[str, Raw]) -> Settings:
         raise ParameterError(f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; "
                              "accepted: 0 < stopband <= 200 dB")
     grid_values = {k: parsed[k] for k in GRID_KEYS if k in parsed}
+    program = parsed.get("program", "audio")
+    bit_rate = parsed.get("bit_rate")
+    data_targets = [k for k in ("max_ber", "min_eye") if k in parsed]
+    if program == "data" and bit_rate is None:
+        raise ParameterError("--bit-rate: a data program needs a bit rate; accepted: a rate such as 2k, or auto")
+    if program != "data" and (data_targets or bit_rate is not None):
+        given = raw[data_targets[0]].origin if data_targets else raw["bit_rate"].origin
+        raise ParameterError(f"{given}: applies to data programs only; accepted: add --program data")
     return Settings(chain=chain, grid_values=grid_values, meter=meter, targets=targets,
-                    input_level=parsed.get("input_level"))
+                    input_level=parsed.get("input_level"), program=program, bit_rate=bit_rate)

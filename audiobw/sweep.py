@@ -89,6 +89,8 @@ def _round(x, sig: int = 7):
     return float(f"{x:.{sig}g}")
 
 
+DATA_CASE_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sigma_v", "q", "ber",
+                  "jitter_pp_ui")
 CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
              "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
              "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
@@ -108,6 +110,7 @@ class SweepResult:
     choice: dict | None
     unmet: dict
     notes: list = field(default_factory=list)
+    data: object = None  # datalink.DataProgram for data programs
 
     def to_json(self) -> dict:
         a = self.analysis
@@ -133,11 +136,34 @@ class SweepResult:
                          "frames_kept": int(a.band_frames.shape[0]), "frame_stride": a.frame_stride,
                          "bands": len(a.band_edges_hz) - 1},
             "targets": {k: v for k, v in self.targets.items() if v is not None},
-            "cases": [{k: _round_any(case.get(k)) for k in CASE_KEYS} for case in self.cases],
+            "cases": [{k: _round_any(case.get(k)) for k in self._case_keys()} for case in self.cases],
             "choice": self.choice,
             "unmet": {k: _round(v) for k, v in self.unmet.items()},
             "notes": list(self.notes),
+            **({"data": self._data_json()} if self.data is not None else {}),
         }
+
+    def _case_keys(self):
+        return CASE_KEYS + DATA_CASE_KEYS if self.data is not None else CASE_KEYS
+
+    def _data_json(self) -> dict:
+        """Bit rate, Nyquist minimum, and the Q-maximising case overall and per family/order."""
+        doc = {k: _round_any(v) for k, v in self.data.to_json().items()}
+
+        def best(cases):
+            scored = [c for c in cases if c.get("q") is not None]
+            if not scored:
+                return None
+            c = max(scored, key=lambda c: (c["q"], -c["bandwidth_hz"], -c["id"]))
+            return {"case": c["id"], "bandwidth_hz": _round(c["bandwidth_hz"]), "q": _round(c["q"]),
+                    "ber": _round(c["ber"])}
+        doc["q_optimal"] = best(self.cases)
+        groups = {}
+        for c in self.cases:
+            groups.setdefault((c["family"], c["order"]), []).append(c)
+        doc["q_optimal_by_design"] = [
+            {"family": fam, "order": order, **(best(cs) or {})} for (fam, order), cs in groups.items()]
+        return doc
 
     def case(self, case_id: int) -> dict:
         return self.cases[case_id - 1]
@@ -151,8 +177,13 @@ def _round_any(v):
     return v
 
 
-def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targets: dict) -> list[dict]:
-    """Design and score every case of ``grid`` against one analysis."""
+def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targets: dict,
+                data=None) -> list[dict]:
+    """Design and score every case of ``grid`` against one analysis.
+
+    With ``data`` (a :class:`audiobw.datalink.DataProgram`) each row also
+    carries the data-link metrics (eye, Q, BER, jitter).
+    """
     specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
     scorer = Scorer(analysis, chain, meter)
     rows = []
@@ -162,10 +193,24 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
                "poles": spec.poles, "design_low_hz": spec.low_hz, "design_high_hz": spec.high_hz}
         row.update(scorer.score(filt))
         row["bandwidth_hz"] = filt.bandwidth_3db(analysis.nyquist_hz)
+        if data is not None:
+            row.update(_data_metrics(filt, analysis, chain, data))
         passes, fails, margins = check_targets(row, targets)
         row.update(passes=passes, fails=fails, margins_db=margins)
         rows.append(row)
     return rows
+
+
+def _data_metrics(filt, analysis: Analysis, chain: Chain, data) -> dict:
+    """Eye, Q and BER of one case; σ is the chain's output noise over the whole 0…fs/2."""
+    import numpy as np
+
+    from .datalink import score_data
+    from .noise import noise_spectra
+
+    spectra = noise_spectra(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
+    sigma = math.sqrt(float(np.sum(spectra.total * analysis.weights_hz)))
+    return score_data(filt, data, sigma)
 
 
 def choose(cases: list[dict], targets: dict) -> tuple[dict | None, dict]:
@@ -200,7 +245,7 @@ def choose(cases: list[dict], targets: dict) -> tuple[dict | None, dict]:
 
 
 def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, targets: dict | None = None,
-              progress=None, analysis: Analysis | None = None) -> SweepResult:
+              progress=None, analysis: Analysis | None = None, data=None) -> SweepResult:
     """Analyse ``path`` once and score every case of ``grid``.
 
     Parameters
@@ -215,6 +260,9 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
     progress : callable(frames_done, frames_expected), optional
     analysis : Analysis, optional
         Reuse a previous analysis of the same file.
+    data : audiobw.datalink.DataProgram, optional
+        Score the program as a data stream too (eye, Q, BER) and allow the
+        ``max_ber`` and ``min_eye`` targets.
     """
     meter = meter or Meter()
     targets = {k: v for k, v in (targets or {}).items() if v is not None}
@@ -227,10 +275,12 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
             "--max-loss, --max-lsd, --min-ser")
     if analysis is None:
         analysis = analyse(path, progress=progress)
-    cases = score_cases(analysis, chain, grid, meter, targets)
+    if data is None and any(k in targets for k in ("max_ber", "min_eye")):
+        raise ParameterError("--max-ber/--min-eye: apply to data programs only; accepted: add --program data")
+    cases = score_cases(analysis, chain, grid, meter, targets, data=data)
     choice, unmet = choose(cases, targets)
     notes = []
     if chain.stage == "analog" and grid.response == "highpass" and chain.amp_bandwidth_hz is None:
         notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
                      "by the converter's anti-alias filter (give --amp-bandwidth to model it)")
-    return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes)
+    return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data)

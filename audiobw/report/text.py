@@ -13,6 +13,8 @@ TARGET_LABEL = {
     "max_loss_db": ("program loss", "loss_db", "dB", "≤"),
     "max_lsd_db": ("log-spectral distance", "lsd_db", "dB", "≤"),
     "min_ser_db": ("signal-to-error", "ser_db", "dB", "≥"),
+    "max_ber": ("bit-error rate", "ber", "", "≤"),
+    "min_eye": ("eye opening", "eye_fraction", "", "≥"),
 }
 #: table column -> (header, unit, key, format, target that marks it)
 COLUMNS = (
@@ -32,6 +34,32 @@ COLUMNS = (
 )
 
 
+#: columns of a data-program sweep
+DATA_COLUMNS = (
+    ("id", "", "id", "{:>4d}", None),
+    ("family", "", "family", "{:<11s}", None),
+    ("ord", "", "order", "{:>3d}", None),
+    ("low", "Hz", "low_hz", "{:>8.1f}", None),
+    ("high", "Hz", "high_hz", "{:>8.0f}", None),
+    ("ENBW", "Hz", "enbw_hz", "{:>8.0f}", None),
+    ("σ", "µV", "noise_sigma_uv", "{:>8.2f}", None),
+    ("eye", "%", "eye_pct", "{:>6.1f}", "min_eye"),
+    ("Q", "", "q", "{:>8.2f}", None),
+    ("BER", "", "ber", "{:>9.2e}", "max_ber"),
+    ("jitter", "UI", "jitter_pp_ui", "{:>7.3f}", None),
+    ("SNR", "dB", "snr_db", "{:>6.1f}", "min_snr_db"),
+)
+
+
+def _derived(case: dict) -> dict:
+    c = dict(case)
+    if c.get("noise_sigma_v") is not None:
+        c["noise_sigma_uv"] = c["noise_sigma_v"] * 1e6
+    if c.get("eye_fraction") is not None:
+        c["eye_pct"] = 100 * c["eye_fraction"]
+    return c
+
+
 def _cell(fmt: str, value) -> str:
     width = int("".join(ch for ch in fmt.split(":")[1] if ch.isdigit()).split(".")[0] or 0) if ":" in fmt else 0
     if value is None:
@@ -41,17 +69,18 @@ def _cell(fmt: str, value) -> str:
 
 def case_table(doc: dict, *, mark: str = "*") -> str:
     """The case table: one row per case, units in the header, failing values marked."""
+    columns = DATA_COLUMNS if "data" in doc else COLUMNS
     heads, unitrow, widths = [], [], []
-    for head, unit, _key, fmt, _t in COLUMNS:
+    for head, unit, _key, fmt, _t in columns:
         w = max(len(_cell(fmt, 0 if "d}" in fmt else ("x" if "s}" in fmt else 0.0))), len(head), len(unit)) + 1
         widths.append(w)
         heads.append(head.rjust(w) if ">" in fmt else head.ljust(w))
         unitrow.append((f"[{unit}]" if unit else "").rjust(w) if ">" in fmt else "".ljust(w))
     lines = [" ".join(heads) + "  result", " ".join(unitrow)]
     choice = (doc.get("choice") or {}).get("case")
-    for case in doc["cases"]:
+    for case in map(_derived, doc["cases"]):
         cells = []
-        for (head, unit, key, fmt, target), w in zip(COLUMNS, widths):
+        for (head, unit, key, fmt, target), w in zip(columns, widths):
             text = _cell(fmt, case.get(key))
             flag = mark if target and target in case["fails"] else " "
             cells.append((text + flag).rjust(w + 1)[-(w + 1):] if ">" in fmt else (text.ljust(w) + " "))
@@ -68,6 +97,12 @@ def _fmt_metric(key: str, value) -> str:
         return "n/a"
     if key == "thdn_pct":
         return f"{value:.5f} %"
+    if key == "ber":
+        return f"{value:.2e}"
+    if key == "eye_fraction":
+        return f"{100 * value:.1f} % of the unfiltered opening"
+    if key == "q":
+        return f"{value:.2f}"
     if key == "noise_dbfs":
         return f"{value:.1f} dBFS"
     if key == "noise_vrms":
@@ -122,18 +157,40 @@ def closing_paragraph(doc: dict) -> str:
             ("noise", "noise_vrms"), ("", "noise_dbfs"), ("SNR", "snr_db"), ("SNR-A", "snr_a_db"),
             ("loss", "loss_db"), ("LSD", "lsd_db"), ("SER", "ser_db"), ("THD+N", "thdn_pct")))
         lines.append("Its figures: " + figs + ".")
+        if "data" in doc:
+            lines.append("Data link: " + ", ".join(f"{name} {_fmt_metric(k, c.get(k))}" for name, k in (
+                ("eye", "eye_fraction"), ("Q", "q"), ("BER", "ber"))) +
+                f", jitter {c['jitter_pp_ui']:.3f} UI p-p at the best sampling instant "
+                f"({c['sample_delay_ui']:.2f} UI after the bit starts)." if c.get("jitter_pp_ui") is not None
+                else "Data link: eye closed.")
     else:
         lines.append("No case meets every target.")
         for key, best in doc.get("unmet", {}).items():
             label, metric, unit, sense = TARGET_LABEL[key]
             lines.append(f"Cannot be met: {label} {sense} {_target_text(key, targets[key])}; the best any case "
                          f"reached is {_fmt_metric(metric, best)}.")
+    if "data" in doc:
+        d = doc["data"]
+        rate = f"{format_quantity(d['bit_rate_hz'], 'bit/s')}"
+        if d["bit_rate_source"] == "recovered":
+            rate += f" (recovered from the recording, clock line {d['bit_rate_confidence_db']:.1f} dB up)"
+        lines.append(f"Bit rate {rate}; the Nyquist minimum bandwidth 1/(2T) is "
+                     f"{format_quantity(d['nyquist_min_hz'], 'Hz')}.")
+        q = d.get("q_optimal")
+        if q:
+            lines.append(f"Q is highest ({q['q']:.2f}, BER {q['ber']:.2e}) at case {q['case']}, bandwidth "
+                         f"{format_quantity(q['bandwidth_hz'], 'Hz')}: narrower costs more in inter-symbol "
+                         "interference than it saves in noise.")
     for note in doc.get("notes", []):
         lines.append("Note: " + note)
     return "\n".join(lines)
 
 
 def _target_text(key: str, value: float) -> str:
+    if key == "max_ber":
+        return f"{value:.0e}"
+    if key == "min_eye":
+        return f"{100 * value:g} % of the unfiltered opening"
     return f"{value:g} %" if key == "max_thdn_pct" else f"{value:g} dB"
 
 

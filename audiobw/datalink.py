@@ -1,0 +1,343 @@
+"""Data and pulse programs: the bandwidth a bit stream needs, its eye and its error rate.
+
+For a polar NRZ stream of bit period T = 1/R through a candidate filter, the
+channel's unit pulse response y(t) is computed from the case's response (in
+the frequency domain, never by filtering the file), and then:
+
+* worst-case vertical eye opening at the best sampling instant, by
+  peak-distortion analysis of inter-symbol interference: for sampling phase
+  τ and main cursor y0(τ), the opening relative to the unfiltered one is
+  ``y0(τ) − Σ_{k≠0} |yk(τ)|`` (yk = y(τ + kT)); the best τ maximises it;
+* noise σ at the decision point: the chain's output noise over 0…fs/2;
+* Q = (opening / 2) / σ and BER = ½·erfc(Q/√2) (Gaussian noise);
+* data-dependent jitter: the peak-to-peak spread of the zero crossings of the
+  noiseless output for a PRBS-7 pattern, in unit intervals.
+
+The minimum bandwidth of a binary stream is 1/(2T) (Nyquist): the fastest
+pattern 1010… has its fundamental there.
+
+Digital stage: the converter's anti-alias filter is taken as ideal at fs/2
+(as for noise); the digital filter then acts on the band-limited stream.
+
+References
+----------
+.. [1] H. Nyquist, "Certain topics in telegraph transmission theory",
+   Trans. AIEE 47, 617–644, 1928 (minimum bandwidth 1/(2T)).
+.. [2] J. G. Proakis, M. Salehi, *Digital Communications*, 5th ed., §9.2
+   (inter-symbol interference, peak distortion) and §4.2 (error probability
+   of binary antipodal signalling, ½·erfc(√(Eb/N0))).
+.. [3] ITU-T O.150 (05/96), §5: pseudo-random test patterns (2^7 − 1,
+   2^9 − 1, 2^15 − 1 and their generator polynomials).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import AudioFileError, ParameterError
+
+#: Generator taps (x^n + x^m + 1) of the pseudo-random patterns, ITU-T O.150 §5.
+PRBS_TAPS = {"prbs7": (7, 6), "prbs9": (9, 5), "prbs15": (15, 14)}
+PATTERNS = tuple(PRBS_TAPS) + ("alternating", "random")
+OVERSAMPLE = 64  # fine-grid samples per bit for the pulse response (analog stage)
+
+
+def prbs(name: str, n_bits: int, *, seed: int = 1) -> np.ndarray:
+    """Bits (0/1, uint8) of a test pattern.
+
+    Parameters
+    ----------
+    name : {'prbs7', 'prbs9', 'prbs15', 'alternating', 'random'}
+        PRBS patterns from a Fibonacci LFSR with the ITU-T O.150 polynomials,
+        started from all ones; 'alternating' is 1010…; 'random' is seeded.
+    n_bits : int, >= 1
+    """
+    if name == "alternating":
+        return (np.arange(n_bits) % 2 == 0).astype(np.uint8)
+    if name == "random":
+        return np.random.default_rng(seed).integers(0, 2, n_bits).astype(np.uint8)
+    n, m = PRBS_TAPS[name]
+    state = (1 << n) - 1
+    out = np.empty(n_bits, dtype=np.uint8)
+    for i in range(n_bits):
+        bit = ((state >> (n - 1)) ^ (state >> (m - 1))) & 1
+        out[i] = bit
+        state = ((state << 1) | bit) & ((1 << n) - 1)
+    return out
+
+
+def nrz_stream(bits: np.ndarray, bit_rate_hz: float, fs_hz: float, amplitude: float) -> np.ndarray:
+    """Polar NRZ samples: sample n carries bit floor(n·R/fs) as ±amplitude."""
+    n = int(math.floor(len(bits) * fs_hz / bit_rate_hz))
+    idx = np.minimum((np.arange(n) * bit_rate_hz / fs_hz).astype(np.int64), len(bits) - 1)
+    return np.where(bits[idx] > 0, amplitude, -amplitude)
+
+
+def complex_response(filt, freq_hz: np.ndarray) -> np.ndarray:
+    """H(f), complex, of a designed candidate at frequencies in Hz."""
+    f = np.asarray(freq_hz, dtype=float)
+    if filt.analog:
+        s = 1j * (2.0 * np.pi * f / filt.ref_rad_s)
+    else:
+        s = np.exp(1j * 2.0 * np.pi * f / filt.spec.fs_hz)
+    h = np.full(s.shape, filt.k, dtype=complex)
+    for z in filt.z:
+        h = h * (s - z)
+    for p in filt.p:
+        h = h / (s - p)
+    if not filt.analog:
+        h = np.where(f < filt.spec.fs_hz / 2.0, h, 0.0)
+    return h
+
+
+def _spectral_pulse(filt, n_bits: int, bit_rate_hz: float, oversample: int) -> np.ndarray:
+    """Unit NRZ pulse through a digital-stage chain, periodic over ``n_bits``.
+
+    The converter's ideal anti-alias filter band-limits the stream to fs/2;
+    the band-limited pulse's exact spectrum T·sinc(fT)·e^(−jπfT) times H(f)
+    is inverted on a grid of ``oversample`` points per bit (exact, as the
+    grid rate exceeds fs).
+    """
+    n = n_bits * oversample
+    freqs = np.arange(n // 2 + 1) * bit_rate_hz / n_bits
+    t_bit = 1.0 / bit_rate_hz
+    pulse = t_bit * np.sinc(freqs * t_bit) * np.exp(-1j * np.pi * freqs * t_bit)
+    return np.fft.irfft(pulse * complex_response(filt, freqs) * (oversample * bit_rate_hz), n)
+
+
+def _modal_step(filt):
+    """(D, c, λ) of the analog step response s(t) = D + Σ c_i (e^(λ_i t) − 1)/λ_i, t in normalised time."""
+    from scipy import signal
+
+    a, b, c, d = signal.zpk2ss(filt.z, filt.p, filt.k)
+    lam, vec = np.linalg.eig(a)
+    coef = (c @ vec).ravel() * np.linalg.solve(vec, b).ravel()
+    return float(np.real(d[0, 0])) if d.size else 0.0, coef, lam
+
+
+def _analog_pulse(filt, n_bits: int, bit_rate_hz: float, oversample: int) -> np.ndarray:
+    """Unit NRZ pulse through an analog prototype, exactly from its modal step response."""
+    d, coef, lam = _modal_step(filt)
+    t = np.arange(n_bits * oversample) / (oversample * bit_rate_hz) * filt.ref_rad_s  # normalised time
+    width = filt.ref_rad_s / bit_rate_hz
+
+    def step(tt):
+        e = np.expm1(np.outer(tt, lam)) / lam
+        return np.where(tt >= 0, d + np.real(e @ coef), 0.0)
+    return step(t) - step(t - width)
+
+
+def pulse_response(filt, bit_rate_hz: float, *, oversample: int | None = None, max_bits: int = 1 << 14):
+    """The channel's response to one unit NRZ pulse, long enough for its tail.
+
+    Returns
+    -------
+    y : ndarray, shape (L, M)
+        ``y[k, j]`` = response at time (k + j/M)·T after the pulse starts;
+        M = ``oversample`` (default 64, raised for the digital stage so the
+        grid rate exceeds fs).  L (bits) doubles until the last half holds
+        less than 1e-12 of the pulse energy, or reaches ``max_bits``.
+    """
+    m = oversample or OVERSAMPLE
+    if not filt.analog:
+        m = max(m, 1 << int(math.ceil(math.log2(filt.spec.fs_hz / bit_rate_hz))))
+    length = 32
+    while True:
+        if filt.analog:
+            y = _analog_pulse(filt, length, bit_rate_hz, m)
+        else:
+            # periodic: use twice the length so the wrapped tail can be checked
+            y = _spectral_pulse(filt, 2 * length, bit_rate_hz, m)[: length * m]
+        y = y.reshape(length, m)
+        energy = float(np.sum(y**2))
+        tail = float(np.sum(y[length // 2:] ** 2))
+        if tail <= 1e-12 * energy or length >= max_bits:
+            return y
+        length *= 2
+
+
+def _periodic_output(y: np.ndarray, symbols: np.ndarray) -> np.ndarray:
+    """Noiseless output for a periodic symbol sequence: superposition of pulse responses."""
+    n_bits, m = len(symbols), y.shape[1]
+    n = n_bits * m
+    flat = y.reshape(-1)
+    folded = np.zeros(n)
+    for start in range(0, flat.size, n):
+        piece = flat[start:start + n]
+        folded[: piece.size] += piece
+    impulses = np.zeros(n)
+    impulses[::m] = symbols
+    return np.fft.irfft(np.fft.rfft(impulses) * np.fft.rfft(folded), n)
+
+
+def eye_from_pulse(y: np.ndarray) -> tuple[float, int, int]:
+    """Worst-case eye opening (fraction of the unfiltered one) by peak distortion.
+
+    Returns ``(opening, k0, j0)``: the best opening (may be negative: the eye is
+    closed), the main-cursor bit index and the phase index of the best instant.
+    """
+    absum = np.sum(np.abs(y), axis=0)           # per phase
+    k0 = np.argmax(y, axis=0)                    # main cursor per phase
+    main = y[k0, np.arange(y.shape[1])]
+    opening = 2 * main - absum                   # y0 - sum_{k != 0} |yk|
+    j0 = int(np.argmax(opening))
+    return float(opening[j0]), int(k0[j0]), j0
+
+
+def crossing_jitter_ui(y: np.ndarray, *, pattern: str = "prbs7") -> float:
+    """Peak-to-peak spread of the zero crossings of the noiseless PRBS output, in UI.
+
+    ``y`` is the pulse response from :func:`pulse_response`.  NaN when the
+    output never crosses zero twice (a closed or stuck channel).
+    """
+    base = prbs(pattern, (1 << PRBS_TAPS[pattern][0]) - 1)
+    reps = max(1, math.ceil(y.shape[0] / len(base)))
+    out = _periodic_output(y, np.tile(2.0 * base - 1.0, reps))
+    m = y.shape[1]
+    s = np.signbit(out)
+    idx = np.nonzero(s[:-1] != s[1:])[0]
+    if idx.size < 2:
+        return math.nan
+    frac = out[idx] / (out[idx] - out[idx + 1])
+    t_ui = (idx + frac) / m
+    phase = 2 * np.pi * (t_ui % 1.0)
+    mean = np.angle(np.mean(np.exp(1j * phase)))
+    dev = np.angle(np.exp(1j * (phase - mean))) / (2 * np.pi)
+    return float(dev.max() - dev.min())
+
+
+def ber_from_q(q: float) -> float:
+    """Bit-error rate of binary antipodal signalling in Gaussian noise: ½·erfc(Q/√2)."""
+    if not math.isfinite(q):
+        return 0.0 if q > 0 else 0.5
+    return 0.5 * math.erfc(q / math.sqrt(2.0)) if q > 0 else 0.5
+
+
+@dataclass(frozen=True)
+class DataProgram:
+    """What the data metrics need from the program: bit rate and amplitude.
+
+    Parameters
+    ----------
+    bit_rate_hz : float, 0 < R <= fs/2
+    amplitude_v : float, > 0
+        NRZ amplitude at the converter input (±A), V.
+    source : str
+        'given' or 'recovered'.
+    confidence_db : float or None
+        For a recovered rate: the clock line's height over the median of the
+        transition spectrum, dB.
+    """
+
+    bit_rate_hz: float
+    amplitude_v: float
+    source: str = "given"
+    confidence_db: float | None = None
+
+    @property
+    def nyquist_min_hz(self) -> float:
+        """The minimum bandwidth 1/(2T) (Nyquist; common practice of the trade)."""
+        return self.bit_rate_hz / 2.0
+
+    def to_json(self) -> dict:
+        return {"bit_rate_hz": self.bit_rate_hz, "bit_rate_source": self.source,
+                "bit_rate_confidence_db": self.confidence_db, "amplitude_v": self.amplitude_v,
+                "nyquist_min_hz": self.nyquist_min_hz}
+
+
+def score_data(filt, program: DataProgram, noise_sigma_v: float) -> dict:
+    """The data-link metrics of one candidate (a plain mapping)."""
+    y = pulse_response(filt, program.bit_rate_hz)
+    opening, k0, j0 = eye_from_pulse(y)
+    eye = max(opening, 0.0)
+    half_v = program.amplitude_v * eye
+    q = half_v / noise_sigma_v if noise_sigma_v > 0 else math.inf
+    return {
+        "eye_fraction": eye,
+        "eye_opening_v": 2 * half_v,
+        "sample_delay_ui": k0 + j0 / y.shape[1],
+        "noise_sigma_v": noise_sigma_v,
+        "q": q if math.isfinite(q) else None,
+        "ber": ber_from_q(q) if eye > 0 else 0.5,
+        "jitter_pp_ui": crossing_jitter_ui(y),
+    }
+
+
+def recover_bit_rate(path, *, max_seconds: float = 60.0, min_confidence_db: float = 20.0):
+    """Recover the bit rate of a recorded NRZ stream from the spectrum of its transitions.
+
+    The squared first difference of an NRZ signal is a train of pulses at the
+    bit boundaries; its spectrum has lines at the bit rate R and its
+    multiples.  The lowest line within 12 dB of the strongest (above 1 Hz) is
+    taken and refined by parabolic interpolation on the log spectrum.  At
+    most ``max_seconds`` of audio are read.
+
+    Returns
+    -------
+    (bit_rate_hz, confidence_db)
+
+    Raises
+    ------
+    AudioFileError
+        When no line stands ``min_confidence_db`` above the spectrum's median.
+    """
+    from .audio import iter_blocks, open_info
+
+    info = open_info(path)
+    fs = info.sample_rate_hz
+    need = int(max_seconds * fs)
+    parts, got = [], 0
+    for block in iter_blocks(path):
+        parts.append(block.mean(axis=1))
+        got += block.shape[0]
+        if got >= need:
+            break
+    x = np.concatenate(parts)[:need]
+    d = np.diff(x) ** 2
+    d = d - d.mean()
+    n = 1 << int(math.ceil(math.log2(max(len(d), 16))))
+    spec = np.abs(np.fft.rfft(d * np.hanning(len(d)), n))
+    freqs = np.fft.rfftfreq(n, 1.0 / fs)
+    valid = freqs > 1.0
+    spec_v = np.where(valid, spec, 0.0)
+    median = float(np.median(spec[valid])) or 1e-300
+    top = int(np.argmax(spec_v))
+    confidence = 20 * math.log10(max(spec_v[top], 1e-300) / median)
+    if confidence < min_confidence_db:
+        raise AudioFileError(
+            f"{path}: no bit rate found (strongest clock line {confidence:.1f} dB over the spectrum median; "
+            f"accepted: a line at least {min_confidence_db:g} dB up) — give --bit-rate")
+    # Sharp NRZ edges give lines of similar height at every multiple of R: the
+    # bit rate is the lowest line within 12 dB of the strongest.
+    threshold = max(0.25 * spec_v[top], median * 10 ** (min_confidence_db / 20))
+    is_peak = (spec_v[1:-1] >= threshold) & (spec_v[1:-1] >= spec_v[:-2]) & (spec_v[1:-1] >= spec_v[2:])
+    k = int(np.nonzero(is_peak)[0][0]) + 1 if np.any(is_peak) else top
+    confidence = 20 * math.log10(max(spec_v[k], 1e-300) / median)
+    if 0 < k < len(spec) - 1:
+        a, b, c = np.log(spec[k - 1: k + 2] + 1e-300)
+        shift = 0.5 * (a - c) / (a - 2 * b + c) if (a - 2 * b + c) != 0 else 0.0
+    else:
+        shift = 0.0
+    return float((k + shift) * fs / n), confidence
+
+
+def data_program_for(analysis, chain, bit_rate) -> DataProgram:
+    """Build the DataProgram of an analysed file: the given or recovered bit rate and the NRZ amplitude.
+
+    ``bit_rate`` is a float in Hz or the string 'auto'.  The amplitude is the
+    program's rms (exact for polar NRZ) in volts at the converter input.
+    """
+    if bit_rate == "auto":
+        rate, conf = recover_bit_rate(analysis.path)
+        source = "recovered"
+    else:
+        rate, conf, source = float(bit_rate), None, "given"
+    if not 0 < rate <= analysis.sample_rate_hz / 2:
+        raise ParameterError(
+            f"--bit-rate: {rate:g} bit/s cannot be carried at fs = {analysis.sample_rate_hz} Hz; "
+            f"accepted: 0 < rate <= fs/2 = {analysis.sample_rate_hz / 2:g}")
+    rms = math.sqrt(float(np.mean(analysis.mean_square)))
+    return DataProgram(rate, rms * chain.volts_per_unit, source, conf)
