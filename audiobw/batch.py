@@ -135,6 +135,29 @@ def _walk(root: str, follow_links: bool, found: list, skipped: list) -> None:
     visit(root)
 
 
+def _glob_base(pattern: str) -> str:
+    """The leading part of a glob pattern with no wildcard in it."""
+    parts, out = Path(pattern).parts, []
+    for part in parts:
+        if glob.has_magic(part):
+            break
+        out.append(part)
+    return os.path.join(*out) if out else "."
+
+
+def _through_link(match: str, base: str) -> bool:
+    """Whether ``match`` is reached through a symbolic link below ``base``, or is a link leading out of it."""
+    rel = os.path.relpath(match, base)
+    if rel.startswith(os.pardir):
+        return False
+    here = base
+    for part in Path(rel).parts[:-1]:
+        here = os.path.join(here, part)
+        if os.path.islink(here):
+            return True
+    return os.path.islink(match) and not _inside(os.path.realpath(match), os.path.realpath(base))
+
+
 def _slug(display: str) -> str:
     parts = [p for p in Path(display).parts if p not in ("", ".", "..", os.sep, "/") and not p.endswith(":\\")]
     text = "__".join(re.sub(r"[^A-Za-z0-9._-]+", "_", p) for p in parts).strip("._") or "file"
@@ -147,7 +170,10 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
     A file named explicitly is taken whatever its suffix; folders (walked
     recursively) and glob matches give audio files only
     (:data:`audiobw.audio.AUDIO_SUFFIXES`).  Hidden entries in folders are
-    left out.  The same file reached twice (same real path) is taken once,
+    left out.  Without ``follow_links`` no symbolic link to a folder is
+    descended (the tree's own folders are walked under their own names) and
+    no link that leads out of a folder given (or out of a pattern's fixed
+    leading part) is taken; links that lead out are listed as skipped.  The same file reached twice (same real path) is taken once,
     under the first name in sorted order.
 
     Raises
@@ -167,7 +193,10 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
             matches = sorted(glob.glob(arg, recursive=True))
             if not matches:
                 raise ParameterError(f"INPUT: {arg!r} matches no file or folder")
+            base = _glob_base(arg)
             for m in matches:
+                if not follow_links and _through_link(m, base):
+                    continue  # reached through a symbolic link below the pattern's fixed part
                 if os.path.isdir(m):
                     _walk(os.path.normpath(m), follow_links, found, skipped)
                 elif _is_audio(m):
