@@ -1,0 +1,295 @@
+"""report.html: one self-contained page (plots embedded as data: URIs, no network fetches).
+
+Every string that comes from a user or from a file name is escaped with
+:func:`html.escape` (text and attribute values alike); URLs of clips are
+percent-encoded first.  A Content-Security-Policy meta tag forbids every
+fetch except the embedded images and the local clips, so the page opens from
+disk and cannot reach the network.
+
+Each shown spec value carries ``data-spec`` (its path in spec.json, dots
+between keys) and ``data-value`` (the spec.json value as JSON), so a test can
+check the page against spec.json.  Opened as ``report.html?selftest``, an
+inline script decodes every image, loads the metadata of every clip, sorts
+the case table once and writes what it found as JSON into
+``<pre id="selftest">`` (used by tests/test_report_browser.py).
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import json
+from pathlib import Path
+from urllib.parse import quote
+
+from ..clikit import LISTENING_CAUTION
+from .spec import case_line, chain_value_text, fmt, json_pointer, passband_phrase, spec_rows, target_info
+from .text import COLUMNS
+
+CSP = ("default-src 'none'; img-src data:; media-src 'self' file:; style-src 'unsafe-inline'; "
+       "script-src 'unsafe-inline'; base-uri 'none'; form-action 'none'")
+
+
+def esc(value) -> str:
+    """Escape any value for HTML text or a quoted attribute."""
+    return html.escape("" if value is None else str(value), quote=True)
+
+
+def _value_cell(spec: dict, pointer: str | None, text: str) -> str:
+    if pointer is None:
+        return f"<td>{esc(text)}</td>"
+    value = json.dumps(json_pointer(spec, pointer), ensure_ascii=False)
+    return f'<td class="v" data-spec="{esc(pointer)}" data-value="{esc(value)}">{esc(text)}</td>'
+
+
+STYLE = """
+:root{--ink:#1d2433;--muted:#5b6270;--paper:#fbfaf7;--rule:#d9d6cf;--accent:#213a6b;--amber:#e0a526;--bad:#7c2e6b}
+*{box-sizing:border-box}
+body{margin:0;background:var(--paper);color:var(--ink);font:15px/1.45 system-ui,-apple-system,"Segoe UI",sans-serif}
+main{max-width:1080px;margin:0 auto;padding:1.2rem 1.4rem 3rem}
+h1{font-size:1.55rem;margin:.2rem 0 .3rem;letter-spacing:-.01em}
+h2{font-size:1.15rem;margin:1.8rem 0 .5rem;border-bottom:2px solid var(--ink);padding-bottom:.15rem}
+h3{font-size:1rem;margin:1.2rem 0 .4rem}
+.meta{color:var(--muted);font-size:.9rem;margin:.1rem 0;word-break:break-all}
+.caution{border-left:6px solid var(--amber);background:#fff;padding:.55rem .8rem;margin:.8rem 0;font-size:.92rem}
+.verdict{border:2px solid var(--accent);background:#fff;padding:.7rem .9rem;margin:.9rem 0}
+.verdict.none{border-color:var(--bad);border-style:dashed}
+.verdict strong{font-size:1.05rem}
+.grid{display:grid;grid-template-columns:minmax(0,3fr) minmax(0,2fr);gap:1.4rem}
+@media (max-width:820px){.grid{grid-template-columns:1fr}}
+table{border-collapse:collapse;width:100%;font-size:.9rem;background:#fff}
+th,td{border-bottom:1px solid var(--rule);padding:.28rem .5rem;text-align:left;vertical-align:top}
+td.v,td.n{font-variant-numeric:tabular-nums}
+td.n{white-space:nowrap}
+#spec-table td:first-child{width:50%}
+td.n{text-align:right}
+tr.sec th{background:var(--ink);color:var(--paper);font-weight:600;font-size:.82rem;letter-spacing:.04em;text-transform:uppercase}
+tr.binding td{font-weight:700}
+tr.binding td:first-child::before{content:"▶ "}
+figure{margin:1.2rem 0;background:#fff;border:1px solid var(--rule);padding:.6rem}
+figure img{max-width:100%;height:auto;display:block;margin:0 auto}
+figcaption{font-size:.86rem;color:var(--muted);margin-top:.35rem}
+.cases{max-height:34rem;overflow:auto;border:1px solid var(--rule)}
+.cases table{font-size:.8rem}
+.cases thead th{position:sticky;top:0;background:#eeece6;z-index:1}
+.cases th button{font:inherit;font-weight:600;background:none;border:0;padding:0;cursor:pointer;color:inherit;text-align:left}
+.cases th[aria-sort=ascending] button::after{content:" ▲"}
+.cases th[aria-sort=descending] button::after{content:" ▼"}
+.cases tr.subject td{background:#fdf1d6;font-weight:700}
+.cases td.miss{text-decoration:underline wavy var(--bad);font-weight:700}
+.clip{display:flex;flex-wrap:wrap;gap:.4rem 1rem;align-items:center;margin:.3rem 0}
+.clip code{word-break:break-all}
+footer{margin-top:2rem;color:var(--muted);font-size:.82rem}
+"""
+
+SCRIPT = r"""
+(function(){
+  function cellKey(td){var s=td.getAttribute('data-sort');if(s===null){return td.textContent.trim().toLowerCase();}
+    return s===''?-Infinity:parseFloat(s);}
+  function sortBy(table,col,dir){
+    var body=table.tBodies[0],rows=Array.prototype.slice.call(body.rows);
+    rows.sort(function(a,b){var x=cellKey(a.cells[col]),y=cellKey(b.cells[col]);
+      if(x<y){return -dir;} if(x>y){return dir;} return 0;});
+    rows.forEach(function(r){body.appendChild(r);});
+    Array.prototype.forEach.call(table.tHead.rows[0].cells,function(th,i){
+      th.setAttribute('aria-sort',i===col?(dir>0?'ascending':'descending'):'none');});
+  }
+  var table=document.getElementById('case-table');
+  if(table){Array.prototype.forEach.call(table.tHead.rows[0].cells,function(th,i){
+    var b=th.querySelector('button'); if(!b){return;}
+    b.addEventListener('click',function(){sortBy(table,i,th.getAttribute('aria-sort')==='ascending'?-1:1);});});}
+  window.audiobwSortBy=sortBy;
+  if(!/[?&]selftest\b/.test(location.search)){return;}
+  var errors=[];
+  window.addEventListener('error',function(e){errors.push('error: '+(e.message||(e.target&&e.target.src)||e.type));},true);
+  document.addEventListener('securitypolicyviolation',function(e){errors.push('csp: '+e.violatedDirective+' '+e.blockedURI);});
+  var origError=console.error;console.error=function(){errors.push('console: '+Array.prototype.join.call(arguments,' '));origError.apply(console,arguments);};
+  var imgs=Array.prototype.map.call(document.images,function(img){
+    return img.decode().then(function(){return {alt:img.alt,ok:true,w:img.naturalWidth,h:img.naturalHeight};},
+                             function(){return {alt:img.alt,ok:false,w:0,h:0};});});
+  var clips=Array.prototype.map.call(document.querySelectorAll('audio'),function(a){
+    return new Promise(function(res){var done=false;function fin(ok){if(done){return;}done=true;
+        res({src:a.getAttribute('src'),ok:ok,duration_s:isFinite(a.duration)?a.duration:null,error:a.error?a.error.code:null});}
+      if(a.readyState>=1){fin(true);return;}
+      a.addEventListener('loadedmetadata',function(){fin(true);});a.addEventListener('error',function(){fin(false);});
+      setTimeout(function(){fin(a.readyState>=1);},8000);a.load();});});
+  var sorted=null;
+  if(table){var col=-1;Array.prototype.forEach.call(table.tHead.rows[0].cells,function(th,i){if(th.getAttribute('data-key')==='snr_a_db'){col=i;}});
+    if(col>=0){sortBy(table,col,1);var vals=Array.prototype.map.call(table.tBodies[0].rows,function(r){return cellKey(r.cells[col]);});
+      sorted={column:'snr_a_db',rows:vals.length,ascending:vals.every(function(v,i){return i===0||vals[i-1]<=v;})};
+      var idcol=0;sortBy(table,idcol,1);}}
+  Promise.all([Promise.all(imgs),Promise.all(clips)]).then(function(r){
+    var specs=Array.prototype.map.call(document.querySelectorAll('[data-spec]'),function(e){
+      return {key:e.getAttribute('data-spec'),value:e.getAttribute('data-value'),text:e.textContent};});
+    var out=document.getElementById('selftest');
+    out.textContent=JSON.stringify({images:r[0],audio:r[1],specs:specs,errors:errors,scripts:document.scripts.length,
+      sorted:sorted,title:document.title});
+    out.setAttribute('data-done','1');});
+})();
+"""
+
+
+def _figure(plot) -> str:
+    data = base64.b64encode(plot.png).decode("ascii")
+    links = f'<a href="plot-{esc(plot.name)}.png">PNG</a>'
+    if plot.svg is not None:
+        links += f' · <a href="plot-{esc(plot.name)}.svg">SVG</a>'
+    return (f'<figure id="plot-{esc(plot.name)}"><img src="data:image/png;base64,{data}" alt="{esc(plot.title)}" '
+            f'width="{plot.width_px}" height="{plot.height_px}">'
+            f"<figcaption><strong>{esc(plot.title)}.</strong> {esc(plot.caption)} ({links})</figcaption></figure>")
+
+
+def _clip_url(folder: str, name: str) -> str:
+    return quote(folder) + "/" + quote(name)
+
+
+def _listening(renders: list) -> str:
+    if not renders:
+        return ""
+    out = ['<section id="listen"><h2>Listen: A/B clips</h2>',
+           f'<p class="caution" id="listening-caution"><strong>Listening caution.</strong> '
+           f'{esc(LISTENING_CAUTION.removeprefix("Listening caution: "))}</p>']
+    labels = {"ab-reference.wav": "A — reference (input, unfiltered, no added noise)",
+              "ab-processed.wav": "B — processed (through the modelled chain)"}
+    for r in renders:
+        out.append(f"<h3>{esc(r['folder'])}</h3>")
+        for name in r["ab"] + r["other"]:
+            url = _clip_url(r["folder"], name)
+            out.append(f'<div class="clip"><audio controls preload="metadata" src="{esc(url)}"></audio>'
+                       f"<span>{esc(labels.get(name, 'clip'))}: <code>{esc(name)}</code></span></div>")
+        for name in r["true_level"]:
+            url = _clip_url(r["folder"], name)
+            out.append(f'<p class="meta"><a href="{esc(url)}">{esc(name)}</a>: the chain output at its true level, '
+                       "for measurement; not loudness-matched, so it is linked rather than offered as a player.</p>")
+    out.append(f'<p class="caution">{esc(LISTENING_CAUTION)}</p></section>')
+    return "\n".join(out)
+
+
+def _cases_table(doc: dict, spec: dict) -> str:
+    cols = [c for c in COLUMNS] + [("width", "Hz", "bandwidth_hz", "{:>8.0f}", None)]
+    head = ['<th data-key="id"><button type="button">id</button></th>']
+    for title, unit, key, _fmt, _t in cols[1:]:
+        head.append(f'<th data-key="{esc(key)}"><button type="button">{esc(title)}'
+                    f'{(" [" + esc(unit) + "]") if unit else ""}</button></th>')
+    head.append('<th data-key="result"><button type="button">result</button></th>')
+    rows = []
+    subject = spec["subject"]["case"]
+    for c in doc["cases"]:
+        cells = []
+        for title, unit, key, fm, target in cols:
+            v = c.get(key)
+            miss = ' class="n miss" title="fails its target"' if target and target in c["fails"] else ' class="n"'
+            if isinstance(v, (int, float)) and not isinstance(v, bool):
+                text = fm.format(v).strip()
+                cells.append(f'<td{miss} data-sort="{v!r}">{esc(text)}</td>')
+            elif v is None:
+                cells.append(f'<td{miss} data-sort="">—</td>')
+            else:
+                cells.append(f"<td>{esc(v)}</td>")
+        result = "pass" if c["passes"] else "fail: " + ", ".join(target_info(t)[0] for t in c["fails"])
+        cells.append(f"<td>{esc(result)}</td>")
+        cls = ' class="subject"' if c["id"] == subject else ""
+        rows.append(f"<tr{cls}>" + "".join(cells) + "</tr>")
+    return ('<div class="cases"><table id="case-table"><thead><tr>' + "".join(head) + "</tr></thead><tbody>"
+            + "\n".join(rows) + "</tbody></table></div>")
+
+
+def page(run: dict, spec: dict, plots: list) -> str:
+    """The report.html text."""
+    doc = run["doc"]
+    inp = spec["input"]
+    name = Path(inp["path"]).name
+    role = "Chosen passband" if spec["status"] == "chosen" else "Closest case (does not pass)"
+    parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
+             '<meta name="viewport" content="width=device-width, initial-scale=1">',
+             f'<meta http-equiv="Content-Security-Policy" content="{esc(CSP)}">',
+             f"<title>Passband spec sheet — {esc(name)}</title><style>{STYLE}</style></head><body><main>",
+             f"<h1>Passband spec sheet — {esc(name)}</h1>",
+             f'<p class="meta">Program <code id="input-path">{esc(inp["path"])}</code> · sha256 '
+             f'<code>{esc(inp["sha256"][:16])}…</code> · {inp["duration_s"]:g} s, {esc(inp["channels"])} ch, '
+             f'{esc(inp["sample_rate_hz"])} Hz · peak {inp["peak_dbfs"]:.1f} dBFS, rms '
+             f'{inp["rms_dbfs"]:.1f} dBFS · 99 % occupied band {esc(fmt(inp["occupied_low_hz"], "Hz"))} to '
+             f'{esc(fmt(inp["occupied_high_hz"], "Hz"))}</p>',
+             f'<p class="caution" id="estimate-caution"><strong>Engineering estimate.</strong> {esc(spec["caution"])}</p>']
+    if spec["status"] == "chosen":
+        b = spec["binding"]
+        bound = ""
+        if b:
+            t = next(t for t in spec["targets"] if t["key"] == b)
+            sense = "≥" if t["sense"] == "min" else "≤"
+            bound = (f" Bound by <strong>{esc(t['label'])} {sense} {t['limit']:g} {esc(t['unit'])}</strong>"
+                     f" (margin {spec['binding_margin_db']:.3g} dB).")
+        grid = (" This is the narrowest case of its family and order in the grid: extend the grid to see whether "
+                "a narrower passband also passes.") if spec["grid_limited"] else ""
+        parts.append(f'<div class="verdict" id="verdict"><strong>{esc(role)}: {esc(passband_phrase(spec))}.</strong>'
+                     f"<br>Case {esc(spec['subject']['case'])}; {esc(spec['cases_passing'])} of "
+                     f"{esc(spec['cases_total'])} cases meet every target.{bound}{esc(grid)}</div>")
+    else:
+        items = "".join(
+            f"<li>{esc(u['label'])} {'≥' if u['sense'] == 'min' else '≤'} {u['limit']:g} {esc(u['unit'])}: "
+            f"best reached {esc(fmt(u['best'], '%' if u['metric'] == 'thdn_pct' else 'dB'))}</li>"
+            for u in spec["unmet"])
+        parts.append(f'<div class="verdict none" id="verdict"><strong>No passing case.</strong> None of the '
+                     f"{esc(spec['cases_total'])} cases meets every target. Unmet targets and the best value any "
+                     f"case reached:<ul>{items}</ul>The figures below are for the closest case "
+                     f"({esc(spec['subject']['case'])}: {esc(passband_phrase(spec))}), which is not a "
+                     "recommendation.</div>")
+    # the spec block
+    rows, section = [], None
+    for sec, label, text, ptr in spec_rows(spec):
+        if sec != section:
+            rows.append(f'<tr class="sec"><th colspan="2">{esc(sec)}</th></tr>')
+            section = sec
+        rows.append(f"<tr><td>{esc(label)}</td>{_value_cell(spec, ptr, text)}</tr>")
+    trows = []
+    for i, t in enumerate(spec["targets"]):
+        sense = "≥" if t["sense"] == "min" else "≤"
+        cls = ' class="binding"' if t["binding"] else ""
+        unit = "%" if t["metric"] == "thdn_pct" else "dB"
+        margin = f"{t['margin_db']:+.3g} dB" if t["margin_db"] is not None else "—"
+        trows.append(f"<tr{cls}><td>{esc(t['label'])} {sense} {t['limit']:g} {esc(t['unit'])}</td>"
+                     f"{_value_cell(spec, f'targets.{i}.value', fmt(t['value'], unit))}"
+                     f"<td class='n'>{esc(margin)}</td><td>{'met' if t['met'] else 'missed'}"
+                     f"{' — bound the choice' if t['binding'] else ''}</td></tr>")
+    nb = spec["neighbours"]
+    neigh = "".join(f"<li><strong>{esc(label)}:</strong> {esc(case_line(nb[key]))}</li>" for key, label in (
+        ("next_narrower", "next narrower (same family and order)"), ("next_wider", "next wider (same family and order)"),
+        ("runner_up", "runner-up (next passing case by the choice rule)")))
+    so = spec["ser_optimum"]
+    if so:
+        neigh += (f"<li><strong>signal-to-error optimum:</strong> case {esc(so['case'])} ({esc(so['family'])} "
+                  f"{esc(so['order'])}), bandwidth {esc(fmt(so['bandwidth_hz'], 'Hz'))}, SER "
+                  f"{esc(fmt(so['ser_db'], 'dB'))}</li>")
+    brows = "".join(
+        f"<tr><td>{esc(c['label'])}</td>{_value_cell(spec, f'noise.components.{k}.vrms', fmt(c['vrms'], 'V rms'))}"
+        f"<td class='n'>{esc(fmt(c['dbfs'], 'dBFS'))}</td><td class='n'>{100 * c['share']:.1f} %</td></tr>"
+        for k, c in spec["noise"]["components"].items())
+    crows = "".join(f"<tr><td>{esc(r['label'])}</td><td><code>{esc(r['key'])}</code></td>"
+                    f"{_value_cell(spec, f'chain.{i}.value', chain_value_text(r))}</tr>"
+                    for i, r in enumerate(spec["chain"]))
+    m = spec["meter"]
+    parts.append(f'<section id="spec"><h2>{esc(role)}: spec block</h2><div class="grid"><div>'
+                 f'<table id="spec-table"><tbody>{"".join(rows)}</tbody></table></div><div>'
+                 f'<h3>Targets</h3><table id="targets-table"><thead><tr><th>target</th><th>this case</th><th>margin</th>'
+                 f"<th>result</th></tr></thead><tbody>{''.join(trows)}</tbody></table>"
+                 f"<h3>Margin: the neighbouring cases</h3><ul>{neigh}</ul>"
+                 f'<h3>Noise budget</h3><table id="budget-table"><thead><tr><th>contributor</th><th>noise</th>'
+                 f"<th>dBFS</th><th>share</th></tr></thead><tbody>{brows}</tbody></table>"
+                 f'<h3>Chain assumptions</h3><table id="chain-table"><tbody>{crows}</tbody></table>'
+                 f'<p class="meta">Meter band {esc(fmt(m["low_hz"], "Hz"))} to {esc(fmt(m["high_hz"], "Hz"))} '
+                 f"({esc(m['mode'])}); A-weighting per IEC 61672-1; dBFS re a full-scale sine (AES17); "
+                 "0 dBu = 0.7746 V rms.</p>"
+                 + "".join(f'<p class="meta">Note: {esc(n)}</p>' for n in spec["notes"])
+                 + "</div></div></section>")
+    parts.append('<section id="plots"><h2>Plots</h2>' + "\n".join(_figure(p) for p in plots) + "</section>")
+    parts.append(_listening(run["renders"]))
+    parts.append(f'<section id="all-cases"><h2>All {esc(len(doc["cases"]))} cases</h2><p class="meta">Click a '
+                 "column head to sort. Underlined values miss their target; the highlighted row is the "
+                 f"{'chosen' if spec['status'] == 'chosen' else 'closest'} case.</p>" + _cases_table(doc, spec)
+                 + "</section>")
+    parts.append(f'<footer><p>{esc(spec["caution"])}</p><p>audiobw {esc(spec["version"])} · from sweep.json '
+                 f'sha256 <code>{esc(spec["sweep"]["sha256"][:16])}…</code> · spec.json and spec.md beside this '
+                 "page.</p></footer>")
+    parts.append('<pre id="selftest" hidden></pre>')
+    parts.append(f"<script>{SCRIPT}</script></main></body></html>")
+    return "\n".join(p for p in parts if p) + "\n"
