@@ -140,6 +140,51 @@ def trapezoid_weights(n_bins: int, df: float) -> np.ndarray:
     return w
 
 
+def _prefetched(blocks, depth: int = 2):
+    """Iterate ``blocks`` with the next ones decoded in a helper thread.
+
+    libsndfile decodes without holding the GIL, so decoding the next block
+    overlaps the transforms of the current one.  At most ``depth`` blocks
+    wait in the queue (memory stays bounded); an exception from the reader
+    is raised here, in the consumer.
+    """
+    import queue
+    import threading
+
+    q: queue.Queue = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+    done = object()
+
+    def reader():
+        try:
+            for item in blocks:
+                while not stop.is_set():
+                    try:
+                        q.put(item, timeout=0.1)
+                        break
+                    except queue.Full:
+                        continue
+                if stop.is_set():
+                    return
+            q.put(done)
+        except BaseException as exc:  # handed to the consumer
+            q.put(exc)
+
+    thread = threading.Thread(target=reader, name="audiobw-decode", daemon=True)
+    thread.start()
+    try:
+        while True:
+            item = q.get()
+            if item is done:
+                return
+            if isinstance(item, BaseException):
+                raise item
+            yield item
+    finally:
+        stop.set()
+        thread.join(timeout=5.0)
+
+
 def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
     """Run the single streaming pass over ``path``.
 
@@ -174,18 +219,19 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
 
     edges = critical_band_edges(fs / 2.0)
     band_of_bin = np.clip(np.searchsorted(edges, freqs_s, side="right") - 1, 0, len(edges) - 2)
-    member = np.zeros((freqs_s.size, len(edges) - 1))
-    member[np.arange(freqs_s.size), band_of_bin] = 1.0
-    # the one-sided doubling does not apply to DC and Nyquist bins
-    member[0] *= 0.5
-    member[-1] *= 0.5
 
     # Blocks are turned channel-major once (numpy reduces and transforms
     # contiguous rows several times faster than a column of 2 channels).
     # |X|² is accumulated as re² and im² side by side (a float view of the
     # complex spectrum, squared in place): one pass, no complex temporaries.
     # The short-frame channel mean and scale are folded into the band matrix.
-    member_s = np.tile(np.repeat(member * (scale_short / nch), 2, axis=0), (nch, 1))
+    # Bands are contiguous runs of bins: summed with np.add.reduceat (no BLAS
+    # call, whose threads only cost time on a loaded machine).
+    n_bands = len(edges) - 1
+    filled = np.flatnonzero(np.bincount(band_of_bin, minlength=n_bands))
+    starts = np.searchsorted(band_of_bin, filled)
+    bin_weight = np.full(freqs_s.size, scale_short / nch)
+    bin_weight[[0, -1]] *= 0.5  # the one-sided doubling does not apply to DC and Nyquist bins
     acc = np.zeros((nch, 2 * freqs.size))
     n_seg = 0
     carry = np.zeros((nch, 0))
@@ -200,7 +246,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
     frames = 0
     near_full = 1.0 - 2.0**-15
 
-    for block_fc in audio.iter_blocks(path, blocksize=blocksize):
+    for block_fc in _prefetched(audio.iter_blocks(path, blocksize=blocksize)):
         block = np.ascontiguousarray(block_fc.T)  # (channels, frames)
         n = block.shape[1]
         frames += n
@@ -232,7 +278,9 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
                 frames_arr = buf_s[:, : nfr * nshort].reshape(nch, nfr, nshort)[:, idx]  # (ch, kept, nshort)
                 v = sfft.rfft(frames_arr * win_s, axis=-1).view(np.float64)
                 np.multiply(v, v, out=v)
-                bands = v.transpose(1, 0, 2).reshape(idx.size, -1) @ member_s
+                pw = (v[..., 0::2] + v[..., 1::2]).sum(axis=0) * bin_weight  # (kept, bins)
+                bands = np.zeros((idx.size, n_bands))
+                bands[:, filled] = np.add.reduceat(pw, starts, axis=1)
                 for i, row in zip(idx.tolist(), bands):
                     if (frame_index + i) % stride == 0:
                         kept.append(row)
@@ -245,6 +293,11 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
             progress(frames, max(info.frames, frames))
 
     acc = acc[:, 0::2] + acc[:, 1::2]
+    declared = audio.wav_declared_frames(path) if info.format == "WAV" else info.frames
+    if declared and 0 < frames < declared:
+        # a truncated file: the header promises more than could be read
+        audio.warn(f"{info.path}: the header promises {declared} frames but only {frames} could be read "
+                   "(truncated file?); the readable part is used")
     if frames < nshort or n_seg == 0:
         raise AudioFileError(
             f"{info.path}: {frames} frames is shorter than one analysis frame "
