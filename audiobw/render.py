@@ -69,8 +69,14 @@ CHOICES = ("first", "second")
 
 def k_weighting_sos(fs_hz: float) -> tuple[np.ndarray, str]:
     """The K-weighting as second-order sections for ``fs_hz``, and how it was obtained."""
-    if int(round(fs_hz)) == 48000:
+    if fs_hz == 48000:
         return K_WEIGHTING_48K_SOS.copy(), "BS.1770-4 published 48 kHz coefficients"
+    return k_weighting_derived_sos(fs_hz), f"BS.1770-4 K-weighting re-derived for {fs_hz:g} Hz"
+
+
+def k_weighting_derived_sos(fs_hz: float) -> np.ndarray:
+    """The two K-weighting biquads derived for ``fs_hz`` (bilinear, prewarped) from the shelf and
+    highpass parameters that reproduce the published 48 kHz table."""
     k = math.tan(math.pi * _SHELF["fc_hz"] / fs_hz)
     vh = 10 ** (_SHELF["gain_db"] / 20.0)
     vb = vh ** 0.499666774155
@@ -82,7 +88,7 @@ def k_weighting_sos(fs_hz: float) -> tuple[np.ndarray, str]:
     q = _HIGHPASS["q"]
     a0 = 1.0 + k / q + k * k
     hp = [1.0, -2.0, 1.0, 1.0, 2.0 * (k * k - 1.0) / a0, (1.0 - k / q + k * k) / a0]
-    return np.array([shelf, hp]), f"BS.1770-4 K-weighting re-derived for {fs_hz:g} Hz"
+    return np.array([shelf, hp])
 
 
 def channel_weights(channels: int) -> np.ndarray:

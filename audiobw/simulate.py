@@ -76,6 +76,17 @@ MIN_TAPS = 1 << 12
 MAX_TAPS = 1 << 20
 REL_TOL = 1e-3
 ABS_TOL = 1e-6
+#: Designs reused across renders of the same filter (FIR taps, noise gain shapes); a few entries only.
+_CACHE: dict = {}
+_CACHE_SIZE = 16
+
+
+def _cached(key, make):
+    if key not in _CACHE:
+        if len(_CACHE) >= _CACHE_SIZE:
+            _CACHE.pop(next(iter(_CACHE)))
+        _CACHE[key] = make()
+    return _CACHE[key]
 
 
 def harmonic_coefficients(chain: Chain) -> tuple[float, float]:
@@ -268,7 +279,9 @@ class ChainSimulator:
         self.dither_rng = np.random.default_rng(dither_seq) if c.dither == "tpdf" else None
         self.delay = 0
         if self.analog:
-            taps, self.delay, worst = analog_fir(self.filt, fs, max_taps=self.fir_max_taps)
+            taps, self.delay, worst = _cached(
+                ("fir", self.filt.spec, fs, self.fir_max_taps),
+                lambda: analog_fir(self.filt, fs, max_taps=self.fir_max_taps))
             m = taps.size
             self.info.update(fir_taps=m, fir_precursor=self.delay, fir_max_rel_error=worst)
         else:
@@ -283,7 +296,8 @@ class ChainSimulator:
         self.noise_sigma = math.sqrt(density * fs / 2.0)
         self.noise_conv = None
         if self.noise and density > 0:
-            gain = self._noise_gain(m)
+            gain = _cached(("noise", self.filt.spec, fs, m, self.chain.amp_bandwidth_hz),
+                           lambda: self._noise_gain(m))
             if gain is not None:
                 self.noise_conv = OverlapSave(noise_shaper(gain, m), self.hop, self.channels)
                 self.noise_conv.process(self._white())  # pre-roll: stationary from sample 0
