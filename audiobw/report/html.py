@@ -123,7 +123,7 @@ SCRIPT = r"""
       return {key:e.getAttribute('data-spec'),value:e.getAttribute('data-value'),text:e.textContent};});
     var out=document.getElementById('selftest');
     out.textContent=JSON.stringify({images:r[0],audio:r[1],specs:specs,errors:errors,scripts:document.scripts.length,
-      sorted:sorted,title:document.title});
+      sorted:sorted,title:document.title,inputPath:(document.getElementById('input-path')||{}).textContent});
     out.setAttribute('data-done','1');});
 })();
 """

@@ -162,6 +162,12 @@ METRIC_PANELS = (  # key, label with unit, target key, log y
 )
 
 
+DATA_PANELS = (
+    ("eye_fraction", "eye opening [fraction]", "min_eye", False),
+    ("ber", "bit-error rate", "max_ber", True),
+)
+
+
 def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
     """Each metric against one swept design edge ('high' or 'low')."""
     from matplotlib.figure import Figure
@@ -172,11 +178,13 @@ def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
     cases = [c for c in doc["cases"] if c[swept] is not None]
     if doc["grid"]["response"] == "bandpass":
         cases = [c for c in cases if math.isclose(c[other], subject[other], rel_tol=1e-9)]
-    fig = Figure(figsize=(7.6, 9.2), layout="constrained")
-    axes = fig.subplots(4, 2, sharex=True)
+    panels = METRIC_PANELS + (DATA_PANELS if any("ber" in c for c in cases) else ())
+    rows = (len(panels) + 1) // 2
+    fig = Figure(figsize=(7.6, 2.3 * rows), layout="constrained")
+    axes = fig.subplots(rows, 2, sharex=True)
     role = "chosen" if spec["status"] == "chosen" else "closest (fails)"
     keys = _series_keys(cases)
-    for ax, (key, label, tkey, logy) in zip(axes.flat, METRIC_PANELS):
+    for ax, (key, label, tkey, logy) in zip(axes.flat, panels):
         for fam, order, oi in keys:
             pts = sorted((c[swept], c[key]) for c in cases if c["family"] == fam and c["order"] == order
                          and c.get(key) is not None and (not logy or c[key] > 0))

@@ -341,6 +341,19 @@ def noise_figures(chain, filt, doc: dict, case: dict) -> dict:
     }
 
 
+DATA_LINK_KEYS = ("eye_fraction", "eye_opening_v", "q", "ber", "jitter_pp_ui", "sample_delay_ui")
+
+
+def _data_link(doc: dict, subject: dict) -> dict | None:
+    """The data-program figures of the subject (null for an audio program)."""
+    data = doc.get("data")
+    if not data or "ber" not in subject:
+        return None
+    out = {"bit_rate_hz": data.get("bit_rate_hz"), "nyquist_min_hz": data.get("nyquist_min_hz")}
+    out.update({k: subject.get(k) for k in DATA_LINK_KEYS})
+    return out
+
+
 def _targets(doc: dict, subject: dict, binding: str | None) -> list[dict]:
     out = []
     for key in list(TARGET_KEYS) + sorted(set(doc["targets"]) - set(TARGET_KEYS)):
@@ -400,6 +413,7 @@ def build_spec(run: dict) -> dict:
         "group_delay": group_delay_figures(filt, subject, doc),
         "noise": noise_figures(chain, filt, doc, subject),
         "program": {k: subject.get(k) for k in ("snr_db", "snr_a_db", "loss_db", "lsd_db", "ser_db")},
+        "data_link": _data_link(doc, subject),
         "thdn": {"tone_hz": doc["meter"]["tone_hz"], "tone_level_dbfs": doc["meter"]["tone_level_dbfs"],
                  "pct": subject.get("thdn_pct"), "db": subject.get("thdn_db"), "note": subject.get("thdn_note")},
         "chain": chain_rows,
@@ -525,6 +539,18 @@ def spec_rows(spec: dict) -> list[tuple[str, str, str, object]]:
          fmt(spec["thdn"]["pct"], "%") if spec["thdn"]["pct"] is not None else f"— ({spec['thdn']['note']})",
          "thdn.pct"),
     ]
+    dl = spec.get("data_link")
+    if dl:
+        rows += [
+            ("Data link", "bit rate", fmt(dl["bit_rate_hz"], "bit/s"), "data_link.bit_rate_hz"),
+            ("Data link", "eye opening (fraction of the unfiltered eye)",
+             f"{dl['eye_fraction']:.3f}" if dl["eye_fraction"] is not None else "—", "data_link.eye_fraction"),
+            ("Data link", "eye opening", fmt(dl["eye_opening_v"], "V"), "data_link.eye_opening_v"),
+            ("Data link", "Q factor", f"{dl['q']:.3g}" if dl["q"] is not None else "—", "data_link.q"),
+            ("Data link", "bit-error rate", f"{dl['ber']:.3g}" if dl["ber"] is not None else "—", "data_link.ber"),
+            ("Data link", "peak-to-peak jitter", f"{dl['jitter_pp_ui']:.3g} UI" if dl["jitter_pp_ui"] is not None
+             else "—", "data_link.jitter_pp_ui"),
+        ]
     return rows
 
 
