@@ -207,7 +207,7 @@ class RenderResult:
 
 # -- the excerpt ------------------------------------------------------------------
 
-def removed_band_profile(path, filt, fs_hz: float, *, frame_s: float = 0.1, progress=None):
+def removed_band_profile(path, filt, fs_hz: float, *, frame_s: float = 0.1, progress=None, expected: int = 0):
     """Per-frame input power in the band the filter removes, and the program's levels.
 
     Each frame (``frame_s``, Hann window) contributes Σ|X(f)|²·(1 − |H(f)|²)
@@ -229,7 +229,7 @@ def removed_band_profile(path, filt, fs_hz: float, *, frame_s: float = 0.1, prog
             profile.extend(np.einsum("kfc,f->k", spec.real**2 + spec.imag**2, removed))
         carry = buf[k * n:]
         if progress is not None:
-            progress(frames, frames)
+            progress(frames, max(expected, frames))
     return np.asarray(profile), frames, (sumsq / max(frames, 1)) if sumsq is not None else None, n
 
 
@@ -307,7 +307,10 @@ def render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOpt
     validate_spec(spec, fs_hz=fs, name="--band")
     filt = design(spec)
 
-    profile, frames, mean_square, frame_len = removed_band_profile(input_path, filt, fs, progress=progress)
+    # progress runs over both passes: the excerpt search, then the simulation
+    expected = 2 * max(info.frames, 1)
+    profile, frames, mean_square, frame_len = removed_band_profile(input_path, filt, fs, progress=progress,
+                                                                   expected=expected)
     if frames < MIN_CLIP_S * fs:
         raise AudioFileError(f"{input_path}: {frames / fs:.3f} s of audio is shorter than the 0.4 s BS.1770 "
                              "gating block needed to loudness-match clips; accepted: at least 0.4 s")
@@ -364,7 +367,7 @@ def render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOpt
                 read += block.shape[0]
                 _write(sim.push(block))
                 if progress is not None:
-                    progress(read, frames)
+                    progress(frames + read, 2 * frames)
             _write(sim.finish())
     paths = [out_path]
 
