@@ -392,16 +392,26 @@ def _run_pool(tasks, workers: int, on_result):
 
     pool = ProcessPoolExecutor(max_workers=max(1, min(workers, len(tasks))),
                                mp_context=multiprocessing.get_context("spawn"), initializer=worker_init)
+    futures: dict = {}
+
+    def stop():
+        # Cancel what has not started ourselves: shutdown(cancel_futures=True) alone
+        # does nothing once the executor object is collected while the process exits.
+        for fut in futures:
+            fut.cancel()
+        pool.shutdown(wait=True, cancel_futures=True)  # the files in progress finish and are cached
+
     try:
-        futures = {pool.submit(sweep_task, t): i for i, t in enumerate(tasks)}
+        for i, t in enumerate(tasks):
+            futures[pool.submit(sweep_task, t)] = i
         for fut in as_completed(futures):
             on_result(futures[fut], fut.result())
     except BrokenProcessPool as exc:
-        pool.shutdown(wait=False, cancel_futures=True)
+        stop()
         raise BatchInterrupted(f"--workers: a worker process died ({exc}); finished files are kept in the "
                                "cache: run the same command again to resume") from None
     except BaseException:
-        pool.shutdown(wait=False, cancel_futures=True)
+        stop()
         raise
     pool.shutdown(wait=True)
 
