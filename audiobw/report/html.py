@@ -46,16 +46,16 @@ STYLE = """
 :root{--ink:#1d2433;--muted:#5b6270;--paper:#fbfaf7;--rule:#d9d6cf;--accent:#213a6b;--amber:#e0a526;--bad:#7c2e6b}
 *{box-sizing:border-box}
 body{margin:0;background:var(--paper);color:var(--ink);font:15px/1.45 system-ui,-apple-system,"Segoe UI",sans-serif}
-main{max-width:1080px;margin:0 auto;padding:1.2rem 1.4rem 3rem}
+main{max-width:1180px;margin:0 auto;padding:1.2rem 1.4rem 3rem}
 h1{font-size:1.55rem;margin:.2rem 0 .3rem;letter-spacing:-.01em}
 h2{font-size:1.15rem;margin:1.8rem 0 .5rem;border-bottom:2px solid var(--ink);padding-bottom:.15rem}
 h3{font-size:1rem;margin:1.2rem 0 .4rem}
-.meta{color:var(--muted);font-size:.9rem;margin:.1rem 0;word-break:break-all}
+.meta{color:var(--muted);font-size:.9rem;margin:.1rem 0;overflow-wrap:anywhere}
 .caution{border-left:6px solid var(--amber);background:#fff;padding:.55rem .8rem;margin:.8rem 0;font-size:.92rem}
 .verdict{border:2px solid var(--accent);background:#fff;padding:.7rem .9rem;margin:.9rem 0}
 .verdict.none{border-color:var(--bad);border-style:dashed}
 .verdict strong{font-size:1.05rem}
-.grid{display:grid;grid-template-columns:minmax(0,3fr) minmax(0,2fr);gap:1.4rem}
+.grid{display:grid;grid-template-columns:minmax(0,1fr) minmax(0,1fr);gap:1.4rem}
 @media (max-width:820px){.grid{grid-template-columns:1fr}}
 table{border-collapse:collapse;width:100%;font-size:.9rem;background:#fff}
 th,td{border-bottom:1px solid var(--rule);padding:.28rem .5rem;text-align:left;vertical-align:top}
@@ -151,8 +151,10 @@ def _listening(renders: list) -> str:
            f'{esc(LISTENING_CAUTION.removeprefix("Listening caution: "))}</p>']
     labels = {"ab-reference.wav": "A — reference (input, unfiltered, no added noise)",
               "ab-processed.wav": "B — processed (through the modelled chain)"}
+    folders = {"render-chosen": "the chosen case", "render-narrower": "the next narrower case (it fails a target)"}
     for r in renders:
-        out.append(f"<h3>{esc(r['folder'])}</h3>")
+        what = folders.get(r["folder"])
+        out.append(f"<h3>{esc(r['folder'])}{(': ' + esc(what)) if what else ''}</h3>")
         for name in r["ab"] + r["other"]:
             url = _clip_url(r["folder"], name)
             out.append(f'<div class="clip"><audio controls preload="metadata" src="{esc(url)}"></audio>'
@@ -252,14 +254,26 @@ def page(run: dict, spec: dict, plots: list) -> str:
                      f"<td class='n'>{esc(margin)}</td><td>{'met' if t['met'] else 'missed'}"
                      f"{' — bound the choice' if t['binding'] else ''}</td></tr>")
     nb = spec["neighbours"]
-    neigh = "".join(f"<li><strong>{esc(label)}:</strong> {esc(case_line(nb[key]))}</li>" for key, label in (
-        ("next_narrower", "next narrower (same family and order)"), ("next_wider", "next wider (same family and order)"),
-        ("runner_up", "runner-up (next passing case by the choice rule)")))
+    nrows = []
+    for key, label in (("next_narrower", "next narrower"), ("next_wider", "next wider"),
+                       ("runner_up", "runner-up (choice rule)")):
+        c = nb[key]
+        if c is None:
+            nrows.append(f"<tr><td>{esc(label)}</td><td colspan='3'>— none in the grid</td></tr>")
+            continue
+        verdict = "passes" if c["passes"] else "fails " + ", ".join(target_info(t)[0] for t in c["fails"])
+        nrows.append(f'<tr title="{esc(case_line(c))}"><td>{esc(label)}</td><td class="n">{esc(c["id"])}</td>'
+                     f'<td class="n">{esc(fmt(c["bandwidth_hz"], "Hz"))} ({c["bandwidth_change_hz"]:+.0f} Hz)</td>'
+                     f"<td>{esc(verdict)}</td></tr>")
     so = spec["ser_optimum"]
     if so:
-        neigh += (f"<li><strong>signal-to-error optimum:</strong> case {esc(so['case'])} ({esc(so['family'])} "
-                  f"{esc(so['order'])}), bandwidth {esc(fmt(so['bandwidth_hz'], 'Hz'))}, SER "
-                  f"{esc(fmt(so['ser_db'], 'dB'))}</li>")
+        nrows.append(f"<tr><td>signal-to-error optimum</td><td class='n'>{esc(so['case'])}</td>"
+                     f"<td class='n'>{esc(fmt(so['bandwidth_hz'], 'Hz'))}</td>"
+                     f"<td>SER {esc(fmt(so['ser_db'], 'dB'))} ({esc(so['family'])} {esc(so['order'])})</td></tr>")
+    neigh = ('<table id="neighbour-table"><thead><tr><th>case</th><th>id</th><th>bandwidth (change)</th>'
+             f"<th>result</th></tr></thead><tbody>{''.join(nrows)}</tbody></table>"
+             '<p class="meta">Next narrower and next wider: the same family and order as the subject; runner-up: '
+             "the passing case the choice rule would take next. Hover a row for its figures.</p>")
     brows = "".join(
         f"<tr><td>{esc(c['label'])}</td>{_value_cell(spec, f'noise.components.{k}.vrms', fmt(c['vrms'], 'V rms'))}"
         f"<td class='n'>{esc(fmt(c['dbfs'], 'dBFS'))}</td><td class='n'>{100 * c['share']:.1f} %</td></tr>"
@@ -272,15 +286,17 @@ def page(run: dict, spec: dict, plots: list) -> str:
                  f'<table id="spec-table"><tbody>{"".join(rows)}</tbody></table></div><div>'
                  f'<h3>Targets</h3><table id="targets-table"><thead><tr><th>target</th><th>this case</th><th>margin</th>'
                  f"<th>result</th></tr></thead><tbody>{''.join(trows)}</tbody></table>"
-                 f"<h3>Margin: the neighbouring cases</h3><ul>{neigh}</ul>"
+                 f"<h3>Margin: the neighbouring cases</h3>{neigh}"
                  f'<h3>Noise budget</h3><table id="budget-table"><thead><tr><th>contributor</th><th>noise</th>'
                  f"<th>dBFS</th><th>share</th></tr></thead><tbody>{brows}</tbody></table>"
-                 f'<h3>Chain assumptions</h3><table id="chain-table"><tbody>{crows}</tbody></table>'
+                 "</div></div>"
+                 f'<h3>Chain assumptions</h3><table id="chain-table"><thead><tr><th>parameter</th><th>key</th>'
+                 f"<th>value</th></tr></thead><tbody>{crows}</tbody></table>"
                  f'<p class="meta">Meter band {esc(fmt(m["low_hz"], "Hz"))} to {esc(fmt(m["high_hz"], "Hz"))} '
                  f"({esc(m['mode'])}); A-weighting per IEC 61672-1; dBFS re a full-scale sine (AES17); "
                  "0 dBu = 0.7746 V rms.</p>"
                  + "".join(f'<p class="meta">Note: {esc(n)}</p>' for n in spec["notes"])
-                 + "</div></div></section>")
+                 + "</section>")
     parts.append('<section id="plots"><h2>Plots</h2>' + "\n".join(_figure(p) for p in plots) + "</section>")
     parts.append(_listening(run["renders"]))
     parts.append(f'<section id="all-cases"><h2>All {esc(len(doc["cases"]))} cases</h2><p class="meta">Click a '
