@@ -74,6 +74,41 @@ def open_info(path) -> AudioInfo:
     return AudioInfo(p, int(info.samplerate), int(info.channels), int(info.frames), info.format, info.subtype)
 
 
+def wav_declared_frames(path) -> int | None:
+    """Frames the WAV header's 'data' chunk declares (None if not a plain RIFF/WAVE file).
+
+    libsndfile trims a truncated WAV silently to what is on disk; comparing
+    the declared size lets the caller warn about the truncation.
+    """
+    import struct
+
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(12)
+            if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
+                return None
+            block_align = None
+            while True:
+                chunk = fh.read(8)
+                if len(chunk) < 8:
+                    return None
+                cid, size = chunk[:4], struct.unpack("<I", chunk[4:])[0]
+                if cid == b"fmt ":
+                    fmt = fh.read(size)
+                    if len(fmt) >= 14:
+                        block_align = struct.unpack("<H", fmt[12:14])[0]
+                    if size % 2:
+                        fh.read(1)
+                elif cid == b"data":
+                    if size in (0, 0xFFFFFFFF) or not block_align:  # streamed or RF64 placeholder
+                        return None
+                    return size // block_align
+                else:
+                    fh.seek(size + (size % 2), 1)
+    except OSError:
+        return None
+
+
 def _short(exc: Exception) -> str:
     text = str(exc).strip().splitlines()
     return text[-1][:160] if text else type(exc).__name__

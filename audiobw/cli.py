@@ -35,7 +35,7 @@ def _default_out(input_path: Path) -> Path:
 
 
 @cli.command(context_settings=CONTEXT)
-@click.argument("input", type=click.Path(path_type=Path))
+@click.argument("input", type=click.Path(path_type=Path, readable=False))
 @click.option("--out", type=click.Path(path_type=Path), default=None,
               help="Output folder for sweep.json and sweep.csv [default: audiobw-out/<input name>/].")
 @click.option("--json", "as_json", is_flag=True, help="Print sweep.json to stdout instead of the table.")
@@ -138,6 +138,19 @@ def _add_plugin_commands() -> None:
 _add_plugin_commands()
 
 
+def _terminate_as_interrupt() -> None:
+    """Turn SIGTERM into KeyboardInterrupt, so that atomic writes clean up their temp files."""
+    import signal
+
+    def handler(signum, frame):
+        raise KeyboardInterrupt
+
+    try:
+        signal.signal(signal.SIGTERM, handler)
+    except ValueError:  # not in the main thread (e.g. embedded); leave the default
+        pass
+
+
 def main(argv=None) -> int:
     """Console entry point: one line per user mistake, no traceback (unless --debug)."""
     from .errors import AudiobwError
@@ -149,6 +162,7 @@ def main(argv=None) -> int:
         click.echo(f"audiobw: warning: {message}", err=True)
 
     warnings.showwarning = _show
+    _terminate_as_interrupt()
     try:
         result = cli.main(args=args, prog_name="audiobw", standalone_mode=False)
         return result if isinstance(result, int) else 0

@@ -328,15 +328,19 @@ class Filter:
 
         The passband peak is 0 dB by design, so |H|²max = 1.  An analog
         response with a high-frequency floor (highpass, even-order elliptic)
-        has no finite ENBW; with ``nyquist_hz`` given, its floor is counted up
-        to that frequency only (the converter's anti-alias filter is taken to
+        has no finite ENBW; with ``nyquist_hz`` given, it is integrated up to
+        that frequency only (the converter's anti-alias filter is taken to
         stop it there; see :mod:`audiobw.noise`).
         """
         value = self.power_integral_hz()
         if math.isinf(value):
             if nyquist_hz is None:
                 return math.inf
-            value = self.varying_integral_hz() + self.floor_gain() * nyquist_hz
+            if "enbw_capped" not in self._cache:
+                f = np.union1d(np.linspace(0.0, nyquist_hz, 65537),
+                               np.geomspace(1e-3 * nyquist_hz / 65536, nyquist_hz, 8193))
+                self._cache["enbw_capped"] = float(np.trapezoid(self.power_response(f), f))
+            value = self._cache["enbw_capped"]
         return value
 
 

@@ -47,37 +47,41 @@ def folded_noise_gain(filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray
     """Noise power gain of the analog path, folded into 0…fs/2.
 
     Returns ``(g, total)``: ``g`` on the grid such that ``sum(g·weights)``
-    equals ``total``.  The response is split as |H|² = (|H|² − D²) + D², with
-    D² = |H(∞)|² (0 for responses that fall, 1 for a highpass, the stopband
-    floor for an even-order elliptic):
+    equals ``total``.
 
-    * the varying part is folded image by image until what remains is below
-      1 ppm of its exact integral (:meth:`Filter.varying_integral_hz`); that
-      remainder, from far images, is nearly flat and is spread evenly;
-    * the constant floor D² would pass noise to infinite frequency; it is
-      taken as stopped at fs/2 by the converter's anti-alias filter, so it
-      adds D² over 0…fs/2.  Give the amplifier a bandwidth to model it instead.
+    * A response that falls at high frequencies (|H(∞)| = 0) passes noise
+      above fs/2 that aliases back: it is folded image by image until what
+      remains is below 1 ppm of the exact integral ∫₀^∞|H|² df
+      (:meth:`Filter.varying_integral_hz`); the remainder, from far images,
+      is nearly flat and is spread evenly.
+    * A response that never falls (a highpass: |H(∞)| = 1; an even-order
+      elliptic: the stopband floor) would pass noise to infinite frequency.
+      The converter's own anti-alias filter is then taken as ideal at fs/2,
+      so only 0…fs/2 counts.  Give the amplifier a bandwidth to model that
+      noise instead.
 
     The amplifier's own pole (``amp_bandwidth_hz``) multiplies the response
-    before the split, which makes D = 0.
+    first, which makes every response fall.
     """
     noise_filt = with_amplifier_pole(filt, amp_bandwidth_hz)
-    if not filt.analog:
-        g = filt.power_response(freqs_hz)
+    floor = noise_filt.floor_gain() if filt.analog else 0.0
+    if not filt.analog or floor > 0:
+        # digital stage, or an analog response that never falls: the
+        # converter's anti-alias filter stops everything above fs/2
+        g = noise_filt.power_response(freqs_hz)
         return g, float(np.sum(g * weights_hz))
-    floor = noise_filt.floor_gain()
     target = noise_filt.varying_integral_hz()
-    g = noise_filt.power_response(freqs_hz) - floor
+    g = noise_filt.power_response(freqs_hz)
     acc = float(np.sum(g * weights_hz))
     m = 1
     while m <= MAX_IMAGES and abs(target - acc) > 1e-6 * abs(target):
         for image in (m * fs_hz - freqs_hz, m * fs_hz + freqs_hz):
-            g = g + noise_filt.power_response(image) - floor
+            g = g + noise_filt.power_response(image)
         acc = float(np.sum(g * weights_hz))
         m += 1
-    width = float(np.sum(weights_hz))
-    g = g + (target - acc) / width + floor
-    return g, target + floor * width
+    # the rest comes from far images, nearly flat: spread it evenly (it is >= 0)
+    g = g + max(target - acc, 0.0) / float(np.sum(weights_hz))
+    return g, max(target, acc)
 
 
 @dataclass

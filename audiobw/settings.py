@@ -66,8 +66,8 @@ def load_toml(path) -> dict[str, Raw]:
         raise ConfigError(f"--chain: {str(p)!r}: no such file") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise ConfigError(f"--chain: {str(p)!r}: cannot read ({exc})") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"--chain: {str(p)!r}: not valid TOML ({exc})") from None
+    except (tomllib.TOMLDecodeError, ValueError) as exc:  # ValueError: e.g. an integer too long to convert
+        raise ConfigError(f"--chain: {str(p)!r}: not valid TOML ({str(exc).splitlines()[0][:160]})") from None
     sections = sorted({s for s, _, _ in OPTIONS.values()})
     out: dict[str, Raw] = {}
     for section, table in data.items():
