@@ -40,6 +40,7 @@ import json
 import math
 import os
 import re
+import secrets
 import threading
 import time
 import warnings
@@ -426,13 +427,17 @@ def _run_cluster(tasks, address, on_result, opt_hash: str):
     from distributed import KilledWorker
 
     try:
-        client = Client(address, timeout="20s")
-    except (OSError, TimeoutError, ValueError) as exc:
-        raise ParameterError(f"--cluster: cannot reach a dask scheduler at {address!r} ({exc})") from None
+        client = Client(address, timeout="10s")
+    except ValueError as exc:
+        raise ParameterError(f"--cluster: {address!r} is not a scheduler address ({exc}); "
+                             "accepted: e.g. tcp://host:8786 or tls://host:8786") from None
+    except (OSError, TimeoutError) as exc:
+        raise BatchInterrupted(f"--cluster: cannot reach a dask scheduler at {address!r} ({exc})") from None
     try:
         futures = {}
+        run = secrets.token_hex(4)  # keys unique to this run: never another client's finished task
         for i, t in enumerate(tasks):
-            key = f"audiobw-sweep-{opt_hash[:12]}-{hashlib.sha1(t['path'].encode()).hexdigest()[:16]}"
+            key = f"audiobw-sweep-{opt_hash[:12]}-{run}-{i}"
             futures[client.submit(sweep_task, t, key=key, pure=False)] = i
         for fut in as_completed(futures):
             i = futures[fut]

@@ -314,6 +314,7 @@ def test_cli_summary_and_outputs(corpus3, tmp_path, capsys):
     (["--coverage", "95"], "--coverage: '95'"),
     (["--workers", "-1"], "--workers: -1"),
     (["--cluster", "tcp://127.0.0.1:9", "--workers", "2"], "--workers: not used with --cluster"),
+    (["--cluster", "nonsense://x"], "--cluster: 'nonsense://x' is not a scheduler address"),
 ])
 def test_cli_bad_options(corpus3, tmp_path, capsys, argv, needle):
     lib, _ = corpus3
