@@ -370,3 +370,21 @@ def test_cli_report_refuses_bad_folders(tmp_path, capsys, lowpass_run):
              sample_rate_hz=np.int64(48000), sha256=np.str_("0" * 64))
     assert main(["report", str(other)]) == 1
     assert "is not the one in sweep.json" in capsys.readouterr().err
+
+
+def test_highpass_without_spectrum_file(tmp_path):
+    """A highpass sweep (lower edge only) whose folder has no spectrum.npz: the sheet and the page still come,
+    with the spectrum plot left out and the half-lower-edge stopband point given."""
+    out = make_sweep(tmp_path, {"response": "highpass", "family": "butterworth", "order": "2,3",
+                                "cutoffs": "20:200:4", "max_loss": "0.5dB"})
+    (out / "spectrum.npz").unlink()
+    paths = specmod.write_report(out)
+    spec = json.loads(paths["spec_json"].read_text(encoding="utf-8"))
+    assert spec["sweep"]["spectrum_file"] is None and spec["filter"]["high_hz"] is None
+    assert [p["name"] for p in spec["stopband"]] == ["half_lower_edge"]
+    # Butterworth highpass: |H|² = 1/(1 + (fc/f)^(2n)); at fc/2 that is 10·lg(1 + 2^(2n)) dB down
+    n, p = spec["filter"]["order"], spec["stopband"][0]
+    assert p["attenuation_db"] == pytest.approx(10 * math.log10(1 + 2.0 ** (2 * n)), abs=1e-6)
+    names = {k for k in paths if k.startswith("plot_") and k.endswith("_png")}
+    assert names == {"plot_metrics-lower-edge_png", "plot_filter_png", "plot_noise-budget_png", "plot_ser_png"}
+    assert "render-" not in paths["html"].read_text(encoding="utf-8")

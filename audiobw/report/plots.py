@@ -296,7 +296,8 @@ def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
                  markeredgecolor=INK, linestyle="none", label=f"{p['label']}: {p['attenuation_db']:.1f} dB down")
     if filt.analog:
         ax1.axvline(nyq, color=INK, linewidth=0.8, linestyle=":")
-        ax1.annotate("fs/2", xy=(nyq, floor), xytext=(3, 3), textcoords="offset points", fontsize=7)
+        ax1.annotate("fs/2", xy=(nyq, 1.0), xycoords=("data", "axes fraction"), xytext=(3, -3),
+                     textcoords="offset points", va="top", fontsize=7)
     ax1.set_ylim(floor, 5)
     ax1.set_ylabel("magnitude [dB]")
     ax1.legend(loc="lower center" if lo and hi else ("lower left" if hi else "lower right"))
