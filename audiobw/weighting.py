@@ -28,20 +28,8 @@ _A1000_DB = -2.000
 
 
 def a_weighting_db(freq_hz):
-    """A-weighting in dB at the given frequencies.
+    """A-weighting in dB at ``freq_hz`` (Hz, >= 0): 10·lg of :func:`a_weighting_power`; −inf at 0 Hz.
 
-    Parameters
-    ----------
-    freq_hz : array_like of float, >= 0
-        Frequencies in Hz.
-
-    Returns
-    -------
-    ndarray of float
-        A(f) in dB; ``-inf`` at 0 Hz.
-
-    References
-    ----------
     IEC 61672-1:2013 Annex E, eq. E.6: A(f) = 20 lg[f4² f⁴ / ((f² + f1²)
     sqrt(f² + f2²) sqrt(f² + f3²) (f² + f4²))] − A1000.
     """

@@ -35,13 +35,7 @@ COLUMNS = (
 
 
 #: columns of a data-program sweep
-DATA_COLUMNS = (
-    ("id", "", "id", "{:>4d}", None),
-    ("family", "", "family", "{:<11s}", None),
-    ("ord", "", "order", "{:>3d}", None),
-    ("low", "Hz", "low_hz", "{:>8.1f}", None),
-    ("high", "Hz", "high_hz", "{:>8.0f}", None),
-    ("ENBW", "Hz", "enbw_hz", "{:>8.0f}", None),
+DATA_COLUMNS = COLUMNS[:6] + (
     ("σ", "µV", "noise_sigma_uv", "{:>8.2f}", None),
     ("eye", "%", "eye_pct", "{:>6.1f}", "min_eye"),
     ("Q", "", "q", "{:>8.2f}", None),
