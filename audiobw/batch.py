@@ -54,6 +54,8 @@ IDENTITY_KEYS = ("response", "family", "order", "design_low_hz", "design_high_hz
 #: Per-case values kept in the cache and aggregated by median over the files.
 MEDIAN_KEYS = ("low_hz", "high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
                "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db")
+#: Data-program metrics (``--program data``), carried the same way when a file has them.
+DATA_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sigma_v", "q", "ber", "jitter_pp_ui")
 PERCENTILES = (5, 25, 50, 75, 95)
 CSV_KEYS = ("id", "response", "family", "order", "poles", "design_low_hz", "design_high_hz", "low_hz",
             "high_hz", "bandwidth_hz", "enbw_hz", "files_evaluated", "pass_share", "passes", "fails")
@@ -224,30 +226,39 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
 
 # -- settings as plain data ---------------------------------------------------
 
-def settings_to_plain(settings) -> dict:
-    """The Settings as JSON-ready plain data (what travels to the workers)."""
-    def plain(v):
-        if isinstance(v, (tuple, list)):
-            return [plain(x) for x in v]
-        if isinstance(v, dict):
-            return {k: plain(x) for k, x in v.items()}
-        return v
+def _plain(v):
+    if isinstance(v, (tuple, list)):
+        return [_plain(x) for x in v]
+    if isinstance(v, dict):
+        return {k: _plain(x) for k, x in v.items()}
+    if hasattr(v, "__dataclass_fields__"):
+        return _plain(asdict(v))
+    return v
 
-    return {"chain": plain(asdict(settings.chain)), "grid_values": plain(settings.grid_values),
-            "meter": plain(asdict(settings.meter)), "targets": plain(settings.targets),
-            "input_level": plain(settings.input_level)}
+
+def settings_to_plain(settings) -> dict:
+    """The Settings as JSON-ready plain data (what travels to the workers): every field."""
+    from dataclasses import fields
+
+    return {f.name: _plain(getattr(settings, f.name)) for f in fields(settings)}
 
 
 def settings_from_plain(data: dict):
     """Rebuild Settings from :func:`settings_to_plain` output."""
+    from dataclasses import fields
+
     from .chain import Chain
     from .metrics import Meter
     from .settings import Settings
 
-    grid = {k: tuple(v) if isinstance(v, list) else v for k, v in data["grid_values"].items()}
-    level = tuple(data["input_level"]) if data["input_level"] is not None else None
-    return Settings(chain=Chain(**data["chain"]), grid_values=grid, meter=Meter(**data["meter"]),
-                    targets=dict(data["targets"]), input_level=level)
+    kw = dict(data)
+    kw["chain"] = Chain(**data["chain"])
+    kw["meter"] = Meter(**data["meter"])
+    kw["grid_values"] = {k: tuple(v) if isinstance(v, list) else v for k, v in data["grid_values"].items()}
+    kw["targets"] = dict(data["targets"])
+    kw["input_level"] = tuple(data["input_level"]) if data["input_level"] is not None else None
+    known = {f.name for f in fields(Settings)}
+    return Settings(**{k: v for k, v in kw.items() if k in known})
 
 
 def options_hash(plain: dict) -> str:
@@ -369,8 +380,8 @@ def sweep_task(task: dict) -> dict:
         _local.sink = None
     if doc["input"]["sha256"] != sha:
         return {"status": "failed", "cached": False, "reason": f"{path}: the file changed while it was read"}
-    cases = [{k: c.get(k) for k in ("id", "poles", *IDENTITY_KEYS, *MEDIAN_KEYS, "thdn_note", "passes",
-                                      "fails", "margins_db")} for c in doc["cases"]]
+    keys = ("id", "poles", *IDENTITY_KEYS, *MEDIAN_KEYS, "thdn_note", "passes", "fails", "margins_db")
+    cases = [{k: c.get(k) for k in keys + tuple(k for k in DATA_KEYS if k in c)} for c in doc["cases"]]
     entry = {"format": CACHE_FORMAT, "sha256": sha, "options": opt,
              "input": {k: v for k, v in doc["input"].items() if k != "path"},
              "choice": doc["choice"], "cases": cases, "warnings": caught}
@@ -537,6 +548,9 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
         case = {"id": cid, **dict(zip(IDENTITY_KEYS, ident)), "poles": table[ident]["poles"]}
         for key in MEDIAN_KEYS:
             case[key] = _median(r.get(key) for r in rows.values())
+        for key in DATA_KEYS:
+            if any(key in r for r in rows.values()):
+                case[key] = _median(r.get(key) for r in rows.values())
         notes = [r.get("thdn_note") for r in rows.values() if r.get("thdn_note")]
         case["thdn_note"] = notes[0] if notes else None
         share_t, margin_q = {}, {}
@@ -601,14 +615,15 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
                          "sample_rate_hz": inp["sample_rate_hz"], "channels": inp["channels"],
                          "duration_s": inp["duration_s"], "choice": own, "warnings": list(entry["warnings"])})
     chain = settings.chain.to_json()
+    plain = settings_to_plain(settings)
     return {
         "tool": "audiobw",
         "version": __version__,
         "kind": "corpus",
         "coverage": _round(coverage),
         "options_sha256": opt_hash,
-        "settings": {"chain": chain, "grid": settings_to_plain(settings)["grid_values"],
-                     "meter": asdict(settings.meter), "input_level": settings_to_plain(settings)["input_level"]},
+        "settings": {"chain": chain, "grid": plain["grid_values"], "meter": plain["meter"],
+                     **{k: v for k, v in plain.items() if k not in ("chain", "grid_values", "meter", "targets")}},
         "targets": {k: v for k, v in settings.targets.items() if v is not None},
         "counts": {"inputs": n + len(failed), "swept": n, "failed": len(failed), "skipped": len(skipped),
                    "sample_rates_hz": dict(sorted(rates.items(), key=lambda kv: int(kv[0])))},

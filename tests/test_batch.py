@@ -346,3 +346,26 @@ def test_progress_line_counts():
     p.close()
     # 4 computed in 8 s -> 2 s each -> 5 left take 10 s
     assert stream.getvalue() == "\raudiobw batch: 5/10 done, 1 failed, 5 left, about 10 s to go   \n"
+
+
+def test_data_programs_carry_their_metrics(tmp_path, capsys):
+    jsonschema = pytest.importorskip("jsonschema")
+    lib = tmp_path / "links"
+    lib.mkdir()
+    for pattern in ("prbs7", "prbs9"):
+        code, _, err = run_cli(["bits", "--bit-rate", "2k", "--pattern", pattern, "--bits-count", "1024",
+                                "--rate", "16k", "--out", str(lib / f"{pattern}.wav")], capsys)
+        assert code == 0, err
+    s = settings_from({"program": "data", "bit_rate": "2k", "cutoffs": "1k:6k:6", "min_eye": "0.5"}, None)
+    doc = batch.run_batch([lib], s, tmp_path / "c", coverage=1.0, workers=0).doc
+    assert doc["settings"]["program"] == "data" and doc["settings"]["bit_rate"] == 2000.0
+    sweeps = [json.loads((tmp_path / "c" / f["sweep"]).read_text()) for f in doc["files"]]
+    for case in doc["cases"]:
+        own = [next(c for c in sw["cases"] if c["design_high_hz"] == case["design_high_hz"]) for sw in sweeps]
+        # two files: the corpus value is their median, i.e. their mean (statistics.median)
+        assert case["eye_fraction"] == pytest.approx((own[0]["eye_fraction"] + own[1]["eye_fraction"]) / 2,
+                                                     rel=1e-6)
+        assert case["pass_share"] == sum(c["passes"] for c in own) / 2
+    chosen = doc["cases"][doc["choice"]["case"] - 1]
+    assert chosen["target_pass_share"]["min_eye"] == 1.0
+    jsonschema.validate(doc, json.loads((REPO / "docs" / "corpus.schema.json").read_text()))

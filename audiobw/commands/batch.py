@@ -10,7 +10,8 @@ from pathlib import Path
 
 import click
 
-from ..clikit import CHAIN, CONTEXT, ESTIMATE_CAUTION, GRID, METER, TARGETS, chain_file_option, options, settings_from
+from ..clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, GRID, METER, PROGRAM, TARGETS, chain_file_option, options,
+                      settings_from)
 
 
 class BatchProgress:
@@ -70,6 +71,7 @@ def _duration(seconds: float) -> str:
 @options(CHAIN, "chain")
 @options(TARGETS, "targets")
 @options(METER, "meter")
+@options(PROGRAM, "program")
 def command(inputs, out, coverage, workers, cluster, follow_links, as_json, chain_file, **kwargs):
     """Sweep every file of a library and choose the narrowest case that passes on
     at least the --coverage share of them.
