@@ -184,6 +184,10 @@ def atomic_path(target, *, inputs=()):
     ok = False
     try:
         yield Path(tmp)
+        # mkstemp makes the file private (0600); outputs are ordinary files
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, target)
         ok = True
     except OSError as exc:

@@ -39,13 +39,17 @@ def _default_out(input_path: Path) -> Path:
 @click.option("--out", type=click.Path(path_type=Path), default=None,
               help="Output folder for sweep.json and sweep.csv [default: audiobw-out/<input name>/].")
 @click.option("--json", "as_json", is_flag=True, help="Print sweep.json to stdout instead of the table.")
+@click.option("--render", "do_render", is_flag=True,
+              help="Also render the chosen case and the next narrower one (A/B clips, chain output).")
+@click.option("--report", "do_report", is_flag=True,
+              help="Also write the spec sheet, plots and report.html beside sweep.json.")
 @chain_file_option
 @options(GRID, "grid")
 @options(CHAIN, "chain")
 @options(TARGETS, "targets")
 @options(METER, "meter")
 @options(PROGRAM, "program")
-def sweep(input, out, as_json, chain_file, **kwargs):
+def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     """Sweep candidate filters over INPUT and choose the narrowest passing passband.
 
     Example:
@@ -59,18 +63,38 @@ def sweep(input, out, as_json, chain_file, **kwargs):
     from .report.text import case_table, closing_paragraph
 
     settings = settings_from(kwargs, chain_file)
+    out_dir = out or _default_out(input)
     progress = Progress(f"analysing {input.name}")
     try:
-        doc, paths = sweep_file(input, settings, out_dir=out or _default_out(input), progress=progress)
+        doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress)
     finally:
         progress.close()
+    extra = []
+    if do_render:
+        from .render import render_sweep
+
+        if doc.get("choice"):
+            rendered = render_sweep(doc, input, settings, out_dir)
+            extra.append(f"Rendered the chosen case{' and the next narrower one' if doc['choice'].get('next_narrower') else ''} "
+                         f"into {out_dir}/render-*/ ({len(rendered)} files). {LISTENING_CAUTION}")
+        else:
+            extra.append("Nothing rendered: no case meets the targets.")
+    if do_report:
+        from .report.spec import write_report
+
+        written = write_report(out_dir)
+        extra.append(f"Wrote the spec sheet and report: {written.get('html', written['spec_md'])}.")
     if as_json:
         click.echo(dumps(doc), nl=False)
+        for line in extra:
+            click.echo(line, err=True)
         return
     click.echo(case_table(doc))
     click.echo()
     click.echo(closing_paragraph(doc))
     click.echo(f"Wrote {paths['json']} and {paths['csv']}.")
+    for line in extra:
+        click.echo(line)
     click.echo(ESTIMATE_CAUTION)
 
 

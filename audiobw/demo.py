@@ -51,6 +51,20 @@ def find_clips(clips_dir=None) -> Path:
                          f"({', '.join(DEMO_CLIPS)}); accepted: the repository's clips/ folder")
 
 
+def _render_and_report(doc, path, settings, out_dir):
+    """Render the chosen and next-narrower cases (A/B clips), then write the report."""
+    from .clikit import LISTENING_CAUTION
+    from .render import render_sweep
+    from .report.spec import write_report
+
+    if doc.get("choice"):
+        render_sweep(doc, path, settings, out_dir)
+        yield (f"A/B clips of the chosen case and of the next narrower one: {out_dir}/render-*/ "
+               f"(ab-reference.wav, ab-processed.wav). {LISTENING_CAUTION}")
+    report = write_report(out_dir)
+    yield f"Spec sheet {report['spec_md']}; report page {report['html']}."
+
+
 def _data_link(out: Path, summary: list):
     """The telemetry example: write the stream, sweep it as a data program."""
     import math
@@ -67,11 +81,14 @@ def _data_link(out: Path, summary: list):
     write_audio_atomic(stream, x[:, None], fs, subtype="PCM_24")
     raw = {k: Raw(v, f"demo {k}") for k, v in {**DATA_CHAIN, **DATA_TARGETS, **DATA_GRID, **DATA_PROGRAM}.items()}
     doc, paths = sweep_file(stream, build(raw), out_dir=out / "telemetry-2k")
+    from .report.spec import write_report
+
+    report = write_report(out / "telemetry-2k")
     yield (f"== {stream.name}  (the Saltmarsh tide gauge, invented: 2 kbit/s PRBS-9 NRZ at ±10 mV; "
            "10 kΩ line, 60 dB receiver gain, e_n 30 nV/√Hz; targets BER ≤ 1e-9, eye ≥ 60 %; "
            f"{len(doc['cases'])} cases; bit rate recovered from the recording)")
     yield closing_paragraph(doc)
-    yield f"Wrote {paths['json']} and {paths['csv']}."
+    yield f"Wrote {paths['json']} and {paths['csv']}; the report is {report['html']}."
     yield ""
     d = doc["data"]
     if doc["choice"]:
@@ -93,6 +110,13 @@ def run(out: Path, *, clips_dir=None):
     from .settings import Raw, build
 
     folder = find_clips(clips_dir)
+    try:  # record the clips' path relative to the working directory when it can be
+        import os
+
+        rel = Path(os.path.relpath(folder))
+        folder = rel if not str(rel).startswith("..") else folder
+    except ValueError:
+        pass
     raw = {k: Raw(v, f"demo {k}") for k, v in {**DEMO_CHAIN, **DEMO_TARGETS, **DEMO_GRID}.items()}
     settings = build(raw)
     yield ("audiobw demo — the Tern-2 field interface (an invented scenario): which passband does each "
@@ -111,6 +135,7 @@ def run(out: Path, *, clips_dir=None):
         yield f"== {name}  ({len(doc['cases'])} cases in {dt:.2f} s)"
         yield closing_paragraph(doc)
         yield f"Wrote {paths['json']} and {paths['csv']}."
+        yield from _render_and_report(doc, folder / name, settings, out / Path(name).stem)
         yield ""
         if doc["choice"]:
             c = doc["cases"][doc["choice"]["case"] - 1]

@@ -1,7 +1,7 @@
 """sweep.json and sweep.csv: the contract a spec sheet is fed from.
 
 The JSON layout is documented in docs/sweep-json.md and by the JSON Schema
-``audiobw/schemas/sweep.schema.json``.  Output is deterministic: the same
+``docs/sweep.schema.json``.  Output is deterministic: the same
 input and options give byte-identical files.
 """
 
