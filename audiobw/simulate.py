@@ -32,10 +32,13 @@ How each part is made
   with a2 = 2·10^(h2/20) and a3 = 4·10^(h3/20): for a full-scale sine (peak 1)
   the 2nd and 3rd harmonics are then h2 and h3 dB re the fundamental, and they
   scale as r and r² at amplitude r (trigonometric identities for sin² and
-  sin³).  The polynomial acts on the program at the file's rate, so a harmonic
-  above fs/2 folds before an analog filter rather than after it (the model
-  filters it at its true frequency); the two agree whenever the harmonics lie
-  below fs/2.
+  sin³).  Analog stage: the harmonics are formed at 3·fs from the band-limited
+  interpolation of the program, filtered there by the analog response and
+  taken every third sample, so a harmonic above fs/2 meets the filter at its
+  true frequency and then folds at the converter, as in the model; the linear
+  path stays at fs, and both paths carry the same delay.  Digital stage: the
+  polynomial acts at fs (its harmonics fold at the converter, then meet the
+  digital filter, as in the model).
 * **Converter.** Rounding to q = 2·√2·FS/2^N (2/2^N in sample units), with
   TPDF dither of 2 LSB peak to peak when asked; codes run from −1 to 1 − q and
   every sample beyond them is clipped *and counted*.
@@ -76,6 +79,10 @@ MIN_TAPS = 1 << 12
 MAX_TAPS = 1 << 20
 REL_TOL = 1e-3
 ABS_TOL = 1e-6
+#: Rate factor for forming the amplifier's harmonics ahead of an analog filter (x³ reaches 1.5·fs).
+OVERSAMPLE = 3
+INTERP_ZEROS = 48      # sinc zero crossings each side of the interpolator
+INTERP_BETA = 8.0      # Kaiser window parameter (about 80 dB image rejection)
 #: Designs reused across renders of the same filter (FIR taps, noise gain shapes); a few entries only.
 _CACHE: dict = {}
 _CACHE_SIZE = 16
@@ -113,8 +120,20 @@ def _grid(m: int, fs_hz: float) -> np.ndarray:
     return np.arange(m // 2 + 1) * fs_hz / m
 
 
-def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS) -> tuple[np.ndarray, int, float]:
+def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS, delay: int | None = None,
+               min_taps: int = MIN_TAPS) -> tuple[np.ndarray, int, float]:
     """An FIR whose response matches the analog filter below fs/2.
+
+    Parameters
+    ----------
+    filt : Filter
+        An analog candidate.
+    fs_hz : float
+        The rate the FIR runs at.
+    max_taps, min_taps : int
+        Bounds of the search (powers of two).
+    delay : int or None
+        Precursor room in samples; None: an eighth of the taps.
 
     Returns
     -------
@@ -125,12 +144,15 @@ def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS) -> tuple
     max_error : float
         Worst |H_fir − H| / (|H| + 1e-3) found up to 0.45·fs on a 4× finer grid.
     """
-    m = MIN_TAPS
+    m = int(min_taps)
+    while delay is not None and 4 * delay > m:
+        m *= 2
+    fixed = delay
     while True:
         f = _grid(m, fs_hz)
         h_grid = analog_response(filt, f)
         h_grid[-1] = h_grid[-1].real  # the DFT of real taps is real at fs/2
-        delay = m // 8
+        delay = m // 8 if fixed is None else fixed
         taps = np.roll(np.fft.irfft(h_grid, m), delay)
         fine = _grid(4 * m, fs_hz)
         band = fine <= ACCURACY_FRACTION * fs_hz
@@ -278,10 +300,14 @@ class ChainSimulator:
         self.noise_rng = np.random.default_rng(noise_seq)
         self.dither_rng = np.random.default_rng(dither_seq) if c.dither == "tpdf" else None
         self.delay = 0
+        self.nonlinear = bool(self.a2 or self.a3)
+        self.oversampled = self.analog and self.nonlinear
         if self.analog:
             taps, self.delay, worst = _cached(
                 ("fir", self.filt.spec, fs, self.fir_max_taps),
                 lambda: analog_fir(self.filt, fs, max_taps=self.fir_max_taps))
+            if self.oversampled:
+                taps, taps_r, interp = self._oversampled_paths(taps)
             m = taps.size
             self.info.update(fir_taps=m, fir_precursor=self.delay, fir_max_rel_error=worst)
         else:
@@ -292,6 +318,10 @@ class ChainSimulator:
         self.hop = m
         if self.analog:
             self.conv = OverlapSave(taps, self.hop, self.channels)
+        if self.oversampled:
+            r = OVERSAMPLE
+            self.interp = OverlapSave(interp, r * self.hop, self.channels)
+            self.conv_r = OverlapSave(taps_r, r * self.hop, self.channels)
         # noise: white of variance density·fs/2, shaped by the (folded) gain
         self.noise_sigma = math.sqrt(density * fs / 2.0)
         self.noise_conv = None
@@ -307,6 +337,34 @@ class ChainSimulator:
         self._to_skip = self.delay
         self._zhop = 0
         self.clipping = ClipReport(np.zeros(self.channels, dtype=np.int64))
+
+    def _oversampled_paths(self, taps):
+        """Linear path at fs, harmonics at 3·fs, both with the same total delay.
+
+        The harmonics are formed from the band-limited interpolation of the
+        program (a Kaiser-windowed sinc, scipy.signal.firwin), filtered by the
+        analog response at 3·fs (exact below 1.5·fs, where x³ ends) and then
+        taken every third sample: what the filter passes above fs/2 folds at
+        the converter, as in the model.
+        """
+        from scipy import signal
+
+        fs, r = float(self.fs_hz), OVERSAMPLE
+        half = INTERP_ZEROS * r
+        interp = r * signal.firwin(2 * half + 1, 1.0 / r, window=("kaiser", INTERP_BETA))
+        taps_r, delay_r, _ = _cached(("fir", self.filt.spec, r * fs, self.fir_max_taps),
+                                     lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps))
+        common = max(self.delay, -(-(half + delay_r) // r))
+        if common != self.delay:
+            taps, _, _ = _cached(("fir", self.filt.spec, fs, self.fir_max_taps, common, taps.size),
+                                 lambda: analog_fir(self.filt, fs, max_taps=self.fir_max_taps, delay=common,
+                                                    min_taps=taps.size))
+        taps_r, _, _ = _cached(("fir", self.filt.spec, r * fs, self.fir_max_taps, r * common - half, taps_r.size),
+                               lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps,
+                                                  delay=r * common - half, min_taps=taps_r.size))
+        self.delay = common
+        self.info.update(harmonics_oversampling=r, harmonics_fir_taps=int(taps_r.size))
+        return taps, taps_r, interp
 
     def _noise_gain(self, m: int):
         """Power gain shape of the amplifier noise on the M-grid (None: white)."""
@@ -329,9 +387,15 @@ class ChainSimulator:
     # -- the fixed hop grid --------------------------------------------------
     def _process_hop(self, x: np.ndarray) -> np.ndarray:
         s = x * self.in_gain if self.in_gain != 1.0 else x.copy()
-        if self.a2 or self.a3:
+        if self.oversampled:
+            up = np.zeros((OVERSAMPLE * s.shape[0], self.channels))
+            up[::OVERSAMPLE] = s
+            u = self.interp.process(up)
+            harmonics = self.conv_r.process(self.a2 * u**2 + self.a3 * u**3)[::OVERSAMPLE]
+            s = self.conv.process(s) + harmonics
+        elif self.nonlinear:
             s = s + self.a2 * s**2 + self.a3 * s**3
-        if self.analog:
+        if self.analog and not self.oversampled:
             s = self.conv.process(s)
         if self.noise and self.noise_sigma > 0:
             n = self.noise_conv.process(self._white()) if self.noise_conv is not None else self._white()
