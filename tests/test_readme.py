@@ -13,13 +13,10 @@ README = (REPO / "README.md").read_text(encoding="utf-8")
 
 
 def _blocks():
-    """Pairs of (command block, output block) following each other in the README."""
-    blocks = re.findall(r"```(\w*)\n(.*?)```", README, flags=re.S)
-    pairs = []
-    for (lang, cmd), (_, out) in zip(blocks, blocks[1:]):
-        if lang == "sh" and cmd.lstrip().startswith("audiobw "):
-            pairs.append((cmd.replace("\\\n", " "), out))
-    return pairs
+    """(command, output) pairs: an ```sh block of one audiobw command, then an output block
+    with at most a short caption line between them."""
+    pat = re.compile(r"```sh\n(audiobw [^`]*?)```\n\s*(?:[^`\n]{0,40}\n\s*)?```\n(.*?)```", re.S)
+    return [(cmd.replace("\\\n", " "), out) for cmd, out in pat.findall(README)]
 
 
 @pytest.mark.parametrize("cmd,expected", _blocks(), ids=lambda v: v.split()[1] if v.startswith("audiobw") else "")
