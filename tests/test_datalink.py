@@ -184,3 +184,23 @@ def test_data_targets_need_a_data_program(tmp_path, capsys, write_audio):
     assert "--bit-rate" in capsys.readouterr().err
     assert main(["sweep", str(p), "--program", "data", "--bit-rate", "fast", "--max-ber", "1e-9"]) == 2
     assert main(["sweep", str(p), "--program", "data", "--bit-rate", "2k", "--max-ber", "2"]) == 2
+
+
+def test_eye_traces_of_an_ideal_stream():
+    from audiobw.report.eye import eye_traces
+
+    fs = 48000
+    x = nrz_stream(prbs("prbs7", 400), R, fs, 0.5)
+    t_ui, traces = eye_traces(x, fs, R)
+    mid = np.argmin(np.abs(t_ui - 0.5))
+    np.testing.assert_allclose(np.abs(traces[:, mid]), 0.5)  # unfiltered: every trace at ±A mid-bit
+    assert traces.shape[1] == t_ui.size and t_ui[-1] == 2.0
+
+
+def test_eye_diagram_png(tmp_path, write_audio):
+    from audiobw.report.eye import eye_diagram
+
+    x = nrz_stream(prbs("prbs7", 400), R, 48000, 0.5)
+    wav = write_audio("c.wav", x[:, None], 48000)
+    png = eye_diagram(wav, R, tmp_path / "eye.png", sample_delay_ui=1.0)
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 5000
