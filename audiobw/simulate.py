@@ -192,15 +192,19 @@ class OverlapSave:
     """
 
     def __init__(self, taps: np.ndarray, hop: int, channels: int):
+        from scipy import fft
+
+        self._fft = fft
         self.m = int(taps.size)
         self.hop = int(hop)
         self.nfft = 1 << math.ceil(math.log2(self.hop + self.m - 1))
-        self.spectrum = np.fft.rfft(taps, self.nfft)[:, None]
+        self.spectrum = fft.rfft(taps, self.nfft)[:, None]
         self.history = np.zeros((self.m - 1, channels))
 
     def process(self, x: np.ndarray) -> np.ndarray:
+        fft = self._fft
         buf = np.concatenate([self.history, x]) if self.m > 1 else x
-        y = np.fft.irfft(np.fft.rfft(buf, self.nfft, axis=0) * self.spectrum, self.nfft, axis=0)
+        y = fft.irfft(fft.rfft(buf, self.nfft, axis=0) * self.spectrum, self.nfft, axis=0)
         if self.m > 1:
             self.history = buf[-(self.m - 1):]
         return y[self.m - 1:self.m - 1 + x.shape[0]]

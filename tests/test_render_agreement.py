@@ -58,7 +58,9 @@ ORDERS = (2, 8)
 RESPONSES = {"lowpass": (None, 6000.0), "highpass": (300.0, None), "bandpass": (300.0, 6000.0)}
 STAGES = ("analog", "digital")
 #: 16 bits: quantisation and amplifier noise both count (−93 and −91 dBFS over 0–24 kHz).
-CHAIN = Chain(bits=16, h2_db=-90.0, h3_db=-100.0)
+CHAIN = Chain(bits=16)
+#: The same chain with the amplifier's harmonics, for THD+N (noise and harmonics both count).
+DISTORTING = replace(CHAIN, h2_db=-90.0, h3_db=-100.0)
 #: A quiet chain for the LSD: every band's noise below the −120 dBFS floor, so the figure is the filter's.
 QUIET = Chain(bits=24, gain_db=10.0)
 #: Tones on the bins of the 2048-sample LSD frame (k·fs/2048), one near the middle of each of seven
@@ -198,10 +200,11 @@ def measure_case(tmp, family, order, response, stage, seed):
     got["noise_vrms"] = math.sqrt(p_noise) * math.sqrt(2) * chain.full_scale_vrms
 
     # THD+N: a -1 dBFS tone with the amplifier's harmonics
-    y = render(tmp, "tone", single_tone(total, 997.0, -1.0), spec, chain, seed + 2)
+    distorting = replace(DISTORTING, stage=stage)
+    y = render(tmp, "tone", single_tone(total, 997.0, -1.0), spec, distorting, seed + 2)
     resid, fund = sine_fit_residual(y[:, 0], 997.0)
     got["thdn_pct"] = 100 * math.sqrt(power(resid) / (power(resid) + power(fund)))
-    want_tone = fast_path(tmp, "tone", single_tone(total, 997.0, -1.0), spec, chain)
+    want_tone = fast_path(tmp, "tone", single_tone(total, 997.0, -1.0), spec, distorting)
 
     # SNR, A-weighted SNR and loss on a stationary program (noise-like or tones, alternately)
     kind = "noise" if (FAMILIES.index(family) + ORDERS.index(order) + list(RESPONSES).index(response)) % 2 == 0 \
