@@ -260,8 +260,8 @@ def _fade(x: np.ndarray, fs_hz: float) -> np.ndarray:
 
 def _chain_text(c: Chain) -> str:
     return (f"Rs {c.source_ohms:g} ohm at {c.temperature_k:g} K; gain {c.gain_db:g} dB; e_n {c.en_v_rthz:.3g} V/rtHz; "
-            f"i_n {c.in_a_rthz:.3g} A/rtHz; h2 {c.h2_db if c.h2_db is not None else 'none'} dB; "
-            f"h3 {c.h3_db if c.h3_db is not None else 'none'} dB; amplifier bandwidth "
+            f"i_n {c.in_a_rthz:.3g} A/rtHz; h2 {'none' if c.h2_db is None else f'{c.h2_db:g} dB'}; "
+            f"h3 {'none' if c.h3_db is None else f'{c.h3_db:g} dB'}; amplifier bandwidth "
             f"{'unlimited' if c.amp_bandwidth_hz is None else f'{c.amp_bandwidth_hz:g} Hz'}; {c.bits} bits; "
             f"full scale {c.full_scale_vrms:g} V rms; dither {c.dither}; filter stage {c.stage}; "
             f"input gain {c.input_gain_db:.3g} dB")
