@@ -557,6 +557,11 @@ def render_sweep(doc: dict, input_path, settings, out_dir, options: RenderOption
                           chain.stage, fs)
         result = render_file(input_path, spec, chain, out_dir / folder, options, progress=progress)
         paths.extend(result.paths)
+        if "data" in doc:  # a data program: the eye diagram of the simulated output
+            from .report.eye import eye_diagram
+
+            paths.append(eye_diagram(out_dir / folder / "chain-output.wav", doc["data"]["bit_rate_hz"],
+                                     out_dir / folder / "eye.png", sample_delay_ui=case.get("sample_delay_ui")))
     return paths
 
 

@@ -204,3 +204,18 @@ def test_eye_diagram_png(tmp_path, write_audio):
     wav = write_audio("c.wav", x[:, None], 48000)
     png = eye_diagram(wav, R, tmp_path / "eye.png", sample_delay_ui=1.0)
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 5000
+
+
+def test_render_of_a_data_case_writes_an_eye_diagram(tmp_path, capsys):
+    link = tmp_path / "link.wav"
+    assert main(["bits", "--bit-rate", "2k", "--bits-count", "1024", "--amplitude", "10mV", "--full-scale",
+                 "50m", "--out", str(link)]) == 0
+    out = tmp_path / "sw"
+    code = main(["sweep", str(link), "--program", "data", "--bit-rate", "2k", "--family", "bessel", "--order",
+                 "2", "--cutoffs", "600:3k:4", "--full-scale", "50m", "--gain", "60", "--en", "30n",
+                 "--source-ohms", "10k", "--max-ber", "1e-9", "--render", "--out", str(out)])
+    assert code == 0, capsys.readouterr()
+    assert (out / "render-chosen" / "eye.png").read_bytes()[:4] == b"\x89PNG"
+    code = main(["render", str(link), "--band", ":1k", "--family", "bessel", "--order", "4", "--full-scale",
+                 "50m", "--bit-rate", "auto", "--out", str(tmp_path / "r")])
+    assert code == 0 and (tmp_path / "r" / "eye.png").is_file()

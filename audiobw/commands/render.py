@@ -45,10 +45,13 @@ def _loudness(text: str) -> float:
               help="Write N blind pairs and an answer key.")
 @click.option("--seed", default=1, show_default=True, type=int, metavar="S",
               help="Seed of the chain's noise, dither and the trial order.")
+@click.option("--bit-rate", "bit_rate", default=None, metavar="RATE",
+              help="For a data program: also write eye.png, the eye diagram of the chain output at this "
+                   "bit rate (bit/s, e.g. 2k, or auto).")
 @chain_file_option
 @options(CHAIN, "chain")
 def command(input, band, family, order, ripple, stopband, out, loudness, ceiling, excerpt, excerpt_at, trials,
-            seed, chain_file, **kwargs):
+            seed, bit_rate, chain_file, **kwargs):
     """Simulate the chain on INPUT in the time domain and write loudness-matched A/B clips.
 
     Writes chain-output.wav (the chain output at its true level, 32-bit float),
@@ -100,6 +103,16 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
         click.echo(f"  blind/ ({f['trials']['count']} pairs; key in {f['trials']['key']}, keep it from the listeners)")
     for clip in f["clips"].values():
         click.echo(f"{clip['file']}: {clip['loudness_lufs']:.2f} LUFS, true peak {clip['true_peak_dbfs']:.2f} dBFS")
+    if bit_rate is not None:
+        from ..datalink import recover_bit_rate
+        from ..report.eye import eye_diagram
+        from ..settings import _parse_bit_rate
+
+        rate = _parse_bit_rate(bit_rate, "--bit-rate")
+        if rate == "auto":
+            rate, _ = recover_bit_rate(input)
+        eye = eye_diagram(result.out_dir / "chain-output.wav", rate, result.out_dir / "eye.png")
+        click.echo(f"  {eye.name} (eye diagram at {units.format_quantity(rate, 'bit/s')})")
     if f["clipping"]["samples"]:
         click.echo(f"audiobw: warning: the converter clipped {f['clipping']['samples']} samples "
                    f"(first at {f['clipping']['first_s']:.3f} s); see render-notes.txt", err=True)
