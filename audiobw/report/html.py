@@ -143,7 +143,18 @@ def _clip_url(folder: str, name: str) -> str:
     return quote(folder) + "/" + quote(name)
 
 
-def _listening(renders: list) -> str:
+def _eye_figure(base, r: dict) -> str:
+    """The render's eye diagram (data programs), embedded like the plots."""
+    if not r.get("eye"):
+        return ""
+    data = base64.b64encode((Path(base) / r["folder"] / r["eye"]).read_bytes()).decode("ascii")
+    return (f'<figure class="eye"><img src="data:image/png;base64,{data}" alt="eye diagram of the simulated '
+            f'chain output"><figcaption>Eye diagram of the simulated chain output '
+            f'({esc(r["folder"])}/{esc(r["eye"])}); the dash-dot lines mark the best sampling instant '
+            'from the sweep.</figcaption></figure>')
+
+
+def _listening(renders: list, base=".") -> str:
     if not renders:
         return ""
     out = ['<section id="listen"><h2>Listen: A/B clips</h2>',
@@ -155,6 +166,7 @@ def _listening(renders: list) -> str:
     for r in renders:
         what = folders.get(r["folder"])
         out.append(f"<h3>{esc(r['folder'])}{(': ' + esc(what)) if what else ''}</h3>")
+        out.append(_eye_figure(base, r))
         for name in r["ab"] + r["other"]:
             url = _clip_url(r["folder"], name)
             out.append(f'<div class="clip"><audio controls preload="metadata" src="{esc(url)}"></audio>'
@@ -298,7 +310,7 @@ def page(run: dict, spec: dict, plots: list) -> str:
                  + "".join(f'<p class="meta">Note: {esc(n)}</p>' for n in spec["notes"])
                  + "</section>")
     parts.append('<section id="plots"><h2>Plots</h2>' + "\n".join(_figure(p) for p in plots) + "</section>")
-    parts.append(_listening(run["renders"]))
+    parts.append(_listening(run["renders"], run["dir"]))
     parts.append(f'<section id="all-cases"><h2>All {esc(len(doc["cases"]))} cases</h2><p class="meta">Click a '
                  "column head to sort. Underlined values miss their target; the highlighted row is the "
                  f"{'chosen' if spec['status'] == 'chosen' else 'closest'} case.</p>" + _cases_table(doc, spec)

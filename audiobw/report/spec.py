@@ -133,7 +133,8 @@ def read_run(out_dir) -> dict:
 def find_renders(out_dir) -> list[dict]:
     """Render output in ``render-*`` subfolders: their clips, A/B pair first.
 
-    Returns a list of ``{"folder", "ab": [names], "other": [names], "true_level": [names]}``
+    Returns a list of ``{"folder", "eye", "ab": [names], "other": [names], "true_level": [names]}``
+    (``eye``: "eye.png" when a data-program render drew its eye diagram, else None)
     (names relative to the folder), sorted by folder name; empty if none.
     """
     found = []
@@ -145,6 +146,7 @@ def find_renders(out_dir) -> list[dict]:
             continue
         found.append({
             "folder": sub.name,
+            "eye": "eye.png" if (sub / "eye.png").is_file() else None,
             "ab": [n for n in AB_CLIPS if n in wavs],
             "true_level": [n for n in wavs if n in TRUE_LEVEL_CLIPS],
             "other": [n for n in wavs if n not in AB_CLIPS and n not in TRUE_LEVEL_CLIPS],
