@@ -386,7 +386,10 @@ def sweep_task(task: dict) -> dict:
              "input": {k: v for k, v in doc["input"].items() if k != "path"},
              "choice": doc["choice"], "cases": cases, "warnings": caught}
     text = json.dumps(entry, sort_keys=True, allow_nan=False, ensure_ascii=False)
-    write_text_atomic(_cache_file(task["cache_dir"], sha, opt), text + "\n")
+    try:
+        write_text_atomic(_cache_file(task["cache_dir"], sha, opt), text + "\n")
+    except OutputError:
+        pass  # the sweep is done and its outputs written; only a rerun would redo it
     return {"status": "ok", "cached": False, "entry": json.loads(text)}
 
 
