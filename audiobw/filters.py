@@ -31,7 +31,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from functools import cached_property
+from functools import cached_property, lru_cache
 
 import numpy as np
 from scipy import linalg, optimize, signal
@@ -267,7 +267,7 @@ class Filter:
             value = math.inf if self.floor_gain() > 0 else self.varying_integral_hz()
         else:
             nyq = self.spec.fs_hz / 2.0
-            f = np.union1d(np.linspace(0.0, nyq, 65537), np.geomspace(1e-3 * nyq / 65536, nyq, 8193))
+            f = _dense_grid(float(nyq))
             value = float(np.trapezoid(self.power_response(f), f))
         self._cache["power_integral"] = value
         return value
@@ -337,11 +337,22 @@ class Filter:
             if nyquist_hz is None:
                 return math.inf
             if "enbw_capped" not in self._cache:
-                f = np.union1d(np.linspace(0.0, nyquist_hz, 65537),
-                               np.geomspace(1e-3 * nyquist_hz / 65536, nyquist_hz, 8193))
+                f = _dense_grid(float(nyquist_hz))
                 self._cache["enbw_capped"] = float(np.trapezoid(self.power_response(f), f))
             value = self._cache["enbw_capped"]
         return value
+
+
+@lru_cache(maxsize=8)
+def _dense_grid(top_hz: float) -> np.ndarray:
+    """The integration grid 0…top_hz: 65537 linear points united with 8193 logarithmic ones near DC.
+
+    Built once per upper limit (a sweep uses one): the sort in np.union1d cost
+    more than the integral itself.  Read-only.
+    """
+    f = np.union1d(np.linspace(0.0, top_hz, 65537), np.geomspace(1e-3 * top_hz / 65536, top_hz, 8193))
+    f.setflags(write=False)
+    return f
 
 
 #: Normalised analog lowpass/highpass prototypes, keyed by (response, family, order, ripple, stopband).
