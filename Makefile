@@ -28,5 +28,8 @@ test: $(STAMP_TEST)
 clips: $(STAMP_BASE)
 	$(BIN)/python clips/make_clips.py
 
+bench: $(STAMP_TEST)
+	$(BIN)/python benchmarks/run.py
+
 clean:
 	rm -rf $(VENV) audiobw-out .pytest_cache
