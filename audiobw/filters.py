@@ -197,6 +197,9 @@ class Filter:
         """|H(f)|² at the given frequencies in Hz (linear power gain)."""
         f = np.asarray(freq_hz, dtype=float)
         if self.analog:
+            factors = self._real_factors()
+            if factors is not None and f.size > 1:
+                return _analog_power(f * (2.0 * np.pi / self.ref_rad_s), self.k, *factors)
             # evaluated on the normalised prototype: s/ω_ref keeps the
             # products of up to 16 factors well inside float range
             s = 1j * (2.0 * np.pi * f / self.ref_rad_s)
@@ -210,6 +213,14 @@ class Filter:
             den = den * (s - pole)
         h = self.k * num / den
         return (h.real**2 + h.imag**2)
+
+    def _real_factors(self):
+        """Zeros and poles as real factors in W = ω² (cached; shared by a prototype), or None."""
+        cache = self._proto if self._proto is not None else self._cache
+        if "real_factors" not in cache:
+            fz, fp = _real_factors(self.z), _real_factors(self.p)
+            cache["real_factors"] = None if fz is None or fp is None else (fz, fp)
+        return cache["real_factors"]
 
     def response_db(self, freq_hz) -> np.ndarray:
         with np.errstate(divide="ignore"):
@@ -341,6 +352,60 @@ class Filter:
                 self._cache["enbw_capped"] = float(np.trapezoid(self.power_response(f), f))
             value = self._cache["enbw_capped"]
         return value
+
+
+def _real_factors(roots):
+    """∏|jω − r|² over ``roots`` as factors of W = ω²: (origin count, [a²] for real
+    roots, [b²] for conjugate pairs on the axis, [(c₁, c₀)] for other pairs, giving
+    W·(W + c₁) + c₀ with c₁ = 2(a² − b²), c₀ = |r|⁴).  None if the roots are not in
+    conjugate pairs."""
+    roots = np.asarray(roots, complex)
+    mag = np.abs(roots)
+    nz = roots[mag > 0]
+    tol = 1e-12 * np.abs(nz)
+    real, upper, lower = nz[np.abs(nz.imag) <= tol], nz[nz.imag > tol], nz[nz.imag < -tol]
+    if upper.size != lower.size or not np.allclose(np.sort_complex(upper), np.sort_complex(lower.conj()),
+                                                   rtol=1e-9, atol=0.0):
+        return None
+    axis, quad = [], []
+    for r in upper:
+        a, b = float(r.real), float(r.imag)
+        if abs(a) <= 1e-14 * abs(r):
+            axis.append(b * b)
+        else:
+            quad.append((2.0 * (a * a - b * b), (a * a + b * b) ** 2))
+    return int(np.count_nonzero(mag == 0)), [float(r.real) ** 2 for r in real], axis, quad
+
+
+def _factor_product(w2, factors, t):
+    origin, lin, axis, quad = factors
+    out = np.ones_like(w2)
+    for _ in range(origin):
+        out *= w2
+    for c in lin:
+        np.add(w2, c, out=t)
+        out *= t
+    for c in axis:
+        np.subtract(w2, c, out=t)
+        t *= t
+        out *= t
+    for c1, c0 in quad:
+        np.add(w2, c1, out=t)
+        t *= w2
+        t += c0
+        out *= t
+    return out
+
+
+def _analog_power(x, k, fz, fp):
+    """|H(jx)|² in real arithmetic from the factors of :func:`_real_factors` (x: normalised rad/s)."""
+    w2 = x * x
+    t = np.empty_like(w2)
+    num = _factor_product(w2, fz, t)
+    den = _factor_product(w2, fp, t)
+    num *= k * k
+    num /= den
+    return num
 
 
 @lru_cache(maxsize=8)
