@@ -140,6 +140,30 @@ def trapezoid_weights(n_bins: int, df: float) -> np.ndarray:
     return w
 
 
+def _hash_in_background(path):
+    """Start the file's SHA-256 in a helper thread (hashlib releases the GIL on
+    large updates); returns a function that waits for it.  A failure there is
+    retried in the caller, so its error is raised where it belongs."""
+    import threading
+
+    box: dict = {}
+
+    def work():
+        try:
+            box["hex"] = audio.sha256_file(path)
+        except BaseException:  # retried (and raised) by the caller
+            pass
+
+    thread = threading.Thread(target=work, name="audiobw-sha256", daemon=True)
+    thread.start()
+
+    def result() -> str:
+        thread.join()
+        return box["hex"] if "hex" in box else audio.sha256_file(path)
+
+    return result
+
+
 def _prefetched(blocks, depth: int = 2):
     """Iterate ``blocks`` with the next ones decoded in a helper thread.
 
@@ -206,6 +230,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
         silence, NaN or infinite samples.
     """
     info = audio.open_info(path)
+    digest = _hash_in_background(path)
     fs = info.sample_rate_hz
     nch = info.channels
     nper, nshort = frame_lengths(fs, info.frames if info.frames > 0 else None)
@@ -309,7 +334,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
     psd_ch[:, 1:-1] *= 2.0  # one-sided
     df = fs / nper
     a = Analysis(
-        path=str(info.path), sha256=audio.sha256_file(path), sample_rate_hz=fs, channels=nch,
+        path=str(info.path), sha256=digest(), sample_rate_hz=fs, channels=nch,
         frames=frames, nperseg=nper, freqs_hz=freqs, psd_channels=psd_ch, psd=psd_ch.mean(axis=0),
         weights_hz=trapezoid_weights(freqs.size, df), peak=peak, mean_square=sumsq / frames,
         dc=sums / frames, full_scale_samples=at_full_scale, band_edges_hz=edges,
