@@ -358,6 +358,12 @@ def main():
         except RuntimeError as exc:
             rows.append(("7", "corpus: 2 workers / 1 worker throughput", "—", "not yet measurable", "≥ 1.7×", None))
             notes.append(f"Row 7: the batch runner failed in this tree ({str(exc).splitlines()[-1][:200]}).")
+        finally:
+            import shutil
+
+            shutil.rmtree(corpus, ignore_errors=True)
+            if "outs" in locals():
+                shutil.rmtree(outs, ignore_errors=True)
 
     write_page(rows, notes, base, per_case, floor, sweep288, s5, s60)
 
