@@ -305,27 +305,31 @@ class Filter:
         return self._crossing_search(edge_hz, upward=upward)
 
     def _crossing_search(self, edge_hz: float, *, upward: bool) -> float:
-        if self.spec.family in ("butterworth", "bessel"):
-            start = edge_hz
-        else:
-            start = edge_hz
+        """Half-power crossing nearest a design edge.
+
+        Outward from the edge while the response is above one half there
+        (the ripple families' edges lie inside the −3 dB band); inward when
+        it is already below (a design whose edge sits just past −3.01 dB by
+        rounding, or a very wide digital bandpass); then Brent's method on
+        the bracket.
+        """
         g = lambda logf: float(self.power_response(math.exp(logf))) - HALF_POWER  # noqa: E731
-        a = math.log(start)
-        if abs(g(a)) < 1e-12:
-            return start
-        step = math.log(1.02)
-        limit = math.log(self.spec.fs_hz / 2.0) if not self.analog else a + math.log(1e3)
+        a = math.log(edge_hz)
+        ga = g(a)
+        if abs(ga) < 1e-12:
+            return edge_hz
+        outward = ga > 0
+        sign = 1.0 if upward == outward else -1.0
+        top = math.log(self.spec.fs_hz / 2.0) - 1e-9 if not self.analog else a + math.log(1e3)
+        step = math.log(1.0005)
         b = a
-        for _ in range(2000):
-            b = b + step if upward else b - step
-            if upward and not self.analog and b >= limit:
-                b = limit - 1e-9
+        for _ in range(200):
+            b = min(b + sign * step, top)
+            if (g(b) < 0) == outward or b >= top:
                 break
-            if g(b) < 0:
-                break
-            step *= 1.25
-        if g(b) >= 0:
-            return math.exp(b)  # digital response never falls to half before fs/2
+            step *= 1.5
+        if (g(b) < 0) != outward:
+            return math.exp(b)  # a digital response that does not cross before fs/2
         root = optimize.brentq(g, min(a, b), max(a, b), xtol=1e-12, rtol=1e-12)
         return math.exp(root)
 

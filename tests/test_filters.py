@@ -168,3 +168,13 @@ def test_analog_response_matches_a_direct_scipy_design(family, make, order, resp
     got = ours.response_db(f)
     mask = ref > -150  # deep stopband values are at the rounding floor
     np.testing.assert_allclose(got[mask], ref[mask], atol=1e-6)
+
+
+def test_edges_of_a_very_wide_digital_bessel_bandpass():
+    # regression (found by the hypothesis property test): the half-power search
+    # must bracket the crossing whichever side of the design edge it lies on
+    f = design(FilterSpec("bandpass", "bessel", 4, 5.0, 21115.75, ripple_db=1.0, stopband_db=20.0,
+                          stage="digital", fs_hz=48000.0))
+    lo, hi = f.edges_3db
+    assert f.response_db(lo) == pytest.approx(-3.0103, abs=1e-6)
+    assert f.response_db(hi) == pytest.approx(-3.0103, abs=1e-6)
