@@ -204,6 +204,17 @@ def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
         if v is not None and (not logy or v > 0):
             ax.plot([subject[swept]], [v], marker="*", markersize=13, color=HIGHLIGHT, markeredgecolor=INK,
                     linestyle="none", zorder=5, label=f"{role}: case {subject['id']}")
+        if key in ("eye_fraction", "ber") and "data" in doc:
+            nyq = doc["data"]["nyquist_min_hz"]
+            ax.axvline(nyq, color=MUTED, linewidth=1.4, linestyle=(0, (2, 2)), zorder=1)
+            ax.annotate("Nyquist 1/(2T)", xy=(nyq, 1.0), xycoords=("data", "axes fraction"), xytext=(3, -10),
+                        textcoords="offset points", fontsize=7, color=MUTED)
+            q_opt = (doc["data"].get("q_optimal") or {}).get("case")
+            if key == "ber" and q_opt:
+                qc = doc["cases"][q_opt - 1]
+                if qc.get(swept) is not None and qc.get("ber", 0) > 0:
+                    ax.plot([qc[swept]], [qc["ber"]], marker="v", markersize=9, color="white",
+                            markeredgecolor=INK, linestyle="none", zorder=5, label=f"highest Q: case {q_opt}")
         ax.set_xscale("log")
         if logy:
             ax.set_yscale("log")
