@@ -148,6 +148,34 @@ def test_interrupt_leaves_no_partial_output_and_input_untouched(long_file, tmp_p
     assert long_file.read_bytes() == before
 
 
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM])
+@pytest.mark.parametrize("command", ["render", "report"])
+def test_interrupted_render_or_report_leaves_no_partial_file(long_file, tmp_path, sig, command):
+    before = long_file.read_bytes()
+    env = dict(os.environ, PYTHONPATH=str(REPO))
+    out = tmp_path / "o"
+    if command == "render":
+        args = ["render", str(long_file), "--band", "40:9k", "--family", "elliptic", "--order", "8",
+                "--out", str(out)]
+    else:  # a finished sweep folder, then the report on it
+        assert main(["sweep", str(long_file), "--out", str(out), "--cutoffs", "2k:20k:24", "--family",
+                     "butterworth,bessel", "--order", "2,4", "--max-loss", "1"]) == 0
+        args = ["report", str(out)]
+    snapshot = {p: p.read_bytes() for p in out.rglob("*") if p.is_file()} if out.exists() else {}
+    proc = subprocess.Popen([sys.executable, "-m", "audiobw", *args], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, env=env, cwd=tmp_path)
+    time.sleep(1.5)
+    proc.send_signal(sig)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode in (0, 130), err
+    assert [p.name for p in tmp_path.rglob("*") if p.name.endswith(".part")] == []
+    for p, data in snapshot.items():  # what the sweep wrote is untouched
+        assert p.read_bytes() == data
+    for p in out.rglob("*.json"):  # every JSON present is whole
+        json.loads(p.read_text())
+    assert long_file.read_bytes() == before
+
+
 # -- hostile configuration ------------------------------------------------------
 
 @pytest.mark.parametrize("text,needle", [
