@@ -136,7 +136,9 @@ class Scorer:
         row = {
             "low_hz": lo3 if filt.spec.response != "lowpass" else None,
             "high_hz": hi3 if filt.spec.response != "highpass" else None,
-            "enbw_hz": filt.enbw_hz(nyq),
+            # a response that never falls is integrated to fs/2: on the analysis grid, already evaluated
+            "enbw_hz": (float(np.sum(G * a.weights_hz)) if math.isinf(filt.power_integral_hz())
+                        else filt.enbw_hz(nyq)),
             "noise_vrms": math.sqrt(n_pow),
             "noise_dbfs": _db(n_pow / c.full_scale_power_v2),
             "snr_db": _db(s_out / n_pow) if s_out > 0 else None,

@@ -39,7 +39,7 @@ PSD_RESOLUTION_HZ = 3.0
 #: Length of a short-time frame for the band summary, s (~43 ms).
 FRAME_SECONDS = 0.043
 #: At most this many short-time frames are kept (evenly spaced in time).
-MAX_FRAMES = 4096
+MAX_FRAMES = 1024
 
 
 def _pow2_at_least(x: float) -> int:
