@@ -25,7 +25,7 @@ import numpy as np
 
 from .chain import Chain
 from .filters import Filter
-from .noise import noise_spectra
+from .noise import noise_total
 from .spectrum import Analysis
 from .weighting import a_weighting_power
 
@@ -123,8 +123,7 @@ class Scorer:
         f = a.freqs_hz
         wm = p["wm"]
         G = filt.power_response(f)
-        noise = noise_spectra(c, filt, f, a.weights_hz, a.sample_rate_hz)
-        N = noise.total
+        N = noise_total(c, filt, f, a.weights_hz, a.sample_rate_hz, direct=G)
         n_pow = float(np.sum(N * wm))
         n_pow_a = float(np.sum(N * wm * p["aw"]))
         S = p["S"]

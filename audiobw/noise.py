@@ -103,8 +103,29 @@ def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.
     return np.maximum(out, 0.0)
 
 
+#: The images (everything but |H(f)|² itself) are smooth over 0…fs/2: the
+#: closed form is evaluated on every IMAGE_STRIDE-th bin and interpolated.
+IMAGE_STRIDE = 8
+
+
+def _folded_images(filt: Filter, freqs_hz: np.ndarray, fs_hz: float, direct: np.ndarray) -> np.ndarray | None:
+    """|H(f)|² plus every alias image, with the images from a subsampled closed form."""
+    n = freqs_hz.size
+    if n < 64 * IMAGE_STRIDE:
+        return _images_closed_form(filt, freqs_hz, fs_hz)
+    idx = np.arange(0, n, IMAGE_STRIDE)
+    if idx[-1] != n - 1:
+        idx = np.append(idx, n - 1)
+    total = _images_closed_form(filt, freqs_hz[idx], fs_hz)
+    if total is None:
+        return None
+    images = np.maximum(total - direct[idx], 0.0)
+    return direct + np.interp(freqs_hz, freqs_hz[idx], images)
+
+
 def folded_noise_gain(filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float,
-                      amp_bandwidth_hz: float | None = None) -> tuple[np.ndarray, float]:
+                      amp_bandwidth_hz: float | None = None, *, direct: np.ndarray | None = None
+                      ) -> tuple[np.ndarray, float]:
     """Noise power gain of the analog path, folded into 0…fs/2.
 
     Returns ``(g, total)``: ``g`` on the grid such that ``sum(g·weights)``
@@ -122,22 +143,24 @@ def folded_noise_gain(filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray
       noise instead.
 
     The amplifier's own pole (``amp_bandwidth_hz``) multiplies the response
-    first, which makes every response fall.
+    first, which makes every response fall.  ``direct``, when given, is
+    |H(f)|² on ``freqs_hz`` already evaluated by the caller (reused when there
+    is no amplifier pole).
     """
     noise_filt = with_amplifier_pole(filt, amp_bandwidth_hz)
+    if direct is None or noise_filt is not filt:
+        direct = noise_filt.power_response(freqs_hz)
     floor = noise_filt.floor_gain() if filt.analog else 0.0
     if not filt.analog or floor > 0:
         # digital stage, or an analog response that never falls: the
         # converter's anti-alias filter stops everything above fs/2
-        g = noise_filt.power_response(freqs_hz)
-        return g, float(np.sum(g * weights_hz))
+        return direct, float(np.sum(direct * weights_hz))
     target = noise_filt.varying_integral_hz()
-    direct = noise_filt.power_response(freqs_hz)
     acc = float(np.sum(direct * weights_hz))
     if abs(target - acc) <= 1e-6 * abs(target):
         # the images hold less than 1 ppm (a steep filter well below fs/2): no folding needed
         g = direct
-    elif (g := _images_closed_form(noise_filt, freqs_hz, fs_hz)) is not None:  # every image at once
+    elif (g := _folded_images(noise_filt, freqs_hz, fs_hz, direct)) is not None:  # every image at once
         acc = float(np.sum(g * weights_hz))
     else:
         g = direct
@@ -147,9 +170,11 @@ def folded_noise_gain(filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray
                 g = g + noise_filt.power_response(image)
             acc = float(np.sum(g * weights_hz))
             m += 1
-    # the rest comes from far images, nearly flat: spread it evenly (it is >= 0)
-    g = g + max(target - acc, 0.0) / float(np.sum(weights_hz))
-    return g, max(target, acc)
+    # the rest (far images, nearly flat; or the interpolation's last ppm) is spread evenly
+    rest = target - acc
+    if rest < 0 and -rest > 1e-6 * target:
+        return g, acc  # never remove more than rounding: keep what was folded
+    return np.maximum(g + rest / float(np.sum(weights_hz)), 0.0), target
 
 
 @dataclass
@@ -167,6 +192,20 @@ class NoiseSpectra:
     def power(self, weights=None) -> dict:
         w = self.weights_hz if weights is None else weights
         return {name: float(np.sum(d * w)) for name, d in self.parts.items()}
+
+
+def noise_total(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float,
+                *, direct: np.ndarray | None = None) -> np.ndarray:
+    """The total output noise density on ``freqs_hz`` (V²/Hz): the sum of :func:`noise_spectra`'s
+    parts, computed without building them; ``direct`` is |H(f)|² if the caller has it."""
+    nyq_width = float(np.sum(weights_hz))
+    converter = (chain.quantisation_power_v2() + chain.dither_power_v2()) / nyq_width
+    h2 = filt.power_response(freqs_hz) if direct is None else direct
+    if filt.analog:
+        g, _ = folded_noise_gain(filt, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz, direct=h2)
+        return chain.density_amplifier_v2_hz() * g + converter
+    g = h2 if chain.amp_bandwidth_hz is None else h2 / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
+    return chain.density_amplifier_v2_hz() * g + converter * h2
 
 
 def noise_spectra(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray,

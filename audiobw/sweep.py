@@ -206,10 +206,10 @@ def _data_metrics(filt, analysis: Analysis, chain: Chain, data) -> dict:
     import numpy as np
 
     from .datalink import score_data
-    from .noise import noise_spectra
+    from .noise import noise_total
 
-    spectra = noise_spectra(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
-    sigma = math.sqrt(float(np.sum(spectra.total * analysis.weights_hz)))
+    total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
+    sigma = math.sqrt(float(np.sum(total * analysis.weights_hz)))
     return score_data(filt, data, sigma)
 
 
