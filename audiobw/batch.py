@@ -644,21 +644,9 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
 
 def csv_text(doc: dict) -> str:
     """corpus.csv: one row per case (CSV_KEYS); failing targets joined with ';'."""
-    import csv
-    import io
+    from .report.sweepio import csv_text as cases_csv
 
-    buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(CSV_KEYS)
-    for case in doc["cases"]:
-        row = []
-        for key in CSV_KEYS:
-            v = case.get(key)
-            v = ";".join(v) if key == "fails" else ("" if v is None else ("true" if v is True else
-                                                                          "false" if v is False else v))
-            row.append(v)
-        writer.writerow(row)
-    return buf.getvalue()
+    return cases_csv(doc, CSV_KEYS)
 
 
 # -- the whole run --------------------------------------------------------------

@@ -15,8 +15,8 @@ import click
 
 from . import __version__
 
-from .clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, GRID, LISTENING_CAUTION, METER, PROGRAM, TARGETS,  # noqa: F401
-                     Progress, chain_file_option, options, settings_from)
+from .clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, LISTENING_CAUTION, Progress, chain_file_option, options,
+                     settings_from, sweep_options)
 
 @click.group(context_settings=CONTEXT)
 @click.version_option(__version__, prog_name="audiobw")
@@ -43,12 +43,7 @@ def _default_out(input_path: Path) -> Path:
               help="Also render the chosen case and the next narrower one (A/B clips, chain output).")
 @click.option("--report", "do_report", is_flag=True,
               help="Also write the spec sheet, plots and report.html beside sweep.json.")
-@chain_file_option
-@options(GRID, "grid")
-@options(CHAIN, "chain")
-@options(TARGETS, "targets")
-@options(METER, "meter")
-@options(PROGRAM, "program")
+@sweep_options
 def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     """Sweep candidate filters over INPUT and choose the narrowest passing passband.
 

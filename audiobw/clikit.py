@@ -83,3 +83,11 @@ class Progress:
 chain_file_option = click.option(
     "--chain", "chain_file", type=click.Path(path_type=Path), default=None,
     help="TOML file with [source] [amplifier] [converter] [grid] [targets] [meter]; options override it.")
+
+
+def sweep_options(fn):
+    """Everything `sweep` and `batch` share: --chain, the grid, chain, target, meter and program options."""
+    for deco in (options(PROGRAM, "program"), options(METER, "meter"), options(TARGETS, "targets"),
+                 options(CHAIN, "chain"), options(GRID, "grid"), chain_file_option):
+        fn = deco(fn)
+    return fn

@@ -10,8 +10,7 @@ from pathlib import Path
 
 import click
 
-from ..clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, GRID, METER, PROGRAM, TARGETS, chain_file_option, options,
-                      settings_from)
+from ..clikit import CONTEXT, ESTIMATE_CAUTION, settings_from, sweep_options
 
 
 class BatchProgress:
@@ -66,12 +65,7 @@ def _duration(seconds: float) -> str:
 @click.option("--follow-links", is_flag=True,
               help="Follow symbolic links to folders and links that lead out of a folder given.")
 @click.option("--json", "as_json", is_flag=True, help="Print corpus.json to stdout instead of the summary.")
-@chain_file_option
-@options(GRID, "grid")
-@options(CHAIN, "chain")
-@options(TARGETS, "targets")
-@options(METER, "meter")
-@options(PROGRAM, "program")
+@sweep_options
 def command(inputs, out, coverage, workers, cluster, follow_links, as_json, chain_file, **kwargs):
     """Sweep every file of a library and choose the narrowest case that passes on
     at least the --coverage share of them.

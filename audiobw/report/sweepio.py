@@ -24,14 +24,15 @@ def dumps(doc: dict) -> str:
     return json.dumps(doc, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
 
 
-def csv_text(doc: dict) -> str:
-    """One row per case, the CSV_KEYS columns; failing targets joined with ';'."""
+def csv_text(doc: dict, keys=CSV_KEYS) -> str:
+    """One row per case of ``doc["cases"]``, the ``keys`` columns; failing targets joined with ';',
+    booleans as true/false, empty cells for null."""
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(CSV_KEYS)
+    writer.writerow(keys)
     for case in doc["cases"]:
         row = []
-        for key in CSV_KEYS:
+        for key in keys:
             v = case.get(key)
             if key == "fails":
                 v = ";".join(v)
