@@ -474,13 +474,10 @@ def fmt(value, unit: str = "", digits: int = 4) -> str:
 
 
 def passband_phrase(spec: dict) -> str:
+    from .text import band_words
+
     f = spec["filter"]
-    if f["response"] == "lowpass":
-        band = f"lowpass, −3 dB at {fmt(f['high_hz'], 'Hz')}"
-    elif f["response"] == "highpass":
-        band = f"highpass, −3 dB at {fmt(f['low_hz'], 'Hz')}"
-    else:
-        band = f"bandpass, −3 dB edges {fmt(f['low_hz'], 'Hz')} to {fmt(f['high_hz'], 'Hz')}"
+    band = band_words(f["response"], f["low_hz"], f["high_hz"], hz=lambda v: fmt(v, "Hz"))
     return f"{f['family']} order {f['order']} ({f['poles']} poles), {f['stage']} stage, {band}"
 
 

@@ -106,14 +106,17 @@ def _fmt_metric(key: str, value) -> str:
     return f"{value:.2f} dB"
 
 
+def band_words(response: str, low_hz, high_hz, hz=lambda v: format_quantity(v, "Hz")) -> str:
+    """'lowpass, −3 dB edge 9.5 kHz' and the like; ``hz`` formats a frequency."""
+    if response == "lowpass":
+        return f"lowpass, −3 dB edge {hz(high_hz)}"
+    if response == "highpass":
+        return f"highpass, −3 dB edge {hz(low_hz)}"
+    return f"bandpass, −3 dB edges {hz(low_hz)} to {hz(high_hz)}"
+
+
 def passband_text(case: dict) -> str:
-    lo, hi = case.get("low_hz"), case.get("high_hz")
-    if case["response"] == "lowpass":
-        band = f"lowpass, −3 dB edge {format_quantity(hi, 'Hz')}"
-    elif case["response"] == "highpass":
-        band = f"highpass, −3 dB edge {format_quantity(lo, 'Hz')}"
-    else:
-        band = f"bandpass, −3 dB edges {format_quantity(lo, 'Hz')} to {format_quantity(hi, 'Hz')}"
+    band = band_words(case["response"], case.get("low_hz"), case.get("high_hz"))
     return f"{case['family']} order {case['order']} {band}"
 
 
