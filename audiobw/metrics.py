@@ -97,19 +97,18 @@ class Scorer:
         wm = a.weights_hz * in_band
         S = a.psd * v2
         aw = a_weighting_power(f)
-        # critical-band membership on the long grid, for the LSD band gains
+        # critical band of each bin on the long grid, for the LSD band gains
         edges = a.band_edges_hz
         band_of_bin = np.clip(np.searchsorted(edges, f, side="right") - 1, 0, len(edges) - 2)
-        member = np.zeros((f.size, len(edges) - 1))
-        member[np.arange(f.size), band_of_bin] = 1.0
+        bins_per_band = np.bincount(band_of_bin, minlength=len(edges) - 1)
         # bands are contiguous runs of bins: summed with np.add.reduceat (a
         # matrix product here would call multi-threaded BLAS once per case)
-        filled = np.flatnonzero(np.bincount(band_of_bin, minlength=len(edges) - 1))
+        filled = np.flatnonzero(bins_per_band)
         self._bands = (filled, np.searchsorted(band_of_bin, filled), len(edges) - 1)
         sw = S * a.weights_hz
         band_s = self._band_sum(sw)
         self._pre = dict(
-            wm=wm, S=S, aw=aw, member=member, sw=sw, band_s=band_s,
+            wm=wm, S=S, aw=aw, bins_per_band=bins_per_band, sw=sw, band_s=band_s,
             s_total=float(np.sum(S * wm)), s_total_a=float(np.sum(S * wm * aw)),
             frames_v2=a.band_frames * v2, floor=c.full_scale_power_v2 * 10 ** (LSD_FLOOR_DBFS / 10),
             lo=lo, hi=hi,
@@ -163,7 +162,7 @@ class Scorer:
         gain = np.divide(self._band_sum(p["sw"] * G), band_s, out=np.zeros_like(band_s), where=band_s > 0)
         empty = band_s <= 0
         if np.any(empty):
-            counts = p["member"].sum(axis=0)
+            counts = p["bins_per_band"]
             gain[empty] = (self._band_sum(G) / np.maximum(counts, 1))[empty]
         n_band = self._band_sum(N * a.weights_hz)
         # in place, in the same order of operations: (frames x bands) arrays
