@@ -1,0 +1,10 @@
+"""From a chosen passband to a board: sections, standard part values, their noise and yield.
+
+An engineering starting point: parts, layout and op-amp behaviour (bandwidth, slew,
+stability with capacitive loads) must be verified on the bench; defer to the
+applicable product standards and licensed practice.
+"""
+
+CAUTION = ("Engineering starting point: parts, layout and op-amp behaviour (bandwidth, slew, stability "
+           "with capacitive loads) must be verified on the bench; defer to the applicable product "
+           "standards and licensed practice.")
