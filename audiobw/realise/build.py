@@ -47,7 +47,9 @@ def realise(spec: FilterSpec, *, topology="sallen-key", r_series="E96", c_series
     stages, filt = build_stages(spec, topology=topology, r_series=r_series, c_series=c_series, r_level=r_level)
     z, p, k = filt.zpk()
     m_lo, m_hi = meter_hz
-    f, w = _grid(m_lo, m_hi)
+    edges_hz = [x for x in (spec.low_hz, spec.high_hz) if x]
+    f, w = _grid(min([m_lo] + [x / 4 for x in edges_hz]), max([m_hi] + [x * 4 for x in edges_hz]))
+    w = np.where((f >= m_lo) & (f <= m_hi), w, 0.0)  # integrate noise over the meter band only
     h_ideal = prototype_response(z, p, k, f)
     h_cascade_nominal = np.ones(f.size, complex)
     for st in stages:
@@ -147,6 +149,7 @@ def _drawn_noise(stages, drawn, f, w, en, i_n, temperature_k):
     d = np.diff(fc)
     wc[:-1] += d / 2
     wc[1:] += d / 2
+    wc = wc * (w[::6] > 0)
     n = next(iter(drawn[0].values())).size
     out = np.empty(n)
     base = [dict(st.parts) for st in stages]
