@@ -61,8 +61,13 @@ def pair_sections(z, p, response: str, family: str) -> list[Section]:
     n_zero = z.size
     out: list[Section] = []
     if response == "bandpass":
-        if reals:
-            raise ParameterError("realise: a bandpass prototype with real poles is not supported")
+        # a wide band turns a real prototype pole into two real poles: a first-order
+        # highpass (taking one zero at the origin) below and a first-order lowpass above
+        reals = sorted(-r for r in reals)
+        n_hp1 = len(reals) // 2
+        out = [Section("hp1", w / (2 * math.pi), None) for w in reals[:n_hp1]]
+        out += [Section("lp1", w / (2 * math.pi), None) for w in reals[n_hp1:]]
+        n_zero -= n_hp1
         pairs.sort(key=lambda wq: wq[0])
         n = len(pairs)
         n_hp = n_zero // 2
@@ -74,7 +79,7 @@ def pair_sections(z, p, response: str, family: str) -> list[Section]:
         if n_bp:  # the bandpass section takes the middle pole pair
             kinds = ["hp2"] * n_hp + ["lp2"] * n_lp
             kinds.insert(n // 2, "bp2")
-        out = [Section(k, w0 / (2 * math.pi), q) for k, (w0, q) in zip(kinds, pairs)]
+        out += [Section(k, w0 / (2 * math.pi), q) for k, (w0, q) in zip(kinds, pairs)]
     else:
         two = "hp2" if response == "highpass" else "lp2"
         one = "hp1" if response == "highpass" else "lp1"
