@@ -271,3 +271,30 @@ def test_command_refusals_are_one_line_exit_2(tmp_path, args, needle):
     assert code == 2
     assert needle in err.getvalue()
     assert "Traceback" not in err.getvalue()
+
+
+def test_realise_a_sweep_folder_second_pass(write_audio, rng, tmp_path):
+    from audiobw.cli import main
+
+    from .conftest import tones
+
+    fs = 48000
+    x = tones([220.0, 1500.0, 6000.0], [0.2, 0.1, 0.03], fs, 2.0) + rng.normal(0, 1e-3, fs * 2)
+    prog = write_audio("take.wav", x, fs)
+    out = tmp_path / "sw"
+    assert main(["sweep", str(prog), "--out", str(out), "--family", "butterworth", "--order", "4",
+                 "--cutoffs", "8k:20k:4", "--max-loss", "0.5", "--min-snr-a", "40"]) == 0
+    before = (out / "sweep.json").read_bytes()
+    res = _run(["realise", str(out), "--draws", "60"])
+    assert res.exit_code == 0, res.output
+    assert (out / "sweep.json").read_bytes() == before  # the sweep is not changed
+    doc = json.loads((out / "realise.json").read_text())
+    sweep = json.loads(before)
+    case = sweep["cases"][sweep["choice"]["case"] - 1]
+    sp = doc["second_pass"]
+    # the chain's noise recomputed from the same model matches the sweep's own figure
+    assert sp["chain_noise_recomputed_vrms"] == pytest.approx(case["noise_vrms"], rel=1e-3)
+    # adding the filter's noise can only lower the SNR, by exactly the added power
+    assert sp["snr_a_db_with_filter"] <= sp["snr_a_db"]
+    assert sp["snr_db"] - sp["snr_db_with_filter"] == pytest.approx(sp["added_noise_db"], abs=1e-6)
+    assert "Second pass:" in res.output and "verified on the bench" in res.output

@@ -54,12 +54,10 @@ def command(folder, case_id, band, family, order, ripple, topology, r_series, c_
     Example: audiobw realise out/ensemble-48k-stereo   or   audiobw realise --band 20:15k --order 4 --out r/
     """
     from .. import units
-    from ..audio import write_text_atomic
-    from ..errors import AudioFileError as DataError, ParameterError
+    from ..errors import ParameterError
     from ..filters import FilterSpec, validate_spec
     from ..realise.build import realise
-    from ..realise.plot import write_band_plot
-    from ..realise.secondpass import second_pass
+    from ..realise.folder import finish, realise_folder
     from ..realise.text import stage_lines, summary_lines
 
     r_level = units.parse_quantity(impedance, "resistance", name="--impedance")
@@ -79,34 +77,13 @@ def command(folder, case_id, band, family, order, ripple, topology, r_series, c_
     flat_margin = units.parse_quantity(flatness_margin, "db", name="--flatness-margin")
     if flat_margin < 0:
         raise ParameterError(f"--flatness-margin: {flatness_margin!r} is negative; accepted: 0 dB or more")
-    second = None
-    meter = (20.0, 20000.0)
+    options = dict(topology=topology, r_series=r_series.upper(), c_series=c_series.upper(), r_level=r_level,
+                   en_v_hz=en, in_a_hz=i_n, temperature_k=tk, tol_r=tol_r, tol_c=tol_c, draws=draws, seed=seed,
+                   edge_tol=edge_tol, flat_margin_db=flat_margin)
     if folder is not None:
         if band is not None:
             raise ParameterError("realise: give DIR or --band, not both")
-        path = folder / "sweep.json"
-        try:
-            doc = json.loads(path.read_text(encoding="utf-8"))
-            cases = {c["id"]: c for c in doc["cases"]}
-        except FileNotFoundError:
-            raise DataError(f"{path}: not found; accepted: a folder written by `audiobw sweep`") from None
-        except (OSError, ValueError, KeyError, TypeError) as exc:
-            raise DataError(f"{path}: not a readable sweep.json ({exc})") from None
-        if case_id is None:
-            if not doc.get("choice"):
-                raise DataError(f"{path}: no case met the targets; accepted: pick one with --case ID")
-            case_id = doc["choice"]["case"]
-        if case_id not in cases:
-            raise ParameterError(f"--case: {case_id} is not in {path}; accepted: ids 1 to {len(cases)}")
-        c = cases[case_id]
-        grid = doc.get("grid", {})
-        spec = FilterSpec(c["response"], c["family"], int(c["order"]), c.get("design_low_hz"),
-                          c.get("design_high_hz"), float(grid.get("ripple_db", 0.1)),
-                          float(grid.get("stopband_db", 60.0)), doc["chain"].get("stage", "analog"))
-        meter = (max(float(doc["meter"]["low_hz"]), 1.0), float(doc["meter"]["high_hz"]))
-        second = second_pass(doc, c, spec)
-        out = folder if out is None else out
-        source = f"{path}, case {case_id} ({spec.label()})"
+        result, target = realise_folder(folder, case_id=case_id, out=out, **options)
     else:
         if band is None:
             raise ParameterError("realise: give DIR (a sweep folder) or --band LOW:HIGH")
@@ -116,25 +93,13 @@ def command(folder, case_id, band, family, order, ripple, topology, r_series, c_
         response = "bandpass" if lo and hi else ("lowpass" if hi else "highpass")
         spec = FilterSpec(response, family, order, lo, hi, float(units.parse_quantity(ripple, "db", name="--ripple")))
         validate_spec(spec, fs_hz=4 * max(x for x in (lo, hi) if x), name="--band")
-        source = spec.label()
-    result = realise(spec, topology=topology, r_series=r_series.upper(), c_series=c_series.upper(),
-                     r_level=r_level, en_v_hz=en, in_a_hz=i_n, temperature_k=tk, tol_r=tol_r, tol_c=tol_c,
-                     draws=draws, seed=seed, meter_hz=meter, second=second,
-                     edge_tol=edge_tol, flat_margin_db=flat_margin)
-    result["source"] = source
-    plot = Path(out) / "realise-band.png"
-    write_band_plot(result, plot)
-    result.pop("_band")
-    if result.get("second_pass"):
-        for k in ("chain_noise_v2", "filter_noise_v2", "signal_v2"):
-            result["second_pass"].pop(k)
+        result = realise(spec, **options)
+        target = finish(result, Path(out), spec.label())
     text = json.dumps(result, indent=2, allow_nan=False)
-    target = Path(out) / "realise.json"
-    write_text_atomic(target, text + "\n")
     if as_json:
         click.echo(text)
         return
-    click.echo(f"Realising {source}")
+    click.echo(f"Realising {result['source']}")
     click.echo("\n".join(stage_lines(result)))
     click.echo("\n".join(summary_lines(result)))
-    click.echo(f"Wrote {target} and {plot}.")
+    click.echo(f"Wrote {target} and {target.parent / 'realise-band.png'}.")
