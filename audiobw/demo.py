@@ -101,6 +101,34 @@ def _data_link(out: Path, summary: list):
         summary.append((stream.name, "no passing case", None, None, None, ""))
 
 
+def _realise(doc, out_dir: Path):
+    """Realise the chosen case as unity-gain Sallen-Key stages (E96 resistors, E12 capacitors)."""
+    if not doc["choice"] or doc["chain"].get("stage") != "analog":
+        return
+    from .errors import ParameterError
+    from .realise import CAUTION
+    from .realise.folder import realise_folder
+
+    try:
+        r, path = realise_folder(out_dir)
+    except ParameterError as exc:
+        yield f"Realise: {exc}"
+        return
+    sp = r["second_pass"]
+    parts = "; ".join(f"stage {s['stage']} {s['kind']}: " + ", ".join(
+        f"{k} {_fmt_part(k, v)}" for k, v in s["parts"].items()) for s in r["stages"])
+    yield (f"Realised ({len(r['stages'])} unity-gain Sallen-Key stages): {parts}. Their own noise "
+           f"{r['noise']['noise_vrms'] * 1e6:.2f} µV rms adds {sp['added_noise_db']:.2f} dB to the chain's; "
+           f"yield {100 * r['yield']['fraction']:.1f} % of {r['yield']['draws']} builds at R ±1 %, C ±5 %. "
+           f"Wrote {path}. {CAUTION}")
+
+
+def _fmt_part(name, value):
+    from .units import format_quantity
+
+    return format_quantity(value, "Ω" if name[0] == "R" else "F", 3)
+
+
 def run(out: Path, *, clips_dir=None):
     """Sweep each bundled clip; yield the lines to print."""
     import time
@@ -135,6 +163,7 @@ def run(out: Path, *, clips_dir=None):
         yield f"== {name}  ({len(doc['cases'])} cases in {dt:.2f} s)"
         yield closing_paragraph(doc)
         yield f"Wrote {paths['json']} and {paths['csv']}."
+        yield from _realise(doc, out / Path(name).stem)
         yield from _render_and_report(doc, folder / name, settings, out / Path(name).stem)
         yield ""
         if doc["choice"]:

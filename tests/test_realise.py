@@ -298,3 +298,14 @@ def test_realise_a_sweep_folder_second_pass(write_audio, rng, tmp_path):
     assert sp["snr_a_db_with_filter"] <= sp["snr_a_db"]
     assert sp["snr_db"] - sp["snr_db_with_filter"] == pytest.approx(sp["added_noise_db"], abs=1e-6)
     assert "Second pass:" in res.output and "verified on the bench" in res.output
+    # the report picks up realise.json: the stage table and the yield in spec.md and report.html
+    from audiobw.report.spec import write_report
+
+    paths = write_report(out, plots=True, html=True)
+    md = paths["spec_md"].read_text()
+    assert "### Realised stages" in md and "Stage 1:" in md and "Yield:" in md and "verified on the bench" in md
+    page = paths["html"].read_text()
+    assert 'id="realise"' in page and "realise-band.png" in page
+    (out / "realise.json").write_text("{broken")
+    md = write_report(out, plots=False, html=False)["spec_md"].read_text()
+    assert "could not be read" in md

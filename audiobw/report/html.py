@@ -310,6 +310,9 @@ def page(run: dict, spec: dict, plots: list) -> str:
                  + "".join(f'<p class="meta">Note: {esc(n)}</p>' for n in spec["notes"])
                  + "</section>")
     parts.append('<section id="plots"><h2>Plots</h2>' + "\n".join(_figure(p) for p in plots) + "</section>")
+    from ..realise.report import html_section
+
+    parts.append(html_section(run["dir"]))
     parts.append(_listening(run["renders"], run["dir"]))
     parts.append(f'<section id="all-cases"><h2>All {esc(len(doc["cases"]))} cases</h2><p class="meta">Click a '
                  "column head to sort. Underlined values miss their target; the highlighted row is the "

@@ -692,7 +692,7 @@ def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str,
     inputs = [run["doc"]["input"]["path"]]
     paths = {
         "spec_json": write_text_atomic(d / "spec.json", spec_json_text(spec), inputs=inputs),
-        "spec_md": write_text_atomic(d / "spec.md", markdown(spec, run["renders"]), inputs=inputs),
+        "spec_md": write_text_atomic(d / "spec.md", markdown(spec, run["renders"]) + _realise_md(d), inputs=inputs),
     }
     if plots or html:
         from .plots import make_plots
@@ -706,3 +706,10 @@ def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str,
 
             paths["html"] = write_text_atomic(d / "report.html", page(run, spec, figures), inputs=inputs)
     return paths
+
+
+def _realise_md(folder) -> str:
+    """The realised stages from realise.json, when present (see audiobw.realise.report)."""
+    from ..realise.report import markdown_section
+
+    return markdown_section(folder)
