@@ -117,7 +117,7 @@ def _realise(doc, out_dir: Path):
     sp = r["second_pass"]
     parts = "; ".join(f"stage {s['stage']} {s['kind']}: " + ", ".join(
         f"{k} {_fmt_part(k, v)}" for k, v in s["parts"].items()) for s in r["stages"])
-    yield (f"Realised ({len(r['stages'])} unity-gain Sallen-Key stages): {parts}. Their own noise "
+    yield (f"Realised ({len(r['stages'])} stages; op-amp e_n 4 nV/√Hz, i_n 0.5 pA/√Hz): {parts}. Their own noise "
            f"{r['noise']['noise_vrms'] * 1e6:.2f} µV rms adds {sp['added_noise_db']:.2f} dB to the chain's; "
            f"yield {100 * r['yield']['fraction']:.1f} % of {r['yield']['draws']} builds at R ±1 %, C ±5 %. "
            f"Wrote {path}. {CAUTION}")

@@ -40,7 +40,7 @@ def build_stages(spec: FilterSpec, *, topology: str, r_series: str, c_series: st
 
 
 def realise(spec: FilterSpec, *, topology="sallen-key", r_series="E96", c_series="E12", r_level=10e3,
-            en_v_hz=5e-9, in_a_hz=0.5e-12, temperature_k=290.0, tol_r=0.01, tol_c=0.05, draws=1000,
+            en_v_hz=4e-9, in_a_hz=0.5e-12, temperature_k=290.0, tol_r=0.01, tol_c=0.05, draws=1000,
             seed=1, meter_hz=(20.0, 20000.0), edge_tol=0.05, flat_margin_db=0.5, second=None) -> dict:
     """Realise ``spec``; ``second`` is an optional callable(filter_noise_density(f) -> dict) giving
     the re-scored chain figures for a noise density on the chain's own grid (see :mod:`.secondpass`)."""
