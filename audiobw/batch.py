@@ -661,6 +661,19 @@ class BatchResult:
 
 
 def run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
+              cluster: str | None = None, follow_links: bool = False, progress=None, **kw) -> BatchResult:
+    """Run a batch into ``out_dir`` while holding its output lock (see :func:`_run_batch`)."""
+    from .audio import output_lock
+
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise OutputError(f"--out: {str(out)!r} exists and is not a folder")
+    with output_lock(out):
+        return _run_batch(args, settings, out_dir, coverage=coverage, workers=workers, cluster=cluster,
+                          follow_links=follow_links, progress=progress, **kw)
+
+
+def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
               cluster: str | None = None, follow_links: bool = False, progress=None) -> BatchResult:
     """Sweep every input file and write corpus.json and corpus.csv into ``out_dir``.
 

@@ -686,10 +686,38 @@ def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str,
         ``spec_json``, ``spec_md``, ``plot_<name>_png`` / ``plot_<name>_svg``
         and ``html``.
     """
+    from ..audio import output_lock
+
     run = read_run(out_dir)
+    with output_lock(run["dir"]):
+        return _write_report(run, plots, html)
+
+
+def _input_candidates(run) -> list:
+    """The sweep's input as the report may find it: the recorded path (relative to the folder the
+    sweep ran in, unknown here), read from here and from DIR; and any existing file in DIR we would
+    write whose SHA-256 is the input's (refused: outputs never land on an input)."""
+    from ..audio import refuse_input_target, sha256_file
+
+    d, inp = run["dir"], run["doc"]["input"]
+    given = Path(str(inp.get("path", "")))
+    found = [given, d / given, d / given.name]
+    sha = inp.get("sha256")
+    for target in [d / "spec.json", d / "spec.md", d / "report.html", *sorted(d.glob("plot-*"))]:
+        try:
+            if sha and target.is_file() and sha256_file(target) == sha:
+                found.append(target)
+        except OSError:
+            continue
+    for target in (d / "spec.json", d / "spec.md", d / "report.html"):
+        refuse_input_target(target, found)
+    return found
+
+
+def _write_report(run, plots, html):
     d = run["dir"]
     spec = build_spec(run)
-    inputs = [run["doc"]["input"]["path"]]
+    inputs = _input_candidates(run)
     paths = {
         "spec_json": write_text_atomic(d / "spec.json", spec_json_text(spec), inputs=inputs),
         "spec_md": write_text_atomic(d / "spec.md", markdown(spec, run["renders"]), inputs=inputs),

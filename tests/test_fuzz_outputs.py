@@ -1,0 +1,239 @@
+"""Outputs, locks, caches, hangs and determinism: the second round of hostile inputs and faults.
+
+Each test names the fault it injects; each held before the fix only by accident, if at all.
+See docs/robustness.md, section "Outputs, locks, caches, hangs and determinism — second round".
+"""
+
+from __future__ import annotations
+
+import errno
+import json
+import os
+import subprocess
+import sys
+import threading
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from audiobw import audio
+from audiobw.cli import main
+from audiobw.errors import OutputError
+
+from .conftest import tones, write
+
+PY = sys.executable
+SWEEP = ["--cutoffs", "4k:16k:4", "--family", "butterworth", "--order", "2", "--max-loss", "3"]
+
+
+@pytest.fixture
+def program(tmp_path):
+    return write(tmp_path / "take.wav", 0.1 * tones([440, 3000], [1, 0.3], 48000, 1.0), 48000)
+
+
+def _one_line_error(capsys, code, expected_code=1):
+    err = capsys.readouterr().err
+    lines = [ln for ln in err.splitlines() if ln.startswith("audiobw: error:")]
+    assert code == expected_code, err
+    assert len(lines) == 1 and "Traceback" not in err, err
+    return lines[0]
+
+
+# -- output never lands on an input ------------------------------------------------------
+
+def test_report_from_another_folder_never_overwrites_an_input_named_like_an_output(tmp_path, monkeypatch, capsys):
+    # the sweep's input is a WAV called spec.md inside DIR; the sweep ran inside DIR (relative path),
+    # the report runs from elsewhere: the recorded path does not resolve from there
+    d = tmp_path / "run"
+    d.mkdir()
+    wav = write(d / "take.wav", 0.1 * tones([440], [1], 48000, 1.0), 48000)
+    os.rename(wav, d / "spec.md")
+    before = (d / "spec.md").read_bytes()
+    monkeypatch.chdir(d)
+    assert main(["sweep", "spec.md", "--out", ".", *SWEEP]) == 0
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    capsys.readouterr()
+    code = main(["report", str(d), "--no-html"])
+    line = _one_line_error(capsys, code)
+    assert "input" in line and "spec.md" in line
+    assert (d / "spec.md").read_bytes() == before
+
+
+def test_output_hard_linked_to_the_input_is_refused(program, tmp_path, capsys):
+    out = tmp_path / "o"
+    out.mkdir()
+    os.link(program, out / "sweep.csv")  # same inode, other name
+    before = program.read_bytes()
+    code = main(["sweep", str(program), "--out", str(out), *SWEEP])
+    line = _one_line_error(capsys, code)
+    assert "input" in line
+    assert program.read_bytes() == before
+
+
+# -- output faults become one OutputError line -----------------------------------------
+
+BITS = ["bits", "--bit-rate", "2k", "--pattern", "prbs7", "--bits-count", "256", "--amplitude", "0.1V"]
+
+
+@pytest.mark.parametrize("name", ["x.mp3", "x.ogg", "x.aiff", "x"])
+def test_bits_refuses_an_output_format_it_does_not_write(tmp_path, capsys, name):
+    code = main([*BITS, "--out", str(tmp_path / name)])
+    line = _one_line_error(capsys, code, expected_code=2)
+    assert "accepted: .wav, .flac" in line
+    assert os.listdir(tmp_path) == []
+
+
+def test_bits_to_a_300_character_name(tmp_path, capsys):
+    code = main([*BITS, "--out", str(tmp_path / ("a" * 300 + ".wav"))])
+    assert "File name too long" in _one_line_error(capsys, code)
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root writes into read-only folders")
+def test_bits_into_a_read_only_folder(tmp_path, capsys):
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    ro.chmod(0o555)
+    try:
+        code = main([*BITS, "--out", str(ro / "x.wav")])
+        assert "cannot write" in _one_line_error(capsys, code)
+    finally:
+        ro.chmod(0o755)
+
+
+def test_libsndfile_system_error_on_a_full_disk_is_one_line(tmp_path, monkeypatch, capsys):
+    # libsndfile reports ENOSPC as soundfile.LibsndfileError("System error."), a RuntimeError
+    import soundfile as sf
+
+    def full(self, data):
+        raise sf.LibsndfileError(0, "System error.")
+
+    monkeypatch.setattr(sf.SoundFile, "write", full)
+    code = main([*BITS, "--out", str(tmp_path / "x.wav")])
+    assert "disk full" in _one_line_error(capsys, code)
+    assert os.listdir(tmp_path) == []
+
+
+def test_render_chain_output_on_a_full_disk_is_one_line(program, tmp_path, monkeypatch, capsys):
+    import soundfile as sf
+
+    real = sf.SoundFile.write
+
+    def full(self, data):
+        if "chain-output" in self.name or ".ab-" in self.name:
+            raise sf.LibsndfileError(0, "System error.")
+        return real(self, data)
+
+    monkeypatch.setattr(sf.SoundFile, "write", full)
+    code = main(["render", str(program), "--band", ":8k", "--out", str(tmp_path / "r")])
+    assert "cannot write" in _one_line_error(capsys, code)
+    assert not list((tmp_path / "r").glob(".*.part"))
+
+
+def test_stdout_on_a_full_device_is_one_line():
+    with open("/dev/full", "w") as full:
+        proc = subprocess.run([PY, "-m", "audiobw", "--help"], stdout=full, stderr=subprocess.PIPE, text=True,
+                              timeout=120)
+    assert proc.returncode == 1, proc.stderr
+    assert proc.stderr.strip().splitlines() == [
+        "audiobw: error: standard output: cannot write (No space left on device)"]
+
+
+def test_enospc_oserror_from_any_writer_is_one_line(tmp_path, monkeypatch):
+    def boom(*a, **k):
+        raise OSError(errno.ENOSPC, "No space left on device")
+
+    monkeypatch.setattr(os, "replace", boom)
+    with pytest.raises(OutputError, match=r"No space left on device\); free space"):
+        audio.write_text_atomic(tmp_path / "a.txt", "x")
+    assert os.listdir(tmp_path) == []
+
+
+# -- stale parts of a killed run ------------------------------------------------------------
+
+def test_stale_part_from_a_killed_run_is_removed_and_a_live_one_is_kept(tmp_path):
+    stale = tmp_path / ".chain-output.wav.abc123.part"
+    stale.write_bytes(b"\0" * 4096)
+    other = tmp_path / ".notours.part"
+    other.write_bytes(b"x")
+    # a live writer of the same name holds its part locked
+    with audio.atomic_path(tmp_path / "chain-output.wav") as live:
+        live.write_bytes(b"y")
+        assert audio.clean_stale_parts(tmp_path, "chain-output.wav") == 0
+        assert live.exists()
+    assert not stale.exists()
+    assert other.exists()
+    assert (tmp_path / "chain-output.wav").read_bytes() == b"y"
+
+
+def test_part_left_by_sigkill_is_cleaned_by_the_next_run(tmp_path):
+    code = ("import os, sys, time\nfrom audiobw import audio\n"
+            "with audio.atomic_path(sys.argv[1]) as t:\n t.write_bytes(b'x' * 100000)\n print('ready', flush=True)\n"
+            " time.sleep(60)\n")
+    proc = subprocess.Popen([PY, "-c", code, str(tmp_path / "chain-output.wav")], stdout=subprocess.PIPE, text=True)
+    assert proc.stdout.readline().strip() == "ready"
+    proc.kill()
+    proc.wait()
+    parts = list(tmp_path.glob(".chain-output.wav.*.part"))
+    assert len(parts) == 1
+    audio.write_text_atomic(tmp_path / "chain-output.wav", "new")
+    assert list(tmp_path.glob(".chain-output.wav.*.part")) == []
+
+
+# -- one run per output folder -----------------------------------------------------------
+
+def test_second_run_into_a_locked_folder_waits_then_refuses(tmp_path, monkeypatch, program, capsys):
+    out = tmp_path / "o"
+    code = ("import sys, time\nfrom audiobw import audio\n"
+            "with audio.output_lock(sys.argv[1]):\n print('held', flush=True)\n time.sleep(60)\n")
+    holder = subprocess.Popen([PY, "-c", code, str(out)], stdout=subprocess.PIPE, text=True)
+    try:
+        assert holder.stdout.readline().strip() == "held"
+        monkeypatch.setattr(audio, "LOCK_WAIT_S", 0.3)
+        code = main(["sweep", str(program), "--out", str(out), *SWEEP])
+        line = _one_line_error(capsys, code)
+        assert "another audiobw run is writing into this folder" in line
+        assert not (out / "sweep.json").exists()
+    finally:
+        holder.kill()
+        holder.wait()
+    # the kernel drops the lock with its holder: the next run goes ahead
+    assert main(["sweep", str(program), "--out", str(out), *SWEEP]) == 0
+
+
+def test_lock_waits_for_a_short_holder(tmp_path):
+    out = tmp_path / "o"
+    released = []
+
+    def hold():
+        with audio.output_lock(out):
+            time.sleep(0.3)
+            released.append(time.monotonic())
+
+    with audio.output_lock(out):
+        t = threading.Thread(target=hold)
+        # same process: re-entrant for the holder's own nested calls
+        with audio.output_lock(out):
+            pass
+    t.start()
+    t.join()
+    assert released
+
+
+# -- determinism ----------------------------------------------------------------------
+
+def test_rerun_of_bits_and_render_gives_byte_identical_wavs(program, tmp_path):
+    a, b = tmp_path / "a", tmp_path / "b"
+    for out in (a, b):
+        assert main(["render", str(program), "--band", ":8k", "--out", str(out)]) == 0
+        assert main([*BITS, "--out", str(out / "bits.wav")]) == 0
+        time.sleep(1.1)  # libsndfile's PEAK chunk time stamp counts seconds
+    wavs = sorted(p.relative_to(a) for p in a.rglob("*.wav"))
+    assert len(wavs) >= 3
+    for rel in wavs:
+        data = (a / rel).read_bytes()
+        assert b"PEAK" not in data[:256], rel
+        assert data == (b / rel).read_bytes(), rel
