@@ -158,6 +158,57 @@ def sha256_file(path, *, chunk: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
+def canonical_path(path) -> str:
+    """The path recorded in output files (sweep.json ``input.path``, corpus.json, batch folder names).
+
+    Rule: the file's absolute path (``.`` and ``..`` removed, symbolic links kept as named)
+    written relative to the current working folder when it lies inside it, else absolute.
+    So ``take.wav``, ``./take.wav`` and ``$PWD/take.wav`` give the same bytes in every output.
+    """
+    p = os.path.abspath(os.fspath(path))
+    cwd = os.path.abspath(os.getcwd())
+    try:
+        rel = os.path.relpath(p, cwd)
+    except ValueError:  # another drive (Windows)
+        return Path(p).as_posix()
+    if rel == os.curdir or rel.startswith(os.pardir + os.sep) or rel == os.pardir:
+        return Path(p).as_posix()
+    return Path(rel).as_posix()
+
+
+def is_regular_file(path) -> bool:
+    """True for a regular file (after symbolic links); False for FIFOs, devices, sockets, folders."""
+    import stat
+
+    try:
+        return stat.S_ISREG(os.stat(path).st_mode)
+    except OSError:
+        return False
+
+
+def fingerprint(path) -> tuple:
+    """(device, inode, size, mtime_ns, ctime_ns) of ``path``: any write or replacement changes it
+    (ctime cannot be set back by a writer)."""
+    st = os.stat(path)
+    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+
+
+def check_unchanged(path, before: tuple) -> None:
+    """Raise :class:`AudioFileError` if ``path`` is not the file :func:`fingerprint` saw.
+
+    Called after a pass (decoding and hashing) so that figures never come from a
+    mix of two files recorded under one SHA-256.
+    """
+    try:
+        after = fingerprint(path)
+    except OSError:
+        after = None
+    if after != before:
+        raise AudioFileError(f"{shown(path)}: changed while it was read (size, time stamps or inode differ "
+                             "before and after the pass); nothing was written or cached; accepted: a file no "
+                             "process writes during the run")
+
+
 # -- atomic outputs ---------------------------------------------------------
 
 def _identity(path):

@@ -206,6 +206,19 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
                     found.append(os.path.normpath(m))
         else:
             raise ParameterError(f"INPUT: {arg!r}: no such file or folder; accepted: files, folders, glob patterns")
+    from .audio import canonical_path, is_regular_file
+
+    regular = []
+    for display in found:
+        if not is_regular_file(display):
+            kind = ("broken symbolic link" if not os.path.exists(display) else "a folder" if os.path.isdir(display)
+                    else "not a regular file (FIFO, device or socket)")
+            skipped.append((canonical_path(display), f"{kind}; not opened; accepted: regular audio files"))
+        else:
+            regular.append(display)
+    # folder names, order and recorded paths come from one canonical form of each path,
+    # so naming a file by an absolute or a relative path gives the same outputs
+    found = [canonical_path(d) for d in regular]
     items, seen_real, used = [], set(), set()
     for display in sorted(set(found)):
         real = os.path.realpath(display)
@@ -220,8 +233,10 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
     if not items:
         from .audio import AUDIO_SUFFIXES
 
+        if skipped:
+            raise ParameterError(f"INPUT: {skipped[0][0]!r}: {skipped[0][1]}")
         raise ParameterError("INPUT: no audio file found; accepted suffixes: " + ", ".join(AUDIO_SUFFIXES))
-    return Inputs(items, sorted(skipped))
+    return Inputs(items, sorted({(canonical_path(p), r) for p, r in skipped}))
 
 
 # -- settings as plain data ---------------------------------------------------
@@ -360,7 +375,13 @@ def sweep_task(task: dict) -> dict:
 
     _limit_blas()
     path, out_dir, opt = task["path"], Path(task["out_dir"]), task["options"]
+    from .audio import check_unchanged, fingerprint, is_regular_file
+
+    if not is_regular_file(path):
+        return {"status": "failed", "cached": False,
+                "reason": f"{path}: not a regular file; not opened; accepted: regular audio files"}
     try:
+        before = fingerprint(path)
         sha = sha256_file(path)
     except OSError as exc:
         return {"status": "failed", "cached": False, "reason": f"{path}: cannot read ({exc.strerror or exc})"}
@@ -378,8 +399,12 @@ def sweep_task(task: dict) -> dict:
         return {"status": "failed", "cached": False, "reason": f"{path}: internal error ({type(exc).__name__}: {exc})"}
     finally:
         _local.sink = None
-    if doc["input"]["sha256"] != sha:
-        return {"status": "failed", "cached": False, "reason": f"{path}: the file changed while it was read"}
+    try:
+        check_unchanged(path, before)
+        if doc["input"]["sha256"] != sha:
+            raise AudiobwError(f"{path}: changed while it was read (SHA-256 differs); nothing cached")
+    except AudiobwError as exc:
+        return {"status": "failed", "cached": False, "reason": str(exc)}
     keys = ("id", "poles", *IDENTITY_KEYS, *MEDIAN_KEYS, "thdn_note", "passes", "fails", "margins_db")
     cases = [{k: c.get(k) for k in keys + tuple(k for k in DATA_KEYS if k in c)} for c in doc["cases"]]
     entry = {"format": CACHE_FORMAT, "sha256": sha, "options": opt,

@@ -237,3 +237,93 @@ def test_rerun_of_bits_and_render_gives_byte_identical_wavs(program, tmp_path):
         data = (a / rel).read_bytes()
         assert b"PEAK" not in data[:256], rel
         assert data == (b / rel).read_bytes(), rel
+
+
+# -- a file changed while it is read ------------------------------------------------------
+
+def _rewrite_after_first_block(monkeypatch, path, how):
+    real = audio.iter_blocks
+
+    def blocks(p, **kw):
+        for i, b in enumerate(real(p, **kw)):
+            yield b
+            if i == 0 and os.path.samefile(p, path):
+                other = 0.1 * tones([1234], [1], 48000, 2.0)
+                if how == "replace":
+                    tmp = write(Path(path).with_name("new.wav"), other, 48000)
+                    os.replace(tmp, path)
+                else:  # same size, in place: only the time stamps tell
+                    with open(path, "r+b") as fh:
+                        fh.seek(-4000, os.SEEK_END)
+                        fh.write((0.01 * np.random.default_rng(1).standard_normal(1000)).astype(np.float32).tobytes())
+
+    monkeypatch.setattr(audio, "iter_blocks", blocks)
+
+
+@pytest.mark.parametrize("how", ["replace", "in-place"])
+def test_sweep_refuses_a_file_changed_while_read(tmp_path, monkeypatch, capsys, how):
+    src = write(tmp_path / "long.wav", 0.1 * tones([440, 3000], [1, 0.3], 48000, 6.0), 48000)
+    _rewrite_after_first_block(monkeypatch, src, how)
+    out = tmp_path / "o"
+    code = main(["sweep", str(src), "--out", str(out), *SWEEP])
+    assert "changed while it was read" in _one_line_error(capsys, code)
+    assert not (out / "sweep.json").exists()
+
+
+@pytest.mark.parametrize("how", ["replace", "in-place"])
+def test_batch_refuses_and_caches_nothing_for_a_file_changed_while_read(tmp_path, monkeypatch, how):
+    from audiobw import batch
+    from audiobw.clikit import settings_from
+
+    src = write(tmp_path / "long.wav", 0.1 * tones([440, 3000], [1, 0.3], 48000, 6.0), 48000)
+    write(tmp_path / "calm.wav", 0.1 * tones([440], [1], 48000, 1.0), 48000)
+    _rewrite_after_first_block(monkeypatch, src, how)
+    s = settings_from({"cutoffs": "4k:16k:4", "family": "butterworth", "order": "2", "max_loss": "3"}, None)
+    r = batch.run_batch([str(tmp_path / "long.wav"), str(tmp_path / "calm.wav")], s, tmp_path / "b",
+                        coverage=0.5, workers=0)
+    failed = r.doc["failed"]
+    assert len(failed) == 1 and "changed while it was read" in failed[0]["reason"]
+    assert len(list((tmp_path / "b" / "cache").glob("*.json"))) == 1  # only calm.wav
+
+
+# -- batch opens only regular files ---------------------------------------------------
+
+def test_batch_refuses_a_fifo_and_dev_zero_without_opening_them(tmp_path, program, capsys):
+    fifo = tmp_path / "pipe.wav"
+    os.mkfifo(fifo)
+    out = tmp_path / "b"
+    # a reader that opened the FIFO would block for ever: run in a child with a deadline
+    proc = subprocess.run([PY, "-m", "audiobw", "batch", str(fifo), "/dev/zero", str(program), "--out", str(out),
+                           "--workers", "0", *SWEEP], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    corpus = json.loads((out / "corpus.json").read_text())
+    reasons = {s["path"]: s["reason"] for s in corpus["skipped"]}
+    assert "not a regular file" in reasons[str(fifo)] and "not a regular file" in reasons["/dev/zero"]
+    assert corpus["counts"]["swept"] == 1
+    proc = subprocess.run([PY, "-m", "audiobw", "batch", str(fifo), "--out", str(out), "--workers", "0", *SWEEP],
+                          capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 2 and "not a regular file" in proc.stderr and "Traceback" not in proc.stderr
+
+
+# -- the same input named two ways gives the same bytes ------------------------------------
+
+def test_absolute_and_relative_names_give_identical_outputs(tmp_path, monkeypatch, program):
+    monkeypatch.chdir(tmp_path)
+    for name, out in (("take.wav", "rel"), ("./take.wav", "dot"), (str(program), "abs")):
+        assert main(["sweep", name, "--out", out, "--report", *SWEEP]) == 0
+        assert main(["batch", name, "--out", f"b-{out}", "--workers", "0", *SWEEP]) == 0
+    for f in ("sweep.json", "sweep.csv", "spec.json", "spec.md", "report.html", "spectrum.npz"):
+        assert (tmp_path / "rel" / f).read_bytes() == (tmp_path / "abs" / f).read_bytes() \
+            == (tmp_path / "dot" / f).read_bytes(), f
+    assert json.loads((tmp_path / "rel" / "sweep.json").read_text())["input"]["path"] == "take.wav"
+    for f in ("corpus.json", "corpus.csv"):
+        assert (tmp_path / "b-rel" / f).read_bytes() == (tmp_path / "b-abs" / f).read_bytes(), f
+    assert sorted(os.listdir(tmp_path / "b-rel" / "files")) == sorted(os.listdir(tmp_path / "b-abs" / "files")) \
+        == ["take.wav"]
+
+
+def test_a_file_outside_the_working_folder_is_recorded_absolute(tmp_path, monkeypatch, program):
+    sub = tmp_path / "sub"
+    sub.mkdir()
+    monkeypatch.chdir(sub)
+    assert audio.canonical_path("../take.wav") == audio.canonical_path(program) == program.as_posix()
