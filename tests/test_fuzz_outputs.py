@@ -327,3 +327,160 @@ def test_a_file_outside_the_working_folder_is_recorded_absolute(tmp_path, monkey
     sub.mkdir()
     monkeypatch.chdir(sub)
     assert audio.canonical_path("../take.wav") == audio.canonical_path(program) == program.as_posix()
+
+
+# -- report embeds only its own files ---------------------------------------------------
+
+@pytest.fixture
+def swept(tmp_path, program):
+    out = tmp_path / "o"
+    assert main(["sweep", str(program), "--out", str(out), *SWEEP]) == 0
+    return out
+
+
+SECRET = b"\x89PNG\r\n\x1a\nPRIVATE-KEY-MATERIAL-0123456789"
+
+
+@pytest.mark.parametrize("plant", ["eye-link-out", "eye-not-png", "wav-link-out", "folder-link-out", "eye-fifo"])
+def test_report_never_embeds_or_links_a_planted_file(tmp_path, swept, plant):
+    import base64
+
+    private = tmp_path / "private"
+    private.mkdir()
+    (private / "secret.png").write_bytes(SECRET)
+    wav = write(private / "x.wav", 0.1 * tones([440], [1], 48000, 0.5), 48000)
+    r = swept / "render-chosen"
+    r.mkdir()
+    write(r / "ab-reference.wav", 0.1 * tones([440], [1], 48000, 0.5), 48000)
+    if plant == "eye-link-out":
+        (r / "eye.png").symlink_to(private / "secret.png")
+    elif plant == "eye-not-png":
+        (r / "eye.png").write_bytes(b"PRIVATE-KEY-MATERIAL-0123456789")
+    elif plant == "wav-link-out":
+        (r / "ab-processed.wav").symlink_to(wav)
+    elif plant == "folder-link-out":
+        (swept / "render-x").symlink_to(private)
+    else:
+        os.mkfifo(r / "eye.png")
+    assert main(["report", str(swept)]) == 0
+    page = (swept / "report.html").read_text()
+    for leaked in (b"PRIVATE-KEY-MATERIAL", SECRET):
+        assert base64.b64encode(leaked)[:24].decode() not in page
+    assert "render-x" not in page and "ab-processed.wav" not in page and 'class="eye"' not in page
+    assert "ab-reference.wav" in page  # the folder's own clip is still offered
+
+
+# -- hand-edited or corrupt sweep.json and spectrum.npz ---------------------------------
+
+def _leaves(x, parts=()):
+    yield parts
+    if isinstance(x, dict):
+        for k, v in x.items():
+            yield from _leaves(v, parts + (k,))
+    elif isinstance(x, list):
+        for i, v in enumerate(x[:1]):
+            yield from _leaves(v, parts + (i,))
+
+
+def _mutants(doc):
+    import copy
+
+    values = ["oops", None, -1, 1e308, [], {}, True, 9999, "DEL"]
+    for k, parts in enumerate(list(_leaves(doc))[1:]):
+        for j, v in enumerate(values):
+            if (k + j) % 3:  # a deterministic third of the pairs keeps the test short
+                continue
+            m = copy.deepcopy(doc)
+            node = m
+            for p in parts[:-1]:
+                node = node[p]
+            if v == "DEL":
+                del node[parts[-1]]
+            else:
+                node[parts[-1]] = v
+            yield parts, v, m
+
+
+def test_sweep_json_mutated_field_by_field_gives_a_report_or_one_line(swept, tmp_path, capsys):
+    import shutil
+
+    doc = json.loads((swept / "sweep.json").read_text())
+    tried = refused = 0
+    for parts, v, m in _mutants(doc):
+        d = tmp_path / "m"
+        shutil.rmtree(d, ignore_errors=True)
+        d.mkdir()
+        shutil.copy(swept / "spectrum.npz", d)
+        (d / "sweep.json").write_text(json.dumps(m))
+        code = main(["report", str(d), "--no-html"])  # any exception fails the test
+        err = capsys.readouterr().err
+        tried += 1
+        assert code in (0, 1), (parts, v, err)
+        if code == 1:
+            refused += 1
+            line = _one_line_error_text(err)
+            assert "sweep.json" in line and "accepted" in line, (parts, v, line)
+    assert tried > 150 and refused > 80
+
+
+def _one_line_error_text(err):
+    lines = [ln for ln in err.splitlines() if ln.startswith("audiobw: error:")]
+    assert len(lines) == 1 and "Traceback" not in err, err
+    return lines[0]
+
+
+@pytest.mark.parametrize("edit, pointer", [
+    (lambda d: d["choice"].update(case=9999), "/choice/case"),
+    (lambda d: d["choice"].update(next_narrower=424242), "/choice/next_narrower"),
+    (lambda d: d["cases"][0].update(snr_db="abc"), "/cases/0/snr_db"),
+    (lambda d: d["cases"][1].update(id=d["cases"][0]["id"]), "/cases/1/id"),
+    (lambda d: d["grid"].pop("ripple_db"), "/grid/ripple_db"),
+    (lambda d: d["input"].update(sample_rate_hz=0), "/input/sample_rate_hz"),
+])
+def test_a_bad_value_is_named_by_its_json_pointer(swept, capsys, edit, pointer):
+    doc = json.loads((swept / "sweep.json").read_text())
+    edit(doc)
+    (swept / "sweep.json").write_text(json.dumps(doc))
+    line = _one_line_error(capsys, main(["report", str(swept), "--no-html"]))
+    assert f"at {pointer}:" in line and "accepted" in line
+
+
+def test_nan_and_duplicate_keys_in_sweep_json_are_refused(swept, capsys):
+    text = (swept / "sweep.json").read_text()
+    (swept / "sweep.json").write_text(text.replace('"snr_db": ', '"snr_db": NaN, "x": ', 1))
+    assert "non-finite number NaN" in _one_line_error(capsys, main(["report", str(swept), "--no-html"]))
+    (swept / "sweep.json").write_text(text.replace('"tool": "audiobw"', '"tool": "audiobw", "tool": "audiobw"', 1))
+    assert "duplicate key 'tool'" in _one_line_error(capsys, main(["report", str(swept), "--no-html"]))
+
+
+def _npz(path, **arrays):
+    with open(path, "wb") as fh:
+        np.savez(fh, **arrays)
+
+
+@pytest.mark.parametrize("fault", ["truncated", "zero-bins", "pickle", "2-d", "nan", "falling", "other-rate",
+                                   "empty-file", "not-zip"])
+def test_corrupt_spectrum_npz_is_one_line(swept, capsys, fault):
+    npz = swept / "spectrum.npz"
+    with np.load(npz) as z:
+        arrays = {k: z[k] for k in z.files}
+    if fault == "truncated":
+        npz.write_bytes(npz.read_bytes()[: npz.stat().st_size // 2])
+    elif fault == "zero-bins":
+        _npz(npz, **{**arrays, "freqs_hz": np.zeros(0), "psd": np.zeros(0), "weights_hz": np.zeros(0)})
+    elif fault == "pickle":
+        _npz(npz, **{**arrays, "psd": np.array([{"x": 1}, None], dtype=object)})
+    elif fault == "2-d":
+        _npz(npz, **{**arrays, "psd": np.ones((2, 3))})
+    elif fault == "nan":
+        _npz(npz, **{**arrays, "psd": np.full_like(arrays["psd"], np.nan)})
+    elif fault == "falling":
+        _npz(npz, **{**arrays, "freqs_hz": arrays["freqs_hz"][::-1].copy()})
+    elif fault == "other-rate":
+        _npz(npz, **{**arrays, "sample_rate_hz": np.int64(44100)})
+    elif fault == "empty-file":
+        npz.write_bytes(b"")
+    else:
+        npz.write_bytes(b"PK\x03\x04 not a zip at all")
+    line = _one_line_error(capsys, main(["report", str(swept)]))
+    assert "spectrum.npz" in line and "accepted" in line
