@@ -484,3 +484,66 @@ def test_corrupt_spectrum_npz_is_one_line(swept, capsys, fault):
         npz.write_bytes(b"PK\x03\x04 not a zip at all")
     line = _one_line_error(capsys, main(["report", str(swept)]))
     assert "spectrum.npz" in line and "accepted" in line
+
+
+# -- batch cache entries are validated and bound to their inputs --------------------------
+
+def _cache_run(tmp_path, rng_seed=3):
+    from audiobw import batch
+    from audiobw.clikit import settings_from
+
+    lib = tmp_path / "lib"
+    lib.mkdir(exist_ok=True)
+    rng = np.random.default_rng(rng_seed)
+    for i in range(3):
+        write(lib / f"n{i}.wav", 0.05 * rng.standard_normal(16000) + 0.1 * tones([300], [1], 16000, 1.0), 16000)
+    s = settings_from({"cutoffs": "1k:7k:4", "family": "butterworth", "order": "2,4", "max_loss": "0.5"}, None)
+    return lambda out: batch.run_batch([str(lib)], s, out, coverage=0.6, workers=0)
+
+
+@pytest.mark.parametrize("edit", [
+    "cases-oops", "no-margins", "choice-9999", "all-pass", "nan", "not-object", "truncated", "other-version",
+    "dup-id", "fails-not-list", "deep",
+])
+def test_edited_or_malformed_cache_entry_is_recomputed_not_trusted(tmp_path, edit):
+    run = _cache_run(tmp_path)
+    out = tmp_path / "b"
+    first = run(out)
+    clean = (out / "corpus.json").read_bytes()
+    entries = sorted((out / "cache").glob("*.json"))
+    assert len(entries) == 3 and first.computed == 3
+    path = entries[0]
+    e = json.loads(path.read_text())
+    text = None
+    if edit == "cases-oops":
+        e["cases"] = "oops"
+    elif edit == "no-margins":
+        del e["cases"][0]["margins_db"]
+    elif edit == "choice-9999":
+        e["choice"] = {**(e["choice"] or {}), "case": 9999}
+    elif edit == "all-pass":  # a hand edit that would change the verdict
+        for c in e["cases"]:
+            c["passes"], c["fails"] = True, []
+    elif edit == "nan":
+        text = json.dumps(e).replace('"snr_db": ', '"snr_db": NaN, "x": ', 1)
+    elif edit == "not-object":
+        text = "[1, 2, 3]"
+    elif edit == "truncated":
+        text = path.read_text()[:100]
+    elif edit == "other-version":
+        e["tool_version"] = "0.0.0"
+    elif edit == "dup-id":
+        e["cases"][1]["id"] = e["cases"][0]["id"]
+    elif edit == "fails-not-list":
+        e["cases"][0]["fails"] = "min_snr_db"
+    else:
+        text = "[" * 5000 + "]" * 5000
+    if edit in ("dup-id", "fails-not-list"):  # even with a matching checksum the shape is refused
+        from audiobw.batch import entry_checksum
+
+        e["checksum"] = entry_checksum(e)
+    path.write_text(text if text is not None else json.dumps(e))
+    again = run(out)
+    assert again.computed == 1 and again.cached == 2  # the bad entry was recomputed
+    assert (out / "corpus.json").read_bytes() == clean
+    assert json.loads(path.read_text())["checksum"]
