@@ -41,6 +41,7 @@ import math
 import os
 import re
 import secrets
+import sys
 import threading
 import time
 import warnings
@@ -329,9 +330,43 @@ def _limit_blas() -> None:
     threadpool_limits(1)
 
 
-def worker_init() -> None:
-    """Process-pool initializer: one BLAS thread, Ctrl-C handled by the parent only."""
+def exit_with_parent(parent_pid: int | None) -> None:
+    """Make this worker die with its parent, so a killed batch leaves no process holding the caller's pipes.
+
+    Linux: ``prctl(PR_SET_PDEATHSIG, SIGKILL)`` through ctypes (prctl(2)); then the parent is checked
+    once, since it may have died before the call.  Elsewhere: a daemon thread watches the parent's pid.
+    """
     import signal
+
+    if parent_pid is None:
+        return
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            libc = ctypes.CDLL(None, use_errno=True)
+            PR_SET_PDEATHSIG = 1  # linux/prctl.h
+            if libc.prctl(PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0) == 0:
+                if os.getppid() != parent_pid:
+                    os._exit(1)
+                return
+        except (OSError, AttributeError):
+            pass
+
+    def watch():
+        while True:
+            if os.getppid() != parent_pid:
+                os._exit(1)
+            time.sleep(0.5)
+
+    threading.Thread(target=watch, name="audiobw-parent-watch", daemon=True).start()
+
+
+def worker_init(parent_pid: int | None = None) -> None:
+    """Process-pool initializer: one BLAS thread, Ctrl-C handled by the parent only, exit with the parent."""
+    import signal
+
+    exit_with_parent(parent_pid)
 
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ[var] = "1"
@@ -490,7 +525,8 @@ def _run_pool(tasks, workers: int, on_result):
     from concurrent.futures.process import BrokenProcessPool
 
     pool = ProcessPoolExecutor(max_workers=max(1, min(workers, len(tasks))),
-                               mp_context=multiprocessing.get_context("spawn"), initializer=worker_init)
+                               mp_context=multiprocessing.get_context("spawn"), initializer=worker_init,
+                               initargs=(os.getpid(),))
     futures: dict = {}
 
     def stop():
@@ -515,7 +551,34 @@ def _run_pool(tasks, workers: int, on_result):
     pool.shutdown(wait=True)
 
 
-def _run_cluster(tasks, address, on_result, opt_hash: str):
+def _connect(Client, address: str, timeout_s: float):
+    """``Client(address)`` with a hard deadline over the connection and the scheduler's handshake.
+
+    distributed's own ``timeout`` covers the connection; a listener that is not a scheduler
+    (an HTTP server, a port that accepts and never answers) can stall the handshake for ever.
+    The client is built in a helper thread; past the deadline the run stops with one line.
+    """
+    box: dict = {}
+
+    def work():
+        try:
+            box["client"] = Client(address, timeout=f"{timeout_s}s")
+        except BaseException as exc:  # re-raised in the caller
+            box["error"] = exc
+
+    t = threading.Thread(target=work, name="audiobw-cluster-connect", daemon=True)
+    t.start()
+    t.join(timeout_s + 2.0)
+    if t.is_alive():
+        raise BatchInterrupted(f"--cluster: {address!r}: no dask scheduler answered within {timeout_s:g} s "
+                               "(is it a scheduler's address?); accepted: e.g. tcp://host:8786; "
+                               "--cluster-timeout sets the wait")
+    if "error" in box:
+        raise box["error"]
+    return box["client"]
+
+
+def _run_cluster(tasks, address, on_result, opt_hash: str, *, timeout_s: float = 10.0):
     try:
         from distributed import Client, as_completed
         from distributed.client import FutureCancelledError  # noqa: F401
@@ -525,7 +588,7 @@ def _run_cluster(tasks, address, on_result, opt_hash: str):
     from distributed import KilledWorker
 
     try:
-        client = Client(address, timeout="10s")
+        client = _connect(Client, address, timeout_s)
     except ValueError as exc:
         raise ParameterError(f"--cluster: {address!r} is not a scheduler address ({exc}); "
                              "accepted: e.g. tcp://host:8786 or tls://host:8786") from None
@@ -758,7 +821,8 @@ def run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int |
 
 
 def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
-              cluster: str | None = None, follow_links: bool = False, progress=None) -> BatchResult:
+              cluster: str | None = None, follow_links: bool = False, progress=None,
+              cluster_timeout_s: float = 10.0) -> BatchResult:
     """Sweep every input file and write corpus.json and corpus.csv into ``out_dir``.
 
     Parameters
@@ -811,7 +875,7 @@ def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int 
             progress(dict(stats))
 
     if cluster:
-        _run_cluster(tasks, cluster, on_result, opt)
+        _run_cluster(tasks, cluster, on_result, opt, timeout_s=cluster_timeout_s)
     elif workers == 0:
         _run_serial(tasks, on_result)
     else:

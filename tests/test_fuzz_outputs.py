@@ -547,3 +547,107 @@ def test_edited_or_malformed_cache_entry_is_recomputed_not_trusted(tmp_path, edi
     assert again.computed == 1 and again.cached == 2  # the bad entry was recomputed
     assert (out / "corpus.json").read_bytes() == clean
     assert json.loads(path.read_text())["checksum"]
+
+
+# -- hangs: a cluster address that is not a scheduler; workers outliving a killed parent ----------
+
+def _silent_listener():
+    import socket
+
+    srv = socket.socket()
+    srv.bind(("127.0.0.1", 0))
+    srv.listen(8)
+    held = []
+
+    def accept():
+        while True:
+            try:
+                c, _ = srv.accept()
+            except OSError:
+                return
+            held.append(c)  # never answers
+
+    threading.Thread(target=accept, daemon=True).start()
+    return srv, f"tcp://127.0.0.1:{srv.getsockname()[1]}"
+
+
+def _http_server():
+    import http.server
+
+    httpd = http.server.HTTPServer(("127.0.0.1", 0), http.server.SimpleHTTPRequestHandler)
+    threading.Thread(target=httpd.serve_forever, daemon=True).start()
+    return httpd, f"tcp://127.0.0.1:{httpd.server_address[1]}"
+
+
+@pytest.mark.parametrize("server", ["silent", "http"])
+def test_batch_cluster_that_is_not_a_scheduler_times_out_with_one_line(tmp_path, program, server):
+    pytest.importorskip("distributed")
+    srv, address = _silent_listener() if server == "silent" else _http_server()
+    try:
+        proc = subprocess.run([PY, "-m", "audiobw", "batch", str(program), "--out", str(tmp_path / "b"),
+                               "--cluster", address, "--cluster-timeout", "1s", *SWEEP],
+                              capture_output=True, text=True, timeout=180)  # a hang fails here
+    finally:
+        if server == "silent":
+            srv.close()
+        else:
+            srv.shutdown()
+    assert proc.returncode == 1, proc.stderr
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("audiobw: error: --cluster:"), proc.stderr
+    assert not (tmp_path / "b" / "corpus.json").exists()
+
+
+@pytest.mark.parametrize("value", ["0", "-1s", "1e308", "abc"])
+def test_cluster_timeout_out_of_range_is_refused(tmp_path, program, value, capsys):
+    code = main(["batch", str(program), "--out", str(tmp_path / "b"), "--cluster", "tcp://127.0.0.1:1",
+                 "--cluster-timeout", value, *SWEEP])
+    assert "--cluster-timeout" in _one_line_error(capsys, code, expected_code=2)
+
+
+def _children(pid):
+    out = []
+    for d in Path("/proc").iterdir():
+        if d.name.isdigit():
+            try:
+                fields = (d / "stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            if int(fields[1]) == pid:
+                out.append(int(d.name))
+    return out
+
+
+def _alive(pid):
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except OSError:
+        return False
+    return state != "Z"
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="reads /proc")
+def test_batch_workers_exit_when_the_parent_is_killed(tmp_path):
+    import signal
+
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    rng = np.random.default_rng(5)
+    for i in range(8):
+        write(lib / f"n{i}.wav", 0.05 * rng.standard_normal(48000 * 4), 48000)
+    proc = subprocess.Popen([PY, "-m", "audiobw", "batch", str(lib), "--out", str(tmp_path / "b"), "--workers", "2",
+                             "--cutoffs", "1k:20k:40", "--family", "butterworth,elliptic", "--order", "2,4,8",
+                             "--max-loss", "0.5"], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    deadline = time.monotonic() + 120
+    kids = []
+    while time.monotonic() < deadline and len(kids) < 3:  # two workers and the resource tracker
+        kids = _children(proc.pid)
+        time.sleep(0.05)
+    assert len(kids) >= 2, kids
+    proc.send_signal(signal.SIGKILL)  # the parent only
+    # the caller waiting for EOF on the parent's pipes gets it: every holder has exited
+    proc.communicate(timeout=120)
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline and any(_alive(k) for k in kids):
+        time.sleep(0.1)
+    assert not any(_alive(k) for k in kids)
