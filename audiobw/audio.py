@@ -23,7 +23,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import AudioFileError, AudiobwWarning, OutputError
+from .errors import AudioFileError, AudiobwWarning, OutputError, ParameterError
 
 MAX_CHANNELS = 8
 MIN_RATE_HZ, MAX_RATE_HZ = 8000, 384000
@@ -158,29 +158,208 @@ def sha256_file(path, *, chunk: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
+def canonical_path(path) -> str:
+    """The path recorded in output files (sweep.json ``input.path``, corpus.json, batch folder names).
+
+    Rule: the file's absolute path (``.`` and ``..`` removed, symbolic links kept as named)
+    written relative to the current working folder when it lies inside it, else absolute.
+    So ``take.wav``, ``./take.wav`` and ``$PWD/take.wav`` give the same bytes in every output.
+    """
+    p = os.path.abspath(os.fspath(path))
+    cwd = os.path.abspath(os.getcwd())
+    try:
+        rel = os.path.relpath(p, cwd)
+    except ValueError:  # another drive (Windows)
+        return Path(p).as_posix()
+    if rel == os.curdir or rel.startswith(os.pardir + os.sep) or rel == os.pardir:
+        return Path(p).as_posix()
+    return Path(rel).as_posix()
+
+
+def is_regular_file(path) -> bool:
+    """True for a regular file (after symbolic links); False for FIFOs, devices, sockets, folders."""
+    import stat
+
+    try:
+        return stat.S_ISREG(os.stat(path).st_mode)
+    except OSError:
+        return False
+
+
+def fingerprint(path) -> tuple:
+    """(device, inode, size, mtime_ns, ctime_ns) of ``path``: any write or replacement changes it
+    (ctime cannot be set back by a writer)."""
+    st = os.stat(path)
+    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+
+
+def check_unchanged(path, before: tuple) -> None:
+    """Raise :class:`AudioFileError` if ``path`` is not the file :func:`fingerprint` saw.
+
+    Called after a pass (decoding and hashing) so that figures never come from a
+    mix of two files recorded under one SHA-256.
+    """
+    try:
+        after = fingerprint(path)
+    except OSError:
+        after = None
+    if after != before:
+        raise AudioFileError(f"{shown(path)}: changed while it was read (size, time stamps or inode differ "
+                             "before and after the pass); nothing was written or cached; accepted: a file no "
+                             "process writes during the run")
+
+
 # -- atomic outputs ---------------------------------------------------------
 
+def _identity(path):
+    """(resolved path, (st_dev, st_ino) or None) of ``path``; never raises."""
+    try:
+        real = os.path.realpath(path)
+    except (OSError, ValueError):
+        real = os.path.abspath(path)
+    try:
+        st = os.stat(real)
+        return real, (st.st_dev, st.st_ino)
+    except (OSError, ValueError):
+        return real, None
+
+
+def refuse_input_target(target, inputs=()) -> None:
+    """Raise :class:`OutputError` if ``target`` is any of ``inputs``.
+
+    Compared by resolved path and by device/inode (hard links, bind mounts), before
+    anything is written.  Every writer goes through :func:`atomic_path`, which calls this.
+    """
+    t_real, t_id = _identity(target)
+    for src in inputs:
+        if src is None:
+            continue
+        s_real, s_id = _identity(src)
+        if s_real == t_real or (t_id is not None and t_id == s_id):
+            raise OutputError(f"{shown(target)}: is an input ({shown(src)}); refusing to overwrite an input file; "
+                              "accepted: an output path that is not an input")
+
+
+def shown(path) -> str:
+    """A path for one line of text: control characters and undecodable bytes escaped."""
+    text = os.fsdecode(path) if isinstance(path, bytes) else str(path)
+    out = []
+    for ch in text:
+        if ch.isprintable() and not 0xDC80 <= ord(ch) <= 0xDCFF:
+            out.append(ch)
+        elif 0xDC80 <= ord(ch) <= 0xDCFF:
+            out.append(f"\\x{ord(ch) - 0xDC00:02x}")
+        else:
+            out.append(ch.encode("unicode_escape").decode("ascii"))
+    return "".join(out)
+
+
+PART_SUFFIX = ".part"
+
+
+def _part_prefix(name: str) -> str:
+    return f".{name}."
+
+
+def clean_stale_parts(folder, name: str) -> int:
+    """Remove ``.<name>.*.part`` files (our temporary outputs) left by a killed run.
+
+    A live writer holds an exclusive ``flock`` on its part; a part whose lock can be
+    taken belongs to no running process and is removed.  Returns how many were removed.
+    """
+    import fcntl
+
+    removed = 0
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return 0
+    prefix = _part_prefix(name)
+    for entry in entries:
+        if not (entry.name.startswith(prefix) and entry.name.endswith(PART_SUFFIX)):
+            continue
+        try:
+            if not entry.is_file(follow_symlinks=False):
+                continue
+            fd = os.open(entry.path, os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0))
+        except OSError:
+            continue
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            os.close(fd)
+            continue  # a live writer holds it
+        try:
+            os.unlink(entry.path)
+            removed += 1
+        except OSError:
+            pass
+        finally:
+            os.close(fd)
+    return removed
+
+
+def is_output_failure(exc: BaseException) -> bool:
+    """True for the errors a failed write raises: OSError and libsndfile's RuntimeError."""
+    if isinstance(exc, OSError):
+        return True
+    return isinstance(exc, RuntimeError) and type(exc).__module__.split(".")[0] == "soundfile"
+
+
+def output_error(target, exc: BaseException) -> OutputError:
+    """The one-line :class:`OutputError` for a failed write of ``target``."""
+    import errno
+
+    if isinstance(exc, OutputError):
+        return exc
+    hint = ""
+    if isinstance(exc, OSError):
+        why = exc.strerror or str(exc)
+        if exc.errno == errno.ENAMETOOLONG:
+            hint = "; accepted: names up to 255 bytes"
+        elif exc.errno == errno.ENOSPC:
+            hint = "; free space on the device or choose another --out"
+        elif exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
+            hint = "; accepted: a writable folder"
+    else:
+        why = _short(exc)
+        if "system error" in why.lower():
+            why = "write failed: disk full or device error"
+    return OutputError(f"{shown(target)}: cannot write ({why}){hint}")
+
+
 @contextlib.contextmanager
-def atomic_path(target, *, inputs=()):
+def atomic_path(target, *, inputs=(), input_sha256=None):
     """Yield a temporary path beside ``target``; rename it over ``target`` on success.
 
-    An interrupted or failed write leaves no partial file.  Refuses to write
-    over any of ``inputs``.
+    An interrupted or failed write leaves no partial file; a part left by a killed
+    run is removed by the next write of the same name.  Refuses to write over any of
+    ``inputs`` (resolved path or device/inode) or over an existing file whose SHA-256
+    is ``input_sha256``.  Every OSError and libsndfile error becomes one
+    :class:`OutputError`.
     """
+    import fcntl
+
     target = Path(target)
-    for src in inputs:
+    refuse_input_target(target, inputs)
+    if input_sha256 and target.is_file():
         try:
-            if Path(src).exists() and target.exists() and os.path.samefile(src, target):
-                raise OutputError(f"{target}: refusing to overwrite an input file")
-        except OSError as exc:
-            if isinstance(exc, OutputError):
-                raise
+            same = sha256_file(target) == input_sha256
+        except OSError:
+            same = False
+        if same:
+            raise OutputError(f"{shown(target)}: holds the input program (same SHA-256); refusing to overwrite "
+                              "an input file; accepted: an output path that is not an input")
+    fd = None
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
-        os.close(fd)
+        clean_stale_parts(target.parent, target.name)
+        fd, tmp = tempfile.mkstemp(prefix=_part_prefix(target.name), suffix=PART_SUFFIX, dir=target.parent)
+        fcntl.flock(fd, fcntl.LOCK_EX)  # marks the part as live for clean_stale_parts
     except OSError as exc:
-        raise OutputError(f"{target}: cannot write ({exc.strerror or exc})") from None
+        if fd is not None:
+            os.close(fd)
+        raise output_error(target, exc) from None
     ok = False
     try:
         yield Path(tmp)
@@ -190,14 +369,34 @@ def atomic_path(target, *, inputs=()):
         os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, target)
         ok = True
-    except OSError as exc:
-        if isinstance(exc, OutputError):
+    except (OSError, RuntimeError) as exc:
+        if not is_output_failure(exc):
             raise
-        raise OutputError(f"{target}: cannot write ({exc.strerror or exc})") from None
+        raise output_error(target, exc) from None
     finally:
         if not ok:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)
+        os.close(fd)
+
+
+def open_wav_writer(path, sample_rate_hz: int, channels: int, *, subtype: str = "FLOAT", format: str = "WAV"):
+    """A ``soundfile.SoundFile`` open for writing, without libsndfile's PEAK chunk.
+
+    libsndfile adds a PEAK chunk (with a time stamp) to float WAV files; it is
+    switched off with ``SFC_SET_ADD_PEAK_CHUNK`` before any frame is written, so
+    the same samples always give the same bytes.
+    """
+    import soundfile as sf
+
+    fh = sf.SoundFile(str(path), "w", samplerate=int(sample_rate_hz), channels=int(channels), subtype=subtype,
+                      format=format)
+    sf._snd.sf_command(fh._file, SFC_SET_ADD_PEAK_CHUNK, sf._ffi.NULL, 0)  # SF_FALSE
+    return fh
+
+
+#: sndfile.h: ``SFC_SET_ADD_PEAK_CHUNK = 0x1050``
+SFC_SET_ADD_PEAK_CHUNK = 0x1050
 
 
 def write_text_atomic(target, text: str, *, inputs=()) -> Path:
@@ -226,16 +425,88 @@ def write_audio_atomic(target, data: np.ndarray, sample_rate_hz: int, *, subtype
     fmt = None
     if target.suffix.lower() == ".wav" and data.nbytes > (4 << 30) - (1 << 20):
         fmt = "RF64"
+    fmt = fmt or _format_for(target)
+    if data.ndim == 1:
+        data = data[:, None]
     with atomic_path(target, inputs=inputs) as tmp:
-        sf.write(str(tmp), data, int(sample_rate_hz), subtype=subtype,
-                 format=fmt or _format_for(target))
+        with open_wav_writer(tmp, sample_rate_hz, data.shape[1], subtype=subtype, format=fmt) as fh:
+            fh.write(data)
     return target
 
 
+#: Output audio formats by file extension (what ``--out`` accepts for audio).
+OUTPUT_FORMATS = {".wav": "WAV", ".flac": "FLAC"}
+
+
 def _format_for(target: Path) -> str:
-    return {".wav": "WAV", ".flac": "FLAC", ".ogg": "OGG"}.get(target.suffix.lower(), "WAV")
+    fmt = OUTPUT_FORMATS.get(target.suffix.lower())
+    if fmt is None:
+        raise ParameterError(f"--out: {shown(target)!r}: format {target.suffix or '(no extension)'!r} is not "
+                             f"written; accepted: {', '.join(OUTPUT_FORMATS)}")
+    return fmt
 
 
 def warn(message: str) -> None:
     """Emit an :class:`AudiobwWarning` (shown as one line by the CLI)."""
     warnings.warn(message, AudiobwWarning, stacklevel=2)
+
+
+# -- one run per output folder ----------------------------------------------
+
+LOCK_NAME = ".audiobw-lock"
+LOCK_WAIT_S = 5.0
+_held_locks: dict = {}
+
+
+@contextlib.contextmanager
+def output_lock(folder, *, wait_s: float | None = None):
+    """Hold an exclusive lock on the output ``folder`` while a run writes into it.
+
+    ``fcntl.flock`` on ``folder/.audiobw-lock`` (a file of our own naming, left in
+    place, empty).  A second run waits up to ``wait_s`` seconds (default
+    :data:`LOCK_WAIT_S`), then refuses with :class:`OutputError`; the kernel
+    releases the lock when the holder exits, however it exits.  Re-entrant
+    within one process (sweep --report takes it once for both steps).
+    """
+    import fcntl
+    import time
+
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise OutputError(f"--out: {shown(folder)!r} exists and is not a folder")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        key = os.path.realpath(folder)
+    except OSError as exc:
+        raise output_error(folder, exc) from None
+    if key in _held_locks:
+        _held_locks[key][1] += 1
+        try:
+            yield folder
+        finally:
+            _held_locks[key][1] -= 1
+        return
+    try:
+        fd = os.open(folder / LOCK_NAME, os.O_RDWR | os.O_CREAT | getattr(os, "O_NOFOLLOW", 0), 0o666)
+    except OSError as exc:
+        raise output_error(folder / LOCK_NAME, exc) from None
+    deadline = time.monotonic() + (LOCK_WAIT_S if wait_s is None else wait_s)
+    try:
+        while True:
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                break
+            except BlockingIOError:
+                if time.monotonic() >= deadline:
+                    raise OutputError(
+                        f"{shown(folder)}: another audiobw run is writing into this folder (lock {LOCK_NAME} "
+                        "held); accepted: a folder no other run is using: wait for it to finish or choose "
+                        "another --out") from None
+                time.sleep(0.1)
+        _held_locks[key] = [fd, 1]
+        try:
+            yield folder
+        finally:
+            del _held_locks[key]
+    finally:
+        os.close(fd)  # closing the descriptor releases the flock

@@ -41,6 +41,7 @@ import math
 import os
 import re
 import secrets
+import sys
 import threading
 import time
 import warnings
@@ -49,7 +50,7 @@ from pathlib import Path
 
 from .errors import AudiobwError, AudioFileError, OutputError, ParameterError
 
-CACHE_FORMAT = "audiobw-batch-cache/1"
+CACHE_FORMAT = "audiobw-batch-cache/2"  # /2: bound to the tool version, with a checksum
 IDENTITY_KEYS = ("response", "family", "order", "design_low_hz", "design_high_hz")
 #: Per-case values kept in the cache and aggregated by median over the files.
 MEDIAN_KEYS = ("low_hz", "high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
@@ -206,6 +207,19 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
                     found.append(os.path.normpath(m))
         else:
             raise ParameterError(f"INPUT: {arg!r}: no such file or folder; accepted: files, folders, glob patterns")
+    from .audio import canonical_path, is_regular_file
+
+    regular = []
+    for display in found:
+        if not is_regular_file(display):
+            kind = ("broken symbolic link" if not os.path.exists(display) else "a folder" if os.path.isdir(display)
+                    else "not a regular file (FIFO, device or socket)")
+            skipped.append((canonical_path(display), f"{kind}; not opened; accepted: regular audio files"))
+        else:
+            regular.append(display)
+    # folder names, order and recorded paths come from one canonical form of each path,
+    # so naming a file by an absolute or a relative path gives the same outputs
+    found = [canonical_path(d) for d in regular]
     items, seen_real, used = [], set(), set()
     for display in sorted(set(found)):
         real = os.path.realpath(display)
@@ -220,8 +234,10 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
     if not items:
         from .audio import AUDIO_SUFFIXES
 
+        if skipped:
+            raise ParameterError(f"INPUT: {skipped[0][0]!r}: {skipped[0][1]}")
         raise ParameterError("INPUT: no audio file found; accepted suffixes: " + ", ".join(AUDIO_SUFFIXES))
-    return Inputs(items, sorted(skipped))
+    return Inputs(items, sorted({(canonical_path(p), r) for p, r in skipped}))
 
 
 # -- settings as plain data ---------------------------------------------------
@@ -314,9 +330,43 @@ def _limit_blas() -> None:
     threadpool_limits(1)
 
 
-def worker_init() -> None:
-    """Process-pool initializer: one BLAS thread, Ctrl-C handled by the parent only."""
+def exit_with_parent(parent_pid: int | None) -> None:
+    """Make this worker die with its parent, so a killed batch leaves no process holding the caller's pipes.
+
+    Linux: ``prctl(PR_SET_PDEATHSIG, SIGKILL)`` through ctypes (prctl(2)); then the parent is checked
+    once, since it may have died before the call.  Elsewhere: a daemon thread watches the parent's pid.
+    """
     import signal
+
+    if parent_pid is None:
+        return
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            libc = ctypes.CDLL(None, use_errno=True)
+            PR_SET_PDEATHSIG = 1  # linux/prctl.h
+            if libc.prctl(PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0) == 0:
+                if os.getppid() != parent_pid:
+                    os._exit(1)
+                return
+        except (OSError, AttributeError):
+            pass
+
+    def watch():
+        while True:
+            if os.getppid() != parent_pid:
+                os._exit(1)
+            time.sleep(0.5)
+
+    threading.Thread(target=watch, name="audiobw-parent-watch", daemon=True).start()
+
+
+def worker_init(parent_pid: int | None = None) -> None:
+    """Process-pool initializer: one BLAS thread, Ctrl-C handled by the parent only, exit with the parent."""
+    import signal
+
+    exit_with_parent(parent_pid)
 
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ[var] = "1"
@@ -329,14 +379,70 @@ def _cache_file(cache_dir, sha256: str, opt_hash: str) -> Path:
 
 def read_cache(cache_dir, sha256: str, opt_hash: str):
     """A cached per-file result, or None when absent or not ours."""
+    from . import __version__
+
     path = _cache_file(cache_dir, sha256, opt_hash)
+
+    def no_constant(name):
+        raise ValueError(name)
+
     try:
-        entry = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        entry = json.loads(path.read_text(encoding="utf-8"), parse_constant=no_constant)
+    except (OSError, ValueError, RecursionError):
+        return None
+    if not isinstance(entry, dict):
         return None
     if entry.get("format") != CACHE_FORMAT or entry.get("sha256") != sha256 or entry.get("options") != opt_hash:
         return None
-    return entry
+    if entry.get("tool_version") != __version__ or entry.get("checksum") != entry_checksum(entry):
+        return None  # written by another version, or edited by hand: recomputed
+    return entry if cache_entry_valid(entry) else None
+
+
+def entry_checksum(entry: dict) -> str:
+    """SHA-256 over a cache entry's content (canonical JSON, without the checksum itself).
+
+    It binds the entry to its inputs (file SHA-256, options hash, tool version, all inside
+    the content) and shows any edit; it is a consistency check, not a signature.
+    """
+    body = {k: v for k, v in entry.items() if k != "checksum"}
+    text = json.dumps(body, sort_keys=True, allow_nan=False, ensure_ascii=False)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _num_or_none(v) -> bool:
+    return v is None or (isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v))
+
+
+def cache_entry_valid(entry: dict) -> bool:
+    """The shape :func:`summarise` relies on: cases with unique integer ids, their identity,
+    finite figures, passes/fails/margins; a choice that names one of them."""
+    cases = entry.get("cases")
+    if not isinstance(cases, list) or not cases or not isinstance(entry.get("input"), dict):
+        return False
+    ids = []
+    for c in cases:
+        if not isinstance(c, dict):
+            return False
+        ident = c.get("id")
+        if isinstance(ident, bool) or not isinstance(ident, int) or ident in ids:
+            return False
+        ids.append(ident)
+        if any(k not in c for k in IDENTITY_KEYS) or not isinstance(c.get("order"), int):
+            return False
+        if not all(_num_or_none(c.get(k)) for k in MEDIAN_KEYS + tuple(k for k in DATA_KEYS if k in c)):
+            return False
+        if not isinstance(c.get("passes"), bool) or not isinstance(c.get("fails"), list):
+            return False
+        if not all(isinstance(f, str) for f in c["fails"]) or c["passes"] != (not c["fails"]):
+            return False
+        margins = c.get("margins_db")
+        if not isinstance(margins, dict) or not all(_num_or_none(v) for v in margins.values()):
+            return False
+    choice = entry.get("choice")
+    if choice is not None and (not isinstance(choice, dict) or choice.get("case") not in ids):
+        return False
+    return isinstance(entry.get("warnings", []), list)
 
 
 def _sweep_present(out_dir: Path, sha256: str) -> bool:
@@ -360,7 +466,13 @@ def sweep_task(task: dict) -> dict:
 
     _limit_blas()
     path, out_dir, opt = task["path"], Path(task["out_dir"]), task["options"]
+    from .audio import check_unchanged, fingerprint, is_regular_file
+
+    if not is_regular_file(path):
+        return {"status": "failed", "cached": False,
+                "reason": f"{path}: not a regular file; not opened; accepted: regular audio files"}
     try:
+        before = fingerprint(path)
         sha = sha256_file(path)
     except OSError as exc:
         return {"status": "failed", "cached": False, "reason": f"{path}: cannot read ({exc.strerror or exc})"}
@@ -378,13 +490,20 @@ def sweep_task(task: dict) -> dict:
         return {"status": "failed", "cached": False, "reason": f"{path}: internal error ({type(exc).__name__}: {exc})"}
     finally:
         _local.sink = None
-    if doc["input"]["sha256"] != sha:
-        return {"status": "failed", "cached": False, "reason": f"{path}: the file changed while it was read"}
+    try:
+        check_unchanged(path, before)
+        if doc["input"]["sha256"] != sha:
+            raise AudiobwError(f"{path}: changed while it was read (SHA-256 differs); nothing cached")
+    except AudiobwError as exc:
+        return {"status": "failed", "cached": False, "reason": str(exc)}
     keys = ("id", "poles", *IDENTITY_KEYS, *MEDIAN_KEYS, "thdn_note", "passes", "fails", "margins_db")
     cases = [{k: c.get(k) for k in keys + tuple(k for k in DATA_KEYS if k in c)} for c in doc["cases"]]
-    entry = {"format": CACHE_FORMAT, "sha256": sha, "options": opt,
+    from . import __version__
+
+    entry = {"format": CACHE_FORMAT, "sha256": sha, "options": opt, "tool_version": __version__,
              "input": {k: v for k, v in doc["input"].items() if k != "path"},
              "choice": doc["choice"], "cases": cases, "warnings": caught}
+    entry["checksum"] = entry_checksum(entry)
     text = json.dumps(entry, sort_keys=True, allow_nan=False, ensure_ascii=False)
     try:
         write_text_atomic(_cache_file(task["cache_dir"], sha, opt), text + "\n")
@@ -406,7 +525,8 @@ def _run_pool(tasks, workers: int, on_result):
     from concurrent.futures.process import BrokenProcessPool
 
     pool = ProcessPoolExecutor(max_workers=max(1, min(workers, len(tasks))),
-                               mp_context=multiprocessing.get_context("spawn"), initializer=worker_init)
+                               mp_context=multiprocessing.get_context("spawn"), initializer=worker_init,
+                               initargs=(os.getpid(),))
     futures: dict = {}
 
     def stop():
@@ -431,7 +551,34 @@ def _run_pool(tasks, workers: int, on_result):
     pool.shutdown(wait=True)
 
 
-def _run_cluster(tasks, address, on_result, opt_hash: str):
+def _connect(Client, address: str, timeout_s: float):
+    """``Client(address)`` with a hard deadline over the connection and the scheduler's handshake.
+
+    distributed's own ``timeout`` covers the connection; a listener that is not a scheduler
+    (an HTTP server, a port that accepts and never answers) can stall the handshake for ever.
+    The client is built in a helper thread; past the deadline the run stops with one line.
+    """
+    box: dict = {}
+
+    def work():
+        try:
+            box["client"] = Client(address, timeout=f"{timeout_s}s")
+        except BaseException as exc:  # re-raised in the caller
+            box["error"] = exc
+
+    t = threading.Thread(target=work, name="audiobw-cluster-connect", daemon=True)
+    t.start()
+    t.join(timeout_s + 2.0)
+    if t.is_alive():
+        raise BatchInterrupted(f"--cluster: {address!r}: no dask scheduler answered within {timeout_s:g} s "
+                               "(is it a scheduler's address?); accepted: e.g. tcp://host:8786; "
+                               "--cluster-timeout sets the wait")
+    if "error" in box:
+        raise box["error"]
+    return box["client"]
+
+
+def _run_cluster(tasks, address, on_result, opt_hash: str, *, timeout_s: float = 10.0):
     try:
         from distributed import Client, as_completed
         from distributed.client import FutureCancelledError  # noqa: F401
@@ -441,7 +588,7 @@ def _run_cluster(tasks, address, on_result, opt_hash: str):
     from distributed import KilledWorker
 
     try:
-        client = Client(address, timeout="10s")
+        client = _connect(Client, address, timeout_s)
     except ValueError as exc:
         raise ParameterError(f"--cluster: {address!r} is not a scheduler address ({exc}); "
                              "accepted: e.g. tcp://host:8786 or tls://host:8786") from None
@@ -661,7 +808,21 @@ class BatchResult:
 
 
 def run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
-              cluster: str | None = None, follow_links: bool = False, progress=None) -> BatchResult:
+              cluster: str | None = None, follow_links: bool = False, progress=None, **kw) -> BatchResult:
+    """Run a batch into ``out_dir`` while holding its output lock (see :func:`_run_batch`)."""
+    from .audio import output_lock
+
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise OutputError(f"--out: {str(out)!r} exists and is not a folder")
+    with output_lock(out):
+        return _run_batch(args, settings, out_dir, coverage=coverage, workers=workers, cluster=cluster,
+                          follow_links=follow_links, progress=progress, **kw)
+
+
+def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
+              cluster: str | None = None, follow_links: bool = False, progress=None,
+              cluster_timeout_s: float = 10.0) -> BatchResult:
     """Sweep every input file and write corpus.json and corpus.csv into ``out_dir``.
 
     Parameters
@@ -714,7 +875,7 @@ def run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int |
             progress(dict(stats))
 
     if cluster:
-        _run_cluster(tasks, cluster, on_result, opt)
+        _run_cluster(tasks, cluster, on_result, opt, timeout_s=cluster_timeout_s)
     elif workers == 0:
         _run_serial(tasks, on_result)
     else:

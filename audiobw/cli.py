@@ -53,12 +53,33 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
       --order 2,4 --cutoffs 2k:20k:40 --source-ohms 150 --gain 40 --en 1.2n
       --in 1.5p --bits 24 --full-scale 2Vrms --max-loss 0.2 --min-snr-a 90
     """
-    from .jobs import sweep_file
     from .report.sweepio import dumps
     from .report.text import case_table, closing_paragraph
 
     settings = settings_from(kwargs, chain_file)
     out_dir = out or _default_out(input)
+    from .audio import output_lock
+
+    with output_lock(out_dir):
+        doc, paths, extra = _sweep_into(input, settings, out_dir, do_render, do_report)
+    if as_json:
+        click.echo(dumps(doc), nl=False)
+        for line in extra:
+            click.echo(line, err=True)
+        return
+    click.echo(case_table(doc))
+    click.echo()
+    click.echo(closing_paragraph(doc))
+    click.echo(f"Wrote {paths['json']} and {paths['csv']}.")
+    for line in extra:
+        click.echo(line)
+    click.echo(ESTIMATE_CAUTION)
+
+
+def _sweep_into(input, settings, out_dir, do_render, do_report):
+    """sweep's work (sweep, then --render and --report), run while the output folder is locked."""
+    from .jobs import sweep_file
+
     progress = Progress(f"analysing {input.name}")
     try:
         doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress)
@@ -79,18 +100,7 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
 
         written = write_report(out_dir)
         extra.append(f"Wrote the spec sheet and report: {written.get('html', written['spec_md'])}.")
-    if as_json:
-        click.echo(dumps(doc), nl=False)
-        for line in extra:
-            click.echo(line, err=True)
-        return
-    click.echo(case_table(doc))
-    click.echo()
-    click.echo(closing_paragraph(doc))
-    click.echo(f"Wrote {paths['json']} and {paths['csv']}.")
-    for line in extra:
-        click.echo(line)
-    click.echo(ESTIMATE_CAUTION)
+    return doc, paths, extra
 
 
 @cli.command(context_settings=CONTEXT)
@@ -184,6 +194,7 @@ def main(argv=None) -> int:
     _terminate_as_interrupt()
     try:
         result = cli.main(args=args, prog_name="audiobw", standalone_mode=False)
+        sys.stdout.flush()
         return result if isinstance(result, int) else 0
     except click.exceptions.Abort:
         click.echo("audiobw: interrupted", err=True)
@@ -201,6 +212,36 @@ def main(argv=None) -> int:
         return 130
     except BrokenPipeError:
         return 0
+    except OSError as exc:
+        if debug or not _is_stdout_failure(exc):
+            raise
+        _silence_stdout()
+        click.echo(f"audiobw: error: standard output: cannot write ({exc.strerror or exc})", err=True)
+        return 1
+
+
+def _is_stdout_failure(exc: OSError) -> bool:
+    """True when ``exc`` was raised writing the terminal/standard output (e.g. ``> /dev/full``)."""
+    tb = exc.__traceback__
+    last = None
+    while tb is not None:
+        last = tb.tb_frame
+        tb = tb.tb_next
+    if last is None:
+        return False
+    code = last.f_code
+    return (code.co_name == "echo" and "click" in code.co_filename) or (
+        code.co_name == "main" and code.co_filename == __file__)
+
+
+def _silence_stdout() -> None:
+    """Point stdout at /dev/null so the interpreter's final flush cannot fail again."""
+    try:
+        fd = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(fd, sys.stdout.fileno())
+        os.close(fd)
+    except (OSError, ValueError):
+        pass
 
 
 def entry():  # pragma: no cover - console script

@@ -49,8 +49,11 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None):
     doc = result.to_json()
     paths = {}
     if out_dir is not None:
-        paths = write_outputs(doc, out_dir, inputs=[path])
-        paths["spectrum"] = write_spectrum(analysis, out_dir / "spectrum.npz", inputs=[path])
+        from .audio import output_lock
+
+        with output_lock(out_dir):
+            paths = write_outputs(doc, out_dir, inputs=[path])
+            paths["spectrum"] = write_spectrum(analysis, out_dir / "spectrum.npz", inputs=[path])
     return doc, paths
 
 

@@ -43,7 +43,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .audio import atomic_path, iter_blocks, open_info, write_audio_atomic, write_text_atomic
+from .audio import atomic_path, iter_blocks, open_info, open_wav_writer, write_audio_atomic, write_text_atomic
 from .chain import Chain
 from .errors import AudioFileError, OutputError, ParameterError
 from .filters import FilterSpec, design, validate_spec
@@ -277,6 +277,16 @@ class _ProgramLevel:
 
 def render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOptions | None = None, *,
                 progress=None) -> RenderResult:
+    """Render into ``out_dir`` while holding its output lock (see :func:`_render_file`)."""
+    from .audio import output_lock
+
+    out_dir = Path(out_dir)
+    with output_lock(out_dir):
+        return _render_file(input_path, spec, chain, out_dir, options, progress=progress)
+
+
+def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOptions | None = None, *,
+                 progress=None) -> RenderResult:
     """Simulate the chain on ``input_path`` and write the render folder.
 
     Parameters
@@ -341,11 +351,10 @@ def render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOpt
     out_path = out_dir / "chain-output.wav"
     written = 0
     out_peak, out_sumsq = 0.0, 0.0
-    import soundfile as sf
 
     fmt = "RF64" if frames * nch * 4 > (4 << 30) - (1 << 20) else "WAV"
     with atomic_path(out_path, inputs=[input_path]) as tmp:
-        with sf.SoundFile(str(tmp), "w", samplerate=fs, channels=nch, subtype="FLOAT", format=fmt) as fh:
+        with open_wav_writer(tmp, fs, nch, subtype="FLOAT", format=fmt) as fh:
             read = 0
 
             def _write(y):

@@ -164,6 +164,13 @@ def _hash_in_background(path):
     return result
 
 
+def _digest_unchanged(digest, path, before) -> str:
+    """The SHA-256, once the file is known to be the one decoded (unchanged through both passes)."""
+    hex_ = digest()
+    audio.check_unchanged(path, before)
+    return hex_
+
+
 def _prefetched(blocks, depth: int = 2):
     """Iterate ``blocks`` with the next ones decoded in a helper thread.
 
@@ -230,6 +237,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
         silence, NaN or infinite samples.
     """
     info = audio.open_info(path)
+    try:
+        before = audio.fingerprint(path)
+    except OSError as exc:
+        raise AudioFileError(f"{audio.shown(path)}: cannot read ({exc.strerror or exc})") from None
     digest = _hash_in_background(path)
     fs = info.sample_rate_hz
     nch = info.channels
@@ -334,7 +345,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
     psd_ch[:, 1:-1] *= 2.0  # one-sided
     df = fs / nper
     a = Analysis(
-        path=str(info.path), sha256=digest(), sample_rate_hz=fs, channels=nch,
+        path=str(info.path), sha256=_digest_unchanged(digest, path, before), sample_rate_hz=fs, channels=nch,
         frames=frames, nperseg=nper, freqs_hz=freqs, psd_channels=psd_ch, psd=psd_ch.mean(axis=0),
         weights_hz=trapezoid_weights(freqs.size, df), peak=peak, mean_square=sumsq / frames,
         dc=sums / frames, full_scale_samples=at_full_scale, band_edges_hz=edges,

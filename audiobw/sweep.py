@@ -120,7 +120,7 @@ class SweepResult:
             "tool": "audiobw",
             "version": __version__,
             "input": {
-                "path": a.path, "sha256": a.sha256, "sample_rate_hz": a.sample_rate_hz,
+                "path": _recorded_path(a.path), "sha256": a.sha256, "sample_rate_hz": a.sample_rate_hz,
                 "channels": a.channels, "duration_s": _round(a.duration_s),
                 "frames": a.frames, "peak_dbfs": _round(a.peak_dbfs), "rms_dbfs": _round(a.rms_dbfs),
                 "occupied_bw_hz": _round(hi_occ - lo_occ), "occupied_low_hz": _round(lo_occ),
@@ -284,3 +284,10 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
         notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
                      "by the converter's anti-alias filter (give --amp-bandwidth to model it)")
     return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data)
+
+
+def _recorded_path(path) -> str:
+    """``input.path`` in sweep.json: :func:`audiobw.audio.canonical_path` (independent of how it was named)."""
+    from .audio import canonical_path
+
+    return canonical_path(path)

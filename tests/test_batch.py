@@ -198,7 +198,7 @@ def test_interrupt_then_resume_recomputes_nothing_finished(corpus3, tmp_path, mo
     assert (out / "corpus.json").read_bytes() == (tmp_path / "clean" / "corpus.json").read_bytes()
 
 
-def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path):
+def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path, monkeypatch):
     lib = tmp_path / "lib"
     lib.mkdir()
     rng = np.random.default_rng(11)
@@ -227,6 +227,7 @@ def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path):
     assert len(list((out / "cache").glob("*.json"))) == 12
     s = settings_from({"cutoffs": "1k:7k:12", "family": "butterworth,chebyshev1,elliptic",
                        "order": "4,8", "max_loss": "0.5"}, None)
+    monkeypatch.chdir(tmp_path)  # recorded paths are relative to the working folder (audio.canonical_path)
     batch.run_batch([str(lib)], s, tmp_path / "clean", coverage=0.9, workers=0)
     assert (out / "corpus.json").read_bytes() == (tmp_path / "clean" / "corpus.json").read_bytes()
 

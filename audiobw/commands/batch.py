@@ -62,11 +62,13 @@ def _duration(seconds: float) -> str:
 @click.option("--cluster", default=None, metavar="ADDRESS",
               help="Run on an existing dask.distributed scheduler, e.g. tcp://scheduler:8786 "
                    "(needs audiobw[cluster]).")
+@click.option("--cluster-timeout", default="10s", show_default=True, metavar="SECONDS",
+              help="Give up on --cluster if connecting and the scheduler's handshake take longer, e.g. 10s.")
 @click.option("--follow-links", is_flag=True,
               help="Follow symbolic links to folders and links that lead out of a folder given.")
 @click.option("--json", "as_json", is_flag=True, help="Print corpus.json to stdout instead of the summary.")
 @sweep_options
-def command(inputs, out, coverage, workers, cluster, follow_links, as_json, chain_file, **kwargs):
+def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_links, as_json, chain_file, **kwargs):
     """Sweep every file of a library and choose the narrowest case that passes on
     at least the --coverage share of them.
 
@@ -87,10 +89,15 @@ def command(inputs, out, coverage, workers, cluster, follow_links, as_json, chai
     if cluster is not None and workers is not None:
         raise ParameterError("--workers: not used with --cluster (the cluster's own workers do the work)")
     settings = settings_from(kwargs, chain_file)
+    from .. import units
+
+    timeout_s = units.parse_quantity(cluster_timeout, "seconds", name="--cluster-timeout")
+    if not 0.1 <= timeout_s <= 3600:
+        raise ParameterError(f"--cluster-timeout: {cluster_timeout!r} is out of range; accepted: 0.1 s to 3600 s")
     progress = BatchProgress()
     try:
         result = run_batch(list(inputs), settings, out, coverage=share, workers=workers, cluster=cluster,
-                           follow_links=follow_links, progress=progress)
+                           follow_links=follow_links, progress=progress, cluster_timeout_s=timeout_s)
     except KeyboardInterrupt:
         progress.close()
         click.echo(f"audiobw: finished files are kept in {out / 'cache'}; run the same command again to resume",

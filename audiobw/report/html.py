@@ -145,9 +145,12 @@ def _clip_url(folder: str, name: str) -> str:
 
 def _eye_figure(base, r: dict) -> str:
     """The render's eye diagram (data programs), embedded like the plots."""
-    if not r.get("eye"):
+    from .spec import PNG_MAGIC, safe_member
+
+    target = Path(base) / r["folder"] / str(r.get("eye"))
+    if not r.get("eye") or not safe_member(base, target, PNG_MAGIC):  # checked again when read
         return ""
-    data = base64.b64encode((Path(base) / r["folder"] / r["eye"]).read_bytes()).decode("ascii")
+    data = base64.b64encode(target.read_bytes()).decode("ascii")
     return (f'<figure class="eye"><img src="data:image/png;base64,{data}" alt="eye diagram of the simulated '
             f'chain output"><figcaption>Eye diagram of the simulated chain output '
             f'({esc(r["folder"])}/{esc(r["eye"])}); the dash-dot lines mark the best sampling instant '

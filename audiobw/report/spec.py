@@ -37,7 +37,7 @@ import numpy as np
 from .. import __version__
 from ..audio import write_text_atomic
 from ..clikit import ESTIMATE_CAUTION, LISTENING_CAUTION
-from ..errors import AudioFileError, ParameterError
+from ..errors import AudiobwError, AudioFileError, ParameterError
 from ..metrics import TARGET_KEYS, TARGET_METRIC
 from .text import TARGET_LABEL
 
@@ -100,34 +100,59 @@ def read_run(out_dir) -> dict:
     path = d / "sweep.json"
     if not path.is_file():
         raise ParameterError(f"report: {str(d)!r} holds no sweep.json; accepted: a folder written by audiobw sweep")
+    from .validate import load_spectrum, loads, validate_sweep
+
     try:
         raw = path.read_bytes()
-        doc = json.loads(raw.decode("utf-8"))
-    except (OSError, UnicodeDecodeError, ValueError) as exc:
-        raise AudioFileError(f"{path}: cannot read as JSON ({exc})") from None
-    missing = [k for k in ("tool", "input", "chain", "grid", "meter", "targets", "cases", "choice")
-               if k not in (doc if isinstance(doc, dict) else {})]
-    if missing or doc.get("tool") != "audiobw" or not doc["cases"]:
-        why = f"missing keys {missing}" if missing else ("no cases" if doc.get("tool") == "audiobw"
-                                                         else f"tool is {doc.get('tool')!r}")
-        raise AudioFileError(f"{path}: not a sweep.json written by audiobw ({why})")
+    except OSError as exc:
+        raise AudioFileError(f"{path}: cannot read ({exc.strerror or exc})") from None
+    doc = loads(path, raw)
+    if not isinstance(doc, dict) or doc.get("tool") != "audiobw":
+        why = f"tool is {doc.get('tool')!r}" if isinstance(doc, dict) else "not a JSON object"
+        raise AudioFileError(f"{path}: not a sweep.json written by audiobw ({why}); "
+                             "accepted: a folder written by audiobw sweep")
+    validate_sweep(doc, path)
     spectrum = None
     npz = d / "spectrum.npz"
     if npz.is_file():
-        try:
-            with np.load(npz, allow_pickle=False) as z:
-                spectrum = {k: z[k] for k in z.files}
-        except (OSError, ValueError) as exc:
-            raise AudioFileError(f"{npz}: cannot read ({exc})") from None
-        need = {"freqs_hz", "psd", "weights_hz", "sample_rate_hz", "sha256"}
-        if not need <= set(spectrum):
-            raise AudioFileError(f"{npz}: missing arrays {sorted(need - set(spectrum))}")
+        spectrum = load_spectrum(npz, doc)
         if str(spectrum["sha256"]) != doc["input"]["sha256"]:
             raise AudioFileError(
                 f"{npz}: its program (sha256 {str(spectrum['sha256'])[:12]}…) is not the one in sweep.json "
                 f"({doc['input']['sha256'][:12]}…); accepted: the spectrum.npz written by the same sweep")
     return {"dir": d, "doc": doc, "sweep_sha256": hashlib.sha256(raw).hexdigest(), "spectrum": spectrum,
             "renders": find_renders(d)}
+
+
+PNG_MAGIC = (b"\x89PNG\r\n\x1a\n",)  # PNG signature (ISO/IEC 15948, clause 5.2)
+WAV_MAGIC = (b"RIFF", b"RF64", b"BW64")  # RIFF/WAVE and its 64-bit forms (EBU Tech 3306)
+
+
+def safe_member(root, path, magic) -> bool:
+    """True if ``path`` may be linked or embedded in the report of ``root``: not a symbolic link,
+    a regular file (or folder when ``magic`` is None) whose resolved path lies inside ``root``,
+    and whose first bytes are one of ``magic``.  A planted link to a private file is never read."""
+    import os
+    import stat
+
+    try:
+        st = os.lstat(path)
+        real_root = os.path.realpath(root)
+        real = os.path.realpath(path)
+    except (OSError, ValueError):
+        return False
+    if stat.S_ISLNK(st.st_mode) or os.path.commonpath([real_root, real]) != real_root:
+        return False
+    if magic is None:
+        return stat.S_ISDIR(st.st_mode)
+    if not stat.S_ISREG(st.st_mode):
+        return False
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(12)
+    except OSError:
+        return False
+    return any(head.startswith(m) for m in magic) and (magic is not WAV_MAGIC or head[8:12] == b"WAVE")
 
 
 def find_renders(out_dir) -> list[dict]:
@@ -138,15 +163,16 @@ def find_renders(out_dir) -> list[dict]:
     (names relative to the folder), sorted by folder name; empty if none.
     """
     found = []
-    for sub in sorted(Path(out_dir).glob("render-*")):
-        if not sub.is_dir():
+    root = Path(out_dir)
+    for sub in sorted(root.glob("render-*")):
+        if sub.is_symlink() or not sub.is_dir() or not safe_member(root, sub, None):
             continue
-        wavs = sorted(p.name for p in sub.iterdir() if p.is_file() and p.suffix.lower() == ".wav")
+        wavs = sorted(p.name for p in sub.iterdir() if p.suffix.lower() == ".wav" and safe_member(root, p, WAV_MAGIC))
         if not wavs:
             continue
         found.append({
             "folder": sub.name,
-            "eye": "eye.png" if (sub / "eye.png").is_file() else None,
+            "eye": "eye.png" if safe_member(root, sub / "eye.png", PNG_MAGIC) else None,
             "ab": [n for n in AB_CLIPS if n in wavs],
             "true_level": [n for n in wavs if n in TRUE_LEVEL_CLIPS],
             "other": [n for n in wavs if n not in AB_CLIPS and n not in TRUE_LEVEL_CLIPS],
@@ -686,10 +712,47 @@ def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str,
         ``spec_json``, ``spec_md``, ``plot_<name>_png`` / ``plot_<name>_svg``
         and ``html``.
     """
+    from ..audio import output_lock
+
     run = read_run(out_dir)
+    with output_lock(run["dir"]):
+        try:
+            return _write_report(run, plots, html)
+        except (KeyError, TypeError, ValueError, IndexError, ZeroDivisionError, OverflowError,
+                AttributeError) as exc:
+            if isinstance(exc, AudiobwError):
+                raise
+            # validate_sweep holds the known rules; a value combination they miss still ends in one line
+            raise AudioFileError(f"{run['dir'] / 'sweep.json'}: inconsistent content ({type(exc).__name__}: "
+                                 f"{str(exc)[:120]}); accepted: a sweep.json as written by audiobw sweep "
+                                 "(docs/sweep.schema.json)") from exc
+
+
+def _input_candidates(run) -> list:
+    """The sweep's input as the report may find it: the recorded path (relative to the folder the
+    sweep ran in, unknown here), read from here and from DIR; and any existing file in DIR we would
+    write whose SHA-256 is the input's (refused: outputs never land on an input)."""
+    from ..audio import refuse_input_target, sha256_file
+
+    d, inp = run["dir"], run["doc"]["input"]
+    given = Path(str(inp.get("path", "")))
+    found = [given, d / given, d / given.name]
+    sha = inp.get("sha256")
+    for target in [d / "spec.json", d / "spec.md", d / "report.html", *sorted(d.glob("plot-*"))]:
+        try:
+            if sha and target.is_file() and sha256_file(target) == sha:
+                found.append(target)
+        except OSError:
+            continue
+    for target in (d / "spec.json", d / "spec.md", d / "report.html"):
+        refuse_input_target(target, found)
+    return found
+
+
+def _write_report(run, plots, html):
     d = run["dir"]
     spec = build_spec(run)
-    inputs = [run["doc"]["input"]["path"]]
+    inputs = _input_candidates(run)
     paths = {
         "spec_json": write_text_atomic(d / "spec.json", spec_json_text(spec), inputs=inputs),
         "spec_md": write_text_atomic(d / "spec.md", markdown(spec, run["renders"]) + _realise_md(d), inputs=inputs),
