@@ -361,6 +361,7 @@ def sweep_task(task: dict) -> dict:
     _limit_blas()
     path, out_dir, opt = task["path"], Path(task["out_dir"]), task["options"]
     try:
+        before = os.stat(path)
         sha = sha256_file(path)
     except OSError as exc:
         return {"status": "failed", "cached": False, "reason": f"{path}: cannot read ({exc.strerror or exc})"}
@@ -371,14 +372,17 @@ def sweep_task(task: dict) -> dict:
     _local.sink = caught = []
     try:
         settings = settings_from_plain(task["settings"])
-        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir)
+        # the digest just taken is reused by the analysis (one hash per file);
+        # a change while the file is read shows in its size or modification time
+        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir, sha256=sha)
+        after = os.stat(path)
     except AudiobwError as exc:
         return {"status": "failed", "cached": False, "reason": str(exc)}
     except Exception as exc:  # a bug or exhausted memory: list the file and go on
         return {"status": "failed", "cached": False, "reason": f"{path}: internal error ({type(exc).__name__}: {exc})"}
     finally:
         _local.sink = None
-    if doc["input"]["sha256"] != sha:
+    if doc["input"]["sha256"] != sha or (before.st_size, before.st_mtime_ns) != (after.st_size, after.st_mtime_ns):
         return {"status": "failed", "cached": False, "reason": f"{path}: the file changed while it was read"}
     keys = ("id", "poles", *IDENTITY_KEYS, *MEDIAN_KEYS, "thdn_note", "passes", "fails", "margins_db")
     cases = [{k: c.get(k) for k in keys + tuple(k for k in DATA_KEYS if k in c)} for c in doc["cases"]]

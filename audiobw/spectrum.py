@@ -223,7 +223,7 @@ def _prefetched(blocks, depth: int = 2):
         thread.join(timeout=5.0)
 
 
-def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
+def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None) -> Analysis:
     """Run the single streaming pass over ``path``.
 
     Parameters
@@ -232,6 +232,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
         Audio file (anything libsndfile reads).
     progress : callable(frames_done, frames_expected) or None
         Called after each block.
+    sha256 : str or None
+        The file's SHA-256 (hex) when the caller has just computed it (batch
+        hashes each file once, for its cache); otherwise it is computed here
+        in a helper thread during the pass.
 
     Returns
     -------
@@ -244,7 +248,8 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
         silence, NaN or infinite samples.
     """
     info = audio.open_info(path)
-    digest = _hash_in_background(path)
+    # a caller that has just hashed the file (batch) passes the digest: no second hash
+    digest = (lambda: sha256) if sha256 else _hash_in_background(path)
     fs = info.sample_rate_hz
     nch = info.channels
     nper, nshort = frame_lengths(fs, info.frames if info.frames > 0 else None)
