@@ -13,10 +13,12 @@ $(BIN)/python:
 
 $(STAMP_BASE): pyproject.toml | $(BIN)/python
 	$(BIN)/python -m pip install --quiet -e .
+	$(BIN)/python -m compileall -q audiobw
 	touch $@
 
 $(STAMP_TEST): pyproject.toml | $(BIN)/python
 	$(BIN)/python -m pip install --quiet -e '.[test]'
+	$(BIN)/python -m compileall -q audiobw
 	touch $@ $(STAMP_BASE)
 
 demo: $(STAMP_BASE)

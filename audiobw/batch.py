@@ -483,7 +483,9 @@ def sweep_task(task: dict) -> dict:
     _local.sink = caught = []
     try:
         settings = settings_from_plain(task["settings"])
-        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir)
+        # the digest just taken is reused by the analysis (one hash per file);
+        # a change while the file is read shows in its fingerprint (check_unchanged)
+        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir, sha256=sha)
     except AudiobwError as exc:
         return {"status": "failed", "cached": False, "reason": str(exc)}
     except Exception as exc:  # a bug or exhausted memory: list the file and go on

@@ -34,7 +34,6 @@ from dataclasses import dataclass, field
 from functools import cached_property, lru_cache
 
 import numpy as np
-from scipy import linalg, optimize, signal
 
 from .errors import ParameterError
 
@@ -136,6 +135,7 @@ def validate_spec(spec: FilterSpec, *, fs_hz: float, name: str = "filter") -> No
 
 
 def _design(spec: FilterSpec, wn, *, analog: bool, fs: float | None, output: str):
+    from scipy import signal  # lazy: the tabled prototypes never need it
     btype = {"lowpass": "lowpass", "highpass": "highpass", "bandpass": "bandpass"}[spec.response]
     kw = dict(btype=btype, analog=analog, output=output)
     if not analog:
@@ -191,6 +191,7 @@ class Filter:
         discretised by the renderer at its own oversampled rate)."""
         if self.analog:
             raise ValueError("an analog prototype has no discrete-time SOS; discretise it first")
+        from scipy import signal
         return signal.zpk2sos(self.z, self.p, self.k)
 
     def power_response(self, freq_hz) -> np.ndarray:
@@ -229,6 +230,7 @@ class Filter:
     def _state_space(self):
         cache = self._proto if self._proto is not None else self._cache
         if "ss" not in cache:
+            from scipy import signal
             cache["ss"] = signal.zpk2ss(self.z, self.p, self.k)
         return cache["ss"]
 
@@ -256,6 +258,7 @@ class Filter:
             if a.size == 0:
                 shared["gram_term"] = 0.0
             else:
+                from scipy import linalg
                 gram = linalg.solve_continuous_lyapunov(a, -b @ b.T)
                 shared["gram_term"] = float(np.real(c @ gram @ c.T)[0, 0]
                                             + float(np.real(d[0, 0])) * np.real(c @ b)[0, 0])
@@ -330,6 +333,7 @@ class Filter:
             step *= 1.5
         if (g(b) < 0) != outward:
             return math.exp(b)  # a digital response that does not cross before fs/2
+        from scipy import optimize
         root = optimize.brentq(g, min(a, b), max(a, b), xtol=1e-12, rtol=1e-12)
         return math.exp(root)
 
@@ -428,7 +432,14 @@ def _dense_grid(top_hz: float) -> np.ndarray:
 _PROTOTYPES: dict = {}
 
 
-def design(spec: FilterSpec) -> Filter:
+def _tabled(spec: FilterSpec):
+    """The shipped normalised prototype for ``spec`` (audiobw._prototypes), or None."""
+    from ._prototypes import TABLE
+    ripple = float(spec.ripple_db) if spec.family == "chebyshev1" else None
+    return TABLE.get((spec.response, spec.family, int(spec.order), ripple))
+
+
+def design(spec: FilterSpec, *, use_table: bool = True) -> Filter:
     """Design one candidate (validate it first with :func:`validate_spec`).
 
     Examples
@@ -441,6 +452,16 @@ def design(spec: FilterSpec) -> Filter:
         # normalised to its own edge, a lowpass or highpass prototype is the
         # same at every cutoff: design it once and share its derived values
         key = (spec.response, spec.family, int(spec.order), float(spec.ripple_db), float(spec.stopband_db))
+        if not use_table:
+            key = key + ("untabled",)
+        row = _tabled(spec) if use_table else None
+        if key not in _PROTOTYPES and row is not None:
+            # shipped table: no scipy.signal import on the sweep path
+            z, p = np.array(row[0], complex), np.array(row[1], complex)
+            z.setflags(write=False)
+            p.setflags(write=False)
+            shared = {"gram_term": row[3], ("cross", row[4][0]): row[4][1]}
+            _PROTOTYPES[key] = (z, p, float(row[2]), shared)
         if key not in _PROTOTYPES:
             z, p, k = _design(spec, 1.0, analog=True, fs=None, output="zpk")
             z, p = np.asarray(z, complex), np.asarray(p, complex)

@@ -28,7 +28,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import fft as sfft
-from scipy import signal
 
 from . import audio
 from .errors import AudioFileError
@@ -41,6 +40,21 @@ FRAME_SECONDS = 0.043
 #: At most this many short-time frames are kept (evenly spaced in time).
 MAX_FRAMES = 1024
 
+
+
+def hann_periodic(m: int) -> np.ndarray:
+    """Periodic Hann window, bit for bit scipy.signal.get_window('hann', m).
+
+    Computed with numpy as scipy.signal.windows.general_cosine does, so the
+    analysis does not import scipy.signal (checked in tests/test_spectrum.py).
+    """
+    if m <= 1:
+        return np.ones(m)
+    fac = np.linspace(-np.pi, np.pi, m + 1)
+    w = np.zeros(m + 1)
+    for k, a in enumerate((0.5, 0.5)):
+        w += a * np.cos(k * fac)
+    return w[:-1]
 
 def _pow2_at_least(x: float) -> int:
     return 1 << max(0, math.ceil(math.log2(max(x, 1.0))))
@@ -216,7 +230,7 @@ def _prefetched(blocks, depth: int = 2):
         thread.join(timeout=5.0)
 
 
-def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
+def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None) -> Analysis:
     """Run the single streaming pass over ``path``.
 
     Parameters
@@ -225,6 +239,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
         Audio file (anything libsndfile reads).
     progress : callable(frames_done, frames_expected) or None
         Called after each block.
+    sha256 : str or None
+        The file's SHA-256 (hex) when the caller has just computed it (batch
+        hashes each file once, for its cache); otherwise it is computed here
+        in a helper thread during the pass.
 
     Returns
     -------
@@ -241,13 +259,14 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17) -> Analysis:
         before = audio.fingerprint(path)
     except OSError as exc:
         raise AudioFileError(f"{audio.shown(path)}: cannot read ({exc.strerror or exc})") from None
-    digest = _hash_in_background(path)
+    # a caller that has just hashed the file (batch) passes the digest: no second hash
+    digest = (lambda: sha256) if sha256 else _hash_in_background(path)
     fs = info.sample_rate_hz
     nch = info.channels
     nper, nshort = frame_lengths(fs, info.frames if info.frames > 0 else None)
     hop = nper // 2
-    win = signal.get_window("hann", nper)
-    win_s = signal.get_window("hann", nshort)
+    win = hann_periodic(nper)
+    win_s = hann_periodic(nshort)
     scale_psd = 1.0 / (fs * np.sum(win**2))
     scale_short = 2.0 / (nshort * np.sum(win_s**2))
     freqs = np.arange(nper // 2 + 1) * fs / nper

@@ -402,5 +402,15 @@ if __name__ == "__main__":
     if len(sys.argv) > 1 and sys.argv[1] == "--subject":
         _child(sys.argv[2:])
     else:
-        argparse.ArgumentParser(description=__doc__.splitlines()[0]).parse_args()
-        main()
+        ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+        ap.add_argument("--quick", action="store_true",
+                        help="whole-process table only, short files, one run each (development)")
+        ap.add_argument("--process-only", action="store_true",
+                        help="whole-process table only (benchmarks/whole.py), full size")
+        opts = ap.parse_args()
+        import whole
+
+        # first table: whole processes as a user runs them; second: in-process figures
+        whole.main(["--quick"] if opts.quick else [])
+        if not (opts.quick or opts.process_only):
+            main()

@@ -114,3 +114,26 @@ def test_disk_full_is_a_clear_error_and_leaves_no_file(tmp_path, monkeypatch):
     with pytest.raises(OutputError, match="x.txt: cannot write \\(No space left on device\\)"):
         write_text_atomic(tmp_path / "x.txt", "x" * 1000)
     assert os.listdir(tmp_path) == []
+
+
+def test_integer_pcm_skips_the_finite_scan_float_keeps_it(tmp_path, monkeypatch):
+    import numpy as np
+    import soundfile as sf
+
+    from audiobw import audio
+    from audiobw.errors import AudioFileError
+
+    x = 0.25 * np.sin(np.arange(4000) / 7.0)
+    pcm, flt = tmp_path / "i.flac", tmp_path / "f.wav"
+    sf.write(str(pcm), x, 48000, subtype="PCM_24")
+    y = x.copy()
+    y[1234] = np.nan
+    sf.write(str(flt), y, 48000, subtype="FLOAT")
+    calls = []
+    real = np.isfinite
+    monkeypatch.setattr(np, "isfinite", lambda a, *k, **kw: calls.append(1) or real(a, *k, **kw))
+    blocks = list(audio.iter_blocks(pcm))
+    assert calls == [] and sum(len(b) for b in blocks) == 4000
+    assert np.max(np.abs(np.concatenate(blocks)[:, 0] - x)) < 2.0 ** -22  # 24-bit quantisation
+    with pytest.raises(AudioFileError, match="frame 1234"):
+        list(audio.iter_blocks(flt))

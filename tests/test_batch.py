@@ -370,3 +370,40 @@ def test_data_programs_carry_their_metrics(tmp_path, capsys):
     chosen = doc["cases"][doc["choice"]["case"] - 1]
     assert chosen["target_pass_share"]["min_eye"] == 1.0
     jsonschema.validate(doc, json.loads((REPO / "docs" / "corpus.schema.json").read_text()))
+
+
+def test_batch_hashes_each_file_once(tmp_path, monkeypatch):
+    """The digest batch takes for its cache is reused by the analysis (no second SHA-256)."""
+    import hashlib
+
+    import numpy as np
+    import soundfile as sf
+
+    from audiobw import audio, batch, spectrum
+
+    wav = tmp_path / "one.wav"
+    rng = np.random.default_rng(3)
+    sf.write(str(wav), 0.1 * rng.standard_normal((48000, 2)), 48000, subtype="PCM_24")
+    calls = []
+    real = audio.sha256_file
+    monkeypatch.setattr(audio, "sha256_file", lambda p, **kw: calls.append(str(p)) or real(p, **kw))
+    a = spectrum.analyse(wav, sha256="0" * 64)
+    assert a.sha256 == "0" * 64 and calls == []
+    b = spectrum.analyse(wav)
+    assert b.sha256 == hashlib.sha256(wav.read_bytes()).hexdigest()  # reference: hashlib
+    assert calls == [str(wav)]
+    assert np.array_equal(a.psd, b.psd)
+
+
+def test_batch_run_hashes_each_file_once(corpus3, tmp_path, capsys, monkeypatch):
+    from audiobw import audio
+
+    lib, _ = corpus3
+    calls = []
+    real = audio.sha256_file
+    monkeypatch.setattr(audio, "sha256_file", lambda p, **kw: calls.append(os.path.basename(str(p))) or real(p, **kw))
+    code, out, err = run_cli(["batch", str(lib), "--out", str(tmp_path / "c"), "--workers", "0",
+                              "--cutoffs", "1000,3000", "--order", "2", "--max-loss", "0.5"], capsys)
+    assert code in (0, 3), err
+    files = sorted(p.name for p in Path(lib).iterdir() if p.suffix in (".wav", ".flac"))
+    assert sorted(calls) == files  # one SHA-256 per file, not two

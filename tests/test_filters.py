@@ -178,3 +178,80 @@ def test_edges_of_a_very_wide_digital_bessel_bandpass():
     lo, hi = f.edges_3db
     assert f.response_db(lo) == pytest.approx(-3.0103, abs=1e-6)
     assert f.response_db(hi) == pytest.approx(-3.0103, abs=1e-6)
+
+
+# --- the shipped prototype table (audiobw/_prototypes.py) -------------------------------
+
+def _scipy_prototype(response, family, order, ripple):
+    """Reference: scipy.signal.butter / bessel(norm='mag') / cheby1, analog, output='zpk', 1 rad/s."""
+    kw = dict(btype=response, analog=True, output="zpk")
+    if family == "butterworth":
+        return signal.butter(order, 1.0, **kw)
+    if family == "bessel":
+        return signal.bessel(order, 1.0, norm="mag", **kw)
+    return signal.cheby1(order, ripple, 1.0, **kw)
+
+
+def _sorted(x):
+    x = np.asarray(x, complex)
+    return x[np.lexsort((x.imag, x.real))]
+
+
+def test_prototype_table_matches_scipy_signal():
+    from audiobw._prototypes import TABLE
+    assert len(TABLE) == 2 * (2 + 3) * 8  # lp/hp x (butterworth, bessel, 3 chebyshev ripples) x orders
+    for (response, family, order, ripple), (z, p, k, gram, (upward, ratio)) in TABLE.items():
+        zr, pr, kr = _scipy_prototype(response, family, order, ripple)
+        assert len(z) == len(zr) and len(p) == len(pr)
+        np.testing.assert_allclose(_sorted(z), _sorted(zr), rtol=0, atol=1e-12)
+        np.testing.assert_allclose(_sorted(p), _sorted(pr), rtol=1e-12, atol=1e-14)
+        assert k == pytest.approx(float(np.real(kr)), rel=1e-12)
+        # Gramian term: ∫₀^∞ (|H|² − |H(∞)|²) dω / π at 1 rad/s, by quadrature of
+        # scipy.signal.freqs_zpk (scipy.integrate.quad); cross ratio: |H|² = 1/2 there
+        w_edge = ratio  # rad/s, since the prototype edge is 1 rad/s
+        _, h = signal.freqs_zpk(zr, pr, kr, worN=[w_edge])
+        assert abs(h[0]) ** 2 == pytest.approx(0.5, abs=1e-9)
+        assert upward == (response == "lowpass")
+        floor = float(np.real(kr)) ** 2 if len(zr) == len(pr) else 0.0
+
+        def integrand(w):
+            return abs(signal.freqs_zpk(zr, pr, kr, worN=[w])[1][0]) ** 2 - floor
+
+        val = integrate.quad(integrand, 0, 50)[0] + integrate.quad(integrand, 50, np.inf, limit=200)[0]
+        assert 2 * gram == pytest.approx(2 * val / math.pi, rel=1e-6, abs=1e-9)
+
+
+@pytest.mark.parametrize("family", ["butterworth", "bessel", "chebyshev1"])
+@pytest.mark.parametrize("response", ["lowpass", "highpass"])
+def test_tabled_design_equals_scipy_designed(family, response):
+    for order in (1, 3, 8):
+        kw = dict(low_hz=None, high_hz=3000.0) if response == "lowpass" else dict(low_hz=80.0, high_hz=None)
+        spec = FilterSpec(response, family, order, **kw)
+        a, b = design(spec), design(spec, use_table=False)
+        f = np.geomspace(10, 40000, 50)
+        np.testing.assert_allclose(a.power_response(f), b.power_response(f), rtol=1e-10, atol=1e-300)
+        for ea, eb in zip(a.edges_3db, b.edges_3db):
+            assert (ea is None and eb is None) or ea == pytest.approx(eb, rel=1e-10)
+        if response == "lowpass":
+            assert a.enbw_hz() == pytest.approx(b.enbw_hz(), rel=1e-10)
+
+
+def test_sweep_imports_no_heavy_scipy(tmp_path):
+    """A Butterworth/Bessel/Chebyshev sweep runs without scipy.signal/stats/optimize/interpolate."""
+    import subprocess
+    import sys
+    from pathlib import Path
+    clip = Path(__file__).resolve().parents[1] / "clips" / "ensemble-48k-stereo.flac"
+    code = (
+        "import sys\n"
+        "from audiobw.cli import main\n"
+        f"args = ['sweep', {str(clip)!r}, '--family', 'butterworth,bessel,chebyshev1', '--order', '2,4',\n"
+        f"        '--cutoffs', '2k:20k:8', '--max-loss', '0.5', '--out', {str(tmp_path / 'o')!r}]\n"
+        "try:\n    rc = main(args)\nexcept SystemExit as e:\n    rc = e.code\n"
+        "heavy = sorted(m for m in sys.modules if m.split('.')[:2] in\n"
+        "    [['scipy', n] for n in ('signal', 'stats', 'optimize', 'interpolate')])\n"
+        "print(rc, heavy[:5])\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                         env={**__import__("os").environ, "AUDIOBW_NO_CACHE": "1"})
+    assert out.stdout.strip().splitlines()[-1] == "0 []", out.stdout + out.stderr
+    assert (tmp_path / "o" / "sweep.json").exists()

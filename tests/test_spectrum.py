@@ -134,3 +134,10 @@ def test_frame_buffer_stays_bounded(write_audio, monkeypatch, rng):
     a = analyse(write_audio("long.wav", rng.standard_normal((fs * 20, 1)) * 0.1, fs))
     assert 8 <= a.band_frames.shape[0] <= 16
     assert a.frame_stride > 1
+
+
+@pytest.mark.parametrize("m", [1, 2, 3, 255, 256, 2048, 16384])
+def test_hann_window_is_scipy_bit_for_bit(m):
+    from audiobw.spectrum import hann_periodic
+    # reference: scipy.signal.get_window('hann', m) (periodic, fftbins=True)
+    assert np.array_equal(hann_periodic(m), signal.get_window("hann", m))
