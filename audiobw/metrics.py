@@ -22,6 +22,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import fft as sfft
 
 from .chain import Chain
 from .filters import Filter
@@ -82,9 +83,40 @@ class Meter:
 
 
 #: Oversampling of the coarse delay search (inverse FFT zero-padded this many
-#: times); Newton steps on the exact cross term then refine the peak.
-DELAY_OVERSAMPLE = 4
-DELAY_NEWTON_STEPS = 4
+#: times); a parabola and a Newton step on the exact cross term refine the peak.
+DELAY_OVERSAMPLE = 2
+
+
+def _delay_cross(c: np.ndarray, f: np.ndarray) -> tuple[float, float]:
+    """(τ, max_τ Re Σ c_k e^{j2π f_k τ}) for a uniform grid f from 0 Hz (see :func:`best_delay`)."""
+    if f.size < 2 or not np.any(c):
+        return 0.0, float(np.sum(c.real))
+    df = f[1] - f[0]
+    if f[0] != 0.0 or abs(f[-1] - df * (f.size - 1)) > 1e-9 * f[-1]:
+        raise ValueError("best_delay needs a uniform frequency grid starting at 0 Hz")
+    n_fft = DELAY_OVERSAMPLE * (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
+    # Re Σ c_k e^{j2π k df τ} at τ = n/(n_fft·df), n = 0 … n_fft − 1 (circular in 1/df):
+    # a real inverse FFT counts every bin but DC twice, so DC is doubled and the result halved
+    d = c.copy()
+    d[0] *= 2.0
+    g = sfft.irfft(d, n_fft) * (n_fft / 2.0)
+    n = int(np.argmax(g))
+    # parabola through the peak sample and its neighbours, then one Newton step on the exact sum
+    y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
+    den = y0 - 2.0 * y1 + y2
+    frac = 0.5 * (y0 - y2) / den if den < 0 else 0.0
+    step_s = 1.0 / (n_fft * df)
+    tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
+    om = 2.0 * np.pi * f
+    e = c * np.exp(1j * om * tau)
+    g0 = float(np.sum(e.real))
+    d1 = -float(np.sum(om * e.imag))          # d/dτ Re Σ c e^{jωτ}
+    d2 = -float(np.sum(om * om * e.real))     # d²/dτ²
+    if d2 < 0.0:
+        delta = -d1 / d2
+        if abs(delta) <= step_s:               # stay on the peak the coarse search found
+            return tau + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
+    return tau, g0
 
 
 def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
@@ -95,7 +127,7 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
     time-domain |y(t) − x(t − τ)|² for y = h ∗ x and a program of one-sided
     PSD S.  Expanding, ∫S(1 + |H|²) − 2·Re ∫ S·H·e^{j2πfτ}: the cross term
     as a function of τ is an inverse FFT of S·H (zero-padded, coarse), whose
-    peak is refined by Newton steps on the exact sum.
+    peak is refined by a parabola and a Newton step on the exact sum.
 
     Parameters
     ----------
@@ -104,7 +136,7 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
     H : complex array (bins,)
         The candidate's complex response on the same grid.
     freqs_hz : array (bins,)
-        A uniform grid (the analysis grid, 0 … fs/2).
+        A uniform grid from 0 Hz (the analysis grid, 0 … fs/2).
     weights_hz : array (bins,), optional
         Integration widths (meter band included); default the grid step.
 
@@ -120,39 +152,8 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
     f = np.asarray(freqs_hz, dtype=float)
     H = np.asarray(H, dtype=complex)
     w = np.full(f.shape, f[1] - f[0]) if weights_hz is None else np.asarray(weights_hz, dtype=float)
-    c = np.asarray(S, dtype=float) * w * H
-    tau = 0.0
-    if f.size > 1 and np.any(c):
-        df = f[1] - f[0]
-        if not np.allclose(np.diff(f), df, rtol=1e-9, atol=0.0):
-            raise ValueError("best_delay needs a uniform frequency grid")
-        n_fft = DELAY_OVERSAMPLE * (1 << int(math.ceil(math.log2(2 * f.size))))
-        # Σ c_k e^{j2π k df τ} at τ = n/(n_fft·df), n = 0 … n_fft − 1 (circular in 1/df)
-        g = np.fft.ifft(c, n_fft) * n_fft
-        if f[0] != 0.0:
-            g = g * np.exp(2j * np.pi * f[0] * np.arange(n_fft) / (n_fft * df))
-        n = int(np.argmax(g.real))
-        tau = (n if n < n_fft // 2 else n - n_fft) / (n_fft * df)
-        om = 2.0 * np.pi * f
-        coarse = tau
-
-        def cross(t):
-            return float(np.sum((c * np.exp(1j * om * t)).real))
-
-        for _ in range(DELAY_NEWTON_STEPS):
-            e = c * np.exp(1j * om * tau)
-            d1 = -float(np.sum(om * e.imag))          # d/dτ Re Σ c e^{jωτ}
-            d2 = -float(np.sum(om * om * e.real))     # d²/dτ²
-            if d2 >= 0.0:
-                break
-            step = -d1 / d2
-            tau += step
-            if abs(step) * df < 1e-12:
-                break
-        if cross(tau) < cross(coarse):  # a Newton step that left the peak
-            tau = coarse
-    err = np.abs(1.0 - H * np.exp(2j * np.pi * f * tau)) ** 2
-    return tau, err
+    tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f)
+    return tau, np.abs(1.0 - H * np.exp(2j * np.pi * f * tau)) ** 2
 
 
 def _db(ratio: float) -> float | None:
@@ -223,8 +224,9 @@ class Scorer:
         s_out = float(np.sum(S * G * wm))
         s_out_a = float(np.sum(S * G * wm * p["aw"]))
         # error against the input at the best single delay, phase included
-        _, e_spec = best_delay(S, filt.response(f), f, wm)
-        err = float(np.sum(S * e_spec * wm))
+        # (∫S|1 − H·e^{j2πfτ}|² = ∫S(1 + |H|²) − 2·max_τ Re ∫S·H·e^{j2πfτ}; see best_delay)
+        _, cross = _delay_cross(S * wm * filt.response(f), f)
+        err = max(p["s_total"] + s_out - 2.0 * cross, 0.0)
         nyq = a.nyquist_hz
         lo3, hi3 = filt.edges_3db
         row = {
