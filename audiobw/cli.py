@@ -6,6 +6,7 @@ Exit status: 0 done; 1 unusable data or a failed write; 2 a usage mistake
 
 from __future__ import annotations
 
+import math
 import os
 import sys
 import warnings
@@ -130,12 +131,24 @@ def noise(band, family, order, ripple, stopband, rate, as_json, chain_file, **kw
     settings = settings_from(kwargs, chain_file)
     b, header = noise_budget(settings, band=band, rate=rate)
     if as_json:
-        click.echo(json.dumps(b, indent=2, allow_nan=False, default=str))
+        # a zero contributor has no level in dB: JSON carries null for it
+        click.echo(json.dumps(_finite_or_null(b), indent=2, allow_nan=False, default=str))
         return
     from .report.text import budget_text
 
     click.echo(budget_text(b, header=header))
     click.echo(ESTIMATE_CAUTION)
+
+
+def _finite_or_null(x):
+    """``x`` with every infinite or NaN float replaced by None (JSON null)."""
+    if isinstance(x, dict):
+        return {k: _finite_or_null(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_finite_or_null(v) for v in x]
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    return x
 
 
 @cli.command(context_settings=CONTEXT)

@@ -201,6 +201,16 @@ class Filter:
             factors = self._real_factors()
             if factors is not None and f.size > 1:
                 return _analog_power(f * (2.0 * np.pi / self.ref_rad_s), self.k, *factors)
+        h = self.response(f)
+        return (h.real**2 + h.imag**2)
+
+    def response(self, freq_hz) -> np.ndarray:
+        """Complex response H(f) at the given frequencies in Hz (phase included).
+
+        Analog: H(j2πf) of the prototype; digital: H(e^{j2πf/fs}).
+        """
+        f = np.asarray(freq_hz, dtype=float)
+        if self.analog:
             # evaluated on the normalised prototype: s/ω_ref keeps the
             # products of up to 16 factors well inside float range
             s = 1j * (2.0 * np.pi * f / self.ref_rad_s)
@@ -212,8 +222,7 @@ class Filter:
         den = np.ones_like(s)
         for pole in self.p:
             den = den * (s - pole)
-        h = self.k * num / den
-        return (h.real**2 + h.imag**2)
+        return self.k * num / den
 
     def _real_factors(self):
         """Zeros and poles as real factors in W = ω² (cached; shared by a prototype), or None."""

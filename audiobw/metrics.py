@@ -22,6 +22,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import fft as sfft
 
 from .chain import Chain
 from .filters import Filter
@@ -29,8 +30,16 @@ from .noise import noise_total
 from .spectrum import Analysis
 from .weighting import a_weighting_power
 
-#: Per-band floor for the log-spectral distance, dB re full-scale sine power.
-LSD_FLOOR_DBFS = -120.0
+#: Floor of the log-spectral distance, dB relative to each frame's level (its
+#: total power over all bands).  A band more than 60 dB below the frame that
+#: holds it is taken as empty in input and output alike: within one 43 ms
+#: frame the ear does not resolve a component that far under the frame's own
+#: content (simultaneous masking; common practice, a stated choice rather than
+#: a standard's figure), and without a floor a band the program hardly uses
+#: would weigh as much as one it fills.  The figure then no longer moves with
+#: an arbitrary absolute floor (it read 4.4 / 15.8 / 25.9 dB for −100 / −120 /
+#: −140 dBFS on one program).
+LSD_FRAME_FLOOR_DB = -60.0
 
 TARGET_KEYS = ("min_snr_db", "min_snr_a_db", "max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db",
                "max_ber", "min_eye")
@@ -73,6 +82,80 @@ class Meter:
         return 0.0, nyquist_hz
 
 
+#: Oversampling of the coarse delay search (inverse FFT zero-padded this many
+#: times); a parabola and a Newton step on the exact cross term refine the peak.
+DELAY_OVERSAMPLE = 2
+
+
+def _delay_cross(c: np.ndarray, f: np.ndarray) -> tuple[float, float]:
+    """(τ, max_τ Re Σ c_k e^{j2π f_k τ}) for a uniform grid f from 0 Hz (see :func:`best_delay`)."""
+    if f.size < 2 or not np.any(c):
+        return 0.0, float(np.sum(c.real))
+    df = f[1] - f[0]
+    if f[0] != 0.0 or abs(f[-1] - df * (f.size - 1)) > 1e-9 * f[-1]:
+        raise ValueError("best_delay needs a uniform frequency grid starting at 0 Hz")
+    n_fft = DELAY_OVERSAMPLE * (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
+    # Re Σ c_k e^{j2π k df τ} at τ = n/(n_fft·df), n = 0 … n_fft − 1 (circular in 1/df):
+    # a real inverse FFT counts every bin but DC twice, so DC is doubled and the result halved
+    d = c.copy()
+    d[0] *= 2.0
+    g = sfft.irfft(d, n_fft) * (n_fft / 2.0)
+    n = int(np.argmax(g))
+    # parabola through the peak sample and its neighbours, then one Newton step on the exact sum
+    y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
+    den = y0 - 2.0 * y1 + y2
+    frac = 0.5 * (y0 - y2) / den if den < 0 else 0.0
+    step_s = 1.0 / (n_fft * df)
+    tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
+    om = 2.0 * np.pi * f
+    e = c * np.exp(1j * om * tau)
+    g0 = float(np.sum(e.real))
+    d1 = -float(np.sum(om * e.imag))          # d/dτ Re Σ c e^{jωτ}
+    d2 = -float(np.sum(om * om * e.real))     # d²/dτ²
+    if d2 < 0.0:
+        delta = -d1 / d2
+        if abs(delta) <= step_s:               # stay on the peak the coarse search found
+            return tau + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
+    return tau, g0
+
+
+def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
+               weights_hz: np.ndarray | None = None) -> tuple[float, np.ndarray]:
+    """The single delay τ that best aligns the input with the filtered output.
+
+    Minimises the error power ∫ S(f)·|1 − H(f)·e^{j2πfτ}|² df, i.e. the
+    time-domain |y(t) − x(t − τ)|² for y = h ∗ x and a program of one-sided
+    PSD S.  Expanding, ∫S(1 + |H|²) − 2·Re ∫ S·H·e^{j2πfτ}: the cross term
+    as a function of τ is an inverse FFT of S·H (zero-padded, coarse), whose
+    peak is refined by a parabola and a Newton step on the exact sum.
+
+    Parameters
+    ----------
+    S : array (bins,)
+        Program PSD (any power unit per Hz), ≥ 0.
+    H : complex array (bins,)
+        The candidate's complex response on the same grid.
+    freqs_hz : array (bins,)
+        A uniform grid from 0 Hz (the analysis grid, 0 … fs/2).
+    weights_hz : array (bins,), optional
+        Integration widths (meter band included); default the grid step.
+
+    Returns
+    -------
+    tau_s : float
+        Best delay in seconds (positive: the output lags the input), within
+        ±1/(2·df).
+    err : array (bins,)
+        |1 − H·e^{j2πfτ}|² at that delay (multiply by S and integrate for the
+        error power).
+    """
+    f = np.asarray(freqs_hz, dtype=float)
+    H = np.asarray(H, dtype=complex)
+    w = np.full(f.shape, f[1] - f[0]) if weights_hz is None else np.asarray(weights_hz, dtype=float)
+    tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f)
+    return tau, np.abs(1.0 - H * np.exp(2j * np.pi * f * tau)) ** 2
+
+
 def _db(ratio: float) -> float | None:
     if ratio is None or not math.isfinite(ratio) or ratio <= 0:
         return None if ratio is None or ratio <= 0 else math.inf
@@ -86,6 +169,11 @@ class Scorer:
     analysis: Analysis
     chain: Chain
     meter: Meter
+    #: Optional absolute floor for the log-spectral distance, dBFS per critical
+    #: band (a scalar, or one value per band of ``analysis.band_edges_hz``): the
+    #: hook for the threshold of hearing at a stated playback level.  None: only
+    #: the floor relative to each frame (LSD_FRAME_FLOOR_DB).
+    lsd_floor_dbfs: float | np.ndarray | None = None
     _pre: dict = field(default_factory=dict, repr=False)
 
     def __post_init__(self):
@@ -110,11 +198,18 @@ class Scorer:
         self._pre = dict(
             wm=wm, S=S, aw=aw, bins_per_band=bins_per_band, sw=sw, band_s=band_s,
             s_total=float(np.sum(S * wm)), s_total_a=float(np.sum(S * wm * aw)),
-            frames_v2=a.band_frames * v2, floor=c.full_scale_power_v2 * 10 ** (LSD_FLOOR_DBFS / 10),
-            lo=lo, hi=hi,
+            frames_v2=a.band_frames * v2, lo=lo, hi=hi,
         )
-        with np.errstate(divide="ignore"):
-            self._pre["frames_db"] = 10 * np.log10(np.maximum(self._pre["frames_v2"], self._pre["floor"]))
+        fv2 = self._pre["frames_v2"]
+        # the floor of each frame: LSD_FRAME_FLOOR_DB under its level (a silent frame: a tiny
+        # positive floor, so input and output sit on it and the frame's distance is 0)
+        level = fv2.sum(axis=1, keepdims=True) if fv2.size else np.zeros((0, 1))
+        floor = np.maximum(level * 10 ** (LSD_FRAME_FLOOR_DB / 10), c.full_scale_power_v2 * 1e-30)
+        if self.lsd_floor_dbfs is not None:
+            absolute = c.full_scale_power_v2 * 10 ** (np.asarray(self.lsd_floor_dbfs, dtype=float) / 10)
+            floor = np.maximum(floor, absolute)
+        self._pre["floor"] = floor
+        self._pre["frames_db"] = 10 * np.log10(np.maximum(fv2, floor))
 
     def score(self, filt: Filter) -> dict:
         """All metrics for one candidate, as a plain mapping (no targets applied)."""
@@ -128,7 +223,10 @@ class Scorer:
         S = p["S"]
         s_out = float(np.sum(S * G * wm))
         s_out_a = float(np.sum(S * G * wm * p["aw"]))
-        err = float(np.sum(S * (1.0 - np.sqrt(G)) ** 2 * wm))
+        # error against the input at the best single delay, phase included
+        # (∫S|1 − H·e^{j2πfτ}|² = ∫S(1 + |H|²) − 2·max_τ Re ∫S·H·e^{j2πfτ}; see best_delay)
+        _, cross = _delay_cross(S * wm * filt.response(f), f)
+        err = max(p["s_total"] + s_out - 2.0 * cross, 0.0)
         nyq = a.nyquist_hz
         lo3, hi3 = filt.edges_3db
         row = {
@@ -142,7 +240,7 @@ class Scorer:
             "snr_db": _db(s_out / n_pow) if s_out > 0 else None,
             "snr_a_db": _db(s_out_a / n_pow_a) if s_out_a > 0 and n_pow_a > 0 else None,
             "loss_db": _db(p["s_total"] / s_out) if s_out > 0 else None,
-            "lsd_db": self._lsd(G, N),
+            "lsd_db": self._lsd(G),
             "ser_db": _db(p["s_total"] / (err + n_pow)),
         }
         row.update(self._thdn(filt, n_pow))
@@ -155,19 +253,17 @@ class Scorer:
         out[filled] = np.add.reduceat(x, starts)
         return out
 
-    def _lsd(self, G: np.ndarray, N: np.ndarray) -> float:
+    def _lsd(self, G: np.ndarray) -> float:
+        """Program in against program out (no noise: noise has SNR), per frame over bands."""
         p = self._pre
-        a = self.analysis
         band_s = p["band_s"]
         gain = np.divide(self._band_sum(p["sw"] * G), band_s, out=np.zeros_like(band_s), where=band_s > 0)
         empty = band_s <= 0
         if np.any(empty):
             counts = p["bins_per_band"]
             gain[empty] = (self._band_sum(G) / np.maximum(counts, 1))[empty]
-        n_band = self._band_sum(N * a.weights_hz)
-        # in place, in the same order of operations: (frames x bands) arrays
+        # in place: (frames x bands) arrays
         out = p["frames_v2"] * gain
-        out += n_band
         np.maximum(out, p["floor"], out=out)
         np.log10(out, out=out)
         out *= 10
@@ -189,8 +285,15 @@ class Scorer:
                     "thdn_note": f"tone {f0:g} Hz is outside the passband ({10 * math.log10(max(g0, 1e-300)):.1f} dB)"}
         r = 10 ** (m.tone_level_dbfs / 20.0)  # amplitude re full scale
         amp_v = r * math.sqrt(2.0) * c.full_scale_vrms
-        p1 = amp_v**2 / 2.0 * g0
+        # the memoryless polynomial y = x + a2·x² + a3·x³ (simulate.harmonic_coefficients) on
+        # x = r·sin: a3·x³ adds (3/4)·a3·r³ = 3·h3·r³ to the fundamental, and a2·x² makes a DC
+        # term a2·r²/2 = h2·r² beside the 2nd harmonic (counted where the meter includes 0 Hz)
+        h3_lin = 10 ** (c.h3_db / 20.0) if c.h3_db is not None else 0.0
+        p1 = (amp_v * (1.0 + 3.0 * h3_lin * r * r)) ** 2 / 2.0 * g0
         harm = 0.0
+        if c.h2_db is not None and p["lo"] <= 0.0:
+            dc_v = 10 ** (c.h2_db / 20.0) * r * amp_v
+            harm += dc_v**2 * float(filt.power_response(0.0))
         for order, level_db in ((2, c.h2_db), (3, c.h3_db)):
             if level_db is None:
                 continue

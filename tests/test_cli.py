@@ -130,6 +130,23 @@ def test_noise_json(capsys):
     assert sum(c["share"] for c in b["components"].values()) == pytest.approx(1.0)
 
 
+@pytest.mark.parametrize("zero", [["--dither", "none"], ["--in", "0"], ["--source-ohms", "0"]])
+def test_noise_json_with_a_zero_contributor(capsys, zero):
+    """A contributor of zero power has no dB level: null in JSON, "none" in the text (was a traceback)."""
+    code, out, err = run(["noise", "--band", "20:20k", "--json", *zero], capsys)
+    assert code == 0, err
+    b = json.loads(out)
+    zeros = [k for k, c in b["components"].items() if c["vrms"] == 0.0]
+    assert zeros
+    for k in zeros:
+        assert b["components"][k]["dbu"] is None and b["components"][k]["dbfs"] is None
+        assert b["components"][k]["share"] == 0.0
+    assert b["total"]["dbu"] is not None
+    code, out, err = run(["noise", "--band", "20:20k", *zero], capsys)
+    assert code == 0, err
+    assert "none" in out and "−∞" not in out
+
+
 @pytest.mark.parametrize("args,needle", [
     (["--gain", "40V"], "--gain"),
     (["--source-ohms", "-5"], "--source-ohms"),

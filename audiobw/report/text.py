@@ -199,8 +199,8 @@ def budget_text(b: dict, *, header: str) -> str:
     lines = [header, f"{'contributor':<34s}{'noise':>14s}{'[dBu]':>10s}{'[dBFS]':>10s}{'share':>9s}"]
 
     def row(label, e):
-        dbu = f"{e['dbu']:.1f}" if math.isfinite(e["dbu"]) else "−∞"
-        dbfs = f"{e['dbfs']:.1f}" if math.isfinite(e["dbfs"]) else "−∞"
+        dbu = f"{e['dbu']:.1f}" if math.isfinite(e["dbu"]) else "none"
+        dbfs = f"{e['dbfs']:.1f}" if math.isfinite(e["dbfs"]) else "none"
         return f"{label:<34s}{format_quantity(e['vrms'], 'V rms'):>14s}{dbu:>10s}{dbfs:>10s}{100 * e['share']:>8.1f}%"
 
     for key, e in b["components"].items():
