@@ -58,6 +58,8 @@ def _cell(fmt: str, value) -> str:
     width = int("".join(ch for ch in fmt.split(":")[1] if ch.isdigit()).split(".")[0] or 0) if ":" in fmt else 0
     if value is None:
         return "—".rjust(width)
+    if fmt.endswith("e}") and isinstance(value, float) and 0 <= value < BER_FLOOR:
+        return "<1e-300".rjust(width)
     return fmt.format(value)
 
 
@@ -92,11 +94,11 @@ def _fmt_metric(key: str, value) -> str:
     if key == "thdn_pct":
         return f"{value:.5f} %"
     if key == "ber":
-        return f"{value:.2e}"
+        return ber_text(value)
     if key == "eye_fraction":
         return f"{100 * value:.1f} % of the unfiltered opening"
     if key == "q":
-        return f"{value:.2f}"
+        return f"{value:.2f} (eye half-opening over the noise σ)"
     if key == "noise_dbfs":
         return f"{value:.1f} dBFS"
     if key == "noise_vrms":
@@ -104,6 +106,26 @@ def _fmt_metric(key: str, value) -> str:
     if key.endswith("_hz"):
         return format_quantity(value, "Hz")
     return f"{value:.2f} dB"
+
+
+#: the smallest BER printed as a number; below it the Gaussian tail underflows a double
+BER_FLOOR = 1e-300
+
+
+def ber_text(value) -> str:
+    """A bit-error rate for people: '3.10e-12', or '< 1e-300' where the double range runs out."""
+    if value is None:
+        return "n/a"
+    if value < BER_FLOOR:
+        return "< 1e-300"
+    return f"{value:.2e}"
+
+
+def margin_text(key: str, margin) -> str:
+    """A target's margin; a BER of (numerically) zero has a margin beyond the double range."""
+    if margin is None:
+        return "beyond the double range" if key == "max_ber" else "n/a"
+    return f"{margin:.3g} dB"
 
 
 def band_words(response: str, low_hz, high_hz, hz=lambda v: format_quantity(v, "Hz")) -> str:
@@ -141,7 +163,7 @@ def closing_paragraph(doc: dict) -> str:
             label, metric, unit, sense = TARGET_LABEL[b]
             margin = choice.get("binding_margin_db")
             lines.append(f"Binding target: {label} {sense} {_target_text(b, targets[b])} "
-                         f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin:.3g} dB).")
+                         f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin_text(b, margin)}).")
         if choice.get("grid_limited"):
             lines.append("This is the narrowest case of its family and order in the grid: extend the grid "
                          "to see whether a narrower passband also passes.")
@@ -175,7 +197,7 @@ def closing_paragraph(doc: dict) -> str:
                      f"{format_quantity(d['nyquist_min_hz'], 'Hz')}.")
         q = d.get("q_optimal")
         if q:
-            lines.append(f"Q is highest ({q['q']:.2f}, BER {q['ber']:.2e}) at case {q['case']}, bandwidth "
+            lines.append(f"Q is highest ({q['q']:.2f}, BER {ber_text(q['ber'])}) at case {q['case']}, bandwidth "
                          f"{format_quantity(q['bandwidth_hz'], 'Hz')}: narrower costs more in inter-symbol "
                          "interference than it saves in noise.")
     for note in doc.get("notes", []):
