@@ -125,6 +125,11 @@ class SweepResult:
                 "frames": a.frames, "peak_dbfs": _round(a.peak_dbfs), "rms_dbfs": _round(a.rms_dbfs),
                 "occupied_bw_hz": _round(hi_occ - lo_occ), "occupied_low_hz": _round(lo_occ),
                 "occupied_high_hz": _round(hi_occ),
+                "occupied_basis": "power summed over channels" if a.channels > 1 else "the one channel",
+                "occupied_channels": [
+                    {"channel": i + 1, "occupied_bw_hz": _round(h - lo), "occupied_low_hz": _round(lo),
+                     "occupied_high_hz": _round(h)}
+                    for i, (lo, h) in enumerate(a.occupied_band_channels_hz())],
             },
             "chain": self.chain.to_json(),
             "grid": self.grid.to_json(),

@@ -59,3 +59,31 @@ def test_eye_target_prints_as_a_percentage(tmp_path, capsys):
     targets = md.split("### Targets")[1].split("###")[0]
     row = next(line for line in targets.splitlines() if line.startswith("| eye opening"))
     assert "% of the unfiltered eye" in row and " dB |" not in row.split("|")[2]
+
+
+def test_occupied_band_per_channel(tmp_path, capsys):
+    """A loud 1 kHz left channel and a quiet white-noise right channel: the summed band is the tone's,
+    the right channel's own band spans nearly 0…fs/2 (white noise: 0.5 % tails at 0.005·fs/2 and 0.995·fs/2)."""
+    import numpy as np
+
+    from .conftest import tones, write
+
+    fs = 48000
+    rng = np.random.default_rng(13)
+    left = tones([1000.0], [0.5], fs, 2.0)
+    right = 0.003 * rng.standard_normal(left.size)
+    path = write(tmp_path / "st.wav", np.column_stack([left, right]), fs)
+    out = tmp_path / "o"
+    assert main(["sweep", str(path), "--cutoffs", "4k,12k", "--order", "2", "--max-loss", "1",
+                 "--out", str(out)]) == 0
+    text = capsys.readouterr().out
+    inp = json.loads((out / "sweep.json").read_text())["input"]
+    assert inp["occupied_basis"] == "power summed over channels"
+    ch1, ch2 = inp["occupied_channels"]
+    assert ch1["occupied_low_hz"] > 900 and ch1["occupied_high_hz"] < 1100
+    # white noise: equal tails of 0.5 % at 0.005 and 0.995 of fs/2 (definition of the occupied band)
+    assert ch2["occupied_low_hz"] == pytest.approx(0.005 * fs / 2, abs=150)
+    assert ch2["occupied_high_hz"] == pytest.approx(0.995 * fs / 2, abs=150)
+    # the summed figure follows the loud channel
+    assert inp["occupied_high_hz"] < 5000
+    assert "taken over the power summed across 2 channels (per channel: ch 1" in text

@@ -150,7 +150,8 @@ def closing_paragraph(doc: dict) -> str:
     head = (f"{inp['path']}: {inp['duration_s']:.1f} s, {inp['channels']} ch, {inp['sample_rate_hz']} Hz; "
             f"peak {inp['peak_dbfs']:.1f} dBFS, rms {inp['rms_dbfs']:.1f} dBFS, 99 % occupied bandwidth "
             f"{format_quantity(inp['occupied_bw_hz'], 'Hz')} "
-            f"({format_quantity(inp['occupied_low_hz'], 'Hz')} to {format_quantity(inp['occupied_high_hz'], 'Hz')}).")
+            f"({format_quantity(inp['occupied_low_hz'], 'Hz')} to {format_quantity(inp['occupied_high_hz'], 'Hz')})"
+            + _per_channel_occupied(inp) + ".")
     n_pass = sum(1 for c in doc["cases"] if c["passes"])
     lines = [head, f"{n_pass} of {len(cases)} cases meet every target."]
     choice = doc.get("choice")
@@ -203,6 +204,16 @@ def closing_paragraph(doc: dict) -> str:
     for note in doc.get("notes", []):
         lines.append("Note: " + note)
     return "\n".join(lines)
+
+
+def _per_channel_occupied(inp: dict) -> str:
+    """', power summed over 2 channels; per channel: ch 1 …, ch 2 …' for a multichannel program."""
+    chans = inp.get("occupied_channels") or []
+    if inp.get("channels", 1) <= 1 or not chans:
+        return ""
+    each = "; ".join(f"ch {c['channel']} {format_quantity(c['occupied_low_hz'], 'Hz')} to "
+                     f"{format_quantity(c['occupied_high_hz'], 'Hz')}" for c in chans)
+    return f", taken over the power summed across {inp['channels']} channels (per channel: {each})"
 
 
 def _target_text(key: str, value: float) -> str:
