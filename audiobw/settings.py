@@ -32,11 +32,11 @@ from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, R
                       option_name)
 
 CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
-              "amp_bandwidth", "bits", "full_scale", "dither", "stage")
+              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
 GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
 TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
                  "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
-                 "max_ber": "max_ber", "min_eye": "min_eye"}
+                 "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db"}
 METER_KEYS = ("meter", "tone", "tone_level")
 
 
@@ -119,6 +119,8 @@ def _parse(key: str, raw: Raw):
         return _parse_input_level(v, name)
     if kind == "bit_rate":
         return _parse_bit_rate(v, name)
+    if kind == "mic_sensitivity":
+        return _parse_mic_sensitivity(v, name)
     if kind == "probability":
         return _parse_probability(v, name)
     return units.parse_quantity(v, kind, name=name)
@@ -150,6 +152,25 @@ def _parse_probability(v, name):
     return p
 
 
+#: reference sound pressure of dB SPL, Pa (ISO 1683)
+P_REF_PA = 20e-6
+
+
+def _parse_mic_sensitivity(v, name):
+    """Microphone sensitivity in V/Pa from '10mV/Pa', '-40dBV/Pa' (or a bare V/Pa number)."""
+    text = str(v).strip()
+    if text.endswith("/Pa"):
+        text = text[:-3].strip()
+    try:
+        s = units.parse_quantity(text if not isinstance(v, (int, float)) else v, "voltage", name=name)
+    except ParameterError:
+        raise ParameterError(f"{name}: {v!r} is not a microphone sensitivity; accepted: 10mV/Pa or "
+                             "-40dBV/Pa") from None
+    if not s > 0:
+        raise ParameterError(f"{name}: {v!r} is out of range; accepted: a sensitivity > 0 V/Pa")
+    return s
+
+
 def _parse_input_level(v, name):
     """('gain', dB) or ('dbfs', level) or ('vrms', volts)."""
     text = str(v).strip()
@@ -178,6 +199,8 @@ class Settings:
     input_level: tuple | None
     program: str = "audio"
     bit_rate: object = None
+    #: the program's rms at the source, V (from --source-level, or --spl with --mic-sensitivity)
+    source_vrms: float | None = None
 
     def grid_for(self, nyquist_hz: float):
         """The Grid, with defaults for the edges that were not given, fitted to ``nyquist_hz``."""
@@ -207,7 +230,17 @@ class Settings:
         )
 
     def chain_for(self, analysis) -> Chain:
-        """The chain with ``--input-level`` resolved against the program's measured rms."""
+        """The chain with ``--input-level`` or the source level resolved against the program's measured rms.
+
+        With a source level the program's rms at the converter is source_vrms·G, so
+        the gain raises program and source noise together.
+        """
+        if self.source_vrms is not None:
+            program_v = self.chain.full_scale_vrms * 10 ** (analysis.rms_dbfs / 20)
+            from dataclasses import replace
+
+            gain = 20 * math.log10(self.source_vrms * self.chain.gain / program_v)
+            return replace(self.chain, input_gain_db=gain)
         if self.input_level is None:
             return self.chain
         kind, value = self.input_level
@@ -270,5 +303,34 @@ def build(raw: dict[str, Raw]) -> Settings:
     if program != "data" and (data_targets or bit_rate is not None):
         given = raw[data_targets[0]].origin if data_targets else raw["bit_rate"].origin
         raise ParameterError(f"{given}: applies to data programs only; accepted: add --program data")
+    source_vrms = _source_vrms(parsed, raw)
     return Settings(chain=chain, grid_values=grid_values, meter=meter, targets=targets,
-                    input_level=parsed.get("input_level"), program=program, bit_rate=bit_rate)
+                    input_level=parsed.get("input_level"), program=program, bit_rate=bit_rate,
+                    source_vrms=source_vrms)
+
+
+def _source_vrms(parsed: dict, raw: dict) -> float | None:
+    """The program's rms at the source from --source-level or --spl × --mic-sensitivity; refuses mixtures."""
+    has_spl, has_sens = "spl" in parsed, "mic_sensitivity" in parsed
+    if has_spl != has_sens:
+        given = raw["spl" if has_spl else "mic_sensitivity"].origin
+        raise ParameterError(f"{given}: needs {'--mic-sensitivity' if has_spl else '--spl'} as well; accepted: "
+                             "--spl 94 --mic-sensitivity 10mV/Pa")
+    if "source_level" in parsed and has_spl:
+        raise ParameterError(f"{raw['source_level'].origin}: give the source level or --spl with "
+                             "--mic-sensitivity, not both")
+    if "source_level" in parsed:
+        v = parsed["source_level"]
+        if not v > 0:
+            raise ParameterError(f"{raw['source_level'].origin}: {raw['source_level'].value!r} is out of range; "
+                                 "accepted: a level > 0 V rms, e.g. -50dBu")
+        given = raw["source_level"].origin
+    elif has_spl:
+        v = parsed["mic_sensitivity"] * P_REF_PA * 10 ** (parsed["spl"] / 20)
+        given = raw["spl"].origin
+    else:
+        return None
+    if "input_level" in parsed:
+        raise ParameterError(f"{raw['input_level'].origin}: states the level at the converter, {given} the level "
+                             "at the source; give one of them")
+    return v

@@ -94,7 +94,7 @@ DATA_CASE_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sig
 CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
              "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
              "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
-             "passes", "fails", "margins_db")
+             "passes", "fails", "margins_db", "headroom_db")
 
 
 @dataclass
@@ -191,6 +191,8 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
     """
     specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
     scorer = Scorer(analysis, chain, meter)
+    # converter full-scale peak over the program's sample peak at the converter (negative: it clips)
+    headroom = -(analysis.peak_dbfs + chain.input_gain_db) if math.isfinite(analysis.peak_dbfs) else None
     rows = []
     for i, spec in enumerate(specs, start=1):
         filt = design(spec)
@@ -198,6 +200,7 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
                "poles": spec.poles, "design_low_hz": spec.low_hz, "design_high_hz": spec.high_hz}
         row.update(scorer.score(filt))
         row["bandwidth_hz"] = filt.bandwidth_3db(analysis.nyquist_hz)
+        row["headroom_db"] = headroom
         if data is not None:
             row.update(_data_metrics(filt, analysis, chain, data))
         passes, fails, margins = check_targets(row, targets)

@@ -15,6 +15,7 @@ TARGET_LABEL = {
     "min_ser_db": ("signal-to-error", "ser_db", "dB", "≥"),
     "max_ber": ("bit-error rate", "ber", "", "≤"),
     "min_eye": ("eye opening", "eye_fraction", "", "≥"),
+    "min_headroom_db": ("headroom", "headroom_db", "dB", "≥"),
 }
 #: table column -> (header, unit, key, format, target that marks it)
 COLUMNS = (
