@@ -577,7 +577,8 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
 
     choice, best, failing = None, None, []
     if cases:
-        picked, _ = choose(cases, settings.targets)
+        picked, _ = choose(cases, settings.targets, rank=settings.grid_values.get("rank", "enbw"),
+                           tie=settings.grid_values.get("tie", 0.01))
         if picked is not None:
             chosen = cases[picked["case"] - 1]
             choice = {"case": chosen["id"], "pass_share": chosen["pass_share"]}

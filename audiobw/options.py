@@ -63,6 +63,10 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "spl": ("source", "db_any", "microphone: the program's sound pressure level, dB SPL re 20 µPa (with "
             "--mic-sensitivity)"),
     "mic_sensitivity": ("source", "mic_sensitivity", "microphone sensitivity, 10mV/Pa or -40dBV/Pa (with --spl)"),
+    "rank": ("grid", "choice:enbw,bandwidth", "what the choice minimises among passing cases: enbw (the "
+             "bandwidth noise grows with; default) or bandwidth (−3 dB)"),
+    "tie": ("grid", "fraction", "cases within this share of the best rank figure tie, and go to the lower "
+            "order, then the gentler family (default 1%)"),
     "min_headroom": ("targets", "db_any", "target: minimum headroom, dB: converter full scale over the "
                      "program's peak at the converter"),
 }

@@ -33,7 +33,8 @@ from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, R
 
 CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
               "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
-GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
+GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
+             "rank", "tie")
 TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
                  "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
                  "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db"}
@@ -227,6 +228,8 @@ class Settings:
             high_edges_hz=g.get("high_edges", ()),
             ripple_db=g.get("ripple", 0.1),
             stopband_db=g.get("stopband", 60.0),
+            rank=g.get("rank", "enbw"),
+            tie=g.get("tie", 0.01),
         )
 
     def chain_for(self, analysis) -> Chain:
