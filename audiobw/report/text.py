@@ -246,4 +246,11 @@ def budget_text(b: dict, *, header: str) -> str:
                  f"{format_quantity(b['meter']['low_hz'], 'Hz')} to {format_quantity(b['meter']['high_hz'], 'Hz')}")
     lines.append(f"Dynamic range for a full-scale sine: {b['dynamic_range_db']:.1f} dB "
                  f"({b['dynamic_range_a_db']:.1f} dB A-weighted)")
+    if b.get("ein_dbu") is not None:
+        nf = b.get("noise_figure_db")
+        nf_text = f"noise figure {nf:.2f} dB at the source resistance" if nf is not None else \
+            "noise figure undefined (ideal source, 0 Ω)"
+        a = b.get("ein_dbu_a")
+        lines.append(f"Equivalent input noise (source and amplifier, meter band): {b['ein_dbu']:.1f} dBu"
+                     + (f" ({a:.1f} dBu A-weighted)" if a is not None else "") + f"; {nf_text}")
     return "\n".join(lines)
