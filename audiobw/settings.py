@@ -312,6 +312,37 @@ def build(raw: dict[str, Raw]) -> Settings:
                     source_vrms=source_vrms)
 
 
+def sanity_warnings(settings: "Settings", raw_keys=()) -> list[str]:
+    """One line per value that is legal but almost surely a slip (a missing SI prefix and the like)."""
+    from .chain import BOLTZMANN, vrms_to_dbu
+
+    c, out = settings.chain, []
+    if c.en_v_rthz > 1e-6:
+        v = c.gain * c.en_v_rthz * math.sqrt(20000.0)
+        out.append(f"--en {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
+                   "over 20 kHz); amplifiers are 0.5 to 50 nV/√Hz: was a prefix left off (1.2n)?")
+    if c.in_a_rthz > 1e-9:
+        out.append(f"--in {c.in_a_rthz:g} A/√Hz is {c.in_a_rthz * 1e12:.3g} pA/√Hz; amplifiers are 0.01 to "
+                   "10 pA/√Hz: was a prefix left off (1.5p)?")
+    if settings.source_vrms is not None:
+        at_converter = settings.source_vrms * c.gain
+        if at_converter > c.full_scale_vrms:
+            out.append(f"the source level ({vrms_to_dbu(settings.source_vrms):.1f} dBu) times the gain "
+                       f"({c.gain_db:g} dB) is {vrms_to_dbu(at_converter):.1f} dBu rms at the converter, above its "
+                       f"full scale ({vrms_to_dbu(c.full_scale_vrms):.1f} dBu): the converter clips; lower --gain")
+    thermal = math.sqrt(4 * BOLTZMANN * c.temperature_k * c.source_ohms) if c.source_ohms > 0 else 0.0
+    if c.source_ohms > 10e6:
+        out.append(f"--source-ohms {c.source_ohms:g} Ω: its thermal noise alone is {thermal * 1e9:.3g} nV/√Hz")
+    return out
+
+
+def default_chain_text(c) -> str:
+    """The chain in one line, for when the user gave none."""
+    return (f"Rs {c.source_ohms:g} Ω at {c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {c.en_v_rthz * 1e9:g} nV/√Hz, "
+            f"i_n {c.in_a_rthz * 1e12:g} pA/√Hz, {c.bits} bits, full scale {c.full_scale_vrms:g} V rms, "
+            f"dither {c.dither}, {c.stage} filter stage, the program taken as it is at the converter")
+
+
 def _source_vrms(parsed: dict, raw: dict) -> float | None:
     """The program's rms at the source from --source-level or --spl × --mic-sensitivity; refuses mixtures."""
     has_spl, has_sens = "spl" in parsed, "mic_sensitivity" in parsed

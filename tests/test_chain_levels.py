@@ -74,3 +74,21 @@ def test_cli_refuses_both_levels_in_one_line(tmp_path, capsys):
                  str(tmp_path / "x")])
     err = capsys.readouterr().err
     assert code == 2 and "Traceback" not in err and len(err.strip().splitlines()) == 1
+
+
+def test_absurd_values_warn(capsys):
+    # --en 1.2 (the n forgotten): 1.2 V/√Hz × 100 (40 dB) × √20 kHz ≈ 17 kV rms at the converter
+    assert main(["noise", "--band", "20:20k", "--en", "1.2"]) == 0
+    err = capsys.readouterr().err
+    assert "warning: --en 1.2 V/√Hz" in err and "1.7e+04 V rms" in err and "(1.2n)" in err
+    # -20 dBu + 60 dB = +40 dBu at a converter whose full scale is +4 dBu: it clips
+    assert main(["noise", "--band", "20:20k", "--source-level", "-20dBu", "--gain", "60"]) == 0
+    assert "the converter clips" in capsys.readouterr().err
+
+
+def test_default_chain_is_stated(capsys):
+    assert main(["noise", "--band", "20:20k"]) == 0
+    out = capsys.readouterr().out
+    assert "No chain given; the defaults were used: Rs 200 Ω at 290 K, gain 40 dB, e_n 1.5 nV/√Hz" in out
+    assert main(["noise", "--band", "20:20k", "--gain", "30"]) == 0
+    assert "No chain given" not in capsys.readouterr().out
