@@ -678,7 +678,9 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
     from .metrics import TARGET_KEYS
     from .sweep import choose
 
-    n = len(files)
+    # a file that could not be swept (unreadable, or it cannot take the grid) counts as one on which
+    # no case passes: the shares are over every input, not only the swept ones
+    n = len(files) + len(failed)
     need = math.ceil(coverage * n - 1e-9)
     families = list(settings.grid_values.get("family", ("butterworth",)))
     table: dict[tuple, dict] = {}
@@ -724,7 +726,8 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
 
     choice, best, failing = None, None, []
     if cases:
-        picked, _ = choose(cases, settings.targets)
+        picked, _ = choose(cases, settings.targets, rank=settings.grid_values.get("rank", "enbw"),
+                           tie=settings.grid_values.get("tie", 0.01))
         if picked is not None:
             chosen = cases[picked["case"] - 1]
             choice = {"case": chosen["id"], "pass_share": chosen["pass_share"]}
@@ -742,6 +745,9 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
                 key, margin = _worst(row["margins_db"])
                 failing.append({"path": item.path, "sweep": f"files/{item.name}/sweep.json", "binding": key,
                                 "margin_db": _round(margin), "fails": list(row["fails"]), "note": None})
+            for path, reason in failed:
+                failing.append({"path": path, "sweep": None, "binding": None, "margin_db": None, "fails": [],
+                                "note": f"could not be swept ({reason})"})
             failing.sort(key=lambda f: (f["margin_db"] is not None,
                                         f["margin_db"] if f["margin_db"] is not None else 0.0, f["path"]))
         else:
@@ -777,13 +783,14 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
         "settings": {"chain": chain, "grid": plain["grid_values"], "meter": plain["meter"],
                      **{k: v for k, v in plain.items() if k not in ("chain", "grid_values", "meter", "targets")}},
         "targets": {k: v for k, v in settings.targets.items() if v is not None},
-        "counts": {"inputs": n + len(failed), "swept": n, "failed": len(failed), "skipped": len(skipped),
+        "counts": {"inputs": len(files) + len(failed), "swept": len(files), "failed": len(failed),
+                   "skipped": len(skipped),
                    "sample_rates_hz": dict(sorted(rates.items(), key=lambda kv: int(kv[0])))},
         "cases": cases,
         "choice": choice,
         "best": best,
         "failing": failing,
-        "passbands": {"files_with_choice": n - without, "files_without_choice": without,
+        "passbands": {"files_with_choice": len(files) - without, "files_without_choice": without,
                       "low_hz": _percentiles(lows), "high_hz": _percentiles(highs)},
         "files": per_file,
         "failed": [{"path": p, "reason": r} for p, r in failed],
@@ -906,19 +913,20 @@ def summary_lines(doc: dict) -> list[str]:
     if doc["choice"] is not None:
         case = doc["cases"][doc["choice"]["case"] - 1]
         lines.append(f"Narrowest case passing on at least {cov} of the files: #{case['id']} {_label(case)}, "
-                     f"passes on {case['pass_share'] * 100:.1f} %.")
+                     f"passes on {case['pass_share'] * 100:.1f} %" + _over(c) + ".")
         if doc["failing"]:
             worst = doc["failing"][:5]
             lines.append(f"It fails on {len(doc['failing'])} file(s); worst first:")
             for f in worst:
-                what = (f"{f['binding']} {f['margin_db']:+.2f} dB" if f["margin_db"] is not None
-                        else (f["binding"] or f["note"]))
+                label = _target_words(f["binding"]) if f["binding"] else None
+                what = (f"{label}, margin {f['margin_db']:+.2f} dB" if f["margin_db"] is not None
+                        else (f"{label}: not defined for this file" if label else f["note"]))
                 lines.append(f"  {f['path']}: {what}")
     else:
         msg = f"No case passes on {cov} of the files."
         if doc["best"] is not None:
             case = doc["cases"][doc["best"]["case"] - 1]
-            msg += f" Best: #{case['id']} {_label(case)} on {case['pass_share'] * 100:.1f} %."
+            msg += f" Best: #{case['id']} {_label(case)} on {case['pass_share'] * 100:.1f} %" + _over(c) + "."
         lines.append(msg)
     pb = doc["passbands"]
     for key, label in (("low_hz", "lower"), ("high_hz", "upper")):
@@ -933,6 +941,22 @@ def summary_lines(doc: dict) -> list[str]:
     if len(doc["failed"]) > 5:
         lines.append(f"... and {len(doc['failed']) - 5} more failed (see corpus.json).")
     return lines
+
+
+def _over(counts: dict) -> str:
+    """' of all N files (M could not be swept and count as not passing)' when some failed."""
+    if not counts["failed"]:
+        return ""
+    return (f" of all {counts['swept'] + counts['failed']} files ({counts['failed']} could not be swept and "
+            "count as not passing)")
+
+
+def _target_words(key: str) -> str:
+    """A target as the sweep prints it: 'A-weighted SNR ≥ …' rather than the JSON key."""
+    from .report.text import TARGET_LABEL
+
+    label, _metric, _unit, sense = TARGET_LABEL.get(key, (key, None, "", ""))
+    return label
 
 
 def _label(case: dict) -> str:

@@ -16,6 +16,7 @@ import click
 
 from . import __version__
 
+from .clikit import default_chain_line
 from .clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, LISTENING_CAUTION, Progress, chain_file_option, options,
                      settings_from, sweep_options)
 
@@ -71,6 +72,9 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     click.echo(case_table(doc))
     click.echo()
     click.echo(closing_paragraph(doc))
+    stated = default_chain_line(kwargs, chain_file, settings)
+    if stated:
+        click.echo(stated)
     click.echo(f"Wrote {paths['json']} and {paths['csv']}.")
     for line in extra:
         click.echo(line)
@@ -137,6 +141,9 @@ def noise(band, family, order, ripple, stopband, rate, as_json, chain_file, **kw
     from .report.text import budget_text
 
     click.echo(budget_text(b, header=header))
+    stated = default_chain_line(kwargs, chain_file, settings)
+    if stated:
+        click.echo(stated)
     click.echo(ESTIMATE_CAUTION)
 
 

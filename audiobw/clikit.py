@@ -38,9 +38,10 @@ def options(keys, group: str):
 
 
 CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
-         "bits", "full_scale", "dither", "stage")
-GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
-TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser", "max_ber", "min_eye")
+         "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
+GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
+TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser", "max_ber", "min_eye",
+           "min_headroom")
 PROGRAM = ("program", "bit_rate")
 METER = ("meter", "tone", "tone_level")
 
@@ -49,11 +50,26 @@ def cli_values(kwargs) -> dict:
     return {("in" if k == "in_" else k): v for k, v in kwargs.items() if (k == "in_" or k in OPTIONS)}
 
 
+def default_chain_line(kwargs, chain_file, settings) -> str | None:
+    """'No chain given; ...' when neither a chain file nor any chain option was given, else None."""
+    from .settings import CHAIN_KEYS, default_chain_text
+
+    if chain_file or any(v is not None for k, v in cli_values(kwargs).items() if k in CHAIN_KEYS):
+        return None
+    return "No chain given; the defaults were used: " + default_chain_text(settings.chain) + "."
+
+
 def settings_from(kwargs, chain_file):
     from .settings import build, load_toml, merge
 
+    from .settings import sanity_warnings
+
     file_values = load_toml(chain_file) if chain_file else {}
-    return build(merge(file_values, cli_values(kwargs)))
+    raw = merge(file_values, cli_values(kwargs))
+    settings = build(raw)
+    for line in sanity_warnings(settings, tuple(raw)):
+        click.echo(f"audiobw: warning: {line}", err=True)
+    return settings
 
 
 class Progress:

@@ -42,7 +42,7 @@ from .weighting import a_weighting_power
 LSD_FRAME_FLOOR_DB = -60.0
 
 TARGET_KEYS = ("min_snr_db", "min_snr_a_db", "max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db",
-               "max_ber", "min_eye")
+               "max_ber", "min_eye", "min_headroom_db")
 #: target key -> (metric key, sense): +1 means the metric must be at least the target.
 TARGET_METRIC = {
     "min_snr_db": ("snr_db", +1),
@@ -53,6 +53,7 @@ TARGET_METRIC = {
     "min_ser_db": ("ser_db", +1),
     "max_ber": ("ber", -1),
     "min_eye": ("eye_fraction", +1),
+    "min_headroom_db": ("headroom_db", +1),
 }
 
 

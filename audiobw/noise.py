@@ -280,4 +280,36 @@ def budget(chain: Chain, filt: Filter, fs_hz: float, *, meter=(0.0, None), n_bin
         "dynamic_range_db": 10 * math.log10(fs_v2 / total),
         "dynamic_range_a_db": 10 * math.log10(fs_v2 / total_a),
         "meter": {"low_hz": lo, "high_hz": hi},
+        **input_referred(chain, spectra, wm, wm * a_weighting_power(freqs)),
     }
+
+
+#: standard noise temperature of the noise-figure definition, K (IEEE Std 161; Friis 1944)
+T0_K = 290.0
+ANALOG_PARTS = ("source_thermal", "amplifier_voltage", "amplifier_current")
+
+
+def noise_figure_db(chain: Chain) -> float | None:
+    """Spot noise figure of the amplifier at the stated source, dB (white densities).
+
+    F = 1 + (e_n² + (i_n·R_s)²) / (4·k·T0·R_s) with T0 = 290 K (the IEEE
+    definition); None for an ideal source (R_s = 0), where F is undefined.
+    """
+    from .chain import BOLTZMANN
+
+    if chain.source_ohms <= 0:
+        return None
+    excess = chain.en_v_rthz**2 + (chain.in_a_rthz * chain.source_ohms) ** 2
+    return 10.0 * math.log10(1.0 + excess / (4.0 * BOLTZMANN * T0_K * chain.source_ohms))
+
+
+def input_referred(chain: Chain, spectra, weights, weights_a) -> dict:
+    """``noise_figure_db``, ``ein_dbu`` and ``ein_dbu_a``: the analog noise (source and amplifier,
+    not the converter) referred to the amplifier input over the meter band, unweighted and
+    A-weighted, as preamp data sheets quote it."""
+    g2 = chain.gain**2
+    p = sum(v for k, v in spectra.power(weights).items() if k in ANALOG_PARTS) / g2
+    pa = sum(v for k, v in spectra.power(weights_a).items() if k in ANALOG_PARTS) / g2
+    return {"noise_figure_db": noise_figure_db(chain),
+            "ein_dbu": vrms_to_dbu(math.sqrt(p)) if p > 0 else None,
+            "ein_dbu_a": vrms_to_dbu(math.sqrt(pa)) if pa > 0 else None}

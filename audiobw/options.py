@@ -58,6 +58,17 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "meter": ("meter", "choice:full,aes17", "meter band: full (0 to fs/2) or aes17 (20 Hz to 20 kHz)"),
     "tone": ("meter", "frequency", "THD+N test tone, Hz (default 997)"),
     "tone_level": ("meter", "level_dbfs", "THD+N test tone level, dBFS (default -1)"),
+    "source_level": ("source", "voltage", "the program's rms at the source, ahead of the gain (-50dBu, 2mVrms, "
+                     "-60dBV); then --gain scales program and source noise together"),
+    "spl": ("source", "db_any", "microphone: the program's sound pressure level, dB SPL re 20 µPa (with "
+            "--mic-sensitivity)"),
+    "mic_sensitivity": ("source", "mic_sensitivity", "microphone sensitivity, 10mV/Pa or -40dBV/Pa (with --spl)"),
+    "rank": ("grid", "choice:enbw,bandwidth", "what the choice minimises among passing cases: enbw (the "
+             "bandwidth noise grows with; default) or bandwidth (−3 dB)"),
+    "tie": ("grid", "fraction", "cases within this share of the best rank figure tie, and go to the lower "
+            "order, then the gentler family (default 1%)"),
+    "min_headroom": ("targets", "db_any", "target: minimum headroom, dB: converter full scale over the "
+                     "program's peak at the converter"),
 }
 
 

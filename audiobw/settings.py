@@ -32,11 +32,12 @@ from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, R
                       option_name)
 
 CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
-              "amp_bandwidth", "bits", "full_scale", "dither", "stage")
-GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
+              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
+GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
+             "rank", "tie")
 TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
                  "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
-                 "max_ber": "max_ber", "min_eye": "min_eye"}
+                 "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db"}
 METER_KEYS = ("meter", "tone", "tone_level")
 
 
@@ -119,6 +120,8 @@ def _parse(key: str, raw: Raw):
         return _parse_input_level(v, name)
     if kind == "bit_rate":
         return _parse_bit_rate(v, name)
+    if kind == "mic_sensitivity":
+        return _parse_mic_sensitivity(v, name)
     if kind == "probability":
         return _parse_probability(v, name)
     return units.parse_quantity(v, kind, name=name)
@@ -150,6 +153,25 @@ def _parse_probability(v, name):
     return p
 
 
+#: reference sound pressure of dB SPL, Pa (ISO 1683)
+P_REF_PA = 20e-6
+
+
+def _parse_mic_sensitivity(v, name):
+    """Microphone sensitivity in V/Pa from '10mV/Pa', '-40dBV/Pa' (or a bare V/Pa number)."""
+    text = str(v).strip()
+    if text.endswith("/Pa"):
+        text = text[:-3].strip()
+    try:
+        s = units.parse_quantity(text if not isinstance(v, (int, float)) else v, "voltage", name=name)
+    except ParameterError:
+        raise ParameterError(f"{name}: {v!r} is not a microphone sensitivity; accepted: 10mV/Pa or "
+                             "-40dBV/Pa") from None
+    if not s > 0:
+        raise ParameterError(f"{name}: {v!r} is out of range; accepted: a sensitivity > 0 V/Pa")
+    return s
+
+
 def _parse_input_level(v, name):
     """('gain', dB) or ('dbfs', level) or ('vrms', volts)."""
     text = str(v).strip()
@@ -178,6 +200,8 @@ class Settings:
     input_level: tuple | None
     program: str = "audio"
     bit_rate: object = None
+    #: the program's rms at the source, V (from --source-level, or --spl with --mic-sensitivity)
+    source_vrms: float | None = None
 
     def grid_for(self, nyquist_hz: float):
         """The Grid, with defaults for the edges that were not given, fitted to ``nyquist_hz``."""
@@ -204,10 +228,22 @@ class Settings:
             high_edges_hz=g.get("high_edges", ()),
             ripple_db=g.get("ripple", 0.1),
             stopband_db=g.get("stopband", 60.0),
+            rank=g.get("rank", "enbw"),
+            tie=g.get("tie", 0.01),
         )
 
     def chain_for(self, analysis) -> Chain:
-        """The chain with ``--input-level`` resolved against the program's measured rms."""
+        """The chain with ``--input-level`` or the source level resolved against the program's measured rms.
+
+        With a source level the program's rms at the converter is source_vrms·G, so
+        the gain raises program and source noise together.
+        """
+        if self.source_vrms is not None:
+            program_v = self.chain.full_scale_vrms * 10 ** (analysis.rms_dbfs / 20)
+            from dataclasses import replace
+
+            gain = 20 * math.log10(self.source_vrms * self.chain.gain / program_v)
+            return replace(self.chain, input_gain_db=gain)
         if self.input_level is None:
             return self.chain
         kind, value = self.input_level
@@ -270,5 +306,65 @@ def build(raw: dict[str, Raw]) -> Settings:
     if program != "data" and (data_targets or bit_rate is not None):
         given = raw[data_targets[0]].origin if data_targets else raw["bit_rate"].origin
         raise ParameterError(f"{given}: applies to data programs only; accepted: add --program data")
+    source_vrms = _source_vrms(parsed, raw)
     return Settings(chain=chain, grid_values=grid_values, meter=meter, targets=targets,
-                    input_level=parsed.get("input_level"), program=program, bit_rate=bit_rate)
+                    input_level=parsed.get("input_level"), program=program, bit_rate=bit_rate,
+                    source_vrms=source_vrms)
+
+
+def sanity_warnings(settings: "Settings", raw_keys=()) -> list[str]:
+    """One line per value that is legal but almost surely a slip (a missing SI prefix and the like)."""
+    from .chain import BOLTZMANN, vrms_to_dbu
+
+    c, out = settings.chain, []
+    if c.en_v_rthz > 1e-6:
+        v = c.gain * c.en_v_rthz * math.sqrt(20000.0)
+        out.append(f"--en {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
+                   "over 20 kHz); amplifiers are 0.5 to 50 nV/√Hz: was a prefix left off (1.2n)?")
+    if c.in_a_rthz > 1e-9:
+        out.append(f"--in {c.in_a_rthz:g} A/√Hz is {c.in_a_rthz * 1e12:.3g} pA/√Hz; amplifiers are 0.01 to "
+                   "10 pA/√Hz: was a prefix left off (1.5p)?")
+    if settings.source_vrms is not None:
+        at_converter = settings.source_vrms * c.gain
+        if at_converter > c.full_scale_vrms:
+            out.append(f"the source level ({vrms_to_dbu(settings.source_vrms):.1f} dBu) times the gain "
+                       f"({c.gain_db:g} dB) is {vrms_to_dbu(at_converter):.1f} dBu rms at the converter, above its "
+                       f"full scale ({vrms_to_dbu(c.full_scale_vrms):.1f} dBu): the converter clips; lower --gain")
+    thermal = math.sqrt(4 * BOLTZMANN * c.temperature_k * c.source_ohms) if c.source_ohms > 0 else 0.0
+    if c.source_ohms > 10e6:
+        out.append(f"--source-ohms {c.source_ohms:g} Ω: its thermal noise alone is {thermal * 1e9:.3g} nV/√Hz")
+    return out
+
+
+def default_chain_text(c) -> str:
+    """The chain in one line, for when the user gave none."""
+    return (f"Rs {c.source_ohms:g} Ω at {c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {c.en_v_rthz * 1e9:g} nV/√Hz, "
+            f"i_n {c.in_a_rthz * 1e12:g} pA/√Hz, {c.bits} bits, full scale {c.full_scale_vrms:g} V rms, "
+            f"dither {c.dither}, {c.stage} filter stage, the program taken as it is at the converter")
+
+
+def _source_vrms(parsed: dict, raw: dict) -> float | None:
+    """The program's rms at the source from --source-level or --spl × --mic-sensitivity; refuses mixtures."""
+    has_spl, has_sens = "spl" in parsed, "mic_sensitivity" in parsed
+    if has_spl != has_sens:
+        given = raw["spl" if has_spl else "mic_sensitivity"].origin
+        raise ParameterError(f"{given}: needs {'--mic-sensitivity' if has_spl else '--spl'} as well; accepted: "
+                             "--spl 94 --mic-sensitivity 10mV/Pa")
+    if "source_level" in parsed and has_spl:
+        raise ParameterError(f"{raw['source_level'].origin}: give the source level or --spl with "
+                             "--mic-sensitivity, not both")
+    if "source_level" in parsed:
+        v = parsed["source_level"]
+        if not v > 0:
+            raise ParameterError(f"{raw['source_level'].origin}: {raw['source_level'].value!r} is out of range; "
+                                 "accepted: a level > 0 V rms, e.g. -50dBu")
+        given = raw["source_level"].origin
+    elif has_spl:
+        v = parsed["mic_sensitivity"] * P_REF_PA * 10 ** (parsed["spl"] / 20)
+        given = raw["spl"].origin
+    else:
+        return None
+    if "input_level" in parsed:
+        raise ParameterError(f"{raw['input_level'].origin}: states the level at the converter, {given} the level "
+                             "at the source; give one of them")
+    return v

@@ -127,6 +127,14 @@ class Analysis:
         """(lower, upper) limits holding ``fraction`` of the power, equal tails (ITU-R SM.328)."""
         return occupied_band(self.freqs_hz, self.psd, self.weights_hz, fraction)
 
+    def occupied_band_channels_hz(self, fraction: float = 0.99) -> list[tuple[float, float]]:
+        """Per channel: (lower, upper) limits holding ``fraction`` of that channel's own power.
+
+        :meth:`occupied_band_hz` takes the power summed over channels, so a quiet
+        channel with a wider spectrum barely moves it; these figures show each one.
+        """
+        return [occupied_band(self.freqs_hz, p, self.weights_hz, fraction) for p in self.psd_channels]
+
 
 def occupied_band(freqs_hz, psd, weights_hz, fraction: float = 0.99) -> tuple[float, float]:
     """Occupied band of a one-sided PSD: ``(1 - fraction)/2`` of the power below and above.

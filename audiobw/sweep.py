@@ -45,6 +45,8 @@ class Grid:
     high_edges_hz: tuple = ()
     ripple_db: float = 0.1
     stopband_db: float = 60.0
+    rank: str = "enbw"
+    tie: float = 0.01
 
     def specs(self, *, stage: str, fs_hz: float) -> list[FilterSpec]:
         """Every case as a FilterSpec, validated for ``fs_hz``."""
@@ -76,7 +78,7 @@ class Grid:
             "response": self.response, "families": list(self.families), "orders": list(self.orders),
             "cutoffs_hz": list(self.cutoffs_hz), "low_edges_hz": list(self.low_edges_hz),
             "high_edges_hz": list(self.high_edges_hz), "ripple_db": self.ripple_db,
-            "stopband_db": self.stopband_db,
+            "stopband_db": self.stopband_db, "rank": self.rank, "tie": self.tie,
         }
 
 
@@ -94,7 +96,7 @@ DATA_CASE_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sig
 CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
              "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
              "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
-             "passes", "fails", "margins_db")
+             "passes", "fails", "margins_db", "headroom_db")
 
 
 @dataclass
@@ -125,6 +127,11 @@ class SweepResult:
                 "frames": a.frames, "peak_dbfs": _round(a.peak_dbfs), "rms_dbfs": _round(a.rms_dbfs),
                 "occupied_bw_hz": _round(hi_occ - lo_occ), "occupied_low_hz": _round(lo_occ),
                 "occupied_high_hz": _round(hi_occ),
+                "occupied_basis": "power summed over channels" if a.channels > 1 else "the one channel",
+                "occupied_channels": [
+                    {"channel": i + 1, "occupied_bw_hz": _round(h - lo), "occupied_low_hz": _round(lo),
+                     "occupied_high_hz": _round(h)}
+                    for i, (lo, h) in enumerate(a.occupied_band_channels_hz())],
             },
             "chain": self.chain.to_json(),
             "grid": self.grid.to_json(),
@@ -186,6 +193,8 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
     """
     specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
     scorer = Scorer(analysis, chain, meter)
+    # converter full-scale peak over the program's sample peak at the converter (negative: it clips)
+    headroom = -(analysis.peak_dbfs + chain.input_gain_db) if math.isfinite(analysis.peak_dbfs) else None
     rows = []
     for i, spec in enumerate(specs, start=1):
         filt = design(spec)
@@ -193,6 +202,7 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
                "poles": spec.poles, "design_low_hz": spec.low_hz, "design_high_hz": spec.high_hz}
         row.update(scorer.score(filt))
         row["bandwidth_hz"] = filt.bandwidth_3db(analysis.nyquist_hz)
+        row["headroom_db"] = headroom
         if data is not None:
             row.update(_data_metrics(filt, analysis, chain, data))
         passes, fails, margins = check_targets(row, targets)
@@ -213,11 +223,26 @@ def _data_metrics(filt, analysis: Analysis, chain: Chain, data) -> dict:
     return score_data(filt, data, sigma)
 
 
-def choose(cases: list[dict], targets: dict) -> tuple[dict | None, dict]:
-    """Apply the choice rule; returns (choice, unmet)."""
+#: gentler families first when ranks tie: no ripple before ripple
+FAMILY_GENTLENESS = {"butterworth": 0, "bessel": 0, "chebyshev1": 1, "elliptic": 2}
+
+
+def choose(cases: list[dict], targets: dict, rank: str = "enbw", tie: float = 0.01) -> tuple[dict | None, dict]:
+    """Apply the choice rule; returns (choice, unmet).
+
+    Passing cases are ranked by ``rank`` ("enbw": the bandwidth noise grows
+    with; "bandwidth": the −3 dB width); every case within ``tie`` (a share)
+    of the best figure ties, and a tie goes to the lower order, then the
+    gentler family (Butterworth/Bessel before Chebyshev/elliptic), then the
+    smaller figure.
+    """
     passing = [c for c in cases if c["passes"]]
     if passing:
-        best = min(passing, key=lambda c: (c["bandwidth_hz"], c["enbw_hz"], c["order"], c["id"]))
+        key = "enbw_hz" if rank == "enbw" else "bandwidth_hz"
+        lowest = min(c[key] for c in passing)
+        tied = [c for c in passing if c[key] <= lowest * (1.0 + tie)]
+        best = min(tied, key=lambda c: (c["order"], FAMILY_GENTLENESS.get(c["family"], 3), c[key],
+                                        c["bandwidth_hz"], c["enbw_hz"], c["id"]))
         margins = {k: v for k, v in best["margins_db"].items() if v is not None}
         binding = min(margins, key=lambda k: (margins[k], TARGET_KEYS.index(k))) if margins else None
         narrower = [c for c in cases if c["family"] == best["family"] and c["order"] == best["order"]
@@ -278,7 +303,7 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
     if data is None and any(k in targets for k in ("max_ber", "min_eye")):
         raise ParameterError("--max-ber/--min-eye: apply to data programs only; accepted: add --program data")
     cases = score_cases(analysis, chain, grid, meter, targets, data=data)
-    choice, unmet = choose(cases, targets)
+    choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
     if chain.stage == "analog" and grid.response == "highpass" and chain.amp_bandwidth_hz is None:
         notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "

@@ -165,7 +165,15 @@ def test_low_rate_file_fails_on_the_grid_not_the_run(tmp_path):
                           tmp_path / "out", workers=0).doc
     assert [f["path"].rsplit("/", 1)[1] for f in doc["failed"]] == ["a.wav"]
     assert "--cutoffs" in doc["failed"][0]["reason"] and "4500" in doc["failed"][0]["reason"]
-    assert doc["counts"]["swept"] == 1 and doc["choice"]["pass_share"] == 1.0
+    # the file that cannot take the grid counts as not passing (issue 13): 1 of 2 files, so no case
+    # reaches the default full coverage and the summary says why
+    assert doc["counts"]["swept"] == 1 and doc["choice"] is None and doc["best"]["pass_share"] == 0.5
+    text = "\n".join(batch.summary_lines(doc))
+    assert "on 50.0 % of all 2 files (1 could not be swept and count as not passing)" in text
+    half = batch.run_batch([tmp_path / "a.wav", tmp_path / "b.wav"], settings(cutoffs="1000,4500"),
+                           tmp_path / "out", workers=0, coverage=0.5).doc
+    assert half["choice"]["pass_share"] == 0.5
+    assert any(f["path"].endswith("a.wav") and f["note"].startswith("could not be swept") for f in half["failing"])
 
 
 # -- interrupt and resume --------------------------------------------------------
@@ -304,7 +312,7 @@ def test_cli_summary_and_outputs(corpus3, tmp_path, capsys):
                               "--coverage", "85%", "--cutoffs", "700,1000,1400,2400,3000", "--order", "8",
                               "--max-loss", "0.5"], capsys)
     assert code == 0, err
-    assert "passes on 85.0 %" in out and "take02.wav: max_loss_db" in out and "verify them by measurement" in out
+    assert "passes on 85.0 %" in out and "take02.wav: program loss, margin" in out and "max_loss_db" not in out and "verify them by measurement" in out
     assert err == ""  # stderr is not a terminal: no progress line
     rows = (tmp_path / "c" / "corpus.csv").read_text().splitlines()
     assert rows[0].split(",")[:3] == ["id", "response", "family"] and len(rows) == 6

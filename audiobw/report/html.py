@@ -23,6 +23,7 @@ from pathlib import Path
 from urllib.parse import quote
 
 from ..clikit import LISTENING_CAUTION
+from .spec import _target_text, margin_value_text, metric_value_text
 from .spec import case_line, chain_value_text, fmt, json_pointer, passband_phrase, spec_rows, target_info
 from .text import COLUMNS
 
@@ -233,9 +234,8 @@ def page(run: dict, spec: dict, plots: list) -> str:
         bound = ""
         if b:
             t = next(t for t in spec["targets"] if t["key"] == b)
-            sense = "≥" if t["sense"] == "min" else "≤"
-            bound = (f" Bound by <strong>{esc(t['label'])} {sense} {t['limit']:g} {esc(t['unit'])}</strong>"
-                     f" (margin {spec['binding_margin_db']:.3g} dB).")
+            bound = (f" Bound by <strong>{esc(_target_text(t))}</strong>"
+                     f" (margin {esc(margin_value_text(b, spec['binding_margin_db']))}).")
         grid = (" This is the narrowest case of its family and order in the grid: extend the grid to see whether "
                 "a narrower passband also passes.") if spec["grid_limited"] else ""
         parts.append(f'<div class="verdict" id="verdict"><strong>{esc(role)}: {esc(passband_phrase(spec))}.</strong>'
@@ -243,8 +243,8 @@ def page(run: dict, spec: dict, plots: list) -> str:
                      f"{esc(spec['cases_total'])} cases meet every target.{bound}{esc(grid)}</div>")
     else:
         items = "".join(
-            f"<li>{esc(u['label'])} {'≥' if u['sense'] == 'min' else '≤'} {u['limit']:g} {esc(u['unit'])}: "
-            f"best reached {esc(fmt(u['best'], '%' if u['metric'] == 'thdn_pct' else 'dB'))}</li>"
+            f"<li>{esc(_target_text(u))}: "
+            f"best reached {esc(metric_value_text(u['metric'], u['best']))}</li>"
             for u in spec["unmet"])
         parts.append(f'<div class="verdict none" id="verdict"><strong>No passing case.</strong> None of the '
                      f"{esc(spec['cases_total'])} cases meets every target. Unmet targets and the best value any "
@@ -260,12 +260,10 @@ def page(run: dict, spec: dict, plots: list) -> str:
         rows.append(f"<tr><td>{esc(label)}</td>{_value_cell(spec, ptr, text)}</tr>")
     trows = []
     for i, t in enumerate(spec["targets"]):
-        sense = "≥" if t["sense"] == "min" else "≤"
         cls = ' class="binding"' if t["binding"] else ""
-        unit = "%" if t["metric"] == "thdn_pct" else "dB"
-        margin = f"{t['margin_db']:+.3g} dB" if t["margin_db"] is not None else "—"
-        trows.append(f"<tr{cls}><td>{esc(t['label'])} {sense} {t['limit']:g} {esc(t['unit'])}</td>"
-                     f"{_value_cell(spec, f'targets.{i}.value', fmt(t['value'], unit))}"
+        margin = margin_value_text(t["key"], t["margin_db"])
+        trows.append(f"<tr{cls}><td>{esc(_target_text(t))}</td>"
+                     f"{_value_cell(spec, f'targets.{i}.value', metric_value_text(t['metric'], t['value']))}"
                      f"<td class='n'>{esc(margin)}</td><td>{'met' if t['met'] else 'missed'}"
                      f"{' — bound the choice' if t['binding'] else ''}</td></tr>")
     nb = spec["neighbours"]

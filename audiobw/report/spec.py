@@ -509,11 +509,33 @@ def passband_phrase(spec: dict) -> str:
 
 def _target_text(t: dict) -> str:
     sense = "≥" if t["sense"] == "min" else "≤"
-    return f"{t['label']} {sense} {t['limit']:g} {t['unit']}"
+    return f"{t['label']} {sense} {t['limit']:g} {t['unit']}".rstrip()
 
 
 def _metric_unit(metric: str) -> str:
     return "%" if metric == "thdn_pct" else "dB"
+
+
+def metric_value_text(metric: str, value) -> str:
+    """A target's metric as the sheet shows it: BER and Q are plain numbers, the eye a percentage."""
+    from .text import ber_text
+
+    if value is None:
+        return "—"
+    if metric == "ber":
+        return ber_text(value)
+    if metric == "eye_fraction":
+        return f"{100 * value:.1f} % of the unfiltered eye"
+    if metric == "q":
+        return f"{value:.2f}"
+    return fmt(value, _metric_unit(metric))
+
+
+def margin_value_text(key: str, margin) -> str:
+    """A target's margin, signed; a BER that underflows a double has a margin beyond its range."""
+    if margin is None:
+        return "beyond the double range" if key == "max_ber" else "—"
+    return f"{margin:+.3g} dB"
 
 
 def spec_rows(spec: dict) -> list[tuple[str, str, str, object]]:
@@ -572,7 +594,7 @@ def spec_rows(spec: dict) -> list[tuple[str, str, str, object]]:
              f"{dl['eye_fraction']:.3f}" if dl["eye_fraction"] is not None else "—", "data_link.eye_fraction"),
             ("Data link", "eye opening", fmt(dl["eye_opening_v"], "V"), "data_link.eye_opening_v"),
             ("Data link", "Q factor", f"{dl['q']:.3g}" if dl["q"] is not None else "—", "data_link.q"),
-            ("Data link", "bit-error rate", f"{dl['ber']:.3g}" if dl["ber"] is not None else "—", "data_link.ber"),
+            ("Data link", "bit-error rate", metric_value_text("ber", dl["ber"]), "data_link.ber"),
             ("Data link", "peak-to-peak jitter", f"{dl['jitter_pp_ui']:.3g} UI" if dl["jitter_pp_ui"] is not None
              else "—", "data_link.jitter_pp_ui"),
         ]
@@ -632,7 +654,7 @@ def markdown(spec: dict, renders: list | None = None) -> str:
         out += ["| target | best reached |", "|---|---|"]
         for u in spec["unmet"]:
             sense = "≥" if u["sense"] == "min" else "≤"
-            out.append(f"| {u['label']} {sense} {u['limit']:g} {u['unit']} | {fmt(u['best'], _metric_unit(u['metric']))} |")
+            out.append(f"| {_target_text(u)} | {metric_value_text(u['metric'], u['best'])} |")
         out += ["", f"The figures below are for the **closest case** ({spec['subject']['case']}, the largest worst "
                 f"margin), which fails: {', '.join(target_info(k)[0] for k in spec['subject']['fails'])}. "
                 "It is not a recommendation.", ""]
@@ -642,7 +664,7 @@ def markdown(spec: dict, renders: list | None = None) -> str:
         b = spec["binding"]
         if b:
             t = next(t for t in spec["targets"] if t["key"] == b)
-            out += ["", f"Bound by **{_target_text(t)}** (margin {spec['binding_margin_db']:.3g} dB)."]
+            out += ["", f"Bound by **{_target_text(t)}** (margin {margin_value_text(b, spec['binding_margin_db'])})."]
         if spec["grid_limited"]:
             out += ["", "This is the narrowest case of its family and order in the grid: extend the grid to see "
                     "whether a narrower passband also passes."]
@@ -655,8 +677,8 @@ def markdown(spec: dict, renders: list | None = None) -> str:
         out.append(f"| {label} | {text} |")
     out += ["", "### Targets", "", "| target | this case | margin | met | bound the choice |", "|---|---|---|---|---|"]
     for t in spec["targets"]:
-        margin = f"{t['margin_db']:+.3g} dB" if t["margin_db"] is not None else "—"
-        out.append(f"| {_target_text(t)} | {fmt(t['value'], _metric_unit(t['metric']))} | {margin} | "
+        margin = margin_value_text(t["key"], t["margin_db"])
+        out.append(f"| {_target_text(t)} | {metric_value_text(t['metric'], t['value'])} | {margin} | "
                    f"{'yes' if t['met'] else 'no'} | {'yes' if t['binding'] else ''} |")
     out += ["", "### Margin: the neighbouring cases", ""]
     nb = spec["neighbours"]

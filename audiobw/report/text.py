@@ -15,6 +15,7 @@ TARGET_LABEL = {
     "min_ser_db": ("signal-to-error", "ser_db", "dB", "≥"),
     "max_ber": ("bit-error rate", "ber", "", "≤"),
     "min_eye": ("eye opening", "eye_fraction", "", "≥"),
+    "min_headroom_db": ("headroom", "headroom_db", "dB", "≥"),
 }
 #: table column -> (header, unit, key, format, target that marks it)
 COLUMNS = (
@@ -58,6 +59,8 @@ def _cell(fmt: str, value) -> str:
     width = int("".join(ch for ch in fmt.split(":")[1] if ch.isdigit()).split(".")[0] or 0) if ":" in fmt else 0
     if value is None:
         return "—".rjust(width)
+    if fmt.endswith("e}") and isinstance(value, float) and 0 <= value < BER_FLOOR:
+        return "<1e-300".rjust(width)
     return fmt.format(value)
 
 
@@ -92,11 +95,11 @@ def _fmt_metric(key: str, value) -> str:
     if key == "thdn_pct":
         return f"{value:.5f} %"
     if key == "ber":
-        return f"{value:.2e}"
+        return ber_text(value)
     if key == "eye_fraction":
         return f"{100 * value:.1f} % of the unfiltered opening"
     if key == "q":
-        return f"{value:.2f}"
+        return f"{value:.2f} (eye half-opening over the noise σ)"
     if key == "noise_dbfs":
         return f"{value:.1f} dBFS"
     if key == "noise_vrms":
@@ -104,6 +107,26 @@ def _fmt_metric(key: str, value) -> str:
     if key.endswith("_hz"):
         return format_quantity(value, "Hz")
     return f"{value:.2f} dB"
+
+
+#: the smallest BER printed as a number; below it the Gaussian tail underflows a double
+BER_FLOOR = 1e-300
+
+
+def ber_text(value) -> str:
+    """A bit-error rate for people: '3.10e-12', or '< 1e-300' where the double range runs out."""
+    if value is None:
+        return "n/a"
+    if value < BER_FLOOR:
+        return "< 1e-300"
+    return f"{value:.2e}"
+
+
+def margin_text(key: str, margin) -> str:
+    """A target's margin; a BER of (numerically) zero has a margin beyond the double range."""
+    if margin is None:
+        return "beyond the double range" if key == "max_ber" else "n/a"
+    return f"{margin:.3g} dB"
 
 
 def band_words(response: str, low_hz, high_hz, hz=lambda v: format_quantity(v, "Hz")) -> str:
@@ -128,7 +151,8 @@ def closing_paragraph(doc: dict) -> str:
     head = (f"{inp['path']}: {inp['duration_s']:.1f} s, {inp['channels']} ch, {inp['sample_rate_hz']} Hz; "
             f"peak {inp['peak_dbfs']:.1f} dBFS, rms {inp['rms_dbfs']:.1f} dBFS, 99 % occupied bandwidth "
             f"{format_quantity(inp['occupied_bw_hz'], 'Hz')} "
-            f"({format_quantity(inp['occupied_low_hz'], 'Hz')} to {format_quantity(inp['occupied_high_hz'], 'Hz')}).")
+            f"({format_quantity(inp['occupied_low_hz'], 'Hz')} to {format_quantity(inp['occupied_high_hz'], 'Hz')})"
+            + _per_channel_occupied(inp) + ".")
     n_pass = sum(1 for c in doc["cases"] if c["passes"])
     lines = [head, f"{n_pass} of {len(cases)} cases meet every target."]
     choice = doc.get("choice")
@@ -141,7 +165,7 @@ def closing_paragraph(doc: dict) -> str:
             label, metric, unit, sense = TARGET_LABEL[b]
             margin = choice.get("binding_margin_db")
             lines.append(f"Binding target: {label} {sense} {_target_text(b, targets[b])} "
-                         f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin:.3g} dB).")
+                         f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin_text(b, margin)}).")
         if choice.get("grid_limited"):
             lines.append("This is the narrowest case of its family and order in the grid: extend the grid "
                          "to see whether a narrower passband also passes.")
@@ -175,12 +199,22 @@ def closing_paragraph(doc: dict) -> str:
                      f"{format_quantity(d['nyquist_min_hz'], 'Hz')}.")
         q = d.get("q_optimal")
         if q:
-            lines.append(f"Q is highest ({q['q']:.2f}, BER {q['ber']:.2e}) at case {q['case']}, bandwidth "
+            lines.append(f"Q is highest ({q['q']:.2f}, BER {ber_text(q['ber'])}) at case {q['case']}, bandwidth "
                          f"{format_quantity(q['bandwidth_hz'], 'Hz')}: narrower costs more in inter-symbol "
                          "interference than it saves in noise.")
     for note in doc.get("notes", []):
         lines.append("Note: " + note)
     return "\n".join(lines)
+
+
+def _per_channel_occupied(inp: dict) -> str:
+    """', power summed over 2 channels; per channel: ch 1 …, ch 2 …' for a multichannel program."""
+    chans = inp.get("occupied_channels") or []
+    if inp.get("channels", 1) <= 1 or not chans:
+        return ""
+    each = "; ".join(f"ch {c['channel']} {format_quantity(c['occupied_low_hz'], 'Hz')} to "
+                     f"{format_quantity(c['occupied_high_hz'], 'Hz')}" for c in chans)
+    return f", taken over the power summed across {inp['channels']} channels (per channel: {each})"
 
 
 def _target_text(key: str, value: float) -> str:
@@ -212,4 +246,11 @@ def budget_text(b: dict, *, header: str) -> str:
                  f"{format_quantity(b['meter']['low_hz'], 'Hz')} to {format_quantity(b['meter']['high_hz'], 'Hz')}")
     lines.append(f"Dynamic range for a full-scale sine: {b['dynamic_range_db']:.1f} dB "
                  f"({b['dynamic_range_a_db']:.1f} dB A-weighted)")
+    if b.get("ein_dbu") is not None:
+        nf = b.get("noise_figure_db")
+        nf_text = f"noise figure {nf:.2f} dB at the source resistance" if nf is not None else \
+            "noise figure undefined (ideal source, 0 Ω)"
+        a = b.get("ein_dbu_a")
+        lines.append(f"Equivalent input noise (source and amplifier, meter band): {b['ein_dbu']:.1f} dBu"
+                     + (f" ({a:.1f} dBu A-weighted)" if a is not None else "") + f"; {nf_text}")
     return "\n".join(lines)
