@@ -63,7 +63,7 @@ def open_info(path) -> AudioInfo:
     if p.stat().st_size == 0:
         raise AudioFileError(f"{p}: empty file (0 bytes)")
     try:
-        info = sf.info(str(p))
+        info = sf.info(os.fsencode(p))
     except Exception as exc:  # libsndfile's errors carry no stable type
         raise AudioFileError(f"{p}: not a readable audio file ({_short(exc)})") from None
     if not 1 <= info.channels <= MAX_CHANNELS:
@@ -127,7 +127,7 @@ def iter_blocks(path, *, blocksize: int = 1 << 17):
 
     p = Path(path)
     try:
-        handle = sf.SoundFile(str(p))
+        handle = sf.SoundFile(os.fsencode(p))
     except Exception as exc:
         raise AudioFileError(f"{p}: not a readable audio file ({_short(exc)})") from None
     with handle:

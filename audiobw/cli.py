@@ -6,6 +6,7 @@ Exit status: 0 done; 1 unusable data or a failed write; 2 a usage mistake
 
 from __future__ import annotations
 
+import math
 import os
 import sys
 import warnings
@@ -61,7 +62,8 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     out_dir = out or _default_out(input)
     progress = Progress(f"analysing {input.name}")
     try:
-        doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress)
+        doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress,
+                                notify=lambda line: click.echo(f"audiobw: {line}", err=True))
     finally:
         progress.close()
     extra = []
@@ -120,12 +122,23 @@ def noise(band, family, order, ripple, stopband, rate, as_json, chain_file, **kw
     settings = settings_from(kwargs, chain_file)
     b, header = noise_budget(settings, band=band, rate=rate)
     if as_json:
-        click.echo(json.dumps(b, indent=2, allow_nan=False, default=str))
+        click.echo(json.dumps(_finite_or_null(b), indent=2, allow_nan=False, default=str))
         return
     from .report.text import budget_text
 
     click.echo(budget_text(b, header=header))
     click.echo(ESTIMATE_CAUTION)
+
+
+def _finite_or_null(obj):
+    """JSON has no infinity: a contributor of zero power (Rs = 0) has -inf dB, written as null."""
+    if isinstance(obj, dict):
+        return {k: _finite_or_null(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite_or_null(v) for v in obj]
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
 
 
 @cli.command(context_settings=CONTEXT)

@@ -1,0 +1,275 @@
+"""The outside fuzz, kept in the suite: hostile values, configs, names, files, interrupts.
+
+Each case asserts the promise of docs/robustness.md: one line on stderr naming
+the option, key or file, the value and what is accepted; no traceback; exit 2
+for a user mistake, 1 for data or writes, 130 for an interrupt; inputs never
+modified.  Hypothesis runs few examples (deadline=None) so the file stays quick.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+import soundfile as sf
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from audiobw.cli import main
+
+from .conftest import REPO
+
+FS = 48000
+FEW = settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+
+
+def one_line(err: str) -> str:
+    lines = [ln for ln in err.strip().splitlines() if not ln.startswith("Listening caution")]
+    assert len(lines) == 1, err
+    assert "Traceback" not in err, err
+    return lines[0]
+
+
+def run(args, capsys):
+    code = main([str(a) if not isinstance(a, (bytes, str)) else a for a in args])
+    return code, capsys.readouterr()
+
+
+@pytest.fixture(scope="module")
+def wav(tmp_path_factory):
+    p = tmp_path_factory.mktemp("fuzz") / "prog.wav"
+    rng = np.random.default_rng(17)
+    t = np.arange(FS) / FS
+    x = 0.3 * np.sin(2 * np.pi * 440 * t) + rng.normal(0, 0.01, FS)
+    sf.write(str(p), x[:, None], FS, subtype="PCM_16")
+    return p
+
+
+# -- option values: one physical range per concept ------------------------------------------------------
+
+VALUE_CASES = [
+    # (args after the command's fixed ones, option named, exit)
+    (["noise", "--band", ":20k", "--source-ohms", "1e308"], "--source-ohms", 2),
+    (["noise", "--band", ":20k", "--en", "1e300"], "--en", 2),
+    (["noise", "--band", ":20k", "--in", "1e300"], "--in", 2),
+    (["noise", "--band", ":20k", "--full-scale", "1e300"], "--full-scale", 2),
+    (["noise", "--band", ":20k", "--full-scale", "1e-300"], "--full-scale", 2),
+    (["noise", "--band", ":20k", "--temperature", "1e300"], "--temperature", 2),
+    (["noise", "--band", ":20k", "--gain", "1e300"], "--gain", 2),
+    (["noise", "--band", ":20k", "--gain", "-1e300"], "--gain", 2),
+    (["noise", "--band", ":20k", "--h2", "-1e300"], "--h2", 2),
+    (["noise", "--band", ":20k", "--amp-bandwidth", "1e-300"], "--amp-bandwidth", 2),
+    (["noise", "--band", ":20k", "--amp-bandwidth", "1e300"], "--amp-bandwidth", 2),
+    (["noise", "--band", ":1e-300"], "--band", 2),
+    (["noise", "--band", "1e-300:20k"], "--band", 2),
+    (["noise", "--band", ":20k", "--rate", "1e300"], "--rate", 2),
+    (["bits", "--bit-rate", "1e-300", "--out", "x.wav"], "--bit-rate", 2),
+    (["bits", "--bit-rate", "1e-3", "--out", "x.wav"], "--bit-rate", 2),
+    (["bits", "--bit-rate", "2k", "--seed", "-1", "--out", "x.wav"], "--seed", 2),
+    (["bits", "--bit-rate", "2k", "--seed", "1e300", "--out", "x.wav"], "--seed", 2),
+    (["bits", "--bit-rate", "2k", "--seed", "99999999999999999999999", "--out", "x.wav"], "--seed", 2),
+    (["bits", "--bit-rate", "2k", "--full-scale", "1e308", "--out", "x.wav"], "--full-scale", 2),
+]
+
+
+@pytest.mark.parametrize("args,option,code", VALUE_CASES, ids=[" ".join(c[0][:4]) for c in VALUE_CASES])
+def test_extreme_option_values_are_refused_with_the_range(tmp_path, capsys, monkeypatch, args, option, code):
+    monkeypatch.chdir(tmp_path)
+    got, io = run(args, capsys)
+    line = one_line(io.err)
+    assert got == code and option in line and "accepted" in line, io.err
+    assert not (tmp_path / "x.wav").exists()
+
+
+SWEEP_VALUE_CASES = [
+    (["--cutoffs", "1e-300"], "--cutoffs"),
+    (["--cutoffs", "1e308"], "--cutoffs"),
+    (["--cutoffs", "1e-300:1k:4"], "--cutoffs"),
+    (["--source-ohms", "1e308"], "--source-ohms"),
+    (["--input-level", "1e300Vrms"], "--input-level"),
+    (["--input-level", "1e300dB"], "--input-level"),
+    (["--input-level", "-1e300dBFS"], "--input-level"),
+    (["--min-snr", "1e300"], "--min-snr"),
+    (["--max-loss", "1e300"], "--max-loss"),
+    (["--tone", "1e-300"], "--tone"),
+    (["--tone-level", "-1e300"], "--tone-level"),
+    (["--min-ser", "-1e300"], "--min-ser"),
+    (["--max-lsd", "1e300"], "--max-lsd"),
+]
+
+
+@pytest.mark.parametrize("extra,option", SWEEP_VALUE_CASES, ids=[" ".join(c[0]) for c in SWEEP_VALUE_CASES])
+def test_extreme_sweep_values_are_refused_before_any_output(wav, tmp_path, capsys, extra, option):
+    out = tmp_path / "o"
+    got, io = run(["sweep", wav, "--max-loss", "1", *extra, "--out", out], capsys)
+    line = one_line(io.err)
+    assert got == 2 and option in line and "accepted" in line, io.err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("extra,option", [
+    (["--band", ":1e-300"], "--band"),
+    (["--band", ":5k", "--excerpt-at", "1e308"], "--excerpt-at"),
+    (["--band", ":5k", "--excerpt", "1e308"], "--excerpt"),
+    (["--band", ":5k", "--seed", "-1"], "--seed"),
+    (["--band", ":5k", "--seed", "abc"], "--seed"),
+    (["--band", ":5k", "--loudness", "1e300"], "--loudness"),
+    (["--band", ":5k", "--ceiling", "1e300"], "--ceiling"),
+])
+def test_extreme_render_values_are_refused(wav, tmp_path, capsys, extra, option):
+    out = tmp_path / "r"
+    got, io = run(["render", wav, *extra, "--out", out], capsys)
+    line = one_line(io.err)
+    assert got == 2 and option in line and "accepted" in line, io.err
+    assert not out.exists()
+
+
+@FEW
+@given(exponent=st.integers(-330, 330), sign=st.sampled_from([1, -1]),
+       key=st.sampled_from(["source_ohms", "en", "in", "full_scale", "temperature", "gain", "amp_bandwidth",
+                            "tone", "input_level", "cutoffs"]))
+def test_any_magnitude_gives_figures_or_one_line(wav, tmp_path_factory, capsys, exponent, sign, key):
+    """Any power of ten, either sign, in any numeric key: a finite result or a one-line refusal."""
+    from audiobw.options import OPTIONS
+
+    section = OPTIONS[key][0]
+    value = sign * 10.0 ** exponent if exponent < 308 else sign * 1.7e308
+    d = tmp_path_factory.mktemp("mag")
+    cfg = d / "c.toml"
+    cfg.write_text(f"[{section}]\n{key} = {value!r}\n", encoding="utf-8")
+    got, io = run(["noise", "--band", "20:20k", "--chain", cfg, "--json"], capsys)
+    if got == 0:
+        budget = json.loads(io.out)
+        assert all(math.isfinite(v) for v in _numbers(budget)), budget
+    else:
+        line = one_line(io.err)
+        assert got == 2 and key in line and "accepted" in line, io.err
+
+
+def _numbers(obj):
+    if isinstance(obj, dict):
+        for v in obj.values():
+            yield from _numbers(v)
+    elif isinstance(obj, list):
+        for v in obj:
+            yield from _numbers(v)
+    elif isinstance(obj, (int, float)) and not isinstance(obj, bool):
+        yield float(obj)
+
+
+# -- samples at the ends of float64 ---------------------------------------------------------------------
+
+@pytest.mark.parametrize("value,needle", [(5e-324, "silence"), (1.7e308, "overflow"), (1e-200, "silence"),
+                                          (1e200, "overflow")])
+def test_extreme_float64_samples_are_refused_before_any_output(tmp_path, capsys, value, needle):
+    x = np.full(FS, value)
+    x[::2] *= -1
+    p = tmp_path / "x.wav"
+    sf.write(str(p), x[:, None], FS, subtype="DOUBLE")
+    before = p.read_bytes()
+    out = tmp_path / "o"
+    got, io = run(["sweep", p, "--max-loss", "1", "--out", out], capsys)
+    line = one_line(io.err)
+    assert got == 1 and needle in line and "x.wav" in line, io.err
+    assert not out.exists() and p.read_bytes() == before
+
+
+# -- the grid: a stated cap and an estimate -----------------------------------------------------------------
+
+def test_a_grid_above_the_cap_is_refused_with_its_count(wav, tmp_path, capsys):
+    got, io = run(["sweep", wav, "--response", "bandpass", "--low-edges", "10:1k:10000",
+                   "--high-edges", "2k:20k:10000", "--max-loss", "1", "--out", tmp_path / "o"], capsys)
+    line = one_line(io.err)
+    assert got == 2 and "100,000,000 cases" in line and "200,000" in line, io.err
+
+
+def test_grid_count_matches_the_cases_built():
+    from audiobw.sweep import Grid
+
+    g = Grid(response="bandpass", families=("butterworth", "bessel"), orders=(2, 4),
+             low_edges_hz=(10.0, 100.0, 3000.0), high_edges_hz=(50.0, 2000.0, 20000.0))
+    assert g.count() == len(g.specs(stage="analog", fs_hz=48000.0)) == 2 * 2 * (3 + 2 + 1)
+
+
+def test_a_large_grid_gets_a_time_estimate_on_stderr(wav, tmp_path, capsys, monkeypatch):
+    import audiobw.sweep as sweep_mod
+
+    monkeypatch.setattr(sweep_mod, "ESTIMATE_FROM_CASES", 20)
+    got, io = run(["sweep", wav, "--cutoffs", "2k:20k:24", "--max-loss", "1", "--out", tmp_path / "o"], capsys)
+    assert got == 0
+    assert "24 cases to score: about 0 s at 0.5 ms per case" in io.err and "cases to score" not in io.out
+
+
+# -- configs: depth, size, types ----------------------------------------------------------------------------
+
+TOML_CASES = [
+    ("[source]\nsource_ohms = " + "[" * 3000 + "]" * 3000 + "\n", "nested too deeply"),
+    ("[source]\nsource_ohms = " + "{a=" * 3000 + "1" + "}" * 3000 + "\n", "nested too deeply"),
+    ("[source]\nsource_ohms = '" + "1" * 2_000_000 + "'\n", "too large"),
+    ("[source]\nsource_ohms = 1e308\n", "physical range"),
+    ("[source]\nsource_ohms = nan\n", "not a finite number"),
+    ("[source]\nsource_ohms = inf\n", "not a finite number"),
+    ("[source]\nsource_ohms = -inf\n", "not a finite number"),
+    ("[amplifier]\nen = 1e300\n", "physical range"),
+    ("[amplifier]\namp_bandwidth = 1e-300\n", "physical range"),
+    ("[converter]\nfull_scale = 1e308\n", "physical range"),
+    ("[source]\ninput_level = '1e300Vrms'\n", "physical range"),
+    ("[source]\ninput_level = 1e300\n", "physical range"),
+    ("[source]\ntemperature = 1e300\n", "physical range"),
+    ("[source]\nsource_ohms = 1979-05-27\n", "source_ohms"),
+    ("[source]\nsource_ohms = [1, 2]\n", "source_ohms"),
+    ("[grid]\norder = 'four'\n", "order"),
+    ("[grid]\ncutoffs = 1e-300\n", "cutoffs"),
+    ("[grid]\ncutoffs = []\n", "cutoffs"),
+    ("[converter]\nbits = 24.5\n", "bits"),
+    ("[targets]\nmin_snr = '1e400'\n", "min_snr"),
+]
+
+
+@pytest.mark.parametrize("text,needle", TOML_CASES, ids=[f"toml{i}" for i in range(len(TOML_CASES))])
+def test_hostile_configs_give_exit_2_and_one_line(wav, tmp_path, capsys, text, needle):
+    cfg = tmp_path / "c.toml"
+    cfg.write_text(text, encoding="utf-8")
+    got, io = run(["sweep", wav, "--chain", cfg, "--max-loss", "1", "--out", tmp_path / "o"], capsys)
+    line = one_line(io.err)
+    assert got == 2 and needle in line, io.err
+    assert len(line) < 600
+
+
+# -- trials-score: keys and answer sheets ---------------------------------------------------------------
+
+def _key(tmp_path, trials):
+    k = tmp_path / "trial-key.json"
+    k.write_text(json.dumps({"format": "audiobw-trial-key/1", "trials": trials}), encoding="utf-8")
+    return k
+
+
+@pytest.mark.parametrize("trials,answers,needle", [
+    ([{"trial": 5, "processed": "first"}], "1 first\n", "trial 1 is not in the key; accepted: 5"),
+    ([1, 2], "1 first\n", "trials[0]"),
+    ([{"trial": "abc", "processed": "first"}], "1 first\n", "trials[0]"),
+    ([{"trial": 1, "processed": "first"}, {"trial": 1, "processed": "second"}], "1 first\n", "trials[1]"),
+    ([{"trial": True, "processed": "first"}], "1 first\n", "trials[0]"),
+    ([{"trial": 1, "processed": "third"}], "1 first\n", "trials[0]"),
+    ([{"trial": 1, "processed": "first"}], "\u00b2 first\n", "line 1"),
+    ([{"trial": 1, "processed": "first"}], "\u0661 first\n", "line 1"),
+    ([{"trial": 1, "processed": "first"}], "9" * 5000 + " first\n", "line 1"),
+])
+def test_bad_trial_keys_and_answers_give_one_line(tmp_path, capsys, trials, answers, needle):
+    from audiobw.render import KEY_FORMAT
+
+    k = tmp_path / "trial-key.json"
+    k.write_text(json.dumps({"format": KEY_FORMAT, "trials": trials}), encoding="utf-8")
+    a = tmp_path / "answers.txt"
+    a.write_text(answers, encoding="utf-8")
+    got, io = run(["trials-score", k, a], capsys)
+    line = one_line(io.err)
+    assert got == 2 and needle in line, io.err
