@@ -201,9 +201,9 @@ def atomic_path(target, *, inputs=()):
 
 
 def write_text_atomic(target, text: str, *, inputs=()) -> Path:
-    """Write ``text`` (UTF-8) to ``target`` atomically."""
+    """Write ``text`` (UTF-8; an undecodable byte of a file name, a lone surrogate, as \\udcNN) to ``target`` atomically."""
     with atomic_path(target, inputs=inputs) as tmp:
-        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+        with open(tmp, "w", encoding="utf-8", errors="backslashreplace", newline="\n") as fh:
             fh.write(text)
             fh.flush()
             os.fsync(fh.fileno())

@@ -56,11 +56,12 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     """
     from .jobs import sweep_file
     from .report.sweepio import dumps
+    from .names import shown
     from .report.text import case_table, closing_paragraph
 
     settings = settings_from(kwargs, chain_file)
     out_dir = out or _default_out(input)
-    progress = Progress(f"analysing {input.name}")
+    progress = Progress(f"analysing {shown(input.name)}")
     try:
         doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress,
                                 notify=lambda line: click.echo(f"audiobw: {line}", err=True))
@@ -89,7 +90,7 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     click.echo(case_table(doc))
     click.echo()
     click.echo(closing_paragraph(doc))
-    click.echo(f"Wrote {paths['json']} and {paths['csv']}.")
+    click.echo(f"Wrote {shown(paths['json'])} and {shown(paths['csv'])}.")
     for line in extra:
         click.echo(line)
     click.echo(ESTIMATE_CAUTION)
@@ -186,12 +187,19 @@ def _terminate_as_interrupt() -> None:
 def main(argv=None) -> int:
     """Console entry point: one line per user mistake, no traceback (unless --debug)."""
     from .errors import AudiobwError
+    from .names import shown
+
+    for stream in (sys.stdout, sys.stderr):
+        try:  # a name with bytes that are not UTF-8 is printed escaped, never as UnicodeEncodeError
+            stream.reconfigure(errors="backslashreplace")
+        except (AttributeError, ValueError):  # not a TextIOWrapper (e.g. captured by a test)
+            pass
 
     args = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in args or os.environ.get("AUDIOBW_DEBUG") == "1"
 
     def _show(message, category, filename, lineno, file=None, line=None):
-        click.echo(f"audiobw: warning: {message}", err=True)
+        click.echo(f"audiobw: warning: {shown(message)}", err=True)
 
     warnings.showwarning = _show
     _terminate_as_interrupt()
@@ -207,7 +215,7 @@ def main(argv=None) -> int:
     except AudiobwError as exc:
         if debug:
             raise
-        click.echo(f"audiobw: error: {exc}", err=True)
+        click.echo(f"audiobw: error: {shown(exc)}", err=True)
         return exc.exit_code
     except KeyboardInterrupt:
         click.echo("audiobw: interrupted; no partial output was left", err=True)

@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -273,3 +274,95 @@ def test_bad_trial_keys_and_answers_give_one_line(tmp_path, capsys, trials, answ
     got, io = run(["trials-score", k, a], capsys)
     line = one_line(io.err)
     assert got == 2 and needle in line, io.err
+
+
+# -- names: terminal, Markdown, CSV -----------------------------------------------------------------------
+
+@FEW
+@given(name=st.text(min_size=1, max_size=40))
+def test_shown_names_are_one_printable_utf8_line(name):
+    from audiobw.names import shown
+
+    s = shown(name)
+    s.encode("utf-8")  # never a lone surrogate
+    assert "\n" not in s and not any(ord(c) < 0x20 or 0x7F <= ord(c) < 0xA0 for c in s)
+    if all(c.isprintable() and not 0xD800 <= ord(c) <= 0xDFFF for c in name):
+        assert s == name  # ordinary names are shown as they are
+
+
+def test_shown_turns_undecodable_bytes_into_hex():
+    from audiobw.names import shown
+
+    assert shown(os.fsdecode(b"take\xff\x1b[31m\x07.wav")) == "take\\xff\\x1b[31m\\x07.wav"
+    assert shown("a\nb\u202ec") == "a\\nb\\u202ec"
+
+
+HOSTILE_NAMES = [
+    b"esc\x1b[2J\x1b]0;title\x07.wav",
+    b"bell\x07.wav",
+    b"new\nline.wav",
+    b"bad\xff\xfebytes.wav",
+    b"-leading-dash.wav",
+    b"<img src=x onerror=alert(1)>.wav",
+    b"=HYPERLINK(1).wav",
+    b"back`tick``s.wav",
+    b"rtl\xe2\x80\xaewav.txt",
+    b"x" * 250 + b".wav",
+]
+
+
+@pytest.mark.parametrize("raw", HOSTILE_NAMES, ids=[f"name{i}" for i in range(len(HOSTILE_NAMES))])
+def test_hostile_names_work_and_are_shown_escaped(wav, tmp_path, capsys, raw):
+    name = os.fsdecode(raw)
+    p = tmp_path / name
+    p.write_bytes(wav.read_bytes())
+    out = tmp_path / "o"
+    got, io = run(["sweep", "--max-loss", "1", "--out", out, "--report", "--", p], capsys)
+    assert got == 0, io.err
+    text = io.out + io.err
+    text.encode("utf-8")
+    assert not any(ord(c) < 0x20 and c != "\n" for c in text)
+    md = (out / "spec.md").read_text(encoding="utf-8")
+    outside_code = re.sub(r"(`+).*?\1", "", md)  # CommonMark renders nothing inside a code span
+    assert "<img" not in outside_code and "\x1b" not in md and "\x07" not in md
+    json.loads((out / "sweep.json").read_text(encoding="utf-8"))
+    assert json.loads((out / "sweep.json").read_text(encoding="utf-8"))["input"]["path"] == str(p)
+
+
+@pytest.mark.parametrize("raw", [b"gone\nmissing.wav", b"gone\x1b[31m.wav", b"gone\xff.wav"])
+def test_a_missing_file_with_a_hostile_name_gives_one_line(tmp_path, capsys, raw):
+    got, io = run(["sweep", tmp_path / os.fsdecode(raw), "--max-loss", "1", "--out", tmp_path / "o"], capsys)
+    line = one_line(io.err)
+    assert got == 1 and "no such file" in line and "\\x" in line or "\\n" in line, io.err
+
+
+def test_batch_failed_lines_escape_control_characters(tmp_path, capsys):
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    good = lib / "ok.wav"
+    sf.write(str(good), 0.3 * np.sin(2 * np.pi * 440 * np.arange(FS) / FS)[:, None], FS, subtype="PCM_16")
+    bad = lib / os.fsdecode(b"evil\x1b]0;pwn\x07\xff.wav")
+    bad.write_bytes(b"RIFF\x00\x00\x00\x00WAVEjunk")
+    got, io = run(["batch", lib, "--max-loss", "1", "--workers", "0", "--out", tmp_path / "b"], capsys)
+    assert got == 0, io.err
+    failed = [ln for ln in io.out.splitlines() if ln.startswith("Failed:")]
+    assert len(failed) == 1 and "evil\\x1b]0;pwn\\x07\\xff.wav" in failed[0], io.out
+    assert "\x07" not in io.out and "\x1b" not in io.out
+
+
+def test_markdown_and_csv_neutralise_markup_and_formulas():
+    from audiobw.names import csv_cell, md_code, md_text
+
+    assert md_text("<img src=x onerror=alert(1)>.wav") == "&lt;img src=x onerror=alert\\(1\\)&gt;\\.wav"
+    assert md_code("a`b") == "``a`b``"
+    for bad in ("=1+1", "+1", "-1", "@SUM(A1)"):
+        assert csv_cell(bad).startswith("'"), bad
+    assert csv_cell(-1.5) == -1.5 and csv_cell("butterworth") == "butterworth"
+
+
+def test_case_csv_cells_cannot_start_a_formula():
+    from audiobw.report.sweepio import csv_text
+
+    doc = {"cases": [{"label": "=cmd|' /C calc'!A0", "fails": ["@x"], "snr_db": -3.0}]}
+    rows = csv_text(doc, keys=("label", "fails", "snr_db")).splitlines()
+    assert rows[1].startswith("'=cmd") and ",'@x," in rows[1] and rows[1].endswith(",-3.0")

@@ -65,6 +65,7 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
     """
     from .. import units
     from ..audio import open_info
+    from ..names import shown
     from ..filters import FilterSpec
     from ..render import RenderOptions, render_file
 
@@ -89,7 +90,7 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
     spec = FilterSpec(response, families[0], int(orders[0]), lo, hi, g.get("ripple", 0.1),
                       g.get("stopband", 60.0), settings.chain.stage, info.sample_rate_hz)
     out_dir = out or Path.cwd() / "audiobw-out" / input.stem / "render"
-    progress = Progress(f"rendering {input.name}")
+    progress = Progress(f"rendering {shown(input.name)}")
     try:
         result = render_file(input, spec, settings, out_dir, opts, progress=progress)
     finally:
