@@ -111,7 +111,12 @@ def wav_declared_frames(path) -> int | None:
 
 def _short(exc: Exception) -> str:
     text = str(exc).strip().splitlines()
-    return text[-1][:160] if text else type(exc).__name__
+    if not text:
+        return type(exc).__name__
+    line = text[-1]
+    if line.startswith("Error opening ") and ": " in line:  # the path is named by the caller already
+        line = line.rsplit(": ", 1)[1]
+    return line[:160]
 
 
 def iter_blocks(path, *, blocksize: int = 1 << 17):

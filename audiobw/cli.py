@@ -6,6 +6,7 @@ Exit status: 0 done; 1 unusable data or a failed write; 2 a usage mistake
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import sys
@@ -202,10 +203,19 @@ def main(argv=None) -> int:
         click.echo(f"audiobw: warning: {shown(message)}", err=True)
 
     warnings.showwarning = _show
+    import logging
+
+    # libraries' loggers (dask.distributed's 30-line tracebacks) stay quiet; --debug keeps them
+    logging.disable(logging.NOTSET if debug else logging.CRITICAL)
     _terminate_as_interrupt()
     try:
-        result = cli.main(args=args, prog_name="audiobw", standalone_mode=False)
+        # click's own main() would turn Ctrl-C into a blank line and Abort, and a closed pipe into exit 1
+        with cli.make_context("audiobw", args) as ctx:
+            result = cli.invoke(ctx)
+        sys.stdout.flush()  # a full device or a closed pipe shows here, not at interpreter exit
         return result if isinstance(result, int) else 0
+    except click.exceptions.Exit as exc:  # --help, --version
+        return exc.exit_code
     except click.exceptions.Abort:
         click.echo("audiobw: interrupted", err=True)
         return 130
@@ -217,15 +227,83 @@ def main(argv=None) -> int:
             raise
         click.echo(f"audiobw: error: {shown(exc)}", err=True)
         return exc.exit_code
+    except OSError as exc:
+        if not _from_stdio(exc):
+            raise
+        if isinstance(exc, BrokenPipeError):
+            _silence_stdout()
+            return 0
+        _silence_stdout()
+        with contextlib.suppress(OSError):
+            click.echo(f"audiobw: error: cannot write to standard output ({exc.strerror or exc}); "
+                       "accepted: a terminal, pipe or file with room", err=True)
+        return 1
     except KeyboardInterrupt:
         click.echo("audiobw: interrupted; no partial output was left", err=True)
         return 130
-    except BrokenPipeError:
-        return 0
+    except Exception as exc:
+        if _caused_by_interrupt(exc):  # an interrupt inside an import surfaces as ImportError and the like
+            click.echo("audiobw: interrupted; no partial output was left", err=True)
+            return 130
+        raise
+
+
+def _caused_by_interrupt(exc: BaseException) -> bool:
+    seen = set()
+    while exc is not None and id(exc) not in seen:
+        if isinstance(exc, KeyboardInterrupt):
+            return True
+        seen.add(id(exc))
+        exc = exc.__cause__ or exc.__context__
+    return False
+
+
+def _from_stdio(exc: OSError) -> bool:
+    """Did ``exc`` come from writing our own stdout/stderr (click.echo or the final flush)?"""
+    tb = exc.__traceback__
+    frames = []
+    while tb is not None:
+        frames.append((tb.tb_frame.f_code.co_name, tb.tb_frame.f_code.co_filename))
+        tb = tb.tb_next
+    last_name, last_file = frames[-1] if frames else ("", "")
+    return (last_name == "main" and last_file == __file__) or any(
+        name == "echo" and file.endswith(os.path.join("click", "utils.py")) for name, file in frames)
+
+
+def _silence_stdout() -> None:
+    """Point stdout at /dev/null so that the interpreter's last flush cannot fail a second time."""
+    with contextlib.suppress(OSError, ValueError, AttributeError):
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
 
 
 def entry():  # pragma: no cover - console script
-    sys.exit(main())
+    """Console entry point: :func:`main`, and an interrupt at any moment ends with 130 and one line."""
+    import signal
+
+    try:
+        if threading_main():
+            signal.signal(signal.SIGINT, signal.default_int_handler)
+        code = main()
+    except KeyboardInterrupt:  # between start-up and main's own handler
+        with contextlib.suppress(OSError, ValueError):
+            click.echo("audiobw: interrupted", err=True)
+        code = 130
+    if code == 130:
+        # Skip atexit handlers: an interrupt can leave a module half imported (matplotlib, dask),
+        # whose exit hooks would print tracebacks.  Every output is already cleaned up.
+        for stream in (sys.stdout, sys.stderr):
+            with contextlib.suppress(OSError, ValueError):
+                stream.flush()
+        os._exit(130)
+    sys.exit(code)
+
+
+def threading_main() -> bool:
+    import threading
+
+    return threading.current_thread() is threading.main_thread()
 
 
 if __name__ == "__main__":  # pragma: no cover

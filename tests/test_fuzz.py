@@ -366,3 +366,89 @@ def test_case_csv_cells_cannot_start_a_formula():
     doc = {"cases": [{"label": "=cmd|' /C calc'!A0", "fails": ["@x"], "snr_db": -3.0}]}
     rows = csv_text(doc, keys=("label", "fails", "snr_db")).splitlines()
     assert rows[1].startswith("'=cmd") and ",'@x," in rows[1] and rows[1].endswith(",-3.0")
+
+
+# -- the terminal: full device, closed pipe, library loggers --------------------------------------------------
+
+ENTRY = [sys.executable, "-c", "import sys; from audiobw._start import entry; sys.argv[0] = 'audiobw'; entry()"]
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="needs /dev/full (Linux)")
+@pytest.mark.parametrize("args", [["noise", "--band", ":20k"], ["noise", "--band", ":20k", "--json"],
+                                  ["--help"], ["--version"]])
+def test_stdout_on_a_full_device_gives_one_line_and_exit_1(tmp_path, args):
+    with open("/dev/full", "w") as full:
+        p = subprocess.run(ENTRY + args, stdout=full, stderr=subprocess.PIPE, text=True, cwd=tmp_path, timeout=120)
+    assert p.returncode == 1, p.stderr
+    line = one_line(p.stderr)
+    assert "standard output" in line and "No space left on device" in line
+
+
+def test_a_closed_pipe_ends_quietly(tmp_path):
+    p = subprocess.Popen(ENTRY + ["noise", "--band", ":20k", "--json"], stdout=subprocess.PIPE,
+                         stderr=subprocess.PIPE, cwd=tmp_path)
+    p.stdout.read(10)
+    p.stdout.close()
+    err = p.stderr.read().decode()
+    assert p.wait(timeout=120) == 0 and err == "", err
+
+
+def test_library_loggers_are_quiet_unless_debug(capsys, monkeypatch):
+    import logging
+
+    import audiobw.jobs as jobs
+
+    real = jobs.noise_budget
+
+    def noisy(*a, **k):
+        log = logging.getLogger("distributed.core")
+        handler = logging.StreamHandler(sys.stderr)
+        log.addHandler(handler)
+        try:
+            log.error("Traceback (most recent call last): a scheduler went away")
+        finally:
+            log.removeHandler(handler)
+        return real(*a, **k)
+
+    monkeypatch.setattr(jobs, "noise_budget", noisy)
+    try:
+        assert main(["noise", "--band", ":20k"]) == 0
+        assert "scheduler went away" not in capsys.readouterr().err
+        assert main(["--debug", "noise", "--band", ":20k"]) == 0
+        assert "scheduler went away" in capsys.readouterr().err
+    finally:
+        logging.disable(logging.NOTSET)
+
+
+# -- interrupts at random points, start-up included ---------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def swept(tmp_path_factory, wav):
+    d = tmp_path_factory.mktemp("swept")
+    assert main(["sweep", str(wav), "--max-loss", "1", "--out", str(d / "s")]) == 0
+    return d / "s"
+
+
+@settings(max_examples=6, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(delay=st.floats(0.0, 1.5), command=st.sampled_from(["report", "sweep", "noise"]))
+def test_an_interrupt_at_any_moment_exits_130_quietly(swept, wav, tmp_path_factory, delay, command):
+    d = tmp_path_factory.mktemp("intr")
+    args = {"report": ["report", str(swept)],
+            "sweep": ["sweep", str(wav), "--max-loss", "1", "--report", "--out", str(d / "o")],
+            "noise": ["noise", "--band", ":20k"]}[command]
+    before = {p.name: p.read_bytes() for p in swept.iterdir() if p.suffix in (".json", ".npz", ".csv")}
+    p = subprocess.Popen(ENTRY + args, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, cwd=d)
+    time.sleep(delay)
+    p.send_signal(signal.SIGINT)
+    err = p.stderr.read().decode()
+    code = p.wait(timeout=300)
+    assert "Traceback" not in err and "Error" not in err, err
+    if code == 130:
+        assert one_line(err).startswith("audiobw: interrupted"), err
+    elif code == -signal.SIGINT:  # before the interpreter set up any handler: the default action, silent
+        assert err == "", err
+    else:
+        assert code == 0, err
+    assert not list(d.rglob("*.part")) and not list(swept.rglob("*.part"))
+    for name, data in before.items():
+        assert (swept / name).read_bytes() == data
