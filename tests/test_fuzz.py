@@ -457,3 +457,47 @@ def test_an_interrupt_at_any_moment_exits_130_quietly(swept, wav, tmp_path_facto
     assert not list(d.rglob("*.part")) and not list(swept.rglob("*.part"))
     for name, data in before.items():
         assert (swept / name).read_bytes() == data
+
+
+# -- file kinds: not regular, out of the tree, sparse, truncated, lying ----------------------------------------
+
+def _kinds(tmp_path, wav):
+    data = wav.read_bytes()
+    fifo = tmp_path / "pipe.wav"
+    os.mkfifo(fifo)
+    folder = tmp_path / "folder.wav"
+    folder.mkdir()
+    link = tmp_path / "link.wav"
+    link.symlink_to(wav)  # a symlink to a real file out of the tree: read as that file
+    dangling = tmp_path / "dangling.wav"
+    dangling.symlink_to(tmp_path / "nowhere.wav")
+    sparse = tmp_path / "sparse.wav"
+    with open(sparse, "wb") as fh:
+        fh.write(data[:44])
+        fh.truncate(50_000_000)  # a hole: the header says 32 kB of data, the file is 50 MB of zeros
+    half = tmp_path / "half.wav"
+    half.write_bytes(data[:44])
+    liar = tmp_path / "liar.wav"
+    liar.write_bytes(data[:24] + (1).to_bytes(4, "little") + data[28:])  # byte rate field: nonsense
+    rate0 = tmp_path / "rate0.wav"
+    rate0.write_bytes(data[:24] + (0).to_bytes(4, "little") + data[28:])  # sample rate 0
+    chans = tmp_path / "chans.wav"
+    chans.write_bytes(data[:22] + (64).to_bytes(2, "little") + data[24:])  # 64 channels claimed
+    return {"fifo": (fifo, {1}), "device": (Path("/dev/zero"), {1}), "folder": (folder, {1}),
+            "symlink": (link, {0}), "dangling": (dangling, {1}), "sparse": (sparse, {0, 1}),
+            "half": (half, {1}), "liar": (liar, {0, 1}), "rate0": (rate0, {1}), "chans": (chans, {1})}
+
+
+KIND_NAMES = ["fifo", "device", "folder", "symlink", "dangling", "sparse", "half", "liar", "rate0", "chans"]
+
+
+@pytest.mark.parametrize("kind", KIND_NAMES)
+def test_file_kinds_are_read_or_refused_in_one_line(wav, tmp_path, capsys, kind):
+    path, codes = _kinds(tmp_path, wav)[kind]
+    out = tmp_path / "o"
+    got, io = run(["sweep", path, "--max-loss", "1", "--out", out], capsys)
+    assert got in codes, io.err
+    if got:
+        line = one_line(io.err)
+        assert path.name in line, io.err
+        assert not out.exists()
