@@ -1,7 +1,5 @@
-"""``python -m audiobw`` runs the command line."""
+"""``python -m audiobw`` runs the command line (as the console script does)."""
 
-import sys
+from ._start import entry
 
-from .cli import main
-
-sys.exit(main())
+entry()

@@ -63,7 +63,7 @@ def open_info(path) -> AudioInfo:
     if p.stat().st_size == 0:
         raise AudioFileError(f"{p}: empty file (0 bytes)")
     try:
-        info = sf.info(str(p))
+        info = sf.info(os.fsencode(p))
     except Exception as exc:  # libsndfile's errors carry no stable type
         raise AudioFileError(f"{p}: not a readable audio file ({_short(exc)})") from None
     if not 1 <= info.channels <= MAX_CHANNELS:
@@ -111,7 +111,12 @@ def wav_declared_frames(path) -> int | None:
 
 def _short(exc: Exception) -> str:
     text = str(exc).strip().splitlines()
-    return text[-1][:160] if text else type(exc).__name__
+    if not text:
+        return type(exc).__name__
+    line = text[-1]
+    if line.startswith("Error opening ") and ": " in line:  # the path is named by the caller already
+        line = line.rsplit(": ", 1)[1]
+    return line[:160]
 
 
 #: libsndfile subtypes that store integers (or integer-coded samples): never NaN or infinite.
@@ -131,7 +136,7 @@ def iter_blocks(path, *, blocksize: int = 1 << 17):
 
     p = Path(path)
     try:
-        handle = sf.SoundFile(str(p))
+        handle = sf.SoundFile(os.fsencode(p))
     except Exception as exc:
         raise AudioFileError(f"{p}: not a readable audio file ({_short(exc)})") from None
     # integer PCM decodes to finite floats by construction: the NaN/Inf scan is
@@ -407,9 +412,9 @@ SFC_SET_ADD_PEAK_CHUNK = 0x1050
 
 
 def write_text_atomic(target, text: str, *, inputs=()) -> Path:
-    """Write ``text`` (UTF-8) to ``target`` atomically."""
+    """Write ``text`` (UTF-8; an undecodable byte of a file name, a lone surrogate, as \\udcNN) to ``target`` atomically."""
     with atomic_path(target, inputs=inputs) as tmp:
-        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+        with open(tmp, "w", encoding="utf-8", errors="backslashreplace", newline="\n") as fh:
             fh.write(text)
             fh.flush()
             os.fsync(fh.fileno())

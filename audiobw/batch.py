@@ -49,6 +49,7 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from .errors import AudiobwError, AudioFileError, OutputError, ParameterError
+from .names import shown
 
 CACHE_FORMAT = "audiobw-batch-cache/2"  # /2: bound to the tool version, with a checksum
 IDENTITY_KEYS = ("response", "family", "order", "design_low_hz", "design_high_hz")
@@ -921,7 +922,7 @@ def summary_lines(doc: dict) -> list[str]:
                 label = _target_words(f["binding"]) if f["binding"] else None
                 what = (f"{label}, margin {f['margin_db']:+.2f} dB" if f["margin_db"] is not None
                         else (f"{label}: not defined for this file" if label else f["note"]))
-                lines.append(f"  {f['path']}: {what}")
+                lines.append(f"  {shown(f['path'])}: {what}")
     else:
         msg = f"No case passes on {cov} of the files."
         if doc["best"] is not None:
@@ -937,7 +938,7 @@ def summary_lines(doc: dict) -> list[str]:
     if pb["files_without_choice"]:
         lines.append(f"{pb['files_without_choice']} file(s) have no passing case of their own.")
     for f in doc["failed"][:5]:
-        lines.append(f"Failed: {f['reason']}")
+        lines.append(f"Failed: {shown(f['reason'])}")
     if len(doc["failed"]) > 5:
         lines.append(f"... and {len(doc['failed']) - 5} more failed (see corpus.json).")
     return lines

@@ -6,6 +6,7 @@ Exit status: 0 done; 1 unusable data or a failed write; 2 a usage mistake
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import sys
@@ -56,6 +57,7 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
       --in 1.5p --bits 24 --full-scale 2Vrms --max-loss 0.2 --min-snr-a 90
     """
     from .report.sweepio import dumps
+    from .names import shown
     from .report.text import case_table, closing_paragraph
 
     settings = settings_from(kwargs, chain_file)
@@ -75,7 +77,7 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     stated = default_chain_line(kwargs, chain_file, settings)
     if stated:
         click.echo(stated)
-    click.echo(f"Wrote {paths['json']} and {paths['csv']}.")
+    click.echo(f"Wrote {shown(paths['json'])} and {shown(paths['csv'])}.")
     for line in extra:
         click.echo(line)
     click.echo(ESTIMATE_CAUTION)
@@ -84,10 +86,12 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
 def _sweep_into(input, settings, out_dir, do_render, do_report):
     """sweep's work (sweep, then --render and --report), run while the output folder is locked."""
     from .jobs import sweep_file
+    from .names import shown
 
-    progress = Progress(f"analysing {input.name}")
+    progress = Progress(f"analysing {shown(input.name)}")
     try:
-        doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress)
+        doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress,
+                                notify=lambda line: click.echo(f"audiobw: {line}", err=True))
     finally:
         progress.close()
     extra = []
@@ -203,19 +207,34 @@ def _terminate_as_interrupt() -> None:
 def main(argv=None) -> int:
     """Console entry point: one line per user mistake, no traceback (unless --debug)."""
     from .errors import AudiobwError
+    from .names import shown
+
+    for stream in (sys.stdout, sys.stderr):
+        try:  # a name with bytes that are not UTF-8 is printed escaped, never as UnicodeEncodeError
+            stream.reconfigure(errors="backslashreplace")
+        except (AttributeError, ValueError):  # not a TextIOWrapper (e.g. captured by a test)
+            pass
 
     args = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in args or os.environ.get("AUDIOBW_DEBUG") == "1"
 
     def _show(message, category, filename, lineno, file=None, line=None):
-        click.echo(f"audiobw: warning: {message}", err=True)
+        click.echo(f"audiobw: warning: {shown(message)}", err=True)
 
     warnings.showwarning = _show
+    import logging
+
+    # libraries' loggers (dask.distributed's 30-line tracebacks) stay quiet; --debug keeps them
+    logging.disable(logging.NOTSET if debug else logging.CRITICAL)
     _terminate_as_interrupt()
     try:
-        result = cli.main(args=args, prog_name="audiobw", standalone_mode=False)
-        sys.stdout.flush()
+        # click's own main() would turn Ctrl-C into a blank line and Abort, and a closed pipe into exit 1
+        with cli.make_context("audiobw", args) as ctx:
+            result = cli.invoke(ctx)
+        sys.stdout.flush()  # a full device or a closed pipe shows here, not at interpreter exit
         return result if isinstance(result, int) else 0
+    except click.exceptions.Exit as exc:  # --help, --version
+        return exc.exit_code
     except click.exceptions.Abort:
         click.echo("audiobw: interrupted", err=True)
         return 130
@@ -225,47 +244,85 @@ def main(argv=None) -> int:
     except AudiobwError as exc:
         if debug:
             raise
-        click.echo(f"audiobw: error: {exc}", err=True)
+        click.echo(f"audiobw: error: {shown(exc)}", err=True)
         return exc.exit_code
+    except OSError as exc:
+        if not _from_stdio(exc):
+            raise
+        if isinstance(exc, BrokenPipeError):
+            _silence_stdout()
+            return 0
+        _silence_stdout()
+        with contextlib.suppress(OSError):
+            click.echo(f"audiobw: error: cannot write to standard output ({exc.strerror or exc}); "
+                       "accepted: a terminal, pipe or file with room", err=True)
+        return 1
     except KeyboardInterrupt:
         click.echo("audiobw: interrupted; no partial output was left", err=True)
         return 130
-    except BrokenPipeError:
-        return 0
-    except OSError as exc:
-        if debug or not _is_stdout_failure(exc):
-            raise
-        _silence_stdout()
-        click.echo(f"audiobw: error: standard output: cannot write ({exc.strerror or exc})", err=True)
-        return 1
+    except Exception as exc:
+        if _caused_by_interrupt(exc):  # an interrupt inside an import surfaces as ImportError and the like
+            click.echo("audiobw: interrupted; no partial output was left", err=True)
+            return 130
+        raise
 
 
-def _is_stdout_failure(exc: OSError) -> bool:
-    """True when ``exc`` was raised writing the terminal/standard output (e.g. ``> /dev/full``)."""
+def _caused_by_interrupt(exc: BaseException) -> bool:
+    seen = set()
+    while exc is not None and id(exc) not in seen:
+        if isinstance(exc, KeyboardInterrupt):
+            return True
+        seen.add(id(exc))
+        exc = exc.__cause__ or exc.__context__
+    return False
+
+
+def _from_stdio(exc: OSError) -> bool:
+    """Did ``exc`` come from writing our own stdout/stderr (click.echo or the final flush)?"""
     tb = exc.__traceback__
-    last = None
+    frames = []
     while tb is not None:
-        last = tb.tb_frame
+        frames.append((tb.tb_frame.f_code.co_name, tb.tb_frame.f_code.co_filename))
         tb = tb.tb_next
-    if last is None:
-        return False
-    code = last.f_code
-    return (code.co_name == "echo" and "click" in code.co_filename) or (
-        code.co_name == "main" and code.co_filename == __file__)
+    last_name, last_file = frames[-1] if frames else ("", "")
+    return (last_name == "main" and last_file == __file__) or any(
+        name == "echo" and file.endswith(os.path.join("click", "utils.py")) for name, file in frames)
 
 
 def _silence_stdout() -> None:
-    """Point stdout at /dev/null so the interpreter's final flush cannot fail again."""
-    try:
-        fd = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(fd, sys.stdout.fileno())
-        os.close(fd)
-    except (OSError, ValueError):
-        pass
+    """Point stdout at /dev/null so that the interpreter's last flush cannot fail a second time."""
+    with contextlib.suppress(OSError, ValueError, AttributeError):
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
 
 
 def entry():  # pragma: no cover - console script
-    sys.exit(main())
+    """Console entry point: :func:`main`, and an interrupt at any moment ends with 130 and one line."""
+    import signal
+
+    try:
+        if threading_main():
+            signal.signal(signal.SIGINT, signal.default_int_handler)
+        code = main()
+    except KeyboardInterrupt:  # between start-up and main's own handler
+        with contextlib.suppress(OSError, ValueError):
+            click.echo("audiobw: interrupted", err=True)
+        code = 130
+    if code == 130:
+        # Skip atexit handlers: an interrupt can leave a module half imported (matplotlib, dask),
+        # whose exit hooks would print tracebacks.  Every output is already cleaned up.
+        for stream in (sys.stdout, sys.stderr):
+            with contextlib.suppress(OSError, ValueError):
+                stream.flush()
+        os._exit(130)
+    sys.exit(code)
+
+
+def threading_main() -> bool:
+    import threading
+
+    return threading.current_thread() is threading.main_thread()
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -12,7 +12,7 @@ from .errors import OutputError, ParameterError
 from .settings import Settings
 
 
-def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=None):
+def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=None, notify=None):
     """Analyse ``path``, sweep the grid, write sweep.json/sweep.csv to ``out_dir``.
 
     Returns
@@ -37,6 +37,10 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
             "--max-loss, --max-lsd, --min-ser")
     grid = settings.grid_for(info.sample_rate_hz / 2.0)
     grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
+    from .sweep import ESTIMATE_FROM_CASES, time_estimate
+
+    if notify is not None and grid.count() >= ESTIMATE_FROM_CASES:
+        notify(time_estimate(grid.count()))
     analysis = analyse(path, progress=progress, sha256=sha256)
     chain = settings.chain_for(analysis)
     data = None

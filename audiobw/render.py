@@ -37,6 +37,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -576,6 +577,16 @@ def render_sweep(doc: dict, input_path, settings, out_dir, options: RenderOption
 
 # -- scoring blind trials ----------------------------------------------------------------
 
+_TRIAL_RE = re.compile(r"[0-9]{1,6}")  # ASCII digits only: str.isdigit() takes '²'
+
+
+def _trial_list(known) -> str:
+    k = sorted(known)
+    if k and k == list(range(k[0], k[-1] + 1)):
+        return f"{k[0]} to {k[-1]}"
+    return ", ".join(map(str, k[:20])) + (", ..." if len(k) > 20 else "")
+
+
 def read_key(path) -> dict:
     """Read and check a ``trial-key.json``."""
     p = Path(path)
@@ -588,11 +599,23 @@ def read_key(path) -> dict:
     if not isinstance(key, dict) or key.get("format") != KEY_FORMAT or not isinstance(key.get("trials"), list):
         raise ParameterError(f"KEY: {str(p)!r} is not an audiobw trial key; accepted: the trial-key.json "
                              "that `audiobw render --trials N` writes")
+    seen = set()
+    for i, t in enumerate(key["trials"]):
+        n = t.get("trial") if isinstance(t, dict) else None
+        if (not isinstance(t, dict) or not isinstance(n, int) or isinstance(n, bool) or not 1 <= n <= 100_000
+                or n in seen or t.get("processed") not in ("first", "second")):
+            raise ParameterError(f"KEY: {str(p)!r}: trials[{i}] = {str(t)[:80]!r} is not a trial entry; accepted: "
+                                 "{\"trial\": a whole number from 1, unique, \"processed\": \"first\" or \"second\"}")
+        seen.add(n)
     return key
 
 
-def read_answers(path, n_trials: int) -> dict[int, str]:
-    """Read an answer sheet: lines ``NN first|second`` (or ``1``/``2``); ``#`` starts a comment."""
+def read_answers(path, n_trials) -> dict[int, str]:
+    """Read an answer sheet: lines ``NN first|second`` (or ``1``/``2``); ``#`` starts a comment.
+
+    ``n_trials`` is the number of trials (numbered 1..n) or the set of trial numbers in the key.
+    """
+    known = set(range(1, n_trials + 1)) if isinstance(n_trials, int) else set(n_trials)
     p = Path(path)
     try:
         text = p.read_text(encoding="utf-8")
@@ -607,15 +630,15 @@ def read_answers(path, n_trials: int) -> dict[int, str]:
         if not line:
             continue
         parts = line.split()
-        if len(parts) == 1 and parts[0].isdigit():
+        if len(parts) == 1 and _TRIAL_RE.fullmatch(parts[0]):
             continue  # a trial left unanswered on the sheet
-        if len(parts) != 2 or not parts[0].isdigit() or parts[1].lower() not in words:
+        if len(parts) != 2 or not _TRIAL_RE.fullmatch(parts[0]) or parts[1].lower() not in words:
             raise ParameterError(f"ANSWERS: {p} line {lineno}: {raw.strip()!r}; accepted: a trial number and "
                                  "'first' or 'second' (or 1 or 2), e.g. '03 second'")
         trial = int(parts[0])
-        if not 1 <= trial <= n_trials:
+        if trial not in known:
             raise ParameterError(f"ANSWERS: {p} line {lineno}: trial {trial} is not in the key; accepted: "
-                                 f"1 to {n_trials}")
+                                 f"{_trial_list(known)}")
         if trial in answers:
             raise ParameterError(f"ANSWERS: {p} line {lineno}: trial {trial} is answered twice")
         answers[trial] = words[parts[1].lower()]
@@ -634,7 +657,7 @@ def score_trials(key_path, answers_path, *, alpha: float = 0.05) -> dict:
 
     key = read_key(key_path)
     truth = {int(t["trial"]): t["processed"] for t in key["trials"]}
-    answers = read_answers(answers_path, len(truth))
+    answers = read_answers(answers_path, set(truth))
     if not answers:
         raise ParameterError(f"ANSWERS: {answers_path}: no trial is answered; accepted: lines such as '01 first'")
     correct = sum(1 for t, a in answers.items() if truth[t] == a)

@@ -39,6 +39,7 @@ TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn
                  "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
                  "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db"}
 METER_KEYS = ("meter", "tone", "tone_level")
+MAX_TOML_BYTES = 1_000_000  # a chain file is a few hundred bytes; more is a mistake or hostile
 
 
 @dataclass
@@ -62,7 +63,13 @@ def load_toml(path) -> dict[str, Raw]:
 
     p = Path(path)
     try:
+        if p.is_file() and p.stat().st_size > MAX_TOML_BYTES:
+            raise ConfigError(f"--chain: {str(p)!r}: {p.stat().st_size} bytes is too large for a chain file; "
+                              f"accepted: at most {MAX_TOML_BYTES} bytes")
         data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except RecursionError:  # tables or arrays nested thousands deep
+        raise ConfigError(f"--chain: {str(p)!r}: nested too deeply; accepted: the flat [section] key = value "
+                          "layout") from None
     except FileNotFoundError:
         raise ConfigError(f"--chain: {str(p)!r}: no such file") from None
     except (OSError, UnicodeDecodeError) as exc:
@@ -140,7 +147,7 @@ def _parse_bit_rate(v, name):
         return units.parse_quantity(text if not isinstance(v, (int, float)) else v, "frequency", name=name)
     except ParameterError:
         raise ParameterError(f"{name}: {v!r} is not a bit rate; accepted: a rate such as 2k, 9600bit/s, "
-                             "1.2kbps, or auto") from None
+                             "1.2kbps (0.001 to 1e+09 bit/s), or auto") from None
 
 
 def _parse_probability(v, name):
@@ -176,14 +183,16 @@ def _parse_input_level(v, name):
     """('gain', dB) or ('dbfs', level) or ('vrms', volts)."""
     text = str(v).strip()
     if isinstance(v, (int, float)) and not isinstance(v, bool):
-        return ("gain", float(v))
+        return ("gain", units.parse_quantity(v, "gain_db", name=name))
     if text.endswith("dBFS"):
         return ("dbfs", units.parse_quantity(text, "level_dbfs", name=name))
     if text.endswith("dB"):
         return ("gain", units.parse_quantity(text, "gain_db", name=name))
     try:
         return ("vrms", units.parse_quantity(text, "voltage", name=name))
-    except ParameterError:
+    except ParameterError as exc:
+        if "physical range" in str(exc):
+            raise
         raise ParameterError(
             f"{name}: {v!r} is not an input level; accepted: a level such as -18dBFS, +4dBu, 0.5Vrms, "
             "or a gain such as 6dB") from None

@@ -56,6 +56,16 @@ def hann_periodic(m: int) -> np.ndarray:
         w += a * np.cos(k * fac)
     return w[:-1]
 
+
+#: Sample peaks outside these (re full scale) hold no measurable program: below -300 dBFS is far under
+#: any converter's LSB (32-bit integer: -187 dBFS); above +120 dBFS the powers overflow float64 sums.
+MIN_PEAK, MAX_PEAK = 1e-15, 1e6
+
+
+def _overflow_message(path, top: float) -> str:
+    return (f"{path}: peak {top:.3g} of full scale is above {MAX_PEAK:g} (+120 dBFS): the samples overflow "
+            "any converter; accepted: peaks up to +120 dBFS")
+
 def _pow2_at_least(x: float) -> int:
     return 1 << max(0, math.ceil(math.log2(max(x, 1.0))))
 
@@ -315,6 +325,8 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         frames += n
         block_peak = np.maximum(block.max(axis=1), -block.min(axis=1))
         peak = np.maximum(peak, block_peak)
+        if np.any(block_peak > MAX_PEAK):
+            raise AudioFileError(_overflow_message(info.path, float(np.max(block_peak))))
         sumsq += np.einsum("ij,ij->i", block, block)
         sums += block.sum(axis=1)
         if np.any(block_peak >= near_full):  # counted only where a sample can reach it
@@ -367,6 +379,12 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             f"({max(nshort, nper)} frames at {fs} Hz); accepted: at least {max(nshort, nper) / fs * 1000:.0f} ms of audio")
     if not np.any(peak > 0):
         raise AudioFileError(f"{info.path}: digital silence (every sample is 0); no program to measure")
+    top = float(np.max(peak))
+    if top > MAX_PEAK or not np.all(np.isfinite(acc)) or not np.all(np.isfinite(sumsq)):
+        raise AudioFileError(_overflow_message(info.path, top))
+    if top < MIN_PEAK or not np.any(sumsq > 0):
+        raise AudioFileError(f"{info.path}: peak {top:.3g} of full scale is below {MIN_PEAK:g} (-300 dBFS): "
+                             "silence for every purpose; no program to measure")
 
     psd_ch = acc * scale_psd / n_seg
     psd_ch[:, 1:-1] *= 2.0  # one-sided

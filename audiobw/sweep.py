@@ -21,6 +21,22 @@ from .metrics import TARGET_KEYS, TARGET_METRIC, Meter, Scorer, check_targets
 from .spectrum import Analysis, analyse
 
 
+#: The largest grid swept in one run (each case keeps a row of figures; far beyond any useful resolution).
+MAX_CASES = 200_000
+#: Mean time to design and score one case, s: about 0.5 ms, measured in docs/performance.md (target 3).
+SECONDS_PER_CASE = 0.5e-3
+#: Grids of at least this many cases get a time estimate on stderr before the sweep starts.
+ESTIMATE_FROM_CASES = 10_000
+
+
+def time_estimate(n_cases: int) -> str:
+    """One line: the case count and the expected scoring time, for a large grid."""
+    t = n_cases * SECONDS_PER_CASE
+    span = f"{t:.0f} s" if t < 120 else f"{t / 60:.1f} min"
+    return (f"{n_cases:,} cases to score: about {span} at {SECONDS_PER_CASE * 1e3:g} ms per case "
+            "(measured on the benchmark machine; a busy or slower machine takes longer)")
+
+
 @dataclass(frozen=True)
 class Grid:
     """The candidate grid.
@@ -48,8 +64,24 @@ class Grid:
     rank: str = "enbw"
     tie: float = 0.01
 
+    def count(self) -> int:
+        """The number of cases, counted without building them (bandpass: pairs with low < high)."""
+        if self.response == "bandpass":
+            import bisect
+
+            highs = sorted(self.high_edges_hz)
+            pairs = sum(len(highs) - bisect.bisect_right(highs, lo) for lo in self.low_edges_hz)
+        else:
+            pairs = len(self.cutoffs_hz)
+        return len(self.families) * len(self.orders) * pairs
+
     def specs(self, *, stage: str, fs_hz: float) -> list[FilterSpec]:
         """Every case as a FilterSpec, validated for ``fs_hz``."""
+        n = self.count()
+        if n > MAX_CASES:
+            opt = "--cutoffs" if self.response != "bandpass" else "--low-edges/--high-edges"
+            raise ParameterError(f"{opt} with --family and --order: the grid holds {n:,} cases; accepted: at most "
+                                 f"{MAX_CASES:,} (a coarser grid, or fewer families or orders)")
         if self.response == "bandpass":
             if not self.low_edges_hz or not self.high_edges_hz:
                 raise ParameterError("--low-edges/--high-edges: a bandpass sweep needs both grids")

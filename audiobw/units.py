@@ -138,6 +138,10 @@ class _Kind:
     number: Callable[[float], float] | None = _linear()
     # Reason given for a string without a unit when "" is not among the units.
     no_unit_reason: str = "has no unit"
+    # Physical range (inclusive) of the value in the base unit, and the base unit's symbol: the
+    # one place a kind's limits live, so 1e308 or 1e-300 never reaches the arithmetic.
+    limits: tuple[float, float] = (-math.inf, math.inf)
+    unit: str = ""
 
 
 def _check_any(v: float) -> str | None:
@@ -190,6 +194,8 @@ _KINDS: dict[str, _Kind] = {
         accepted="ohms, 0 or more, e.g. 150, 2.2k, 150ohm, 1kohm or 1MΩ (not 2k2-style codes)",
         units=_units("", "ohm", "ohms", "\u03a9", "\u2126"),
         check=_check_nonneg,
+        limits=(0.0, 1e12),
+        unit="Ω",
     ),
     "temperature": _Kind(
         noun="a temperature",
@@ -201,24 +207,32 @@ _KINDS: dict[str, _Kind] = {
                     convert=lambda x: x + ZERO_CELSIUS_K, prefix=False),
         ),
         check=_check_kelvin,
+        limits=(0.0, 1000.0),
+        unit="K",
     ),
     "gain_db": _Kind(
         noun="a gain",
         accepted="a number in dB such as 40 or 40dB",
         units=_units("", "dB", prefix=False),
         check=_check_any,
+        limits=(-400.0, 400.0),
+        unit="dB",
     ),
     "voltage_density": _Kind(
         noun="a noise voltage density",
         accepted="V/√Hz, 0 or more, e.g. 1.2e-9, 1.2n, 1.2nV, 1.2nV/rtHz or 1.2nV/√Hz",
         units=_units("", "V", *("V" + r for r in _RTHZ)),
         check=_check_nonneg,
+        limits=(0.0, 1e-3),
+        unit="V/√Hz",
     ),
     "current_density": _Kind(
         noun="a noise current density",
         accepted="A/√Hz, 0 or more, e.g. 1.5e-12, 1.5p, 1.5pA, 1.5pA/rtHz or 1.5pA/√Hz",
         units=_units("", "A", *("A" + r for r in _RTHZ)),
         check=_check_nonneg,
+        limits=(0.0, 1e-6),
+        unit="A/√Hz",
     ),
     "bits": _Kind(
         noun="a bit depth",
@@ -235,18 +249,24 @@ _KINDS: dict[str, _Kind] = {
             *_units("dBV", convert=_from_db(1.0), prefix=False),
         ),
         check=_check_positive,
+        limits=(1e-9, 1e4),
+        unit="V",
     ),
     "frequency": _Kind(
         noun="a frequency",
         accepted="Hz above 0, e.g. 997, 20k, 20kHz or 1.5MHz",
         units=_units("", "Hz"),
         check=_check_positive,
+        limits=(1e-3, 1e9),
+        unit="Hz",
     ),
     "db": _Kind(
         noun="a dB value",
         accepted="a number in dB such as 0.1 or 60dB",
         units=_units("", "dB", prefix=False),
         check=_check_any,
+        limits=(-400.0, 400.0),
+        unit="dB",
     ),
     "thdn": _Kind(
         noun="a THD+N figure",
@@ -264,6 +284,8 @@ _KINDS: dict[str, _Kind] = {
         accepted="a number in dBFS such as -1 or -1dBFS",
         units=_units("", "dBFS", prefix=False),
         check=_check_any,
+        limits=(-400.0, 400.0),
+        unit="dBFS",
     ),
     "fraction": _Kind(
         noun="a fraction",
@@ -276,6 +298,8 @@ _KINDS: dict[str, _Kind] = {
         accepted="seconds above 0, e.g. 12, 12s or 500ms",
         units=_units("", "s"),
         check=_check_positive,
+        limits=(1e-6, 1e6),
+        unit="s",
     ),
 }
 
@@ -394,11 +418,40 @@ def parse_quantity(value: str | int | float, kind: str, *, name: str) -> float:
     reason = spec.check(result)
     if reason is not None:
         raise _fail(name, value, reason, spec.accepted)
+    check_range(result, spec.limits, name=name, value=value, unit=spec.unit)
     return float(result)
 
 
+def check_range(result: float, limits: tuple[float, float], *, name: str, value: object, unit: str = "") -> None:
+    """Refuse a value outside its physical range, naming the option, the value and the range.
+
+    The one range check of every numeric option and key (quantities, counts, seeds, times).
+    """
+    lo, hi = limits
+    if not (math.isfinite(result) and lo <= result <= hi):
+        span = f"{lo:g} to {hi:g}" + (f" {unit}" if unit else "")
+        raise ParameterError(f"{name}: {value!r} is outside the physical range; accepted: {span}")
+
+
+def parse_int(value: object, *, name: str, low: int, high: int, noun: str = "a whole number") -> int:
+    """Read one whole number within ``[low, high]`` (a seed, a count) as typed or from TOML."""
+    text = str(value).strip() if not _is_number(value) else value
+    if isinstance(text, str):
+        if not _INT_RE.fullmatch(text) or len(text) > 40:
+            raise _fail(name, value, f"is not {noun}", f"a whole number from {low} to {high}")
+        number = int(text)
+    elif isinstance(text, float) and not text.is_integer():
+        raise _fail(name, value, f"is not {noun}", f"a whole number from {low} to {high}")
+    else:
+        number = int(text) if math.isfinite(float(text)) else low - 1
+    if not low <= number <= high:
+        raise _fail(name, value, "is outside the accepted range", f"a whole number from {low} to {high}")
+    return number
+
+
 _BAND_ACCEPTED = (
-    "LOW:HIGH in Hz with LOW < HIGH, either side may be empty, e.g. 20:20k, :9.5k or 40:"
+    "LOW:HIGH in Hz with LOW < HIGH, either side may be empty, e.g. 20:20k, :9.5k or 40:; "
+    "edges from 0.001 Hz to 1e+09 Hz"
 )
 
 
@@ -446,7 +499,7 @@ def parse_band(text: str | Sequence[object], *, name: str) -> tuple[float | None
             edges.append(parse_quantity(part, "frequency", name=name))  # type: ignore[arg-type]
         except ParameterError:
             raise _fail(
-                name, text, f"has a {side} edge {part!r} that is not a frequency above 0",
+                name, text, f"has a {side} edge {part!r} that is not a frequency from 0.001 Hz to 1e+09 Hz",
                 _BAND_ACCEPTED,
             ) from None
     low, high = edges
@@ -462,7 +515,7 @@ def parse_band(text: str | Sequence[object], *, name: str) -> tuple[float | None
 
 _GRID_ACCEPTED = (
     "START:STOP:COUNT (log-spaced, e.g. 2k:20k:40), a list such as 100,200,400, "
-    "or one value such as 1k; frequencies in Hz above 0"
+    "or one value such as 1k; frequencies from 0.001 Hz to 1e+09 Hz"
 )
 
 
@@ -500,7 +553,7 @@ def parse_grid(text: str | float | Sequence[object], *, name: str) -> list[float
         try:
             return parse_quantity(item, "frequency", name=name)  # type: ignore[arg-type]
         except ParameterError:
-            raise _fail(name, text, f"holds {item!r}, which is not a frequency above 0",
+            raise _fail(name, text, f"holds {item!r}, which is not a frequency from 0.001 Hz to 1e+09 Hz",
                         _GRID_ACCEPTED) from None
 
     if _is_number(text):

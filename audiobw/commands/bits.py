@@ -8,6 +8,8 @@ import click
 
 from ..clikit import CONTEXT
 
+MAX_SAMPLES = 200_000_000  # 800 MB of float32; about 70 minutes at 48 kHz
+
 
 @click.command("bits", context_settings=CONTEXT)
 @click.option("--bit-rate", required=True, metavar="RATE", help="Bit rate, bit/s (e.g. 2k, 9600).")
@@ -20,7 +22,7 @@ from ..clikit import CONTEXT
 @click.option("--full-scale", default="1.228", show_default=True, metavar="VRMS",
               help="rms of a full-scale sine at the converter input (sets the sample scale).")
 @click.option("--rate", default="48k", show_default=True, metavar="HZ", help="Sample rate, Hz.")
-@click.option("--seed", default=1, show_default=True, type=int, help="Seed for --pattern random.")
+@click.option("--seed", default="1", show_default=True, metavar="S", help="Seed for --pattern random (0 to 2^32-1).")
 @click.option("--out", required=True, type=click.Path(path_type=Path), help="Output WAV or FLAC file.")
 def command(bit_rate, pattern, bits_count, amplitude, full_scale, rate, seed, out):
     """Write a polar NRZ test stream (for `audiobw sweep --program data`).
@@ -48,6 +50,11 @@ def command(bit_rate, pattern, bits_count, amplitude, full_scale, rate, seed, ou
         raise ParameterError(f"--rate: {rate!r} is out of range; accepted: an integer rate 8000 to 384000 Hz")
     if r > fs / 2:
         raise ParameterError(f"--bit-rate: {r:g} bit/s is above fs/2 = {fs / 2:g}; accepted: at most fs/2")
+    seed = units.parse_int(seed, name="--seed", low=0, high=2**32 - 1)
+    samples = n[0] * fs / r
+    if samples > MAX_SAMPLES:
+        raise ParameterError(f"--bit-rate: {bit_rate!r} with --bits-count {n[0]} at {fs:g} Hz makes {samples:.3g} "
+                             f"samples; accepted: at most {MAX_SAMPLES:,} samples (raise the bit rate or lower the count)")
     peak = amp_v / (math.sqrt(2.0) * fs_v)  # samples: a full-scale sine has peak 1.0
     if peak > 1.0:
         raise ParameterError(f"--amplitude: {amplitude!r} exceeds full scale ({math.sqrt(2) * fs_v:.4g} V peak); "

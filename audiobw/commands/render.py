@@ -43,8 +43,8 @@ def _loudness(text: str) -> float:
               help="Start of the clips [default: where the input has most power in the band the filter removes].")
 @click.option("--trials", default=0, show_default=True, type=click.IntRange(0, 200), metavar="N",
               help="Write N blind pairs and an answer key.")
-@click.option("--seed", default=1, show_default=True, type=int, metavar="S",
-              help="Seed of the chain's noise, dither and the trial order.")
+@click.option("--seed", default="1", show_default=True, metavar="S",
+              help="Seed of the chain's noise, dither and the trial order (0 to 2^32-1).")
 @click.option("--bit-rate", "bit_rate", default=None, metavar="RATE",
               help="For a data program: also write eye.png, the eye diagram of the chain output at this "
                    "bit rate (bit/s, e.g. 2k, or auto).")
@@ -65,6 +65,7 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
     """
     from .. import units
     from ..audio import open_info
+    from ..names import shown
     from ..filters import FilterSpec
     from ..render import RenderOptions, render_file
 
@@ -84,12 +85,12 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
         excerpt_start_s=(None if excerpt_at is None else
                          units.parse_quantity(excerpt_at, "seconds", name="--excerpt-at")
                          if str(excerpt_at).strip() not in ("0", "0s") else 0.0),
-        trials=trials, seed=seed)
+        trials=trials, seed=units.parse_int(seed, name="--seed", low=0, high=2**32 - 1))
     info = open_info(input)
     spec = FilterSpec(response, families[0], int(orders[0]), lo, hi, g.get("ripple", 0.1),
                       g.get("stopband", 60.0), settings.chain.stage, info.sample_rate_hz)
     out_dir = out or Path.cwd() / "audiobw-out" / input.stem / "render"
-    progress = Progress(f"rendering {input.name}")
+    progress = Progress(f"rendering {shown(input.name)}")
     try:
         result = render_file(input, spec, settings, out_dir, opts, progress=progress)
     finally:

@@ -38,6 +38,7 @@ from .. import __version__
 from ..audio import write_text_atomic
 from ..clikit import ESTIMATE_CAUTION, LISTENING_CAUTION
 from ..errors import AudiobwError, AudioFileError, ParameterError
+from ..names import md_code, md_text
 from ..metrics import TARGET_KEYS, TARGET_METRIC
 from .text import TARGET_LABEL
 
@@ -639,8 +640,8 @@ def markdown(spec: dict, renders: list | None = None) -> str:
     """spec.md text."""
     inp = spec["input"]
     name = Path(inp["path"]).name
-    out = [f"# Passband spec sheet — {name}", ""]
-    out.append(f"Program: `{inp['path']}` (sha256 `{inp['sha256'][:16]}…`), {inp['duration_s']:g} s, "
+    out = [f"# Passband spec sheet — {md_text(name)}", ""]
+    out.append(f"Program: {md_code(inp['path'])} (sha256 `{inp['sha256'][:16]}…`), {inp['duration_s']:g} s, "
                f"{inp['channels']} ch, {inp['sample_rate_hz']} Hz; peak {inp['peak_dbfs']:.1f} dBFS, "
                f"rms {inp['rms_dbfs']:.1f} dBFS; 99 % occupied band {fmt(inp['occupied_low_hz'], 'Hz')} to "
                f"{fmt(inp['occupied_high_hz'], 'Hz')}.")

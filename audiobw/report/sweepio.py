@@ -13,6 +13,7 @@ import json
 from pathlib import Path
 
 from ..audio import write_text_atomic
+from ..names import csv_cell
 
 CSV_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "bandwidth_hz", "enbw_hz",
             "noise_vrms", "noise_dbfs", "snr_db", "snr_a_db", "loss_db", "lsd_db", "ser_db",
@@ -40,7 +41,7 @@ def csv_text(doc: dict, keys=CSV_KEYS) -> str:
                 v = ""
             elif isinstance(v, bool):
                 v = "true" if v else "false"
-            row.append(v)
+            row.append(csv_cell(v))
         writer.writerow(row)
     return buf.getvalue()
 

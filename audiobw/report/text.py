@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from ..units import format_quantity
+from ..names import shown
 
 TARGET_LABEL = {
     "min_snr_db": ("SNR", "snr_db", "dB", "≥"),
@@ -148,7 +149,7 @@ def closing_paragraph(doc: dict) -> str:
     cases = {c["id"]: c for c in doc["cases"]}
     targets = doc["targets"]
     inp = doc["input"]
-    head = (f"{inp['path']}: {inp['duration_s']:.1f} s, {inp['channels']} ch, {inp['sample_rate_hz']} Hz; "
+    head = (f"{shown(inp['path'])}: {inp['duration_s']:.1f} s, {inp['channels']} ch, {inp['sample_rate_hz']} Hz; "
             f"peak {inp['peak_dbfs']:.1f} dBFS, rms {inp['rms_dbfs']:.1f} dBFS, 99 % occupied bandwidth "
             f"{format_quantity(inp['occupied_bw_hz'], 'Hz')} "
             f"({format_quantity(inp['occupied_low_hz'], 'Hz')} to {format_quantity(inp['occupied_high_hz'], 'Hz')})"
