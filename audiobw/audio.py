@@ -486,6 +486,7 @@ def output_lock(folder, *, wait_s: float | None = None):
     folder = Path(folder)
     if folder.exists() and not folder.is_dir():
         raise OutputError(f"--out: {shown(folder)!r} exists and is not a folder")
+    created = not folder.exists()
     try:
         folder.mkdir(parents=True, exist_ok=True)
         key = os.path.realpath(folder)
@@ -518,6 +519,13 @@ def output_lock(folder, *, wait_s: float | None = None):
         _held_locks[key] = [fd, 1]
         try:
             yield folder
+        except BaseException:
+            # a run refused before writing leaves no folder behind that it made itself
+            if created and [p.name for p in folder.iterdir()] == [LOCK_NAME]:
+                with contextlib.suppress(OSError):
+                    (folder / LOCK_NAME).unlink()
+                    folder.rmdir()
+            raise
         finally:
             del _held_locks[key]
     finally:

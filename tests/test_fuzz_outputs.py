@@ -139,7 +139,8 @@ def test_stdout_on_a_full_device_is_one_line():
                               timeout=120)
     assert proc.returncode == 1, proc.stderr
     assert proc.stderr.strip().splitlines() == [
-        "audiobw: error: standard output: cannot write (No space left on device)"]
+        "audiobw: error: cannot write to standard output (No space left on device); "
+        "accepted: a terminal, pipe or file with room"]
 
 
 def test_enospc_oserror_from_any_writer_is_one_line(tmp_path, monkeypatch):
