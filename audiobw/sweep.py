@@ -94,7 +94,8 @@ DATA_CASE_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sig
 CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
              "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
              "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
-             "passes", "fails", "margins_db", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db")
+             "passes", "fails", "margins_db", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db",
+             "audible_band_hz", "audible_band_pct")
 
 
 @dataclass

@@ -160,10 +160,11 @@ class PerceptualScorer:
             "delay_s": tau,
         }
         # where the error is heard: the band over its threshold in the most frames
+        row["audible_band_hz"] = row["audible_band_pct"] = None
         counts = over.sum(axis=0)
         if counts.max() > 0:
             b = int(np.argmax(counts))
-            row["audible_band_hz"] = (float(self.edges[b]), float(self.edges[b + 1]))
+            row["audible_band_hz"] = [float(f"{self.edges[b]:.6g}"), float(f"{self.edges[b + 1]:.6g}")]
             row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
         if self.listening.program == "speech":
             k = self.k_ac
