@@ -12,8 +12,9 @@ filter removes, chain noise) is multiplied by the same acoustic gain.
 
 The error of a case in critical band b and frame t is
 ``frames[t, b] · r_b + N_b``: r_b is the share of the band's long-term program
-power that |1 − H e^{j2πfτ}|² removes or distorts (phase included, τ the best
-delay), applied to each frame's band power (the spectral shape inside a band is
+power that |1 − H e^{j2πfτ}|² removes or distorts (phase included inside the
+band, τ the best overall delay, each band aligned by its best constant phase —
+see :meth:`PerceptualScorer._heard_share`), applied to each frame's band power (the spectral shape inside a band is
 taken as constant over time), and N_b the chain's output noise in the band.
 Harmonic distortion of the amplifier is not included (it is modelled on a test
 tone only, see THD+N).  Tonality is the flatness of each frame's band power
@@ -129,6 +130,22 @@ class PerceptualScorer:
         out[..., self._filled] = np.add.reduceat(x, self._starts, axis=-1)
         return out
 
+    def _heard_share(self, h, f, w, tau) -> np.ndarray:
+        """Share of each critical band's program power that the filter changes, as heard.
+
+        After the best overall delay τ, each band's response is also given the
+        constant phase that best aligns it (min over θ of Σ|1 − H e^{j(2πfτ+θ)}|² S
+        = Σ(1 + |H|²)S − 2|Σ H e^{j2πfτ} S|): a group-delay difference between
+        distant bands of a fraction of a millisecond is not heard as error,
+        while gain error and phase dispersion inside a band still count.
+        """
+        he = h * np.exp(2j * np.pi * f * tau)
+        sw = self.sw
+        power = self._band_sum((1.0 + (he.real ** 2 + he.imag ** 2)) * sw)
+        cross = np.abs(self._band_sum(he.real * sw) + 1j * self._band_sum(he.imag * sw))
+        err = np.maximum(power - 2.0 * cross, 0.0)
+        return np.divide(err, self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
+
     def limits(self) -> dict:
         """Top-level figures of the program and chain (no filter)."""
         return {"wiener_ser_db": _db(self.p_total / self.mse_min) if self.mse_min > 0 else None,
@@ -146,7 +163,7 @@ class PerceptualScorer:
         tau = wiener.best_delay(h, self.S, f, w)
         removed = wiener.removed_psd(h, self.S, f, tau)
         rw = removed * w
-        share = np.divide(self._band_sum(rw), self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
+        share = self._heard_share(h, f, w, tau)
         n_band = self._band_sum(noise_psd * w) * self.k_ac
         err = self.frames * share + n_band
         ratio = err / self.mask
@@ -182,8 +199,7 @@ class PerceptualScorer:
         f, w = a.freqs_hz, a.weights_hz
         h = complex_response(filt, f)
         tau = wiener.best_delay(h, self.S, f, w)
-        rw = wiener.removed_psd(h, self.S, f, tau) * w
-        share = np.divide(self._band_sum(rw), self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
+        share = self._heard_share(h, f, w, tau)
         err = self.frames[frame] * share + self._band_sum(noise_psd * w) * self.k_ac
         db = lambda x: 10 * np.log10(np.maximum(x, 1e-12))  # noqa: E731
         return {"centres_hz": self.centres_hz, "program_db": db(self.frames[frame]),

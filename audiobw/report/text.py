@@ -151,7 +151,8 @@ def closing_paragraph(doc: dict) -> str:
             label, metric, unit, sense = TARGET_LABEL[b]
             margin = choice.get("binding_margin_db")
             lines.append(f"Binding target: {label} {sense} {_target_text(b, targets[b])} "
-                         f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin:.3g} dB).")
+                         f"(this case: {_fmt_metric(metric, c[metric])}; margin "
+                         f"{'∞' if margin is None or margin == float('inf') else f'{margin:.3g}'} dB).")
         if choice.get("grid_limited"):
             lines.append("This is the narrowest case of its family and order in the grid: extend the grid "
                          "to see whether a narrower passband also passes.")
@@ -213,6 +214,10 @@ def _target_text(key: str, value: float) -> str:
         return f"{value:.0e}"
     if key == "min_eye":
         return f"{100 * value:g} % of the unfiltered opening"
+    if key == "min_sii":
+        return f"{value:g}"
+    if key == "max_audible_frames_pct":
+        return f"{value:g} % of frames"
     return f"{value:g} %" if key == "max_thdn_pct" else f"{value:g} dB"
 
 
