@@ -13,7 +13,7 @@ filter removes, chain noise) is multiplied by the same acoustic gain.
 The error of a case in critical band b and frame t is
 ``frames[t, b] · r_b + N_b``: r_b is the share of the band's long-term program
 power that |1 − H e^{j2πfτ}|² removes or distorts (phase included inside the
-band, τ the best overall delay, each band aligned by its best constant phase —
+band; each band aligned by its own group delay and best constant phase —
 see :meth:`PerceptualScorer._heard_share`), applied to each frame's band power (the spectral shape inside a band is
 taken as constant over time), and N_b the chain's output noise in the band.
 Harmonic distortion of the amplifier is not included (it is modelled on a test
@@ -93,6 +93,7 @@ class PerceptualScorer:
         edges = a.band_edges_hz
         self.edges = edges
         band_of_bin = np.clip(np.searchsorted(edges, f, side="right") - 1, 0, len(edges) - 2)
+        self._band_of_bin = band_of_bin
         counts = np.bincount(band_of_bin, minlength=len(edges) - 1)
         self._filled = np.flatnonzero(counts)
         self._starts = np.searchsorted(band_of_bin, self._filled)
@@ -130,17 +131,28 @@ class PerceptualScorer:
         out[..., self._filled] = np.add.reduceat(x, self._starts, axis=-1)
         return out
 
+    def _delay(self, h, f, w) -> float:
+        """Best delay, searched up to twice the filter's largest passband group delay (+ 2 samples)."""
+        limit = 2.0 * max(wiener.passband_group_delay_s(h, f), 0.0) + 2.0 / self.analysis.sample_rate_hz
+        return wiener.best_delay(h, self.S, f, w, max_delay_s=limit)
+
     def _heard_share(self, h, f, w, tau) -> np.ndarray:
         """Share of each critical band's program power that the filter changes, as heard.
 
-        After the best overall delay τ, each band's response is also given the
-        constant phase that best aligns it (min over θ of Σ|1 − H e^{j(2πfτ+θ)}|² S
-        = Σ(1 + |H|²)S − 2|Σ H e^{j2πfτ} S|): a group-delay difference between
-        distant bands of a fraction of a millisecond is not heard as error,
-        while gain error and phase dispersion inside a band still count.
+        Each band is aligned by its own delay (the program-weighted mean group
+        delay of H inside the band) and then by the constant phase that best
+        aligns it: min over θ of Σ|1 − H e^{j(2πfτ_b+θ)}|² S
+        = Σ(1 + |H|²)S − 2|Σ H e^{j2πfτ_b} S|.  A difference in group delay
+        between bands (a highpass delays the bass by milliseconds) is not counted
+        as error; gain error and phase dispersion inside a band are.  ``tau``
+        (the best overall delay) is used where a band's own delay is undefined.
         """
-        he = h * np.exp(2j * np.pi * f * tau)
+        phase = np.unwrap(np.angle(h))
+        gd = -np.gradient(phase, 2 * np.pi * f)
         sw = self.sw
+        gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau),
+                         where=self.band_s > 0)
+        he = h * np.exp(2j * np.pi * f * gd_b[self._band_of_bin])
         power = self._band_sum((1.0 + (he.real ** 2 + he.imag ** 2)) * sw)
         cross = np.abs(self._band_sum(he.real * sw) + 1j * self._band_sum(he.imag * sw))
         err = np.maximum(power - 2.0 * cross, 0.0)
@@ -160,7 +172,7 @@ class PerceptualScorer:
         a = self.analysis
         f, w = a.freqs_hz, a.weights_hz
         h = complex_response(filt, f)
-        tau = wiener.best_delay(h, self.S, f, w)
+        tau = self._delay(h, f, w)
         removed = wiener.removed_psd(h, self.S, f, tau)
         rw = removed * w
         share = self._heard_share(h, f, w, tau)
@@ -198,7 +210,7 @@ class PerceptualScorer:
         a = self.analysis
         f, w = a.freqs_hz, a.weights_hz
         h = complex_response(filt, f)
-        tau = wiener.best_delay(h, self.S, f, w)
+        tau = self._delay(h, f, w)
         share = self._heard_share(h, f, w, tau)
         err = self.frames[frame] * share + self._band_sum(noise_psd * w) * self.k_ac
         db = lambda x: 10 * np.log10(np.maximum(x, 1e-12))  # noqa: E731

@@ -55,14 +55,16 @@ def removed_psd(h, s, freqs_hz, delay_s=0.0) -> np.ndarray:
     return np.abs(1.0 - he) ** 2 * np.asarray(s, float)
 
 
-def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 8) -> float:
+def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 8, max_delay_s: float | None = None) -> float:
     """Delay τ ≥ 0 (s) that minimises Σ w·|1 − H e^{j2πfτ}|² S on a uniform grid.
 
     Minimising the error is maximising Re Σ w·S·H·e^{j2πfτ}, a cross-correlation
     evaluated for all τ at once by an inverse FFT (zero-padded by
     ``oversample``) and refined by a parabola through the peak.  ``freqs_hz``
     must be uniform from 0 (k·df).  Only τ below half the grid's period
-    1/df is searched; a causal filter's group delay is far shorter.
+    1/df is searched, and only up to ``max_delay_s`` when given: a tonal program
+    makes the correlation periodic, and a delay far beyond the filter's own group
+    delay would match one partial while misaligning the rest.
     """
     f = np.asarray(freqs_hz, float)
     df = f[1] - f[0]
@@ -72,6 +74,8 @@ def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 8) -> float:
     spec[: len(f)] = g
     corr = np.real(np.fft.ifft(spec)) * n
     half = n // 2
+    if max_delay_s is not None:
+        half = max(3, min(half, int(np.ceil(max_delay_s * n * df)) + 2))
     i = int(np.argmax(corr[:half]))
     shift = 0.0
     if 0 < i < half - 1:
@@ -80,6 +84,15 @@ def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 8) -> float:
         if den < 0:
             shift = 0.5 * (y0 - y2) / den
     return float((i + shift) / (n * df))
+
+
+def passband_group_delay_s(h, freqs_hz) -> float:
+    """Largest group delay −dφ/dω (s) where |H|² ≥ 1/2: the range a best delay is searched in."""
+    f = np.asarray(freqs_hz, float)
+    phase = np.unwrap(np.angle(h))
+    gd = -np.gradient(phase, 2 * np.pi * f)
+    band = np.abs(h) ** 2 >= 0.5
+    return float(np.max(gd[band])) if np.any(band) else 0.0
 
 
 def gap_db(mse, mse_min) -> float:
