@@ -40,8 +40,9 @@ def options(keys, group: str):
 CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
          "bits", "full_scale", "dither", "stage")
 GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband")
-TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser", "max_ber", "min_eye")
-PROGRAM = ("program", "bit_rate")
+TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser", "max_ber", "min_eye",
+           "max_nmr", "max_audible_frames", "min_sii")
+PROGRAM = ("program", "bit_rate", "playback_spl", "hearing_threshold")
 METER = ("meter", "tone", "tone_level")
 
 

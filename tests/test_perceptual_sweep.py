@@ -128,3 +128,18 @@ def test_removed_part_matches_time_domain(speech_analysis, rng):
     d = int(round(tau * FS))
     e = x[2000:-2000] - y[2000 + d:len(y) - 2000 + d]
     assert 10 * np.log10(np.mean(e ** 2) / spectral) == pytest.approx(0.0, abs=0.5)
+
+
+@pytest.mark.parametrize("args,match", [
+    (["--hearing-threshold", "1000"], "--hearing-threshold"),
+    (["--max-audible-frames", "150"], "0 to 100"),
+    (["--min-sii", "0.8"], "speech programs only"),
+    (["--playback-spl", "200"], "0 < level <= 130"),
+])
+def test_bad_listening_options_are_one_line_errors(speech_analysis, capsys, args, match):
+    from audiobw.cli import main
+
+    path, _ = speech_analysis
+    code = main(["sweep", str(path), "--cutoffs", "2k:8k:3", "--min-snr", "10", *args])
+    err = capsys.readouterr().err
+    assert code == 2 and match in err and len(err.strip().splitlines()) == 1
