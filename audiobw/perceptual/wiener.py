@@ -55,7 +55,7 @@ def removed_psd(h, s, freqs_hz, delay_s=0.0) -> np.ndarray:
     return np.abs(1.0 - he) ** 2 * np.asarray(s, float)
 
 
-def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 8, max_delay_s: float | None = None) -> float:
+def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 4, max_delay_s: float | None = None) -> float:
     """Delay τ ≥ 0 (s) that minimises Σ w·|1 − H e^{j2πfτ}|² S on a uniform grid.
 
     Minimising the error is maximising Re Σ w·S·H·e^{j2πfτ}, a cross-correlation
@@ -69,10 +69,13 @@ def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 8, max_delay_s: 
     f = np.asarray(freqs_hz, float)
     df = f[1] - f[0]
     g = np.asarray(weights_hz, float) * np.asarray(s, float) * np.asarray(h, complex)
-    n = oversample * 2 * len(f)
-    spec = np.zeros(n, complex)
-    spec[: len(f)] = g
-    corr = np.real(np.fft.ifft(spec)) * n
+    # a power of two: an FFT of 16 × 8193 points (a large prime factor) costs 40 × more.
+    # Re Σ g_k e^{j2πkn/N} = (N·irfft(g)[n] + Re g_0)/2: a real inverse transform suffices
+    # (the constant does not move the maximum).
+    from scipy import fft as sfft
+
+    n = 1 << int(np.ceil(np.log2(oversample * 2 * len(f))))
+    corr = sfft.irfft(g, n=n)
     half = n // 2
     if max_delay_s is not None:
         half = max(3, min(half, int(np.ceil(max_delay_s * n * df)) + 2))
