@@ -274,6 +274,15 @@ def settings_from_plain(data: dict):
     kw["grid_values"] = {k: tuple(v) if isinstance(v, list) else v for k, v in data["grid_values"].items()}
     kw["targets"] = dict(data["targets"])
     kw["input_level"] = tuple(data["input_level"]) if data["input_level"] is not None else None
+    if data.get("listening"):
+        from .perceptual.scoring import Listening
+
+        ls = data["listening"]
+        ag = ls.get("audiogram_hl")
+        kw["listening"] = Listening(ls["program"], ls.get("playback_spl_db"),
+                                    {float(k): float(v) for k, v in ag.items()} if ag else None)
+    if "default_targets" in data:
+        kw["default_targets"] = tuple(data["default_targets"])
     known = {f.name for f in fields(Settings)}
     return Settings(**{k: v for k, v in kw.items() if k in known})
 

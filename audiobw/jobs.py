@@ -49,7 +49,9 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
 
         data = data_program_for(analysis, chain, settings.bit_rate)
     result = run_sweep(path, chain=chain, grid=grid, meter=settings.meter, targets=settings.targets,
-                       analysis=analysis, data=data)
+                       analysis=analysis, data=data, listening=settings.listening)
+    if settings.default_targets:
+        result.notes.append(_default_targets_note(settings))
     doc = result.to_json()
     paths = {}
     if out_dir is not None:
@@ -59,6 +61,18 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
             paths = write_outputs(doc, out_dir, inputs=[path])
             paths["spectrum"] = write_spectrum(analysis, out_dir / "spectrum.npz", inputs=[path])
     return doc, paths
+
+
+def _default_targets_note(settings) -> str:
+    parts = []
+    if "max_audible_frames_pct" in settings.default_targets:
+        parts.append("no fidelity target given: the default target is no audible error "
+                     f"(--max-audible-frames {settings.targets['max_audible_frames_pct']:g} % of frames, "
+                     f"music at {settings.listening.spl_db:g} dB SPL)")
+    if "min_sii" in settings.default_targets:
+        parts.append(f"speech: the default target is --min-sii {settings.targets['min_sii']:g} "
+                     f"(ANSI S3.5-1997, speech at {settings.listening.spl_db:g} dB SPL)")
+    return "; ".join(parts)
 
 
 def write_spectrum(analysis, target, *, inputs=()):

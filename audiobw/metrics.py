@@ -42,7 +42,7 @@ from .weighting import a_weighting_power
 LSD_FRAME_FLOOR_DB = -60.0
 
 TARGET_KEYS = ("min_snr_db", "min_snr_a_db", "max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db",
-               "max_ber", "min_eye", "min_headroom_db")
+               "max_ber", "min_eye", "min_headroom_db", "max_nmr_db", "max_audible_frames_pct", "min_sii")
 #: target key -> (metric key, sense): +1 means the metric must be at least the target.
 TARGET_METRIC = {
     "min_snr_db": ("snr_db", +1),
@@ -54,6 +54,9 @@ TARGET_METRIC = {
     "max_ber": ("ber", -1),
     "min_eye": ("eye_fraction", +1),
     "min_headroom_db": ("headroom_db", +1),
+    "max_nmr_db": ("nmr_db", -1),
+    "max_audible_frames_pct": ("audible_frames_pct", -1),
+    "min_sii": ("sii", +1),
 }
 
 
@@ -339,6 +342,11 @@ def check_targets(row: dict, targets: dict) -> tuple[bool, list[str], dict]:
         elif key == "max_ber":
             margin = 10 * math.log10(limit / value) if value > 0 else math.inf
         elif key == "min_eye":
+            margin = 20 * math.log10(value / limit) if value > 0 else -math.inf
+        elif key == "max_audible_frames_pct":
+            # a share of frames: 10·lg(limit/value), inf when no frame is audible
+            margin = 10 * math.log10(limit / value) if value > 0 else math.inf
+        elif key == "min_sii":
             margin = 20 * math.log10(value / limit) if value > 0 else -math.inf
         else:
             margin = (value - limit) * sense

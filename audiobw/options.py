@@ -51,8 +51,9 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "max_ber": ("targets", "probability", "target (data programs): maximum bit-error rate, e.g. 1e-9"),
     "min_eye": ("targets", "fraction", "target (data programs): minimum eye opening, fraction of the "
                 "unfiltered one (0.6 or 60%)"),
-    "program": ("program", "choice:audio,data", "what the recording is: audio (default) or data (a polar "
-                "NRZ bit stream, scored by eye opening and bit-error rate)"),
+    "program": ("program", "choice:music,speech,data,audio", "what the recording is: music (default; "
+                "judged by audibility at --playback-spl), speech (judged by the Speech Intelligibility Index) "
+                "or data (a polar NRZ bit stream, scored by eye opening and bit-error rate); audio = music"),
     "bit_rate": ("program", "bit_rate", "bit rate of a data program, bit/s (2k, 9600) or auto (recovered "
                  "from the recording)"),
     "meter": ("meter", "choice:full,aes17", "meter band: full (0 to fs/2) or aes17 (20 Hz to 20 kHz)"),
@@ -69,6 +70,15 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
             "order, then the gentler family (default 1%)"),
     "min_headroom": ("targets", "db_any", "target: minimum headroom, dB: converter full scale over the "
                      "program's peak at the converter"),
+    "playback_spl": ("listening", "db_any", "playback level: the program's rms is heard at this level, "
+                     "dB SPL (default: speech 62.35, ANSI S3.5-1997 normal vocal effort; music 80)"),
+    "hearing_threshold": ("listening", "audiogram", "hearing threshold, dB HL at audiometric "
+                          "frequencies, e.g. 500:10,1000:20,4000:45 (default 0 dB HL, ISO 389-7 reference)"),
+    "max_nmr": ("targets", "db_any", "target: maximum total noise-to-mask ratio, dB (ITU-R BS.1387 sense)"),
+    "max_audible_frames": ("targets", "percent", "target: maximum share of short frames whose error is "
+                           "above the masked threshold, % (music default: 1)"),
+    "min_sii": ("targets", "fraction", "target (speech): minimum Speech Intelligibility Index, 0 to 1 "
+                "(ANSI S3.5-1997; speech default: 0.75)"),
 }
 
 

@@ -37,7 +37,8 @@ GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges"
              "rank", "tie")
 TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
                  "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
-                 "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db"}
+                 "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db",
+                 "max_nmr": "max_nmr_db", "max_audible_frames": "max_audible_frames_pct", "min_sii": "min_sii"}
 METER_KEYS = ("meter", "tone", "tone_level")
 MAX_TOML_BYTES = 1_000_000  # a chain file is a few hundred bytes; more is a mistake or hostile
 
@@ -131,7 +132,33 @@ def _parse(key: str, raw: Raw):
         return _parse_mic_sensitivity(v, name)
     if kind == "probability":
         return _parse_probability(v, name)
+    if kind == "percent":
+        return _parse_percent(v, name)
+    if kind == "audiogram":
+        from .perceptual.threshold import parse_audiogram
+        try:
+            return parse_audiogram(v)
+        except ValueError as exc:
+            raise ParameterError(f"{name}: {exc}") from None
     return units.parse_quantity(v, kind, name=name)
+
+
+def _parse_percent(v, name):
+    text = str(v).strip().rstrip("%").strip()
+    try:
+        x = float(text)
+    except ValueError:
+        x = math.nan
+    if not 0 <= x <= 100:
+        raise ParameterError(f"{name}: {v!r} is not accepted; accepted: a share of frames, 0 to 100 (%)")
+    return x
+
+
+#: targets that judge fidelity (with none of them, music defaults to no audible error)
+FIDELITY_TARGETS = ("max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db", "max_nmr_db",
+                    "max_audible_frames_pct")
+DEFAULT_MAX_AUDIBLE_FRAMES_PCT = 1.0
+DEFAULT_MIN_SII = 0.75
 
 
 def _parse_bit_rate(v, name):
@@ -207,10 +234,12 @@ class Settings:
     meter: Meter
     targets: dict
     input_level: tuple | None
-    program: str = "audio"
+    program: str = "music"
     bit_rate: object = None
     #: the program's rms at the source, V (from --source-level, or --spl with --mic-sensitivity)
     source_vrms: float | None = None
+    listening: object = None        # perceptual.scoring.Listening (music, speech)
+    default_targets: tuple = ()     # target keys filled in by program-kind defaults
 
     def grid_for(self, nyquist_hz: float):
         """The Grid, with defaults for the edges that were not given, fitted to ``nyquist_hz``."""
@@ -307,7 +336,30 @@ def build(raw: dict[str, Raw]) -> Settings:
         raise ParameterError(f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; "
                              "accepted: 0 < stopband <= 200 dB")
     grid_values = {k: parsed[k] for k in GRID_KEYS if k in parsed}
-    program = parsed.get("program", "audio")
+    program = parsed.get("program", "music")
+    if program == "audio":
+        program = "music"
+    listening = None
+    default_targets = []
+    if program in ("music", "speech"):
+        from .perceptual.scoring import Listening
+
+        listening = Listening(program, parsed.get("playback_spl"), parsed.get("hearing_threshold"))
+        if program == "music" and not any(k in targets for k in FIDELITY_TARGETS):
+            targets["max_audible_frames_pct"] = DEFAULT_MAX_AUDIBLE_FRAMES_PCT
+            default_targets.append("max_audible_frames_pct")
+        if program == "speech" and "min_sii" not in targets:
+            targets["min_sii"] = DEFAULT_MIN_SII
+            default_targets.append("min_sii")
+    elif "min_sii" in targets or "max_nmr_db" in targets or "max_audible_frames_pct" in targets:
+        raise ParameterError("--max-nmr/--max-audible-frames/--min-sii: apply to music or speech programs; "
+                             "accepted: --program music or --program speech")
+    if "min_sii" in targets and program != "speech":
+        raise ParameterError(f"{raw['min_sii'].origin}: applies to speech programs only; "
+                             "accepted: add --program speech")
+    if "playback_spl" in parsed and not 0 < parsed["playback_spl"] <= 130:
+        raise ParameterError(f"{raw['playback_spl'].origin}: {raw['playback_spl'].value!r} is out of range; "
+                             "accepted: 0 < level <= 130 dB SPL")
     bit_rate = parsed.get("bit_rate")
     data_targets = [k for k in ("max_ber", "min_eye") if k in parsed]
     if program == "data" and bit_rate is None:
@@ -318,7 +370,7 @@ def build(raw: dict[str, Raw]) -> Settings:
     source_vrms = _source_vrms(parsed, raw)
     return Settings(chain=chain, grid_values=grid_values, meter=meter, targets=targets,
                     input_level=parsed.get("input_level"), program=program, bit_rate=bit_rate,
-                    source_vrms=source_vrms)
+                    source_vrms=source_vrms, listening=listening, default_targets=tuple(default_targets))
 
 
 def sanity_warnings(settings: "Settings", raw_keys=()) -> list[str]:

@@ -128,7 +128,8 @@ DATA_CASE_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sig
 CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
              "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
              "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
-             "passes", "fails", "margins_db", "headroom_db")
+             "passes", "fails", "margins_db", "headroom_db", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db",
+             "audible_band_hz", "audible_band_pct")
 
 
 @dataclass
@@ -145,6 +146,7 @@ class SweepResult:
     unmet: dict
     notes: list = field(default_factory=list)
     data: object = None  # datalink.DataProgram for data programs
+    limits: dict = field(default_factory=dict)  # perceptual.scoring.PerceptualScorer.limits()
 
     def to_json(self) -> dict:
         a = self.analysis
@@ -179,6 +181,7 @@ class SweepResult:
             "choice": self.choice,
             "unmet": {k: _round(v) for k, v in self.unmet.items()},
             "notes": list(self.notes),
+            **({"limits": {k: _round_any(v) for k, v in self.limits.items()}} if self.limits else {}),
             **({"data": self._data_json()} if self.data is not None else {}),
         }
 
@@ -217,11 +220,13 @@ def _round_any(v):
 
 
 def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targets: dict,
-                data=None) -> list[dict]:
+                data=None, perceptual=None) -> list[dict]:
     """Design and score every case of ``grid`` against one analysis.
 
     With ``data`` (a :class:`audiobw.datalink.DataProgram`) each row also
-    carries the data-link metrics (eye, Q, BER, jitter).
+    carries the data-link metrics (eye, Q, BER, jitter); with ``perceptual``
+    (a :class:`audiobw.perceptual.scoring.PerceptualScorer`) the audibility,
+    SII and Wiener-gap figures.
     """
     specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
     scorer = Scorer(analysis, chain, meter)
@@ -237,6 +242,8 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
         row["headroom_db"] = headroom
         if data is not None:
             row.update(_data_metrics(filt, analysis, chain, data))
+        if perceptual is not None:
+            row.update(_perceptual_metrics(filt, analysis, chain, perceptual))
         passes, fails, margins = check_targets(row, targets)
         row.update(passes=passes, fails=fails, margins_db=margins)
         rows.append(row)
@@ -253,6 +260,14 @@ def _data_metrics(filt, analysis: Analysis, chain: Chain, data) -> dict:
     total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
     sigma = math.sqrt(float(np.sum(total * analysis.weights_hz)))
     return score_data(filt, data, sigma)
+
+
+def _perceptual_metrics(filt, analysis: Analysis, chain: Chain, perceptual) -> dict:
+    """nmr_db, audible_frames_pct, sii, wiener_gap_db of one case (see audiobw.perceptual.scoring)."""
+    from .noise import noise_total
+
+    total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
+    return perceptual.score(filt, total)
 
 
 #: gentler families first when ranks tie: no ripple before ripple
@@ -302,7 +317,7 @@ def choose(cases: list[dict], targets: dict, rank: str = "enbw", tie: float = 0.
 
 
 def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, targets: dict | None = None,
-              progress=None, analysis: Analysis | None = None, data=None) -> SweepResult:
+              progress=None, analysis: Analysis | None = None, data=None, listening=None) -> SweepResult:
     """Analyse ``path`` once and score every case of ``grid``.
 
     Parameters
@@ -320,6 +335,11 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
     data : audiobw.datalink.DataProgram, optional
         Score the program as a data stream too (eye, Q, BER) and allow the
         ``max_ber`` and ``min_eye`` targets.
+    listening : audiobw.perceptual.scoring.Listening, optional
+        Playback conditions: adds ``nmr_db``, ``audible_frames_pct``, ``sii``
+        (speech) and ``wiener_gap_db`` to every case, ``limits`` to the result,
+        and allows the ``max_nmr_db``, ``max_audible_frames_pct`` and
+        ``min_sii`` targets.
     """
     meter = meter or Meter()
     targets = {k: v for k, v in (targets or {}).items() if v is not None}
@@ -334,13 +354,24 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
         analysis = analyse(path, progress=progress)
     if data is None and any(k in targets for k in ("max_ber", "min_eye")):
         raise ParameterError("--max-ber/--min-eye: apply to data programs only; accepted: add --program data")
-    cases = score_cases(analysis, chain, grid, meter, targets, data=data)
+    perceptual_keys = {"max_nmr_db", "max_audible_frames_pct", "min_sii"}
+    if listening is None and perceptual_keys & set(targets):
+        raise ParameterError("--max-nmr/--max-audible-frames/--min-sii: need playback conditions; "
+                             "accepted: a music or speech program (--program music|speech)")
+    if "min_sii" in targets and getattr(listening, "program", None) != "speech":
+        raise ParameterError("--min-sii: applies to speech programs only; accepted: add --program speech")
+    pscorer = None
+    if listening is not None:
+        from .perceptual.scoring import PerceptualScorer
+        pscorer = PerceptualScorer(analysis, chain, listening)
+    cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer)
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
     if chain.stage == "analog" and grid.response == "highpass" and chain.amp_bandwidth_hz is None:
         notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
                      "by the converter's anti-alias filter (give --amp-bandwidth to model it)")
-    return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data)
+    return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data,
+                       limits=pscorer.limits() if pscorer is not None else {})
 
 
 def _recorded_path(path) -> str:

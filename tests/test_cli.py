@@ -182,8 +182,18 @@ def test_bad_values_are_refused_in_one_line(prog, tmp_path, capsys, args, needle
 
 
 def test_no_target_is_refused(prog, capsys):
-    code, _, err = run(["sweep", prog, "--cutoffs", "2k:20k:4"], capsys)
+    code, _, err = run(["sweep", prog, "--cutoffs", "2k:20k:4", "--program", "data", "--bit-rate", "2k"], capsys)
     assert code == 2 and "at least one of --min-snr" in err
+
+
+def test_music_without_fidelity_target_defaults_to_no_audible_error(prog, capsys, tmp_path):
+    code, out, err = run(["sweep", prog, "--cutoffs", "2k:20k:4", "--min-snr", "20", "--out", tmp_path / "o"],
+                         capsys)
+    assert code == 0, err
+    doc = json.loads((tmp_path / "o" / "sweep.json").read_text())
+    assert doc["targets"]["max_audible_frames_pct"] == 1.0 and doc["targets"]["min_snr_db"] == 20.0
+    assert any("no audible error" in n for n in doc["notes"])
+    assert doc["limits"]["playback_spl_db"] == 80.0
 
 
 @pytest.mark.parametrize("content,code_expected", [(b"", 1), (b"RIFF\x00\x00", 1), (b"\x8f" * 5000, 1)])

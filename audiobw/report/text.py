@@ -17,6 +17,9 @@ TARGET_LABEL = {
     "max_ber": ("bit-error rate", "ber", "", "≤"),
     "min_eye": ("eye opening", "eye_fraction", "", "≥"),
     "min_headroom_db": ("headroom", "headroom_db", "dB", "≥"),
+    "max_nmr_db": ("noise-to-mask ratio", "nmr_db", "dB", "≤"),
+    "max_audible_frames_pct": ("audible frames", "audible_frames_pct", "%", "≤"),
+    "min_sii": ("speech intelligibility index", "sii", "", "≥"),
 }
 #: table column -> (header, unit, key, format, target that marks it)
 COLUMNS = (
@@ -33,6 +36,9 @@ COLUMNS = (
     ("LSD", "dB", "lsd_db", "{:>6.2f}", "max_lsd_db"),
     ("SER", "dB", "ser_db", "{:>6.1f}", "min_ser_db"),
     ("THD+N", "%", "thdn_pct", "{:>8.5f}", "max_thdn_pct"),
+    ("NMR", "dB", "nmr_db", "{:>6.1f}", "max_nmr_db"),
+    ("aud", "%", "audible_frames_pct", "{:>5.1f}", "max_audible_frames_pct"),
+    ("SII", "", "sii", "{:>5.3f}", "min_sii"),
 )
 
 
@@ -101,6 +107,10 @@ def _fmt_metric(key: str, value) -> str:
         return f"{100 * value:.1f} % of the unfiltered opening"
     if key == "q":
         return f"{value:.2f} (eye half-opening over the noise σ)"
+    if key == "sii":
+        return f"{value:.3f}"
+    if key == "audible_frames_pct":
+        return f"{value:.1f} % of frames"
     if key == "noise_dbfs":
         return f"{value:.1f} dBFS"
     if key == "noise_vrms":
@@ -175,10 +185,25 @@ def closing_paragraph(doc: dict) -> str:
             fails = ", ".join(TARGET_LABEL[t][0] for t in nn["fails"]) or "none"
             lines.append(f"The next narrower case ({nn['id']}, {format_quantity(nn['bandwidth_hz'], 'Hz')}) "
                          f"fails: {fails}.")
+            heard = nn.get("audible_band_hz")
+            if heard and nn.get("audible_band_pct"):
+                lines.append(f"Narrower, the error in {format_quantity(heard[0], 'Hz')} to "
+                             f"{format_quantity(heard[1], 'Hz')} (what the filter removes plus the chain's noise) "
+                             f"is above the masked threshold in {nn['audible_band_pct']:.0f} % of frames.")
         figs = ", ".join(f"{name} {_fmt_metric(k, c[k])}".strip() for name, k in (
             ("noise", "noise_vrms"), ("", "noise_dbfs"), ("SNR", "snr_db"), ("SNR-A", "snr_a_db"),
             ("loss", "loss_db"), ("LSD", "lsd_db"), ("SER", "ser_db"), ("THD+N", "thdn_pct")))
         lines.append("Its figures: " + figs + ".")
+        lim = doc.get("limits") or {}
+        if lim and c.get("nmr_db") is not None:
+            words = [f"NMR {c['nmr_db']:.1f} dB", f"error above the masked threshold in "
+                     f"{c['audible_frames_pct']:.1f} % of frames"]
+            if c.get("sii") is not None:
+                words.append(f"SII {c['sii']:.3f}")
+            if c.get("wiener_gap_db") is not None and lim.get("wiener_ser_db") is not None:
+                words.append(f"{c['wiener_gap_db']:.1f} dB above the Wiener bound "
+                             f"(best any linear filter can do: SER {lim['wiener_ser_db']:.1f} dB)")
+            lines.append(f"Heard at {lim['playback_spl_db']:.1f} dB SPL: " + ", ".join(words) + ".")
         if "data" in doc:
             lines.append("Data link: " + ", ".join(f"{name} {_fmt_metric(k, c.get(k))}" for name, k in (
                 ("eye", "eye_fraction"), ("Q", "q"), ("BER", "ber"))) +
@@ -223,6 +248,10 @@ def _target_text(key: str, value: float) -> str:
         return f"{value:.0e}"
     if key == "min_eye":
         return f"{100 * value:g} % of the unfiltered opening"
+    if key == "min_sii":
+        return f"{value:g}"
+    if key == "max_audible_frames_pct":
+        return f"{value:g} % of frames"
     return f"{value:g} %" if key == "max_thdn_pct" else f"{value:g} dB"
 
 

@@ -1,0 +1,224 @@
+"""Perceptual figures of one sweep case, from the sweep's one analysis pass.
+
+:class:`Listening` holds the playback conditions; :class:`PerceptualScorer`
+precomputes the program side once (masked threshold per kept short frame and
+critical band, one-third-octave speech levels, the Wiener bound) and
+:meth:`PerceptualScorer.score` rates one filter with array operations over
+frames × bands (at most 1024 frames, see :data:`audiobw.spectrum.MAX_FRAMES`).
+
+Scaling: the program's rms at the converter input (before noise) is heard at
+``playback_spl_db``; every power at the chain's output (program, what the
+filter removes, chain noise) is multiplied by the same acoustic gain.
+
+The error of a case in critical band b and frame t is
+``frames[t, b] · r_b + N_b``: r_b is the share of the band's long-term program
+power that |1 − H e^{j2πfτ}|² removes or distorts (phase included inside the
+band; each band aligned by its own group delay and best constant phase —
+see :meth:`PerceptualScorer._heard_share`), applied to each frame's band power (the spectral shape inside a band is
+taken as constant over time), and N_b the chain's output noise in the band.
+Harmonic distortion of the amplifier is not included (it is modelled on a test
+tone only, see THD+N).  Tonality is the flatness of each frame's band power
+densities across bands, a coarser estimate than Johnston's per-bin SFM.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import masking, sii, threshold, wiener
+
+#: Default playback level by program kind (dB SPL): speech at ANSI S3.5-1997
+#: normal vocal effort; music at 80 dB SPL (common practice for critical listening).
+DEFAULT_PLAYBACK_SPL_DB = {"speech": sii.NORMAL_EFFORT_SPL_DB, "music": 80.0}
+PROGRAM_KINDS = ("music", "speech", "data")
+
+
+@dataclass(frozen=True)
+class Listening:
+    """Playback conditions.
+
+    Parameters
+    ----------
+    program : {'music', 'speech'}
+    playback_spl_db : float or None
+        dB SPL of the program's rms; None takes the program kind's default.
+    audiogram_hl : dict or None
+        Hearing threshold level, {Hz: dB HL}; None is 0 dB HL.
+    """
+
+    program: str = "music"
+    playback_spl_db: float | None = None
+    audiogram_hl: dict | None = None
+
+    @property
+    def spl_db(self) -> float:
+        if self.playback_spl_db is not None:
+            return float(self.playback_spl_db)
+        return DEFAULT_PLAYBACK_SPL_DB.get(self.program, DEFAULT_PLAYBACK_SPL_DB["music"])
+
+
+def complex_response(filt, freq_hz) -> np.ndarray:
+    """H(f) of a designed filter (zpk evaluated as in Filter.power_response)."""
+    f = np.asarray(freq_hz, dtype=float)
+    if filt.analog:
+        s = 1j * (2.0 * np.pi * f / filt.ref_rad_s)
+    else:
+        s = np.exp(1j * 2.0 * np.pi * f / filt.spec.fs_hz)
+    h = np.full(s.shape, complex(filt.k))
+    for zero in filt.z:
+        h *= s - zero
+    for pole in filt.p:
+        h /= s - pole
+    return h
+
+
+class PerceptualScorer:
+    """Program-side arrays for the perceptual figures; :meth:`score` rates one filter."""
+
+    def __init__(self, analysis, chain, listening: Listening):
+        a = analysis
+        self.analysis, self.chain, self.listening = a, chain, listening
+        f = a.freqs_hz
+        w = a.weights_hz
+        v2 = chain.volts_per_unit ** 2
+        self.S = a.psd * v2
+        self.sw = self.S * w
+        p_total = float(np.sum(self.sw))
+        self.p_total = p_total
+        # acoustic gain: V² at the converter -> power re (20 µPa)²
+        self.k_ac = 10.0 ** (listening.spl_db / 10.0) / p_total if p_total > 0 else 0.0
+        edges = a.band_edges_hz
+        self.edges = edges
+        band_of_bin = np.clip(np.searchsorted(edges, f, side="right") - 1, 0, len(edges) - 2)
+        self._band_of_bin = band_of_bin
+        counts = np.bincount(band_of_bin, minlength=len(edges) - 1)
+        self._filled = np.flatnonzero(counts)
+        self._starts = np.searchsorted(band_of_bin, self._filled)
+        self._nb = len(edges) - 1
+        self.band_s = self._band_sum(self.sw)
+        lo = np.maximum(edges[:-1], 20.0)
+        hi = np.maximum(edges[1:], lo * 1.001)
+        grid = np.geomspace(lo, hi, 12, axis=1)
+        quiet_db = threshold.threshold_in_quiet_db(grid, listening.audiogram_hl).min(axis=1)
+        self.quiet = 10.0 ** (quiet_db / 10.0)
+        centres = np.sqrt(lo * hi)
+        self.centres_hz = centres
+        frames = a.band_frames * v2 * self.k_ac                   # (frames, bands), re (20 µPa)²
+        self.frames = frames
+        width = np.diff(edges)
+        alpha = masking.tonality(masking.spectral_flatness_db(frames / width + 1e-30, axis=1))
+        self.mask = masking.masked_threshold(frames, masking.bark(centres), alpha, self.quiet)
+        # SII hearing threshold in the 18 bands
+        if listening.audiogram_hl:
+            self.hl18 = threshold.audiogram_loss_db(sii.CENTRES_HZ, listening.audiogram_hl)
+        else:
+            self.hl18 = np.zeros(18)
+        # Wiener bound: amplifier noise enters before the filter; converter
+        # noise before it for a digital filter, after it for an analog one.
+        nyq_width = float(np.sum(w))
+        conv = (chain.quantisation_power_v2() + chain.dither_power_v2()) / nyq_width
+        amp = chain.density_amplifier_v2_hz()
+        analog = chain.stage == "analog"
+        self.n_pre = np.full(f.size, amp + (0.0 if analog else conv))
+        self.n_post = np.full(f.size, conv if analog else 0.0)
+        self.mse_min = wiener.wiener_mse(self.S, self.n_pre, self.n_post, w)
+
+    def _band_sum(self, x):
+        out = np.zeros(x.shape[:-1] + (self._nb,))
+        out[..., self._filled] = np.add.reduceat(x, self._starts, axis=-1)
+        return out
+
+    def _delay(self, h, f, w) -> float:
+        """Best delay, searched up to twice the filter's largest passband group delay (+ 2 samples)."""
+        limit = 2.0 * max(wiener.passband_group_delay_s(h, f), 0.0) + 2.0 / self.analysis.sample_rate_hz
+        return wiener.best_delay(h, self.S, f, w, max_delay_s=limit)
+
+    def _heard_share(self, h, f, w, tau) -> np.ndarray:
+        """Share of each critical band's program power that the filter changes, as heard.
+
+        Each band is aligned by its own delay (the program-weighted mean group
+        delay of H inside the band) and then by the constant phase that best
+        aligns it: min over θ of Σ|1 − H e^{j(2πfτ_b+θ)}|² S
+        = Σ(1 + |H|²)S − 2|Σ H e^{j2πfτ_b} S|.  A difference in group delay
+        between bands (a highpass delays the bass by milliseconds) is not counted
+        as error; gain error and phase dispersion inside a band are.  ``tau``
+        (the best overall delay) is used where a band's own delay is undefined.
+        """
+        phase = np.unwrap(np.angle(h))
+        gd = -np.gradient(phase, 2 * np.pi * f)
+        sw = self.sw
+        gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau),
+                         where=self.band_s > 0)
+        he = h * np.exp(2j * np.pi * f * gd_b[self._band_of_bin])
+        power = self._band_sum((1.0 + (he.real ** 2 + he.imag ** 2)) * sw)
+        cross = np.abs(self._band_sum(he.real * sw) + 1j * self._band_sum(he.imag * sw))
+        err = np.maximum(power - 2.0 * cross, 0.0)
+        return np.divide(err, self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
+
+    def limits(self) -> dict:
+        """Top-level figures of the program and chain (no filter)."""
+        return {"wiener_ser_db": _db(self.p_total / self.mse_min) if self.mse_min > 0 else None,
+                "playback_spl_db": self.listening.spl_db}
+
+    def score(self, filt, noise_psd) -> dict:
+        """nmr_db, audible_frames_pct, sii and wiener_gap_db of one filter.
+
+        ``noise_psd`` is the chain's output noise density (V²/Hz) for this
+        filter on the analysis grid (:func:`audiobw.noise.noise_total`).
+        """
+        a = self.analysis
+        f, w = a.freqs_hz, a.weights_hz
+        h = complex_response(filt, f)
+        tau = self._delay(h, f, w)
+        removed = wiener.removed_psd(h, self.S, f, tau)
+        rw = removed * w
+        share = self._heard_share(h, f, w, tau)
+        n_band = self._band_sum(noise_psd * w) * self.k_ac
+        err = self.frames * share + n_band
+        ratio = err / self.mask
+        over = ratio > 1.0
+        audible = np.any(over, axis=1)
+        row = {
+            "nmr_db": _db(float(np.mean(ratio))),
+            "audible_frames_pct": 100.0 * float(np.mean(audible)),
+            "wiener_gap_db": _db((float(np.sum(rw)) + float(np.sum(noise_psd * w))) / self.mse_min)
+            if self.mse_min > 0 else None,
+            "delay_s": tau,
+        }
+        # where the error is heard: the band over its threshold in the most frames
+        row["audible_band_hz"] = row["audible_band_pct"] = None
+        counts = over.sum(axis=0)
+        if counts.max() > 0:
+            b = int(np.argmax(counts))
+            row["audible_band_hz"] = [float(f"{self.edges[b]:.6g}"), float(f"{self.edges[b + 1]:.6g}")]
+            row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
+        if self.listening.program == "speech":
+            k = self.k_ac
+            g2 = np.abs(h) ** 2
+            e18 = sii.band_spectrum_levels(f, self.S * g2 * k, w)
+            n18 = sii.band_spectrum_levels(f, noise_psd * k, w)
+            row["sii"] = sii.sii(np.maximum(e18, -200.0), n18, self.hl18)
+        else:
+            row["sii"] = None
+        return row
+
+    def frame_detail(self, filt, noise_psd, frame: int) -> dict:
+        """Program, error and masked threshold (dB SPL per band) of one kept frame, for plots."""
+        a = self.analysis
+        f, w = a.freqs_hz, a.weights_hz
+        h = complex_response(filt, f)
+        tau = self._delay(h, f, w)
+        share = self._heard_share(h, f, w, tau)
+        err = self.frames[frame] * share + self._band_sum(noise_psd * w) * self.k_ac
+        db = lambda x: 10 * np.log10(np.maximum(x, 1e-12))  # noqa: E731
+        return {"centres_hz": self.centres_hz, "program_db": db(self.frames[frame]),
+                "error_db": db(err), "mask_db": db(self.mask[frame])}
+
+
+def _db(x):
+    if x is None or x <= 0 or not math.isfinite(x):
+        return None
+    return 10.0 * math.log10(x)
