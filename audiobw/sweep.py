@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from . import __version__
+from . import __version__, _CallableModule
 from .chain import Chain
 from .errors import ParameterError
 from .filters import FilterSpec, design, validate_spec
@@ -284,3 +284,9 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
         notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
                      "by the converter's anti-alias filter (give --amp-bandwidth to model it)")
     return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data)
+
+
+# ``audiobw.sweep`` is also the public function (audiobw.api.sweep): make this
+# module callable so that the package attribute, which importing the module
+# sets, still sweeps a file when called.
+__import__("sys").modules[__name__].__class__ = _CallableModule
