@@ -28,10 +28,13 @@ from .metrics import TARGET_KEYS, Meter
 from .options import FAMILIES, MAX_ORDER, MIN_ORDER
 from .settings import Settings
 
-__all__ = ["Chain", "Grid", "Targets", "Meter", "Listening", "Program", "Study", "Case", "Choice",
+__all__ = ["Chain", "Grid", "Targets", "Meter", "Program", "Study", "Case", "Choice",
            "SweepResult", "sweep", "render", "write_report", "run_batch"]
 
 RESPONSES = ("lowpass", "highpass", "bandpass")
+
+#: Listening (the A/B clips' loudness, ceiling, length, trials, seed) is
+#: :class:`audiobw.render.RenderOptions`, loaded on first use (module __getattr__).
 
 
 def _log_grid(start_hz: float, stop_hz: float, count: int, *, name: str) -> tuple[float, ...]:

@@ -47,7 +47,7 @@ import warnings
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-from .errors import AudiobwError, AudioFileError, OutputError, ParameterError
+from .errors import AudiobwError, OutputError, ParameterError
 
 CACHE_FORMAT = "audiobw-batch-cache/1"
 IDENTITY_KEYS = ("response", "family", "order", "design_low_hz", "design_high_hz")

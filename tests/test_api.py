@@ -19,7 +19,7 @@ HEAVY = ("numpy", "scipy", "scipy.signal", "matplotlib", "dask", "soundfile", "l
 
 
 def test_import_is_lazy():
-    code = ("import sys, audiobw; heavy = %r; print([m for m in heavy if m in sys.modules])" % (HEAVY,))
+    code = f"import sys, audiobw; heavy = {HEAVY!r}; print([m for m in heavy if m in sys.modules])"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=REPO)
     assert out.stdout.strip() == "[]"
 

@@ -173,7 +173,7 @@ def test_low_rate_file_fails_on_the_grid_not_the_run(tmp_path):
 def test_interrupt_then_resume_recomputes_nothing_finished(corpus3, tmp_path, monkeypatch):
     lib, _ = corpus3
     s = settings()
-    clean = batch.run_batch([lib], s, tmp_path / "clean", coverage=0.9, workers=0)
+    batch.run_batch([lib], s, tmp_path / "clean", coverage=0.9, workers=0)
     out = tmp_path / "run"
     real, calls = jobs.sweep_file, []
 
