@@ -6,6 +6,8 @@ The package is imported cheaply: the public names below (see
 only when first used.
 """
 
+import sys as _sys
+
 __version__ = "0.1.0"
 
 _PUBLIC = ("Study", "Chain", "Grid", "Targets", "Meter", "Listening", "Program", "sweep", "render",
@@ -14,7 +16,7 @@ _PUBLIC = ("Study", "Chain", "Grid", "Targets", "Meter", "Listening", "Program",
 __all__ = ["__version__", *_PUBLIC]
 
 
-class _CallableModule(type(__import__("sys"))):
+class _CallableModule(type(_sys)):
     """The class of the module :mod:`audiobw.sweep`, which shares its name with
     the public function :func:`audiobw.api.sweep`: calling the module sweeps."""
 

@@ -11,6 +11,7 @@ reached for it.
 from __future__ import annotations
 
 import math
+import sys
 from dataclasses import dataclass, field
 
 from . import __version__, _CallableModule
@@ -289,4 +290,4 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
 # ``audiobw.sweep`` is also the public function (audiobw.api.sweep): make this
 # module callable so that the package attribute, which importing the module
 # sets, still sweeps a file when called.
-__import__("sys").modules[__name__].__class__ = _CallableModule
+sys.modules[__name__].__class__ = _CallableModule
