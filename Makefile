@@ -1,11 +1,11 @@
-# Two commands: `make demo` and `make test`. Both bootstrap .venv themselves.
+# `make demo`, `make test` and `make lint` (ruff check + mypy). Both bootstrap .venv themselves.
 PYTHON ?= $(shell command -v python3.11 || command -v python3)
 VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP_BASE := $(VENV)/.installed-base
 STAMP_TEST := $(VENV)/.installed-test
 
-.PHONY: demo test bench clips clean
+.PHONY: demo test lint bench clips clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -26,6 +26,10 @@ demo: $(STAMP_BASE)
 
 test: $(STAMP_TEST)
 	$(BIN)/python -m pytest
+
+lint: $(STAMP_TEST)
+	$(BIN)/ruff check audiobw tests
+	$(BIN)/mypy
 
 clips: $(STAMP_BASE)
 	$(BIN)/python clips/make_clips.py

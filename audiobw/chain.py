@@ -109,9 +109,9 @@ class Chain:
                 checks.append((opt, value, value < 0, "a level below 0 dB re the fundamental"))
         if self.amp_bandwidth_hz is not None:
             checks.append(("--amp-bandwidth", self.amp_bandwidth_hz, self.amp_bandwidth_hz > 0, "a frequency > 0 Hz"))
-        for opt, value, ok, accepted in checks:
+        for opt, given, ok, accepted in checks:
             if not ok:
-                raise ParameterError(f"{opt}: {value!r} is out of range; accepted: {accepted}")
+                raise ParameterError(f"{opt}: {given!r} is out of range; accepted: {accepted}")
 
     # -- derived quantities -------------------------------------------------
     @property

@@ -169,7 +169,7 @@ def _finite_or_null(x):
               help="Folder of the bundled clips [default: the repository's clips/].")
 def demo(out, clips_dir):
     """Run the whole job on the bundled clips and print what it found."""
-    from .jobs import run_demo
+    from .demo import run_demo
 
     for line in run_demo(out, clips_dir=clips_dir):
         click.echo(line)

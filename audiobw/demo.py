@@ -208,3 +208,8 @@ def run(out: Path, *, clips_dir=None):
     yield ""
     yield ("These figures are engineering estimates from a model; verify them by measurement, and defer "
            "to the applicable product standards, local codes and licensed practice.")
+
+
+def run_demo(out, *, clips_dir=None):
+    """Sweep the bundled clips with the demo scenario; yields lines to print."""
+    yield from run(Path(out), clips_dir=clips_dir)

@@ -1,4 +1,4 @@
-"""The jobs behind the commands: sweep one file, a noise budget, the demo.
+"""The jobs behind the commands: sweep one file, a noise budget (the demo is in :mod:`audiobw.demo`).
 
 Kept apart from :mod:`audiobw.cli` so that the library, the CLI and the
 batch runner share one code path.
@@ -123,10 +123,3 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     b["chain"] = c.to_json()
     b["sample_rate_hz"] = fs
     return b, header
-
-
-def run_demo(out, *, clips_dir=None):
-    """Sweep the bundled clips with the demo scenario; yields lines to print."""
-    from .demo import run
-
-    yield from run(Path(out), clips_dir=clips_dir)

@@ -160,7 +160,8 @@ def folded_noise_gain(filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray
     if abs(target - acc) <= 1e-6 * abs(target):
         # the images hold less than 1 ppm (a steep filter well below fs/2): no folding needed
         g = direct
-    elif (g := _folded_images(noise_filt, freqs_hz, fs_hz, direct)) is not None:  # every image at once
+    elif (folded := _folded_images(noise_filt, freqs_hz, fs_hz, direct)) is not None:  # every image at once
+        g = folded
         acc = float(np.sum(g * weights_hz))
     else:
         g = direct

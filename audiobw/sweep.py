@@ -11,9 +11,10 @@ reached for it.
 from __future__ import annotations
 
 import math
+import sys
 from dataclasses import dataclass, field
 
-from . import __version__
+from . import __version__, _CallableModule
 from .chain import Chain
 from .errors import ParameterError
 from .filters import FilterSpec, design, validate_spec
@@ -379,3 +380,9 @@ def _recorded_path(path) -> str:
     from .audio import canonical_path
 
     return canonical_path(path)
+
+
+# ``audiobw.sweep`` is also the public function (audiobw.api.sweep): make this
+# module callable so that the package attribute, which importing the module
+# sets, still sweeps a file when called.
+sys.modules[__name__].__class__ = _CallableModule

@@ -378,7 +378,7 @@ def parse_quantity(value: str | int | float, kind: str, *, name: str) -> float:
         raise ValueError(f"unknown quantity kind {kind!r}; known: {', '.join(KINDS)}") from None
 
     if _is_number(value):
-        number = float(value)  # type: ignore[arg-type]
+        number = float(value)
         if not math.isfinite(number):
             raise _fail(name, value, "is not a finite number", spec.accepted)
         if spec.number is None:
@@ -482,7 +482,7 @@ def parse_band(text: str | Sequence[object], *, name: str) -> tuple[float | None
         0 Hz, both sides are empty, or LOW ≥ HIGH.
     """
     if isinstance(text, str):
-        parts: list[object] = text.split(":")
+        parts: list[object] = list(text.split(":"))
         if len(parts) != 2:
             raise _fail(name, text, "is not a band", _BAND_ACCEPTED)
     elif isinstance(text, Sequence) and len(text) == 2:
@@ -696,7 +696,7 @@ def parse_name_list(
         accepted += " (or " + ", ".join(aliases) + ")"
 
     if isinstance(text, str):
-        items: list[object] = text.split(",")
+        items: list[object] = list(text.split(","))
     elif isinstance(text, Sequence):
         items = list(text)
     else:

@@ -124,6 +124,7 @@ def mixed_corpus(root: Path) -> Path:
     return lib
 
 
+@pytest.mark.slow  # over 10 s (pytest --durations, one full run)
 def test_local_pool_and_dask_cluster_give_identical_corpus(tmp_path):
     distributed = pytest.importorskip("distributed")
     jsonschema = pytest.importorskip("jsonschema")
@@ -181,7 +182,7 @@ def test_low_rate_file_fails_on_the_grid_not_the_run(tmp_path):
 def test_interrupt_then_resume_recomputes_nothing_finished(corpus3, tmp_path, monkeypatch):
     lib, _ = corpus3
     s = settings()
-    clean = batch.run_batch([lib], s, tmp_path / "clean", coverage=0.9, workers=0)
+    batch.run_batch([lib], s, tmp_path / "clean", coverage=0.9, workers=0)
     out = tmp_path / "run"
     real, calls = jobs.sweep_file, []
 
@@ -206,6 +207,7 @@ def test_interrupt_then_resume_recomputes_nothing_finished(corpus3, tmp_path, mo
     assert (out / "corpus.json").read_bytes() == (tmp_path / "clean" / "corpus.json").read_bytes()
 
 
+@pytest.mark.slow  # over 10 s (pytest --durations, one full run)
 def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path, monkeypatch):
     lib = tmp_path / "lib"
     lib.mkdir()

@@ -9,7 +9,6 @@ hands back what it found.  Skipped only where no Chromium is installed
 from __future__ import annotations
 
 import json
-from pathlib import Path
 from urllib.parse import unquote
 
 import pytest

@@ -194,7 +194,7 @@ def _cases_table(doc: dict, spec: dict) -> str:
     subject = spec["subject"]["case"]
     for c in doc["cases"]:
         cells = []
-        for title, unit, key, fm, target in cols:
+        for _title, _unit, key, fm, target in cols:
             v = c.get(key)
             miss = ' class="n miss" title="fails its target"' if target and target in c["fails"] else ' class="n"'
             if isinstance(v, (int, float)) and not isinstance(v, bool):

@@ -84,7 +84,7 @@ def case_table(doc: dict, *, mark: str = "*") -> str:
     choice = (doc.get("choice") or {}).get("case")
     for case in map(_derived, doc["cases"]):
         cells = []
-        for (head, unit, key, fmt, target), w in zip(columns, widths):
+        for (_head, _unit, key, fmt, target), w in zip(columns, widths):
             text = _cell(fmt, case.get(key))
             flag = mark if target and target in case["fails"] else " "
             cells.append((text + flag).rjust(w + 1)[-(w + 1):] if ">" in fmt else (text.ljust(w) + " "))

@@ -1,0 +1,412 @@
+"""The public Python interface: a study, a sweep, its result.
+
+Everything here is re-exported lazily by :mod:`audiobw`::
+
+    import audiobw
+    study = audiobw.Study(grid=audiobw.Grid.lowpass(2000, 20000, 16),
+                          targets=audiobw.Targets(max_loss_db=0.1))
+    result = audiobw.sweep("take3.flac", study)
+
+The facade goes through the same code path as ``audiobw sweep``
+(:func:`audiobw.jobs.sweep_file`), so ``result.to_json()`` is the mapping the
+command writes to sweep.json for the same settings.  Library errors name the
+study's fields (``Grid.cutoffs_hz``), not command-line flags.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Iterator, Mapping
+from pathlib import Path
+from typing import Any
+
+from . import sweep as _sweep
+from .chain import Chain
+from .errors import ParameterError
+from .metrics import TARGET_KEYS, Meter
+from .options import FAMILIES, MAX_ORDER, MIN_ORDER
+from .settings import Settings
+
+__all__ = ["Chain", "Grid", "Targets", "Meter", "Program", "Study", "Case", "Choice",
+           "SweepResult", "sweep", "render", "write_report", "run_batch"]
+
+RESPONSES = ("lowpass", "highpass", "bandpass")
+
+#: Listening (the A/B clips' loudness, ceiling, length, trials, seed) is
+#: :class:`audiobw.render.RenderOptions`, loaded on first use (module __getattr__).
+
+
+def _log_grid(start_hz: float, stop_hz: float, count: int, *, name: str) -> tuple[float, ...]:
+    """``count`` log-spaced frequencies from ``start_hz`` to ``stop_hz`` inclusive (as START:STOP:COUNT)."""
+    from . import units
+
+    if not (math.isfinite(start_hz) and math.isfinite(stop_hz)) or not 0 < start_hz < stop_hz:
+        raise ParameterError(f"{name}: start {start_hz!r} Hz, stop {stop_hz!r} Hz; "
+                             "accepted: 0 < start < stop, in Hz")
+    if isinstance(count, bool) or not isinstance(count, int) or count < 1:
+        raise ParameterError(f"{name}: count {count!r}; accepted: an integer >= 1")
+    return tuple(units.parse_grid(f"{start_hz!r}:{stop_hz!r}:{count}", name=name))
+
+
+@dataclasses.dataclass(frozen=True)
+class Grid(_sweep.Grid):
+    """The candidate filters of a sweep (see :class:`audiobw.sweep.Grid` for the fields).
+
+    Build one with :meth:`lowpass`, :meth:`highpass` or :meth:`bandpass`; the
+    edges are log-spaced exactly like the command line's ``START:STOP:COUNT``.
+    ``ripple_db`` (Chebyshev/elliptic passband ripple, dB) and ``stopband_db``
+    (elliptic/Chebyshev II stopband attenuation, dB) keep the command's defaults.
+    """
+
+    @classmethod
+    def lowpass(cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",),
+                orders=(4,), **kw) -> Grid:
+        """Lowpass cases with the upper edge swept over ``count`` log-spaced values.
+
+        Parameters
+        ----------
+        start_hz, stop_hz : float
+            First and last cutoff, Hz.
+        count : int
+            Number of cutoffs (>= 1).
+        families : tuple of str
+            Filter families (``audiobw.options.FAMILIES``).
+        orders : tuple of int
+            Filter orders.
+        """
+        return cls(response="lowpass", families=tuple(families), orders=tuple(orders),
+                   cutoffs_hz=_log_grid(start_hz, stop_hz, count, name="Grid.lowpass"), **kw)
+
+    @classmethod
+    def highpass(cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",),
+                 orders=(4,), **kw) -> Grid:
+        """Highpass cases with the lower edge swept over ``count`` log-spaced values (Hz)."""
+        return cls(response="highpass", families=tuple(families), orders=tuple(orders),
+                   cutoffs_hz=_log_grid(start_hz, stop_hz, count, name="Grid.highpass"), **kw)
+
+    @classmethod
+    def bandpass(cls, low: tuple[float, float, int], high: tuple[float, float, int], *,
+                 families=("butterworth",), orders=(4,), **kw) -> Grid:
+        """Bandpass cases: every (low edge, high edge) pair with low < high.
+
+        Parameters
+        ----------
+        low, high : (start_hz, stop_hz, count)
+            Log-spaced grids of the lower and upper edges, Hz.
+        """
+        return cls(response="bandpass", families=tuple(families), orders=tuple(orders),
+                   low_edges_hz=_log_grid(*low, name="Grid.bandpass low"),
+                   high_edges_hz=_log_grid(*high, name="Grid.bandpass high"), **kw)
+
+    def check(self) -> None:
+        """Refuse a grid that cannot be swept, naming the field (library terms)."""
+        if self.response not in RESPONSES:
+            raise ParameterError(f"Grid.response: {self.response!r}; accepted: {', '.join(RESPONSES)}")
+        bad = [f for f in self.families if f not in FAMILIES]
+        if bad or not self.families:
+            raise ParameterError(f"Grid.families: {list(self.families)!r}; accepted: {', '.join(FAMILIES)}")
+        if not self.orders or any(isinstance(o, bool) or not isinstance(o, int) or not MIN_ORDER <= o <= MAX_ORDER
+                                  for o in self.orders):
+            raise ParameterError(f"Grid.orders: {list(self.orders)!r}; accepted: integers "
+                                 f"{MIN_ORDER}..{MAX_ORDER}")
+        if self.response == "bandpass":
+            if not self.low_edges_hz or not self.high_edges_hz:
+                raise ParameterError("Grid.low_edges_hz/high_edges_hz: a bandpass grid needs both edge grids; "
+                                     "accepted: Grid.bandpass((start, stop, count), (start, stop, count))")
+        elif not self.cutoffs_hz:
+            raise ParameterError(f"Grid.cutoffs_hz: a {self.response} grid needs cutoffs; accepted: "
+                                 f"Grid.{self.response}(start_hz, stop_hz, count), e.g. (2000, 20000, 16)")
+
+    def _grid_values(self) -> dict:
+        return {"response": self.response, "family": tuple(self.families), "order": tuple(self.orders),
+                "cutoffs": tuple(self.cutoffs_hz), "low_edges": tuple(self.low_edges_hz),
+                "high_edges": tuple(self.high_edges_hz), "ripple": self.ripple_db,
+                "stopband": self.stopband_db}
+
+
+_TargetFields = dataclasses.make_dataclass(
+    "_TargetFields", [(k, "float | None", dataclasses.field(default=None)) for k in TARGET_KEYS],
+    frozen=True, kw_only=True)
+
+
+class Targets(_TargetFields):  # type: ignore[valid-type,misc]
+    """The limits a passband must meet; field names are sweep.json's target keys.
+
+    The fields come from :data:`audiobw.metrics.TARGET_KEYS` (for instance
+    ``min_snr_db``, ``min_snr_a_db`` in dB, ``max_thdn_pct`` in %,
+    ``max_loss_db``, ``max_lsd_db``, ``min_ser_db`` in dB); a field left at
+    None sets no limit.  Unknown names are refused with the accepted list.
+    """
+
+    def __init__(self, **limits: float | None) -> None:
+        unknown = sorted(set(limits) - set(TARGET_KEYS))
+        if unknown:
+            raise ParameterError(f"Targets: unknown {', '.join(unknown)}; accepted: {', '.join(TARGET_KEYS)}")
+        for key, value in limits.items():
+            if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
+                                      or not math.isfinite(value)):
+                raise ParameterError(f"Targets.{key}: {value!r}; accepted: a finite number or None")
+        super().__init__(**{k: None if v is None else float(v) for k, v in limits.items()})
+
+    def to_dict(self) -> dict[str, float]:
+        """The limits that are set, keyed as in sweep.json."""
+        return {k: getattr(self, k) for k in TARGET_KEYS if getattr(self, k) is not None}
+
+
+@dataclasses.dataclass(frozen=True)
+class Program:
+    """What the recording carries.
+
+    Parameters
+    ----------
+    kind : {'audio', 'data'}
+    bit_rate_hz : float or 'auto', optional
+        Data programs only: the bit rate, bit/s, or 'auto' to estimate it.
+    """
+
+    kind: str = "audio"
+    bit_rate_hz: float | str | None = None
+
+    def check(self) -> None:
+        if self.kind not in ("audio", "data"):
+            raise ParameterError(f"Program.kind: {self.kind!r}; accepted: audio, data")
+        if self.kind == "data" and self.bit_rate_hz is None:
+            raise ParameterError("Program.bit_rate_hz: a data program needs a bit rate; accepted: bit/s or 'auto'")
+        if self.kind != "data" and self.bit_rate_hz is not None:
+            raise ParameterError("Program.bit_rate_hz: applies to data programs only; accepted: kind='data'")
+
+
+def _listening():
+    from .render import RenderOptions
+
+    return RenderOptions
+
+
+@dataclasses.dataclass(frozen=True)
+class Study:
+    """Everything a sweep needs besides the recording; every part optional.
+
+    Parameters
+    ----------
+    chain : Chain, optional
+        The modelled chain (default: the command's defaults).
+    grid : Grid, optional
+        The candidates; default: the command's default grid fitted to the
+        recording's sample rate (lowpass, Butterworth order 4, 24 cutoffs).
+    targets : Targets, optional
+        As on the command line there is no default limit: a sweep needs at
+        least one target set.
+    meter : Meter, optional
+        Measurement band and THD+N tone.
+    program : Program, optional
+        Audio (default) or a data stream.
+    """
+
+    chain: Chain = dataclasses.field(default_factory=Chain)
+    grid: Grid | None = None
+    targets: Targets = dataclasses.field(default_factory=Targets)
+    meter: Meter = dataclasses.field(default_factory=Meter)
+    program: Program = dataclasses.field(default_factory=Program)
+
+    def settings(self) -> Settings:
+        """The study as the command line's :class:`audiobw.settings.Settings`."""
+        if self.grid is not None:
+            self.grid.check()
+        self.program.check()
+        targets = self.targets.to_dict()
+        if not targets:
+            raise ParameterError(f"Study.targets: none set; accepted: at least one of {', '.join(TARGET_KEYS)}")
+        data_only = [k for k in ("max_ber", "min_eye") if k in targets]
+        if data_only and self.program.kind != "data":
+            raise ParameterError(f"Targets.{data_only[0]}: applies to data programs only; "
+                                 "accepted: Program(kind='data', ...)")
+        return Settings(chain=self.chain, grid_values=self.grid._grid_values() if self.grid else {},
+                        meter=self.meter, targets=targets, input_level=None, program=self.program.kind,
+                        bit_rate=self.program.bit_rate_hz)
+
+
+class Case(Mapping):
+    """One case row of a sweep: attribute and key access to sweep.json's case fields.
+
+    Fields are those of :data:`audiobw.sweep.CASE_KEYS` (frequencies in Hz,
+    levels in dB or dBFS, THD+N in % and dB, noise in V rms); keys added to
+    the row later appear here too.
+    """
+
+    __slots__ = ("_row",)
+
+    def __init__(self, row: Mapping[str, Any]) -> None:
+        object.__setattr__(self, "_row", dict(row))
+
+    def __getattr__(self, name: str) -> Any:
+        try:
+            return self._row[name]
+        except KeyError:
+            raise AttributeError(name) from None
+
+    def __setattr__(self, name: str, value: Any) -> None:
+        raise AttributeError("Case rows are read-only")
+
+    def __getitem__(self, key: str) -> Any:
+        return self._row[key]
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._row)
+
+    def __len__(self) -> int:
+        return len(self._row)
+
+    def __repr__(self) -> str:
+        return f"Case(id={self._row.get('id')}, low_hz={self._row.get('low_hz')}, high_hz={self._row.get('high_hz')})"
+
+
+@dataclasses.dataclass(frozen=True)
+class Choice:
+    """The chosen case and why.
+
+    Attributes
+    ----------
+    case : Case
+    low_hz, high_hz : float or None
+        The chosen passband's −3 dB edges, Hz (None: open edge).
+    binding : str or None
+        The target key with the least margin.
+    binding_margin_db : float or None
+    """
+
+    case: Case
+    binding: str | None
+    binding_margin_db: float | None
+    details: Mapping[str, Any]
+
+    @property
+    def low_hz(self) -> float | None:
+        return self.case.get("low_hz")
+
+    @property
+    def high_hz(self) -> float | None:
+        return self.case.get("high_hz")
+
+
+class SweepResult:
+    """A finished sweep as typed rows over the sweep.json mapping.
+
+    Attributes
+    ----------
+    cases : tuple of Case
+    choice : Choice or None
+        None when no case meets the targets (see :attr:`unmet`).
+    unmet : dict
+        Target key -> best value any case reached, when nothing passes.
+    """
+
+    def __init__(self, doc: dict, paths: Mapping[str, Path] | None = None) -> None:
+        self._doc = doc
+        self.paths = dict(paths or {})
+        self.cases = tuple(Case(c) for c in doc["cases"])
+        ch = doc.get("choice")
+        self.choice = None if not ch else Choice(self.cases[ch["case"] - 1], ch.get("binding"),
+                                                  ch.get("binding_margin_db"), ch)
+        self.unmet = dict(doc.get("unmet") or {})
+
+    def to_json(self) -> dict:
+        """The sweep.json mapping (docs/sweep-json.md), as ``audiobw sweep`` writes it."""
+        return self._doc
+
+    def case(self, case_id: int) -> Case:
+        """The case with ``id == case_id`` (ids start at 1)."""
+        return self.cases[case_id - 1]
+
+
+def sweep(path, study: Study | None = None, *, out_dir=None, progress=None) -> SweepResult:
+    """Sweep one recording.
+
+    Parameters
+    ----------
+    path : path-like
+        The program (any format soundfile reads).
+    study : Study, optional
+        Default: ``Study()`` (which sets no target, so it is refused).
+    out_dir : path-like, optional
+        When given, sweep.json, sweep.csv and spectrum.npz are written there,
+        byte for byte as ``audiobw sweep --out`` writes them.
+    progress : callable(frames_done, frames_expected), optional
+
+    Returns
+    -------
+    SweepResult
+    """
+    from .jobs import sweep_file
+
+    study = study or Study()
+    doc, paths = sweep_file(path, study.settings(), out_dir=out_dir, progress=progress)
+    return SweepResult(doc, paths)
+
+
+def render(result: SweepResult, path, out_dir, listening=None, study: Study | None = None) -> list[Path]:
+    """Render the chosen case and the next-narrower one as A/B clips.
+
+    Start playback low: prolonged loud listening damages hearing.
+
+    Parameters
+    ----------
+    result : SweepResult
+    path : path-like
+        The recording the sweep analysed.
+    out_dir : path-like
+        Gets ``render-chosen/`` and ``render-narrower/``.
+    listening : Listening, optional
+        Clip loudness (LUFS), true-peak ceiling (dBFS), length (s), trials, seed.
+
+    Returns
+    -------
+    list of pathlib.Path
+    """
+    from .render import render_sweep
+
+    settings = (study or Study()).settings()
+    return render_sweep(result.to_json(), path, settings, out_dir, listening)
+
+
+def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str, Path]:
+    """Write spec.json, spec.md, plots and report.html beside ``out_dir/sweep.json``.
+
+    The spec sheet's figures are engineering estimates, to be verified by
+    measurement. See :func:`audiobw.report.spec.write_report`.
+    """
+    from .report.spec import write_report as _write_report
+
+    return _write_report(out_dir, plots=plots, html=html)
+
+
+def run_batch(inputs, study: Study | None, out_dir, *, coverage: float = 0.95, workers: int | None = None,
+              cluster: str | None = None, progress=None):
+    """Sweep many recordings; writes corpus.json and corpus.csv into ``out_dir``.
+
+    Parameters
+    ----------
+    inputs : iterable of path-like or str
+        Files, folders (recursive) and glob patterns.
+    study : Study or None
+    coverage : float, 0 < coverage <= 1
+        Share of files the chosen case must pass on.
+    workers : int, optional
+        Local processes; 0 runs in this process.
+    cluster : str, optional
+        A dask.distributed scheduler address.
+
+    Returns
+    -------
+    audiobw.batch.BatchResult
+    """
+    from .batch import run_batch as _run_batch
+
+    return _run_batch([str(p) for p in inputs], (study or Study()).settings(), out_dir, coverage=coverage,
+                      workers=workers, cluster=cluster, progress=progress)
+
+
+def __getattr__(name: str):
+    if name == "Listening":
+        return _listening()
+    raise AttributeError(f"module 'audiobw.api' has no attribute {name!r}")

@@ -1,0 +1,46 @@
+"""The public names agree everywhere: options <-> target keys <-> schema <-> docs.
+
+Tolerant of entries added later, as long as each is added in every place.
+"""
+
+import json
+import re
+
+from audiobw.metrics import TARGET_KEYS, TARGET_METRIC
+from audiobw.options import OPTIONS, option_name
+from audiobw.settings import TARGET_OPTION
+from audiobw.sweep import CASE_KEYS, DATA_CASE_KEYS
+
+from .conftest import REPO
+
+SCHEMA = json.loads((REPO / "docs" / "sweep.schema.json").read_text(encoding="utf-8"))
+DOCS = (REPO / "docs" / "metrics.md").read_text(encoding="utf-8") + (
+    REPO / "docs" / "sweep-json.md").read_text(encoding="utf-8")
+
+
+def test_every_target_option_maps_to_a_target_key():
+    target_options = {k for k, (section, _, _) in OPTIONS.items() if section == "targets"}
+    assert target_options == set(TARGET_OPTION)
+    assert set(TARGET_OPTION.values()) == set(TARGET_KEYS)
+    assert set(TARGET_METRIC) == set(TARGET_KEYS)
+
+
+def test_every_target_key_is_in_the_schema():
+    assert set(TARGET_KEYS) <= set(SCHEMA["$defs"]["target"]["enum"])
+
+
+def test_every_target_key_and_option_is_documented():
+    for option, key in TARGET_OPTION.items():
+        assert re.search(rf"\b{key}\b", DOCS), f"{key} is not in docs/metrics.md or docs/sweep-json.md"
+        assert option_name(option) in DOCS, f"{option_name(option)} is not in docs/metrics.md or docs/sweep-json.md"
+
+
+def test_every_target_metric_is_a_case_key():
+    for key, (metric, sense) in TARGET_METRIC.items():
+        assert metric in CASE_KEYS or metric in DATA_CASE_KEYS, key
+        assert sense in (+1, -1)
+
+
+def test_every_case_key_is_in_the_schema():
+    props = SCHEMA["properties"]["cases"]["items"]["properties"]
+    assert [k for k in CASE_KEYS + DATA_CASE_KEYS if k not in props] == []
