@@ -160,17 +160,18 @@ class Program:
 
     Parameters
     ----------
-    kind : {'audio', 'data'}
+    kind : {'music', 'speech', 'data'}
+        'audio' is taken as 'music'.
     bit_rate_hz : float or 'auto', optional
         Data programs only: the bit rate, bit/s, or 'auto' to estimate it.
     """
 
-    kind: str = "audio"
+    kind: str = "music"
     bit_rate_hz: float | str | None = None
 
     def check(self) -> None:
-        if self.kind not in ("audio", "data"):
-            raise ParameterError(f"Program.kind: {self.kind!r}; accepted: audio, data")
+        if self.kind not in ("music", "speech", "audio", "data"):
+            raise ParameterError(f"Program.kind: {self.kind!r}; accepted: music, speech, data")
         if self.kind == "data" and self.bit_rate_hz is None:
             raise ParameterError("Program.bit_rate_hz: a data program needs a bit rate; accepted: bit/s or 'auto'")
         if self.kind != "data" and self.bit_rate_hz is not None:
@@ -178,9 +179,9 @@ class Program:
 
 
 def _listening():
-    from .render import RenderOptions
+    from .perceptual.scoring import Listening
 
-    return RenderOptions
+    return Listening
 
 
 @dataclasses.dataclass(frozen=True)
@@ -200,7 +201,10 @@ class Study:
     meter : Meter, optional
         Measurement band and THD+N tone.
     program : Program, optional
-        Audio (default) or a data stream.
+        Music (default), speech or a data stream.
+    listening : Listening, optional
+        Playback conditions of a music or speech program (playback level in
+        dB SPL, audiogram); default: the program kind's playback level.
     """
 
     chain: Chain = dataclasses.field(default_factory=Chain)
@@ -208,6 +212,7 @@ class Study:
     targets: Targets = dataclasses.field(default_factory=Targets)
     meter: Meter = dataclasses.field(default_factory=Meter)
     program: Program = dataclasses.field(default_factory=Program)
+    listening: Any = None
 
     def settings(self) -> Settings:
         """The study as the command line's :class:`audiobw.settings.Settings`."""
@@ -215,6 +220,12 @@ class Study:
             self.grid.check()
         self.program.check()
         targets = self.targets.to_dict()
+        kind = "music" if self.program.kind == "audio" else self.program.kind
+        from .settings import program_defaults
+
+        spl = getattr(self.listening, "playback_spl_db", None)
+        audiogram = getattr(self.listening, "audiogram_hl", None)
+        listening, added = program_defaults(kind, targets, spl, audiogram)
         if not targets:
             raise ParameterError(f"Study.targets: none set; accepted: at least one of {', '.join(TARGET_KEYS)}")
         data_only = [k for k in ("max_ber", "min_eye") if k in targets]
@@ -222,8 +233,8 @@ class Study:
             raise ParameterError(f"Targets.{data_only[0]}: applies to data programs only; "
                                  "accepted: Program(kind='data', ...)")
         return Settings(chain=self.chain, grid_values=self.grid._grid_values() if self.grid else {},
-                        meter=self.meter, targets=targets, input_level=None, program=self.program.kind,
-                        bit_rate=self.program.bit_rate_hz)
+                        meter=self.meter, targets=targets, input_level=None, program=kind,
+                        bit_rate=self.program.bit_rate_hz, listening=listening, default_targets=tuple(added))
 
 
 class Case(Mapping):

@@ -428,7 +428,6 @@ def write_audio_atomic(target, data: np.ndarray, sample_rate_hz: int, *, subtype
     Integer subtypes clip above ±1: such data is refused rather than clipped.
     RF64 is used for WAV output past 4 GiB.
     """
-    import soundfile as sf
 
     target = Path(target)
     data = np.asarray(data)

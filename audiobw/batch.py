@@ -48,7 +48,7 @@ import warnings
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-from .errors import AudiobwError, AudioFileError, OutputError, ParameterError
+from .errors import AudiobwError, OutputError, ParameterError
 from .names import shown
 
 CACHE_FORMAT = "audiobw-batch-cache/2"  # /2: bound to the tool version, with a checksum

@@ -339,19 +339,9 @@ def build(raw: dict[str, Raw]) -> Settings:
     program = parsed.get("program", "music")
     if program == "audio":
         program = "music"
-    listening = None
-    default_targets = []
-    if program in ("music", "speech"):
-        from .perceptual.scoring import Listening
-
-        listening = Listening(program, parsed.get("playback_spl"), parsed.get("hearing_threshold"))
-        if program == "music" and not any(k in targets for k in FIDELITY_TARGETS):
-            targets["max_audible_frames_pct"] = DEFAULT_MAX_AUDIBLE_FRAMES_PCT
-            default_targets.append("max_audible_frames_pct")
-        if program == "speech" and "min_sii" not in targets:
-            targets["min_sii"] = DEFAULT_MIN_SII
-            default_targets.append("min_sii")
-    elif "min_sii" in targets or "max_nmr_db" in targets or "max_audible_frames_pct" in targets:
+    listening, default_targets = program_defaults(program, targets, parsed.get("playback_spl"),
+                                                  parsed.get("hearing_threshold"))
+    if listening is None and ("min_sii" in targets or "max_nmr_db" in targets or "max_audible_frames_pct" in targets):
         raise ParameterError("--max-nmr/--max-audible-frames/--min-sii: apply to music or speech programs; "
                              "accepted: --program music or --program speech")
     if "min_sii" in targets and program != "speech":
@@ -373,7 +363,27 @@ def build(raw: dict[str, Raw]) -> Settings:
                     source_vrms=source_vrms, listening=listening, default_targets=tuple(default_targets))
 
 
-def sanity_warnings(settings: "Settings", raw_keys=()) -> list[str]:
+def program_defaults(program: str, targets: dict, playback_spl=None, audiogram=None):
+    """The listening conditions of a music or speech program, and the default targets it adds to ``targets``.
+
+    Music with no fidelity target gets "no audible error" (max_audible_frames_pct);
+    speech gets min_sii unless given.  Returns (listening or None, added target keys).
+    """
+    if program not in ("music", "speech"):
+        return None, []
+    from .perceptual.scoring import Listening
+
+    added = []
+    if program == "music" and not any(k in targets for k in FIDELITY_TARGETS):
+        targets["max_audible_frames_pct"] = DEFAULT_MAX_AUDIBLE_FRAMES_PCT
+        added.append("max_audible_frames_pct")
+    if program == "speech" and "min_sii" not in targets:
+        targets["min_sii"] = DEFAULT_MIN_SII
+        added.append("min_sii")
+    return Listening(program, playback_spl, audiogram), added
+
+
+def sanity_warnings(settings: Settings, raw_keys=()) -> list[str]:
     """One line per value that is legal but almost surely a slip (a missing SI prefix and the like)."""
     from .chain import BOLTZMANN, vrms_to_dbu
 

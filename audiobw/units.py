@@ -415,9 +415,9 @@ def parse_quantity(value: str | int | float, kind: str, *, name: str) -> float:
 
     if not math.isfinite(result):
         raise _fail(name, value, "is too large", spec.accepted)
-    reason = spec.check(result)
-    if reason is not None:
-        raise _fail(name, value, reason, spec.accepted)
+    problem = spec.check(result)
+    if problem is not None:
+        raise _fail(name, value, problem, spec.accepted)
     check_range(result, spec.limits, name=name, value=value, unit=spec.unit)
     return float(result)
 
@@ -435,15 +435,19 @@ def check_range(result: float, limits: tuple[float, float], *, name: str, value:
 
 def parse_int(value: object, *, name: str, low: int, high: int, noun: str = "a whole number") -> int:
     """Read one whole number within ``[low, high]`` (a seed, a count) as typed or from TOML."""
-    text = str(value).strip() if not _is_number(value) else value
-    if isinstance(text, str):
+    if not _is_number(value):
+        text = str(value).strip()
         if not _INT_RE.fullmatch(text) or len(text) > 40:
             raise _fail(name, value, f"is not {noun}", f"a whole number from {low} to {high}")
         number = int(text)
-    elif isinstance(text, float) and not text.is_integer():
-        raise _fail(name, value, f"is not {noun}", f"a whole number from {low} to {high}")
     else:
-        number = int(text) if math.isfinite(float(text)) else low - 1
+        real = float(value)  # type: ignore[arg-type]  # a numbers.Real
+        if not math.isfinite(real):
+            number = low - 1
+        elif not real.is_integer():
+            raise _fail(name, value, f"is not {noun}", f"a whole number from {low} to {high}")
+        else:
+            number = int(value) if isinstance(value, int) else int(real)
     if not low <= number <= high:
         raise _fail(name, value, "is outside the accepted range", f"a whole number from {low} to {high}")
     return number

@@ -66,9 +66,16 @@ def test_targets_fields_are_the_json_keys():
 
 
 def test_no_target_is_refused_without_flag_names(prog):
+    # music and speech programs get default targets (no audible error; SII); a data program has none
+    study = audiobw.Study(program=audiobw.Program(kind="data", bit_rate_hz=2000.0))
     with pytest.raises(ParameterError) as exc:
-        audiobw.sweep(prog, audiobw.Study())
+        audiobw.sweep(prog, study)
     assert "Study.targets" in str(exc.value) and "--" not in str(exc.value)
+
+
+def test_music_study_without_targets_gets_the_audibility_default():
+    s = audiobw.Study().settings()
+    assert s.targets == {"max_audible_frames_pct": 1.0} and s.default_targets == ("max_audible_frames_pct",)
 
 
 @pytest.fixture

@@ -389,7 +389,7 @@ def test_batch_hashes_each_file_once(tmp_path, monkeypatch):
     import numpy as np
     import soundfile as sf
 
-    from audiobw import audio, batch, spectrum
+    from audiobw import audio, spectrum
 
     wav = tmp_path / "one.wav"
     rng = np.random.default_rng(3)

@@ -214,7 +214,7 @@ def test_prototype_table_matches_scipy_signal():
         assert upward == (response == "lowpass")
         floor = float(np.real(kr)) ** 2 if len(zr) == len(pr) else 0.0
 
-        def integrand(w):
+        def integrand(w, zr=zr, pr=pr, kr=kr, floor=floor):
             return abs(signal.freqs_zpk(zr, pr, kr, worN=[w])[1][0]) ** 2 - floor
 
         val = integrate.quad(integrand, 0, 50)[0] + integrate.quad(integrand, 50, np.inf, limit=200)[0]

@@ -26,7 +26,6 @@ from hypothesis import strategies as st
 
 from audiobw.cli import main
 
-from .conftest import REPO
 
 FS = 48000
 FEW = settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])

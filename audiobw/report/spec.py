@@ -654,7 +654,6 @@ def markdown(spec: dict, renders: list | None = None) -> str:
                 "value any case reached:", ""]
         out += ["| target | best reached |", "|---|---|"]
         for u in spec["unmet"]:
-            sense = "≥" if u["sense"] == "min" else "≤"
             out.append(f"| {_target_text(u)} | {metric_value_text(u['metric'], u['best'])} |")
         out += ["", f"The figures below are for the **closest case** ({spec['subject']['case']}, the largest worst "
                 f"margin), which fails: {', '.join(target_info(k)[0] for k in spec['subject']['fails'])}. "
