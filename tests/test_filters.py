@@ -42,6 +42,22 @@ def test_first_order_rc_enbw_is_pi_over_two():
 
 
 @pytest.mark.parametrize("family", FAMILIES)
+@pytest.mark.parametrize("lo,hi,order", [(5.0, 20939.0, 7), (1.0, 23900.0, 8), (2.0, 20000.0, 6)])
+def test_wide_bandpass_integral_survives_an_ill_conditioned_state_space(family, lo, hi, order):
+    # Found by hypothesis: the companion form of a Butterworth 7 bandpass at
+    # 5 Hz–20.9 kHz made the Lyapunov solve return a negative integral
+    # (−89 080 Hz).  Reference: numpy.trapezoid on 400 001 log-spaced points of
+    # |H|² evaluated by scipy.signal.freqs_zpk, independent of the fast path.
+    f = design(spec("bandpass", family, order, lo, hi))
+    z, p, k = f.zpk()
+    x = np.geomspace(lo / 1e4, hi * 1e4, 400001)
+    _, h = signal.freqs_zpk(z, p, k, worN=2 * np.pi * x)
+    reference = float(np.trapezoid(np.abs(h) ** 2 - f.floor_gain(), x))
+    assert f.varying_integral_hz() == pytest.approx(reference, rel=1e-6)
+    assert 0.9 * (hi - lo) < f.varying_integral_hz() < 1.6 * (hi - lo)
+
+
+@pytest.mark.parametrize("family", FAMILIES)
 @pytest.mark.parametrize("response,lo,hi", [("lowpass", None, 3000.0), ("bandpass", 80.0, 9000.0),
                                             ("highpass", 200.0, None)])
 @pytest.mark.parametrize("order", [1, 2, 5, 8])
