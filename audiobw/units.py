@@ -430,7 +430,18 @@ def check_range(result: float, limits: tuple[float, float], *, name: str, value:
     lo, hi = limits
     if not (math.isfinite(result) and lo <= result <= hi):
         span = f"{lo:g} to {hi:g}" + (f" {unit}" if unit else "")
-        raise ParameterError(f"{name}: {value!r} is outside the physical range; accepted: {span}")
+        raise ParameterError(f"{name}: {value!r} is outside the physical range; accepted: {span}"
+                             + _prefix_hint(result, limits, value))
+
+
+def _prefix_hint(result: float, limits: tuple[float, float], value: object) -> str:
+    """For a bare number too large by an SI prefix (``--en 1.2``), name the prefixes that fit."""
+    text = str(value).strip()
+    if not (math.isfinite(result) and result > limits[1] and re.fullmatch(r"[0-9.eE+-]+", text)):
+        return ""
+    fits = [text + p for p, f in (("m", 1e-3), ("u", 1e-6), ("n", 1e-9), ("p", 1e-12))
+            if limits[0] <= result * f <= limits[1]]
+    return f" (was an SI prefix left off: {', '.join(fits)}?)" if fits else ""
 
 
 def parse_int(value: object, *, name: str, low: int, high: int, noun: str = "a whole number") -> int:

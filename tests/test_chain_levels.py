@@ -77,10 +77,15 @@ def test_cli_refuses_both_levels_in_one_line(tmp_path, capsys):
 
 
 def test_absurd_values_warn(capsys):
-    # --en 1.2 (the n forgotten): 1.2 V/√Hz × 100 (40 dB) × √20 kHz ≈ 17 kV rms at the converter
-    assert main(["noise", "--band", "20:20k", "--en", "1.2"]) == 0
+    # --en 1.2 (the n forgotten) is past the physical range (1 mV/√Hz): refused, naming the prefixes that fit
+    assert main(["noise", "--band", "20:20k", "--en", "1.2"]) == 2
     err = capsys.readouterr().err
-    assert "warning: --en 1.2 V/√Hz" in err and "1.7e+04 V rms" in err and "(1.2n)" in err
+    assert len(err.strip().splitlines()) == 1 and "--en: '1.2' is outside the physical range" in err
+    assert "1.2u, 1.2n" in err
+    # --en 20u is in range but no amplifier: 20 µV/√Hz × 100 (40 dB) × √20 kHz ≈ 0.283 V rms, a warning
+    assert main(["noise", "--band", "20:20k", "--en", "20u"]) == 0
+    err = capsys.readouterr().err
+    assert "warning: --en 2e-05 V/√Hz" in err and "0.283 V rms" in err and "prefix left off" in err
     # -20 dBu + 60 dB = +40 dBu at a converter whose full scale is +4 dBu: it clips
     assert main(["noise", "--band", "20:20k", "--source-level", "-20dBu", "--gain", "60"]) == 0
     assert "the converter clips" in capsys.readouterr().err

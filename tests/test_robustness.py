@@ -90,7 +90,9 @@ def test_noise_never_falls_as_a_lowpass_widens(program, family, order, stage, f1
     sc = Scorer(program, Chain(stage=stage), Meter(mode=meter))
     n1, n2 = (sc.score(design(FilterSpec("lowpass", family, order, None, f, stage=stage, fs_hz=FS)))["noise_vrms"]
               for f in (f1, f2))
-    assert n2 >= n1 * (1 - 1e-9)
+    # relative slack 1e-5: the folded alias images are interpolated on the
+    # analysis grid (audiobw.noise.IMAGE_STRIDE); measured up to 6e-6 from the exact fold
+    assert n2 >= n1 * (1 - 1e-5)
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])

@@ -31,7 +31,7 @@ def run(cmd: str) -> str:
         text = buf.getvalue()
         if out is not None:
             text = text.replace(str(Path(tmp) / "o"), out)
-    return text.strip() + "\n"
+    return text.strip("\n") + "\n"
 
 
 def main_() -> None:

@@ -167,7 +167,8 @@ def validate_sweep(doc, path) -> None:
         if not isinstance(c.get("margins_db"), dict):
             _refuse(path, ["cases", i, "margins_db"], f"{_short(c.get('margins_db'))} is not an object of margins")
     if choice is not None and choice.get("binding") is not None:
-        _number(doc, ["choice", "binding_margin_db"], path)
+        # null where the margin is beyond the double range (a BER that underflows to 0)
+        _number(doc, ["choice", "binding_margin_db"], path, null=True)
     meter = doc["meter"]
     if isinstance(meter, dict):
         if meter.get("mode") not in ("full", "aes17"):
