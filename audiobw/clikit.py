@@ -13,14 +13,10 @@ from pathlib import Path
 
 import click
 
+from .cautions import ESTIMATE_CAUTION, LISTENING_CAUTION  # noqa: F401  (the commands take them from here)
 from .options import OPTIONS, option_name
 
 CONTEXT = dict(help_option_names=["-h", "--help"], max_content_width=100)
-
-LISTENING_CAUTION = ("Listening caution: start playback at a low volume and raise it gradually; "
-                     "prolonged listening at high levels can damage hearing.")
-ESTIMATE_CAUTION = ("These figures are engineering estimates from a model; verify them by measurement, "
-                    "and defer to the applicable product standards, local codes and licensed practice.")
 
 
 def dest(key: str) -> str:

@@ -59,7 +59,7 @@ def find_clips(clips_dir=None) -> Path:
 
 def _render_and_report(doc, path, settings, out_dir):
     """Render the chosen and next-narrower cases (A/B clips), then write the report."""
-    from .clikit import LISTENING_CAUTION
+    from .cautions import LISTENING_CAUTION
     from .render import render_sweep
     from .report.spec import write_report
 

@@ -434,7 +434,7 @@ def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOp
         "trials": None,
         "caution": None,
     }
-    from .clikit import LISTENING_CAUTION
+    from .cautions import LISTENING_CAUTION
 
     facts["caution"] = LISTENING_CAUTION
     if options.trials:
@@ -458,7 +458,7 @@ def _finite(x):
 
 
 def _write_trials(out_dir: Path, clips: dict, fs: int, options: RenderOptions, input_path):
-    from .clikit import LISTENING_CAUTION
+    from .cautions import LISTENING_CAUTION
 
     rng = np.random.default_rng(np.random.SeedSequence([int(options.seed), 0x7269]))
     blind = out_dir / "blind"

@@ -105,3 +105,14 @@ def test_no_import_circles():
     assert [sorted(c) for c in found if c not in KNOWN] == []
     # a known circle that is gone must leave the list too
     assert [sorted(c) for c in KNOWN if c not in found] == []
+
+
+#: The command line's own modules: the only ones that may import the CLI kit.
+CLI_LAYER = ("audiobw.cli", "audiobw.clikit", "audiobw.commands", "audiobw._start", "audiobw.__main__")
+
+
+def test_nothing_below_the_cli_imports_the_cli_kit():
+    # cautions live in audiobw.cautions so render, report and demo need no click
+    graph = import_graph()
+    below = {m: deps for m, deps in graph.items() if not m.startswith(CLI_LAYER)}
+    assert sorted(m for m, deps in below.items() if "audiobw.clikit" in deps or "audiobw.cli" in deps) == []

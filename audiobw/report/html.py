@@ -22,7 +22,7 @@ import json
 from pathlib import Path
 from urllib.parse import quote
 
-from ..clikit import LISTENING_CAUTION
+from ..cautions import LISTENING_CAUTION
 from .spec import _target_text, margin_value_text, metric_value_text
 from .spec import case_line, chain_value_text, fmt, json_pointer, passband_phrase, spec_rows, target_info
 from .text import COLUMNS

@@ -36,7 +36,7 @@ import numpy as np
 
 from .. import __version__
 from ..audio import write_text_atomic
-from ..clikit import ESTIMATE_CAUTION, LISTENING_CAUTION
+from ..cautions import ESTIMATE_CAUTION, LISTENING_CAUTION
 from ..errors import AudiobwError, AudioFileError, ParameterError
 from ..names import md_code, md_text
 from ..metrics import TARGET_KEYS, TARGET_METRIC
