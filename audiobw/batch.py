@@ -48,16 +48,16 @@ import warnings
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
+from . import registry
 from .errors import AudiobwError, OutputError, ParameterError
 from .names import shown
 
 CACHE_FORMAT = "audiobw-batch-cache/2"  # /2: bound to the tool version, with a checksum
 IDENTITY_KEYS = ("response", "family", "order", "design_low_hz", "design_high_hz")
 #: Per-case values kept in the cache and aggregated by median over the files.
-MEDIAN_KEYS = ("low_hz", "high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
-               "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db")
+MEDIAN_KEYS = ("low_hz", "high_hz") + registry.keys(1, "median")
 #: Data-program metrics (``--program data``), carried the same way when a file has them.
-DATA_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sigma_v", "q", "ber", "jitter_pp_ui")
+DATA_KEYS = registry.keys(3, "median")
 PERCENTILES = (5, 25, 50, 75, 95)
 CSV_KEYS = ("id", "response", "family", "order", "poles", "design_low_hz", "design_high_hz", "low_hz",
             "high_hz", "bandwidth_hz", "enbw_hz", "files_evaluated", "pass_share", "passes", "fails")

@@ -15,6 +15,7 @@ import click
 
 from .cautions import ESTIMATE_CAUTION, LISTENING_CAUTION  # noqa: F401  (the commands take them from here)
 from .options import OPTIONS, option_name
+from .registry import TARGET_OPTION
 
 CONTEXT = dict(help_option_names=["-h", "--help"], max_content_width=100)
 
@@ -37,8 +38,7 @@ def options(keys, group: str):
 CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
          "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
 GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
-TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser", "max_ber", "min_eye",
-           "min_headroom", "max_nmr", "max_audible_frames", "min_sii")
+TARGETS = tuple(TARGET_OPTION)  # in target rank order (audiobw.registry)
 PROGRAM = ("program", "bit_rate", "playback_spl", "hearing_threshold")
 METER = ("meter", "tone", "tone_level")
 

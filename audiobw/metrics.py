@@ -27,6 +27,7 @@ from scipy import fft as sfft
 from .chain import Chain
 from .filters import Filter
 from .noise import noise_total
+from .registry import TARGET_KEYS, TARGET_METRIC  # noqa: F401  (re-exported: the targets of the one metric table)
 from .spectrum import Analysis
 from .weighting import a_weighting_power
 
@@ -40,24 +41,6 @@ from .weighting import a_weighting_power
 #: an arbitrary absolute floor (it read 4.4 / 15.8 / 25.9 dB for −100 / −120 /
 #: −140 dBFS on one program).
 LSD_FRAME_FLOOR_DB = -60.0
-
-TARGET_KEYS = ("min_snr_db", "min_snr_a_db", "max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db",
-               "max_ber", "min_eye", "min_headroom_db", "max_nmr_db", "max_audible_frames_pct", "min_sii")
-#: target key -> (metric key, sense): +1 means the metric must be at least the target.
-TARGET_METRIC = {
-    "min_snr_db": ("snr_db", +1),
-    "min_snr_a_db": ("snr_a_db", +1),
-    "max_thdn_pct": ("thdn_pct", -1),
-    "max_loss_db": ("loss_db", -1),
-    "max_lsd_db": ("lsd_db", -1),
-    "min_ser_db": ("ser_db", +1),
-    "max_ber": ("ber", -1),
-    "min_eye": ("eye_fraction", +1),
-    "min_headroom_db": ("headroom_db", +1),
-    "max_nmr_db": ("nmr_db", -1),
-    "max_audible_frames_pct": ("audible_frames_pct", -1),
-    "min_sii": ("sii", +1),
-}
 
 
 @dataclass(frozen=True)

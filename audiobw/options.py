@@ -7,6 +7,8 @@ costs nothing beyond the standard library (``audiobw --help`` stays fast).
 
 from __future__ import annotations
 
+from .registry import target_options
+
 FAMILIES = ("butterworth", "bessel", "chebyshev1", "elliptic")
 FAMILY_ALIASES = {
     "butter": "butterworth", "bw": "butterworth",
@@ -42,15 +44,6 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "high_edges": ("grid", "grid", "bandpass high edges, Hz: START:STOP:COUNT or a list"),
     "ripple": ("grid", "db", "passband ripple for chebyshev1/elliptic, dB (0 < r < 3)"),
     "stopband": ("grid", "db", "elliptic stopband attenuation, dB"),
-    "min_snr": ("targets", "db_any", "target: minimum SNR, dB"),
-    "min_snr_a": ("targets", "db_any", "target: minimum A-weighted SNR, dB"),
-    "max_thdn": ("targets", "thdn", "target: maximum THD+N (0.05% or -66dB)"),
-    "max_loss": ("targets", "db", "target: maximum program power removed, dB"),
-    "max_lsd": ("targets", "db", "target: maximum log-spectral distance, dB"),
-    "min_ser": ("targets", "db_any", "target: minimum signal-to-error ratio, dB"),
-    "max_ber": ("targets", "probability", "target (data programs): maximum bit-error rate, e.g. 1e-9"),
-    "min_eye": ("targets", "fraction", "target (data programs): minimum eye opening, fraction of the "
-                "unfiltered one (0.6 or 60%)"),
     "program": ("program", "choice:music,speech,data,audio", "what the recording is: music (default; "
                 "judged by audibility at --playback-spl), speech (judged by the Speech Intelligibility Index) "
                 "or data (a polar NRZ bit stream, scored by eye opening and bit-error rate); audio = music"),
@@ -68,19 +61,12 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
              "bandwidth noise grows with; default) or bandwidth (−3 dB)"),
     "tie": ("grid", "fraction", "cases within this share of the best rank figure tie, and go to the lower "
             "order, then the gentler family (default 1%)"),
-    "min_headroom": ("targets", "db_any", "target: minimum headroom, dB: converter full scale over the "
-                     "program's peak at the converter"),
     "playback_spl": ("listening", "db_any", "playback level: the program's rms is heard at this level, "
                      "dB SPL (default: speech 62.35, ANSI S3.5-1997 normal vocal effort; music 80)"),
     "hearing_threshold": ("listening", "audiogram", "hearing threshold, dB HL at audiometric "
                           "frequencies, e.g. 500:10,1000:20,4000:45 (default 0 dB HL, ISO 389-7 reference)"),
-    "max_nmr": ("targets", "db_any", "target: maximum total noise-to-mask ratio, dB (ITU-R BS.1387 sense)"),
-    "max_audible_frames": ("targets", "percent", "target: maximum share of short frames whose error is "
-                           "above the masked threshold, % (music default: 1)"),
-    "min_sii": ("targets", "fraction", "target (speech): minimum Speech Intelligibility Index, 0 to 1 "
-                "(ANSI S3.5-1997; speech default: 0.75)"),
 }
-
+OPTIONS.update(target_options())  # the targets, from the one table of metrics
 
 
 def option_name(key: str) -> str:

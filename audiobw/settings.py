@@ -28,6 +28,7 @@ from . import units
 from .chain import Chain
 from .errors import ConfigError, ParameterError
 from .metrics import Meter
+from .registry import FIDELITY_TARGETS, TARGET_OPTION
 from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, RESPONSE_ALIASES,
                       option_name)
 
@@ -35,10 +36,6 @@ CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "
               "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
 GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
              "rank", "tie")
-TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
-                 "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
-                 "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db",
-                 "max_nmr": "max_nmr_db", "max_audible_frames": "max_audible_frames_pct", "min_sii": "min_sii"}
 METER_KEYS = ("meter", "tone", "tone_level")
 MAX_TOML_BYTES = 1_000_000  # a chain file is a few hundred bytes; more is a mistake or hostile
 
@@ -155,8 +152,6 @@ def _parse_percent(v, name):
 
 
 #: targets that judge fidelity (with none of them, music defaults to no audible error)
-FIDELITY_TARGETS = ("max_thdn_pct", "max_loss_db", "max_lsd_db", "min_ser_db", "max_nmr_db",
-                    "max_audible_frames_pct")
 DEFAULT_MAX_AUDIBLE_FRAMES_PCT = 1.0
 DEFAULT_MIN_SII = 0.75
 

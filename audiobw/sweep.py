@@ -14,7 +14,7 @@ import math
 import sys
 from dataclasses import dataclass, field
 
-from . import __version__, _CallableModule
+from . import __version__, _CallableModule, registry
 from .chain import Chain
 from .errors import ParameterError
 from .filters import FilterSpec, design, validate_spec
@@ -124,13 +124,10 @@ def _round(x, sig: int = 7):
     return float(f"{x:.{sig}g}")
 
 
-DATA_CASE_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sigma_v", "q", "ber",
-                  "jitter_pp_ui", "ber_worst")
+#: A case row's keys (sweep.json order): identity, figures, verdict, further figures; from audiobw.registry.
+DATA_CASE_KEYS = registry.keys(3)
 CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
-             "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
-             "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
-             "passes", "fails", "margins_db", "headroom_db", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db",
-             "audible_band_hz", "audible_band_pct")
+             "design_high_hz") + registry.keys(1) + ("passes", "fails", "margins_db") + registry.keys(2)
 
 
 @dataclass

@@ -92,8 +92,13 @@ def test_noise_never_falls_as_a_lowpass_widens(program, family, order, stage, f1
     n1, n2 = (sc.score(design(FilterSpec("lowpass", family, order, None, f, stage=stage, fs_hz=FS)))["noise_vrms"]
               for f in (f1, f2))
     # relative slack 1e-5: the folded alias images are interpolated on the
-    # analysis grid (audiobw.noise.IMAGE_STRIDE); measured up to 6e-6 from the exact fold
-    assert n2 >= n1 * (1 - 1e-5)
+    # analysis grid (audiobw.noise.IMAGE_STRIDE); measured up to 6e-6 from the exact fold.
+    # Ripple families (0.1 dB ripple here) may lose up to their ripple in a band-limited
+    # meter: widening a Chebyshev 2 past 20 kHz moves its 0 dB peak out of the AES17
+    # band and leaves the band at the −0.1 dB DC gain (found by hypothesis: 0.03 dB less
+    # noise at 23.3 kHz than at 19.9 kHz, digital stage).
+    slack = 1e-5 if family in ("butterworth", "bessel") else 1 - 10 ** (-0.1 / 20)
+    assert n2 >= n1 * (1 - slack)
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])

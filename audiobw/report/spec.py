@@ -34,7 +34,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import __version__
+from .. import __version__, registry
 from ..audio import write_text_atomic
 from ..cautions import ESTIMATE_CAUTION, LISTENING_CAUTION
 from ..errors import AudiobwError, AudioFileError, ParameterError
@@ -66,9 +66,8 @@ NOISE_LABELS = {
     "quantisation": "quantisation (q²/12)",
     "dither": "TPDF dither (2q²/12)",
 }
-SUMMARY_KEYS = ("id", "response", "family", "order", "low_hz", "high_hz", "bandwidth_hz", "enbw_hz",
-                "noise_vrms", "noise_dbfs", "snr_db", "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct",
-                "passes", "fails", "margins_db")
+SUMMARY_KEYS = (("id", "response", "family", "order", "low_hz", "high_hz") + registry.keys(1, "summary")
+                + ("passes", "fails", "margins_db"))
 GROUP_DELAY_AT_HZ = 1000.0
 AB_CLIPS = ("ab-reference.wav", "ab-processed.wav")
 #: Rendered at the chain's true level: linked for measurement, never offered as a player.

@@ -12,12 +12,12 @@ import io
 import json
 from pathlib import Path
 
+from .. import registry
 from ..audio import write_text_atomic
 from ..names import csv_cell
 
-CSV_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "bandwidth_hz", "enbw_hz",
-            "noise_vrms", "noise_dbfs", "snr_db", "snr_a_db", "loss_db", "lsd_db", "ser_db",
-            "thdn_pct", "thdn_db", "passes", "fails", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db")
+CSV_KEYS = (("id", "response", "family", "order", "poles", "low_hz", "high_hz") + registry.keys(1, "csv")
+            + ("passes", "fails") + registry.keys(2, "csv"))
 
 
 def dumps(doc: dict) -> str:

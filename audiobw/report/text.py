@@ -4,53 +4,23 @@ from __future__ import annotations
 
 import math
 
+from .. import registry
+from ..registry import TARGET_LABEL  # noqa: F401  (the verdict words; spec and batch take them from here)
 from ..units import format_quantity
 from ..names import shown
 
-TARGET_LABEL = {
-    "min_snr_db": ("SNR", "snr_db", "dB", "≥"),
-    "min_snr_a_db": ("A-weighted SNR", "snr_a_db", "dB", "≥"),
-    "max_thdn_pct": ("THD+N", "thdn_pct", "%", "≤"),
-    "max_loss_db": ("program loss", "loss_db", "dB", "≤"),
-    "max_lsd_db": ("log-spectral distance", "lsd_db", "dB", "≤"),
-    "min_ser_db": ("signal-to-error", "ser_db", "dB", "≥"),
-    "max_ber": ("bit-error rate", "ber", "", "≤"),
-    "min_eye": ("eye opening", "eye_fraction", "", "≥"),
-    "min_headroom_db": ("headroom", "headroom_db", "dB", "≥"),
-    "max_nmr_db": ("noise-to-mask ratio", "nmr_db", "dB", "≤"),
-    "max_audible_frames_pct": ("audible frames", "audible_frames_pct", "%", "≤"),
-    "min_sii": ("speech intelligibility index", "sii", "", "≥"),
-}
-#: table column -> (header, unit, key, format, target that marks it)
-COLUMNS = (
+#: The identity columns every case table starts with: (header, unit, key, format, target)
+ID_COLUMNS = (
     ("id", "", "id", "{:>4d}", None),
     ("family", "", "family", "{:<11s}", None),
     ("ord", "", "order", "{:>3d}", None),
     ("low", "Hz", "low_hz", "{:>8.1f}", None),
     ("high", "Hz", "high_hz", "{:>8.0f}", None),
-    ("ENBW", "Hz", "enbw_hz", "{:>8.0f}", None),
-    ("noise", "dBFS", "noise_dbfs", "{:>7.1f}", None),
-    ("SNR", "dB", "snr_db", "{:>6.1f}", "min_snr_db"),
-    ("SNR-A", "dB", "snr_a_db", "{:>6.1f}", "min_snr_a_db"),
-    ("loss", "dB", "loss_db", "{:>6.3f}", "max_loss_db"),
-    ("LSD", "dB", "lsd_db", "{:>6.2f}", "max_lsd_db"),
-    ("SER", "dB", "ser_db", "{:>6.1f}", "min_ser_db"),
-    ("THD+N", "%", "thdn_pct", "{:>8.5f}", "max_thdn_pct"),
-    ("NMR", "dB", "nmr_db", "{:>6.1f}", "max_nmr_db"),
-    ("aud", "%", "audible_frames_pct", "{:>5.1f}", "max_audible_frames_pct"),
-    ("SII", "", "sii", "{:>5.3f}", "min_sii"),
 )
-
-
+#: table column -> (header, unit, key, format, target that marks it); metric columns from audiobw.registry
+COLUMNS = ID_COLUMNS + registry.columns("audio")
 #: columns of a data-program sweep
-DATA_COLUMNS = COLUMNS[:6] + (
-    ("σ", "µV", "noise_sigma_uv", "{:>8.2f}", None),
-    ("eye", "%", "eye_pct", "{:>6.1f}", "min_eye"),
-    ("Q", "", "q", "{:>8.2f}", None),
-    ("BER", "", "ber", "{:>9.2e}", "max_ber"),
-    ("jitter", "UI", "jitter_pp_ui", "{:>7.3f}", None),
-    ("SNR", "dB", "snr_db", "{:>6.1f}", "min_snr_db"),
-)
+DATA_COLUMNS = ID_COLUMNS + registry.columns("data")
 
 
 def _derived(case: dict) -> dict:
