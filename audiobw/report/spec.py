@@ -514,6 +514,8 @@ def passband_phrase(spec: dict) -> str:
 
 def _target_text(t: dict) -> str:
     sense = "≥" if t["sense"] == "min" else "≤"
+    if t["key"] == "min_eye":  # a fraction of the unfiltered eye, read as the value beside it is
+        return f"{t['label']} {sense} {100 * t['limit']:g} % of the unfiltered eye"
     return f"{t['label']} {sense} {t['limit']:g} {t['unit']}".rstrip()
 
 
