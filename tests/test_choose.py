@@ -219,3 +219,49 @@ def test_end_to_end_sweep_of_a_bundled_clip_prints_the_conflict_not_cannot_be_me
     jsonschema.Draft202012Validator(json.loads((REPO / "docs" / "spec.schema.json").read_text(
         encoding="utf-8"))).validate(spec)
     assert spec["unmet"] == [] and spec["conflicts"][0]["edge"] == "high_hz"
+
+
+def test_property_unmet_and_conflicts_explain_every_failed_sweep():
+    """For any table of which case meets which target (hypothesis): unmet targets hold nowhere; each
+    conflict's targets hold alone but never all together while every smaller part of it does; the
+    stated edge bounds hold for every case meeting each target; and a sweep with no passing case is
+    always explained by at least one unmet target or one conflict."""
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    keys = ("min_snr_db", "min_snr_a_db", "max_loss_db", "max_lsd_db")
+
+    @settings(max_examples=200, deadline=None)
+    @given(st.lists(st.tuples(st.sets(st.sampled_from(keys)), st.integers(1, 40)), min_size=1, max_size=12),
+           st.integers(2, 4))
+    def check(table, n_targets):
+        targets = dict.fromkeys(keys[:n_targets], 1.0)
+        cases = []
+        for i, (held, step) in enumerate(table, start=1):
+            fails = [k for k in targets if k not in held]
+            cases.append({**row(i, 500.0 * step, passes=not fails, fails=fails,
+                                margins={k: (-1.0 if k in fails else 1.0) for k in targets}),
+                          "low_hz": None, "high_hz": 500.0 * step})
+        choice, unmet = choose(cases, targets)
+        found = conflicts(cases, targets)
+        if choice is not None:
+            assert unmet == {} and found == []
+            return
+        assert unmet or found
+        for k in unmet:
+            assert all(k in c["fails"] for c in cases)
+        for conflict in found:
+            ks = conflict["targets"]
+            assert not set(ks) & set(unmet)
+            assert not any(all(k not in c["fails"] for k in ks) for c in cases)
+            for drop in ks:
+                part = [k for k in ks if k != drop]
+                assert any(all(k not in c["fails"] for k in part) for c in cases)
+            if conflict["edge"] is not None:
+                for k, need in conflict["needs"].items():
+                    for c in cases:
+                        if k not in c["fails"]:
+                            v = c[conflict["edge"]]
+                            assert v <= need["edge_hz"] if need["bound"] == "max" else v >= need["edge_hz"]
+
+    check()
