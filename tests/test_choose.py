@@ -219,6 +219,21 @@ def test_end_to_end_sweep_of_a_bundled_clip_prints_the_conflict_not_cannot_be_me
     jsonschema.Draft202012Validator(json.loads((REPO / "docs" / "spec.schema.json").read_text(
         encoding="utf-8"))).validate(spec)
     assert spec["unmet"] == [] and spec["conflicts"][0]["edge"] == "high_hz"
+    # read back, a hand-edited conflict is refused with its JSON pointer (audiobw.report.validate)
+    import pytest
+
+    from audiobw.errors import AudioFileError
+    from audiobw.report.validate import validate_sweep
+
+    validate_sweep(doc, out_dir / "sweep.json")
+    bad = json.loads(json.dumps(doc))
+    bad["conflicts"][0]["targets"][1] = "min_ser_db"  # a target that was not set
+    with pytest.raises(AudioFileError, match=r"/conflicts/0/targets/1: \"min_ser_db\" is not a target"):
+        validate_sweep(bad, out_dir / "sweep.json")
+    bad = json.loads(json.dumps(doc))
+    bad["conflicts"][0]["needs"]["max_lsd_db"]["bound"] = "above"
+    with pytest.raises(AudioFileError, match=r"/conflicts/0/needs/max_lsd_db/bound"):
+        validate_sweep(bad, out_dir / "sweep.json")
 
 
 def test_property_unmet_and_conflicts_explain_every_failed_sweep():
