@@ -309,7 +309,11 @@ class SweepResult:
     choice : Choice or None
         None when no case meets the targets (see :attr:`unmet`).
     unmet : dict
-        Target key -> best value any case reached, when nothing passes.
+        Target key -> best value any case reached, for each target that no
+        case meets even on its own (empty when a case passes).
+    conflicts : list of dict
+        Targets that each hold in some case but never together, and the edge
+        where each flips (docs/sweep-json.md; empty when a case passes).
     """
 
     def __init__(self, doc: dict, paths: Mapping[str, Path] | None = None) -> None:
@@ -320,6 +324,7 @@ class SweepResult:
         self.choice = None if not ch else Choice(self.cases[ch["case"] - 1], ch.get("binding"),
                                                   ch.get("binding_margin_db"), ch)
         self.unmet = dict(doc.get("unmet") or {})
+        self.conflicts = [dict(c) for c in doc.get("conflicts") or []]
 
     def to_json(self) -> dict:
         """The sweep.json mapping (docs/sweep-json.md), as ``audiobw sweep`` writes it."""

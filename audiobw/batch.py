@@ -947,7 +947,9 @@ def summary_lines(doc: dict) -> list[str]:
     if pb["files_without_choice"]:
         lines.append(f"{pb['files_without_choice']} file(s) have no passing case of their own.")
     for f in doc["failed"][:5]:
-        lines.append(f"Failed: {shown(f['reason'])}")
+        # a refusal of the grid names the option, not the file: name the file first
+        reason = f["reason"] if f["reason"].startswith(f["path"]) else f"{f['path']}: {f['reason']}"
+        lines.append(f"Failed: {shown(reason)}")
     if len(doc["failed"]) > 5:
         lines.append(f"... and {len(doc['failed']) - 5} more failed (see corpus.json).")
     return lines

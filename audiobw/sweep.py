@@ -3,9 +3,10 @@
 The choice rule: among passing cases, the narrowest −3 dB bandwidth; ties go
 to the lower ENBW, then the lower order.  The *binding* target is the one
 with the least margin at the chosen case — the limit that stops a narrower
-passband.  With no case passing, ``choice`` is None and ``unmet`` names each
-target that fails at the best compromise case, with the best value any case
-reached for it.
+passband.  With no case passing, ``choice`` is None, ``unmet`` names each
+target that no case meets on its own, with the best value any case reached
+for it, and ``conflicts`` the targets that each hold somewhere but never
+together, with the edge where each flips (:func:`conflicts`).
 """
 
 from __future__ import annotations
@@ -145,6 +146,7 @@ class SweepResult:
     notes: list = field(default_factory=list)
     data: object = None  # datalink.DataProgram for data programs
     limits: dict = field(default_factory=dict)  # perceptual.scoring.PerceptualScorer.limits()
+    conflicts: list = field(default_factory=list)  # see conflicts()
 
     def to_json(self) -> dict:
         a = self.analysis
@@ -178,6 +180,7 @@ class SweepResult:
             "cases": [{k: _round_any(case.get(k)) for k in self._case_keys()} for case in self.cases],
             "choice": self.choice,
             "unmet": {k: _round(v) for k, v in self.unmet.items()},
+            "conflicts": self.conflicts,
             "notes": list(self.notes),
             **({"limits": {k: _round_any(v) for k, v in self.limits.items()}} if self.limits else {}),
             **({"data": self._data_json()} if self.data is not None else {}),
@@ -301,17 +304,95 @@ def choose(cases: list[dict], targets: dict, rank: str = "enbw", tie: float = 0.
             "next_narrower_fails": next_narrower["fails"] if next_narrower else [],
             "grid_limited": next_narrower is None,
         }, {}
-    # none passes: the best compromise maximises the worst margin
-    def worst(c):
-        vals = [v for v in c["margins_db"].values()]
-        return min((-math.inf if v is None else v) for v in vals) if vals else -math.inf
-    compromise = max(cases, key=lambda c: (worst(c), -c["id"]))
+    # none passes: unmet names the targets that no case meets on its own, with the best value
+    # reached; targets that each hold somewhere but never together are conflicts (see conflicts())
     unmet = {}
-    for key in compromise["fails"]:
+    for key in TARGET_KEYS:
+        if key not in targets or any(key not in c["fails"] for c in cases):
+            continue
         metric, sense = TARGET_METRIC[key]
         values = [c[metric] for c in cases if c.get(metric) is not None]
         unmet[key] = (max(values) if sense > 0 else min(values)) if values else None
     return None, unmet
+
+
+#: the edges a conflict can part on, as case keys, in the order they are tried
+CONFLICT_EDGES = ("high_hz", "low_hz", "bandwidth_hz")
+
+
+def conflicts(cases: list[dict], targets: dict) -> list[dict]:
+    """Targets that each hold in some case but never together, and the edge where each flips.
+
+    Only meaningful when no case passes.  Each entry is a smallest set of
+    targets (a pair, unless every pair meets somewhere and only a larger set
+    never does) that no case meets together, though each meets alone::
+
+        {"targets": ["min_snr_a_db", "max_lsd_db"], "edge": "high_hz",
+         "needs": {"min_snr_a_db": {"bound": "max", "edge_hz": 3000.0},
+                   "max_lsd_db": {"bound": "min", "edge_hz": 20000.0}}}
+
+    ``edge`` is the case key (−3 dB upper edge, lower edge, or −3 dB
+    bandwidth) whose ranges over the cases where each target holds do not
+    overlap: every case meeting the first target has that edge at most
+    ``edge_hz`` and every case meeting the second at least its ``edge_hz``
+    (``bound`` says which way).  Both are necessary conditions read off the
+    grid, so they prove the two cannot meet in it.  ``edge`` is None when no
+    single edge parts them (they part on family or order, or for a larger set).
+    """
+    if any(c["passes"] for c in cases):
+        return []
+    keys = [k for k in TARGET_KEYS if k in targets]
+    alone = [k for k in keys if any(k not in c["fails"] for c in cases)]
+    if len(alone) < 2:
+        return []
+    # each distinct set of targets a case meets, as a frozenset
+    held = {frozenset(k for k in alone if k not in c["fails"]) for c in cases}
+
+    def together(subset) -> bool:
+        return any(subset <= h for h in held)
+
+    from itertools import combinations
+
+    found: list[tuple] = []
+    for size in range(2, len(alone) + 1):
+        for subset in combinations(alone, size):
+            s = frozenset(subset)
+            if together(s) or any(set(f) <= s for f in found):
+                continue
+            found.append(subset)
+        if found:  # the smallest sets explain it; larger ones contain them
+            break
+    out = []
+    for subset in found:
+        entry: dict = {"targets": list(subset), "edge": None,
+                       "needs": {k: {"bound": None, "edge_hz": None} for k in subset}}
+        if len(subset) == 2:
+            a, b = subset
+            for edge in CONFLICT_EDGES:
+                ra = _edge_range(cases, a, edge)
+                rb = _edge_range(cases, b, edge)
+                if ra is None or rb is None:
+                    continue
+                if ra[1] < rb[0]:
+                    needs = {a: {"bound": "max", "edge_hz": _round(ra[1])},
+                             b: {"bound": "min", "edge_hz": _round(rb[0])}}
+                elif rb[1] < ra[0]:
+                    needs = {a: {"bound": "min", "edge_hz": _round(ra[0])},
+                             b: {"bound": "max", "edge_hz": _round(rb[1])}}
+                else:
+                    continue
+                entry.update(edge=edge, needs=needs)
+                break
+        out.append(entry)
+    return out
+
+
+def _edge_range(cases: list[dict], key: str, edge: str):
+    """(lowest, highest) value of ``edge`` over the cases meeting ``key``; None for an open edge."""
+    vals = [c.get(edge) for c in cases if key not in c["fails"]]
+    if not vals or any(v is None for v in vals):
+        return None
+    return min(vals), max(vals)
 
 
 def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, targets: dict | None = None,
@@ -369,7 +450,8 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
         notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
                      "by the converter's anti-alias filter (give --amp-bandwidth to model it)")
     return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data,
-                       limits=pscorer.limits() if pscorer is not None else {})
+                       limits=pscorer.limits() if pscorer is not None else {},
+                       conflicts=conflicts(cases, targets) if choice is None else [])
 
 
 def _recorded_path(path) -> str:

@@ -171,6 +171,9 @@ def test_low_rate_file_fails_on_the_grid_not_the_run(tmp_path):
     assert doc["counts"]["swept"] == 1 and doc["choice"] is None and doc["best"]["pass_share"] == 0.5
     text = "\n".join(batch.summary_lines(doc))
     assert "on 50.0 % of all 2 files (1 could not be swept and count as not passing)" in text
+    # the failed line names the file, as the sweep's own refusal would, whatever the reason says
+    (failed,) = [ln for ln in text.splitlines() if ln.startswith("Failed:")]
+    assert failed.startswith("Failed: ") and "a.wav: --cutoffs:" in failed
     half = batch.run_batch([tmp_path / "a.wav", tmp_path / "b.wav"], settings(cutoffs="1000,4500"),
                            tmp_path / "out", workers=0, coverage=0.5).doc
     assert half["choice"]["pass_share"] == 0.5

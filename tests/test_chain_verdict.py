@@ -59,6 +59,8 @@ def test_eye_target_prints_as_a_percentage(tmp_path, capsys):
     targets = md.split("### Targets")[1].split("###")[0]
     row = next(line for line in targets.splitlines() if line.startswith("| eye opening"))
     assert "% of the unfiltered eye" in row and " dB |" not in row.split("|")[2]
+    # the limit reads in the same unit as the value: 50 %, not 0.5 beside 54.8 %
+    assert row.startswith("| eye opening ≥ 50 % of the unfiltered eye |"), row
 
 
 def test_occupied_band_per_channel(tmp_path, capsys):

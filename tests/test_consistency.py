@@ -44,3 +44,16 @@ def test_every_target_metric_is_a_case_key():
 def test_every_case_key_is_in_the_schema():
     props = SCHEMA["properties"]["cases"]["items"]["properties"]
     assert [k for k in CASE_KEYS + DATA_CASE_KEYS if k not in props] == []
+
+
+def test_conflicts_agree_between_code_schema_and_docs():
+    from audiobw.sweep import CONFLICT_EDGES
+
+    conf = SCHEMA["properties"]["conflicts"]["items"]
+    assert set(conf["required"]) == {"targets", "edge", "needs"}
+    assert set(conf["properties"]["edge"]["enum"]) == set(CONFLICT_EDGES) | {None}
+    assert set(conf["properties"]["needs"]["additionalProperties"]["required"]) == {"bound", "edge_hz"}
+    for word in ("conflicts", "edge", "needs", "bound", "edge_hz", *CONFLICT_EDGES):
+        assert re.search(rf"\b{word}\b", DOCS), f"{word} is not in docs/metrics.md or docs/sweep-json.md"
+    spec_schema = json.loads((REPO / "docs" / "spec.schema.json").read_text(encoding="utf-8"))
+    assert "conflicts" in spec_schema["properties"]

@@ -344,3 +344,45 @@ def test_noise_the_analog_filter_passes_above_fs_over_2_aliases_into_the_output(
                          + chain.quantisation_power_v2() + chain.dither_power_v2())
     if response == "lowpass":
         assert measured / unfolded > 1.05  # the folded noise is there (the model: 8.2 % more here)
+
+
+# -- the render's own noise and SNR beside the sweep's estimate (issue 13) --------------------------
+
+def test_render_prints_its_measured_noise_and_snr_beside_the_estimate_and_the_caution_once(tmp_path, capsys):
+    """A 997 Hz tone at -40 dBFS through a 16-bit chain (quantisation and amplifier noise both count).
+
+    The printed measured noise is checked against an independent measurement on chain-output.wav: a
+    least-squares sine fit (numpy.linalg.lstsq) removes DC and the tone, and the residual's rms over
+    the settled middle is the noise (AES17-2020 §6-style residual measurement, as in
+    tests/test_render_agreement.py).  Measured and estimated agree within that file's tolerances:
+    noise_vrms 2 %, snr_db 0.2 dB.
+    """
+    from .test_render_agreement import TOL
+
+    fs, seconds, level = FS, 3.0, 10 ** (-40 / 20)
+    t = np.arange(int(fs * seconds)) / fs
+    x = level * np.sin(2 * np.pi * 997.0 * t)
+    src = tmp_path / "tone.wav"
+    sf.write(str(src), np.stack([x, x], axis=1), fs, subtype="FLOAT")
+    out = tmp_path / "r"
+    rc = main(["render", str(src), "--band", ":6k", "--bits", "16", "--excerpt", "1", "--out", str(out)])
+    stdout = capsys.readouterr().out
+    assert rc == 0
+    assert stdout.count("Listening caution") == 1
+    (noise_line,) = [ln for ln in stdout.splitlines() if ln.startswith("noise: measured ")]
+    (snr_line,) = [ln for ln in stdout.splitlines() if ln.startswith("SNR: measured ")]
+    assert "sweep estimate" in noise_line and "dB apart" in noise_line and "sweep estimate" in snr_line
+    check = json.loads((out / "render.json").read_text())["noise_check"]
+    measured, estimate = check["measured_noise_vrms"], check["estimate_noise_vrms"]
+    assert abs(measured / estimate - 1) <= TOL["noise_vrms"]
+    assert abs(check["measured_snr_db"] - check["estimate_snr_db"]) <= TOL["snr_db"]
+    assert check["noise_apart_db"] == pytest.approx(abs(20 * math.log10(measured / estimate)))
+    # the measured figure is the output's noise: the residual of chain-output.wav after the tone
+    y, _ = sf.read(str(out / "chain-output.wav"))
+    mid = slice(int(0.5 * fs), int(2.9 * fs))
+    tt = t[mid]
+    basis = np.column_stack([np.ones_like(tt), np.cos(2 * np.pi * 997.0 * tt), np.sin(2 * np.pi * 997.0 * tt)])
+    residual = [y[mid, ch] - basis @ np.linalg.lstsq(basis, y[mid, ch], rcond=None)[0] for ch in range(2)]
+    rms_v = math.sqrt(np.mean(np.square(residual))) * math.sqrt(2) * Chain().full_scale_vrms
+    assert abs(rms_v / measured - 1) <= TOL["noise_vrms"]
+    assert "Measured on this render" in (out / "render-notes.txt").read_text()

@@ -69,7 +69,6 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
     from ..filters import FilterSpec
     from ..render import RenderOptions, render_file
 
-    click.echo(LISTENING_CAUTION)
     kwargs.update(family=family, order=order, ripple=ripple, stopband=stopband)
     settings = settings_from(kwargs, chain_file)
     lo, hi = units.parse_band(band, name="--band")
@@ -104,6 +103,10 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
         click.echo(f"  blind/ ({f['trials']['count']} pairs; key in {f['trials']['key']}, keep it from the listeners)")
     for clip in f["clips"].values():
         click.echo(f"{clip['file']}: {clip['loudness_lufs']:.2f} LUFS, true peak {clip['true_peak_dbfs']:.2f} dBFS")
+    from ..render import noise_check_lines
+
+    for line in noise_check_lines(f["noise_check"]):
+        click.echo(line)
     if bit_rate is not None:
         from ..datalink import recover_bit_rate
         from ..report.eye import eye_diagram

@@ -246,9 +246,14 @@ def page(run: dict, spec: dict, plots: list) -> str:
             f"<li>{esc(_target_text(u))}: "
             f"best reached {esc(metric_value_text(u['metric'], u['best']))}</li>"
             for u in spec["unmet"])
+        unmet = (" No case meets these targets even on their own (the best value any case reached):"
+                 f"<ul>{items}</ul>") if items else ""
+        clash = "".join(f"<li>{esc(c['text'])}</li>" for c in spec.get("conflicts") or [])
+        clash = (f' These targets each hold in some case but never together:<ul id="conflicts">{clash}</ul>'
+                 if clash else "")
         parts.append(f'<div class="verdict none" id="verdict"><strong>No passing case.</strong> None of the '
-                     f"{esc(spec['cases_total'])} cases meets every target. Unmet targets and the best value any "
-                     f"case reached:<ul>{items}</ul>The figures below are for the closest case "
+                     f"{esc(spec['cases_total'])} cases meets every target.{unmet}{clash}"
+                     f"The figures below are for the closest case "
                      f"({esc(spec['subject']['case'])}: {esc(passband_phrase(spec))}), which is not a "
                      "recommendation.</div>")
     # the spec block

@@ -40,7 +40,7 @@ from ..cautions import ESTIMATE_CAUTION, LISTENING_CAUTION
 from ..errors import AudiobwError, AudioFileError, ParameterError
 from ..names import md_code, md_text
 from ..metrics import TARGET_KEYS, TARGET_METRIC
-from .text import TARGET_LABEL
+from .text import TARGET_LABEL, conflict_text
 
 SPEC_VERSION = 1
 #: chain key -> (label, unit); the unit is the SI unit of the stored value.
@@ -417,6 +417,9 @@ def build_spec(run: dict) -> dict:
         label, metric, unit, sense = target_info(key)
         unmet.append({"key": key, "label": label, "metric": metric, "sense": "min" if sense == "≥" else "max",
                       "limit": doc["targets"][key], "unit": unit, "best": best})
+    conflicts = [{"targets": list(c["targets"]), "edge": c.get("edge"), "needs": c["needs"],
+                  "text": conflict_text(c, doc["targets"], hz=lambda v: fmt(v, "Hz")).removeprefix("Conflict: ")}
+                 for c in doc.get("conflicts") or []]
     chain_rows = [{"key": k, "label": CHAIN_FIELDS.get(k, (k, ""))[0], "value": v,
                    "unit": CHAIN_FIELDS.get(k, (k, ""))[1]} for k, v in doc["chain"].items()]
     spec = {
@@ -450,6 +453,7 @@ def build_spec(run: dict) -> dict:
         "binding_margin_db": choice.get("binding_margin_db") if choice else None,
         "grid_limited": bool(choice.get("grid_limited")) if choice else None,
         "unmet": unmet,
+        "conflicts": conflicts,
         "neighbours": neighbours(cases, subject),
         "ser_optimum": ({"case": ser_best["id"], "bandwidth_hz": ser_best["bandwidth_hz"],
                          "ser_db": ser_best["ser_db"], "family": ser_best["family"], "order": ser_best["order"]}
@@ -509,6 +513,8 @@ def passband_phrase(spec: dict) -> str:
 
 def _target_text(t: dict) -> str:
     sense = "≥" if t["sense"] == "min" else "≤"
+    if t["key"] == "min_eye":  # a fraction of the unfiltered eye, read as the value beside it is
+        return f"{t['label']} {sense} {100 * t['limit']:g} % of the unfiltered eye"
     return f"{t['label']} {sense} {t['limit']:g} {t['unit']}".rstrip()
 
 
@@ -649,11 +655,15 @@ def markdown(spec: dict, renders: list | None = None) -> str:
     out.append(f"> **Caution.** {spec['caution']}")
     out.append("")
     if spec["status"] == "no_passing_case":
-        out += ["## No passing case", "", "No case of the grid meets every target. Unmet targets and the best "
-                "value any case reached:", ""]
-        out += ["| target | best reached |", "|---|---|"]
-        for u in spec["unmet"]:
-            out.append(f"| {_target_text(u)} | {metric_value_text(u['metric'], u['best'])} |")
+        out += ["## No passing case", "", "No case of the grid meets every target."]
+        if spec["unmet"]:
+            out += ["", "No case meets these targets even on their own (the best value any case reached):", ""]
+            out += ["| target | best reached |", "|---|---|"]
+            for u in spec["unmet"]:
+                out.append(f"| {_target_text(u)} | {metric_value_text(u['metric'], u['best'])} |")
+        if spec.get("conflicts"):
+            out += ["", "These targets each hold in some case but never together:", ""]
+            out += [f"- {c['text']}" for c in spec["conflicts"]]
         out += ["", f"The figures below are for the **closest case** ({spec['subject']['case']}, the largest worst "
                 f"margin), which fails: {', '.join(target_info(k)[0] for k in spec['subject']['fails'])}. "
                 "It is not a recommendation.", ""]

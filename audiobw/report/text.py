@@ -186,6 +186,8 @@ def closing_paragraph(doc: dict) -> str:
             label, metric, unit, sense = TARGET_LABEL[key]
             lines.append(f"Cannot be met: {label} {sense} {_target_text(key, targets[key])}; the best any case "
                          f"reached is {_fmt_metric(metric, best)}.")
+        for c in doc.get("conflicts") or []:
+            lines.append(conflict_text(c, targets))
     if "data" in doc:
         d = doc["data"]
         rate = f"{format_quantity(d['bit_rate_hz'], 'bit/s')}"
@@ -201,6 +203,35 @@ def closing_paragraph(doc: dict) -> str:
     for note in doc.get("notes", []):
         lines.append("Note: " + note)
     return "\n".join(lines)
+
+
+#: how the edge a conflict parts on reads
+EDGE_WORDS = {"high_hz": "an upper −3 dB edge", "low_hz": "a lower −3 dB edge",
+              "bandwidth_hz": "a −3 dB bandwidth"}
+
+
+def target_phrase(key: str, targets: dict) -> str:
+    """'A-weighted SNR ≥ 75 dB': a target as the sweep states it."""
+    label, _metric, _unit, sense = TARGET_LABEL[key]
+    return f"{label} {sense} {_target_text(key, targets[key])}"
+
+
+def conflict_text(c: dict, targets: dict, hz=lambda v: format_quantity(v, "Hz")) -> str:
+    """One conflict in words: each target, and the edge where it flips."""
+    keys = c["targets"]
+    if c.get("edge") and len(keys) == 2:
+        a, b = keys
+        na, nb = c["needs"][a], c["needs"][b]
+        sign = {"max": "≤", "min": "≥"}
+        return (f"Conflict: {target_phrase(a, targets)} needs {EDGE_WORDS[c['edge']]} {sign[na['bound']]} "
+                f"{hz(na['edge_hz'])}; {target_phrase(b, targets)} needs {sign[nb['bound']]} {hz(nb['edge_hz'])} "
+                "(each holds in some case, never both in one).")
+    named = [target_phrase(k, targets) for k in keys]
+    joined = ", ".join(named[:-1]) + " and " + named[-1]
+    if len(keys) == 2:
+        return (f"Conflict: {joined} each hold in some case but never both in one "
+                "(no single edge parts them: they part on family or order).")
+    return f"Conflict: {joined} each hold in some case, and every two of them together, but never all in one."
 
 
 def _per_channel_occupied(inp: dict) -> str:

@@ -6,7 +6,8 @@ layers: the JSON Schema ``docs/sweep.schema.json`` (validated with the
 ``jsonschema`` library, Draft 2020-12, when it and the schema file are
 present), then rules a schema cannot say (every number finite, ``choice.case``
 and ``choice.next_narrower`` name cases that exist, case ids unique, the
-grid's design values), then the spectrum's arrays (shapes, finite, rising
+grid's design values, ``conflicts`` only without a choice and naming targets
+that were set), then the spectrum's arrays (shapes, finite, rising
 frequencies, the sample rate of sweep.json).
 
 References
@@ -166,6 +167,13 @@ def validate_sweep(doc, path) -> None:
         _number(doc, ["cases", i, "bandwidth_hz"], path, positive=True)
         if not isinstance(c.get("margins_db"), dict):
             _refuse(path, ["cases", i, "margins_db"], f"{_short(c.get('margins_db'))} is not an object of margins")
+    for i, c in enumerate(doc.get("conflicts") or []):
+        if choice is not None:
+            _refuse(path, ["conflicts", i], "a conflict beside a choice (conflicts are listed only when no case "
+                    "passes)")
+        for j, key in enumerate(c.get("targets", [])):
+            if key not in doc["targets"]:
+                _refuse(path, ["conflicts", i, "targets", j], f"{_short(key)} is not a target of /targets")
     if choice is not None and choice.get("binding") is not None:
         # null where the margin is beyond the double range (a BER that underflows to 0)
         _number(doc, ["choice", "binding_margin_db"], path, null=True)
