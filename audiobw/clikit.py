@@ -41,7 +41,8 @@ CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", 
          "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
 GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
 TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser", "max_ber", "min_eye",
-           "min_headroom", "max_nmr", "max_audible_frames", "min_sii")
+           "min_headroom", "max_nmr", "max_audible_frames", "min_sii", "min_alias_rejection", "max_flatness",
+           "max_delay_spread")
 PROGRAM = ("program", "bit_rate", "playback_spl", "hearing_threshold")
 METER = ("meter", "tone", "tone_level")
 

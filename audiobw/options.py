@@ -79,6 +79,12 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
                            "above the masked threshold, % (music default: 1)"),
     "min_sii": ("targets", "fraction", "target (speech): minimum Speech Intelligibility Index, 0 to 1 "
                 "(ANSI S3.5-1997; speech default: 0.75)"),
+    "min_alias_rejection": ("targets", "db", "target (analog stage): minimum attenuation, dB, of what the "
+                            "converter folds into the passband (at fs − f_high for a monotonic lowpass)"),
+    "max_flatness": ("targets", "db", "target: maximum peak-to-peak gain over the program's 99 % occupied "
+                     "band, dB (e.g. 0.5)"),
+    "max_delay_spread": ("targets", "seconds", "target: maximum group-delay spread (max − min) over the "
+                         "program's 99 % occupied band, s (e.g. 200us, 1ms)"),
 }
 
 

@@ -11,7 +11,9 @@ TOML layout (same names as the options, in snake_case)::
     [amplifier]   gain, en, in, h2, h3, amp_bandwidth
     [converter]   bits, full_scale, dither, stage
     [grid]        response, family, order, cutoffs, low_edges, high_edges, ripple, stopband
-    [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser
+    [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser, max_ber, min_eye,
+                  min_headroom, max_nmr, max_audible_frames, min_sii, min_alias_rejection,
+                  max_flatness, max_delay_spread
     [meter]       meter, tone, tone_level
 
 Numbers are taken in the option's base unit (Ω, K, dB, V/√Hz, A/√Hz, V rms,
@@ -38,7 +40,9 @@ GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges"
 TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
                  "max_loss": "max_loss_db", "max_lsd": "max_lsd_db", "min_ser": "min_ser_db",
                  "max_ber": "max_ber", "min_eye": "min_eye", "min_headroom": "min_headroom_db",
-                 "max_nmr": "max_nmr_db", "max_audible_frames": "max_audible_frames_pct", "min_sii": "min_sii"}
+                 "max_nmr": "max_nmr_db", "max_audible_frames": "max_audible_frames_pct", "min_sii": "min_sii",
+                 "min_alias_rejection": "min_alias_rejection_db", "max_flatness": "max_flatness_db",
+                 "max_delay_spread": "max_delay_spread_s"}
 METER_KEYS = ("meter", "tone", "tone_level")
 MAX_TOML_BYTES = 1_000_000  # a chain file is a few hundred bytes; more is a mistake or hostile
 
@@ -335,6 +339,14 @@ def build(raw: dict[str, Raw]) -> Settings:
     if "stopband" in parsed and not 0 < parsed["stopband"] <= 200:
         raise ParameterError(f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; "
                              "accepted: 0 < stopband <= 200 dB")
+    for key, what in (("min_alias_rejection", "an attenuation"), ("max_flatness", "a peak-to-peak gain")):
+        if key in parsed and not parsed[key] >= 0:
+            raise ParameterError(f"{raw[key].origin}: {raw[key].value!r} is negative; accepted: {what} "
+                                 "of 0 dB or more")
+    if "min_alias_rejection" in parsed and chain.stage == "digital":
+        raise ParameterError(f"{raw['min_alias_rejection'].origin}: applies to the analog stage only (a digital "
+                             "filter acts after the converter, once the images have folded); accepted: "
+                             "--stage analog, or leave the target out")
     grid_values = {k: parsed[k] for k in GRID_KEYS if k in parsed}
     program = parsed.get("program", "music")
     if program == "audio":

@@ -130,7 +130,7 @@ CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", 
              "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
              "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
              "passes", "fails", "margins_db", "headroom_db", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db",
-             "audible_band_hz", "audible_band_pct")
+             "audible_band_hz", "audible_band_pct", "alias_rejection_db", "flatness_db", "delay_spread_s")
 
 
 @dataclass
@@ -355,6 +355,9 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
         analysis = analyse(path, progress=progress)
     if data is None and any(k in targets for k in ("max_ber", "min_eye")):
         raise ParameterError("--max-ber/--min-eye: apply to data programs only; accepted: add --program data")
+    if "min_alias_rejection_db" in targets and chain.stage != "analog":
+        raise ParameterError("--min-alias-rejection: applies to the analog stage only (a digital filter acts "
+                             "after the converter, once the images have folded); accepted: --stage analog")
     perceptual_keys = {"max_nmr_db", "max_audible_frames_pct", "min_sii"}
     if listening is None and perceptual_keys & set(targets):
         raise ParameterError("--max-nmr/--max-audible-frames/--min-sii: need playback conditions; "

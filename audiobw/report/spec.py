@@ -201,19 +201,8 @@ def rebuild_chain(doc: dict):
 
 
 def group_delay_s(filt, freqs_hz) -> np.ndarray:
-    """Group delay in seconds at ``freqs_hz``, analytically from the zpk (module reference [2])."""
-    f = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
-    z, p, _k = filt.zpk()
-    if filt.analog:
-        x = 1j * 2.0 * np.pi * f
-        with np.errstate(divide="ignore", invalid="ignore"):
-            tau = sum(np.real(1.0 / (x - c)) for c in p) - sum(np.real(1.0 / (x - c)) for c in z)
-        return np.asarray(tau + 0.0 * f, dtype=float)
-    fs = float(filt.spec.fs_hz)
-    x = np.exp(1j * 2.0 * np.pi * f / fs)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        tau = sum(np.real(x / (x - c)) for c in p) - sum(np.real(x / (x - c)) for c in z)
-    return np.asarray(tau + 0.0 * f, dtype=float) / fs
+    """Group delay in seconds at ``freqs_hz``, analytically from the zpk (:meth:`Filter.group_delay_s`)."""
+    return filt.group_delay_s(freqs_hz)
 
 
 def _band_grid(lo: float, hi: float, n: int = 4000) -> np.ndarray:

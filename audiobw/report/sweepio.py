@@ -17,7 +17,8 @@ from ..names import csv_cell
 
 CSV_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "bandwidth_hz", "enbw_hz",
             "noise_vrms", "noise_dbfs", "snr_db", "snr_a_db", "loss_db", "lsd_db", "ser_db",
-            "thdn_pct", "thdn_db", "passes", "fails", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db")
+            "thdn_pct", "thdn_db", "passes", "fails", "nmr_db", "audible_frames_pct", "sii", "wiener_gap_db",
+            "alias_rejection_db", "flatness_db", "delay_spread_s")
 
 
 def dumps(doc: dict) -> str:

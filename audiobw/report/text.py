@@ -20,6 +20,9 @@ TARGET_LABEL = {
     "max_nmr_db": ("noise-to-mask ratio", "nmr_db", "dB", "≤"),
     "max_audible_frames_pct": ("audible frames", "audible_frames_pct", "%", "≤"),
     "min_sii": ("speech intelligibility index", "sii", "", "≥"),
+    "min_alias_rejection_db": ("alias rejection", "alias_rejection_db", "dB", "≥"),
+    "max_flatness_db": ("passband flatness", "flatness_db", "dB", "≤"),
+    "max_delay_spread_s": ("group-delay spread", "delay_spread_s", "s", "≤"),
 }
 #: table column -> (header, unit, key, format, target that marks it)
 COLUMNS = (
@@ -39,6 +42,9 @@ COLUMNS = (
     ("NMR", "dB", "nmr_db", "{:>6.1f}", "max_nmr_db"),
     ("aud", "%", "audible_frames_pct", "{:>5.1f}", "max_audible_frames_pct"),
     ("SII", "", "sii", "{:>5.3f}", "min_sii"),
+    ("alias", "dB", "alias_rejection_db", "{:>6.1f}", "min_alias_rejection_db"),
+    ("flat", "dB", "flatness_db", "{:>6.2f}", "max_flatness_db"),
+    ("Δτ", "µs", "delay_spread_us", "{:>7.1f}", "max_delay_spread_s"),
 )
 
 
@@ -59,6 +65,8 @@ def _derived(case: dict) -> dict:
         c["noise_sigma_uv"] = c["noise_sigma_v"] * 1e6
     if c.get("eye_fraction") is not None:
         c["eye_pct"] = 100 * c["eye_fraction"]
+    if c.get("delay_spread_s") is not None:
+        c["delay_spread_us"] = c["delay_spread_s"] * 1e6
     return c
 
 
@@ -115,6 +123,8 @@ def _fmt_metric(key: str, value) -> str:
         return f"{value:.1f} dBFS"
     if key == "noise_vrms":
         return format_quantity(value, "V rms")
+    if key == "delay_spread_s":
+        return format_quantity(value, "s")
     if key.endswith("_hz"):
         return format_quantity(value, "Hz")
     return f"{value:.2f} dB"
@@ -194,6 +204,7 @@ def closing_paragraph(doc: dict) -> str:
             ("noise", "noise_vrms"), ("", "noise_dbfs"), ("SNR", "snr_db"), ("SNR-A", "snr_a_db"),
             ("loss", "loss_db"), ("LSD", "lsd_db"), ("SER", "ser_db"), ("THD+N", "thdn_pct")))
         lines.append("Its figures: " + figs + ".")
+        lines += filter_quality_lines(c, inp)
         lim = doc.get("limits") or {}
         if lim and c.get("nmr_db") is not None:
             words = [f"NMR {c['nmr_db']:.1f} dB", f"error above the masked threshold in "
@@ -233,6 +244,40 @@ def closing_paragraph(doc: dict) -> str:
     return "\n".join(lines)
 
 
+#: Alias rejection called poor in the terminal, dB: an image under a tenth of its amplitude
+#: down (a stated choice; the figure and the noise it is compared with are printed beside it).
+POOR_ALIAS_REJECTION_DB = 20.0
+
+
+def filter_quality_lines(c: dict, inp: dict) -> list[str]:
+    """What the filter does to the band and what it lets fold into it: flatness, delay spread, alias rejection.
+
+    Rejection under :data:`POOR_ALIAS_REJECTION_DB` is called poor; above it, the
+    line still says when a full-scale component at the nearest image would fold
+    into the band above this case's own noise floor (rejection < −noise dBFS).
+    """
+    band = (f"the 99 % occupied band, {format_quantity(inp['occupied_low_hz'], 'Hz')} to "
+            f"{format_quantity(inp['occupied_high_hz'], 'Hz')}")
+    words = []
+    if c.get("flatness_db") is not None:
+        words.append(f"gain varies {c['flatness_db']:.2f} dB peak to peak")
+    if c.get("delay_spread_s") is not None:
+        words.append(f"group delay varies {format_quantity(c['delay_spread_s'], 's')}")
+    out = [f"Over {band}: " + ", ".join(words) + "."] if words else []
+    rej, noise = c.get("alias_rejection_db"), c.get("noise_dbfs")
+    if rej is not None:
+        text = f"Alias rejection {rej:.1f} dB (the least attenuation of what the converter folds into the passband)"
+        above = (f"a full-scale component there folds in at {-rej:.1f} dBFS, {-noise - rej:.0f} dB above the "
+                 f"case's noise ({noise:.1f} dBFS)") if noise is not None and rej < -noise else None
+        if rej < POOR_ALIAS_REJECTION_DB:
+            text += (": a poor anti-alias filter" + (f" — {above}" if above else "") +
+                     "; a steeper or higher-order filter, or --min-alias-rejection, rules it out")
+        elif above:
+            text += f": {above}"
+        out.append(text + ".")
+    return out
+
+
 def _per_channel_occupied(inp: dict) -> str:
     """', power summed over 2 channels; per channel: ch 1 …, ch 2 …' for a multichannel program."""
     chans = inp.get("occupied_channels") or []
@@ -252,6 +297,8 @@ def _target_text(key: str, value: float) -> str:
         return f"{value:g}"
     if key == "max_audible_frames_pct":
         return f"{value:g} % of frames"
+    if key == "max_delay_spread_s":
+        return format_quantity(value, "s")
     return f"{value:g} %" if key == "max_thdn_pct" else f"{value:g} dB"
 
 
