@@ -246,19 +246,16 @@ class Filter:
             x = np.exp(1j * 2.0 * np.pi * f / self.spec.fs_hz)
             scale, on_axis = 1.0 / self.spec.fs_hz, 0.5
 
-        def term(root):
-            d = x - root
-            out = np.full(f.shape, on_axis)
-            ok = np.abs(d) > 1e-300
-            out[ok] = np.real((1.0 if self.analog else x[ok]) / d[ok])
-            return out
+        def total(roots):
+            if len(roots) == 0:
+                return np.zeros(f.shape)
+            d = x[None, :] - np.asarray(roots, complex)[:, None]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                t = np.real((1.0 if self.analog else x[None, :]) / d)
+            t[d == 0] = on_axis
+            return t.sum(axis=0)
 
-        tau = np.zeros(f.shape)
-        for c in p:
-            tau += term(c)
-        for c in z:
-            tau -= term(c)
-        return tau * scale
+        return (total(p) - total(z)) * scale
 
     def _real_factors(self):
         """Zeros and poles as real factors in W = ω² (cached; shared by a prototype), or None."""

@@ -166,9 +166,9 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
 
 #: Points of the occupied-band grid for flatness and delay spread: linear, plus
 #: logarithmic ones for the low end (a 20 Hz edge in a 20 kHz band).
-BAND_GRID_LINEAR, BAND_GRID_LOG = 1024, 256
+BAND_GRID_LINEAR, BAND_GRID_LOG = 512, 128
 #: Points of the image-band grid for alias rejection (per image band).
-IMAGE_GRID = 256
+IMAGE_GRID = 128
 
 
 def band_grid(low_hz: float, high_hz: float, *, floor_hz: float) -> np.ndarray:

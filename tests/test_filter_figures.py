@@ -193,7 +193,7 @@ def test_flatness_of_a_butterworth_to_its_edge_is_3_dB():
 def test_flatness_and_spread_never_shrink_when_the_band_widens(order, fc, top):
     """A band that contains another: the peak-to-peak figures of the wider are at least
     those of the narrower, up to the sampling of a peak inside the band by two different
-    grids (1280 points: a relative 1e-5)."""
+    grids (640 points: a relative 1e-5)."""
     filt = _filter("lowpass", "butterworth", order, None, fc)
     narrow, wide = band_grid(0.0, top, floor_hz=1.0), band_grid(0.0, min(1.5 * top, 23000.0), floor_hz=1.0)
     f_narrow, f_wide = flatness_db(filt, narrow), flatness_db(filt, wide)

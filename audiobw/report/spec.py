@@ -499,11 +499,13 @@ def passband_phrase(spec: dict) -> str:
 
 def _target_text(t: dict) -> str:
     sense = "≥" if t["sense"] == "min" else "≤"
+    if t["unit"] == "s":
+        return f"{t['label']} {sense} {fmt(t['limit'], 's')}"
     return f"{t['label']} {sense} {t['limit']:g} {t['unit']}".rstrip()
 
 
 def _metric_unit(metric: str) -> str:
-    return "%" if metric == "thdn_pct" else "dB"
+    return {"thdn_pct": "%", "delay_spread_s": "s"}.get(metric, "dB")
 
 
 def metric_value_text(metric: str, value) -> str:
