@@ -92,3 +92,11 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
 def option_name(key: str) -> str:
     """The command-line spelling of a key: ``source_ohms`` -> ``--source-ohms``."""
     return "--" + key.replace("_", "-")
+
+
+def grid_option(response: str, edge: str) -> str:
+    """The option that sets the grid of a response's ``edge`` ('low' or 'high'):
+    ``--cutoffs`` for a lowpass or highpass, ``--low-edges``/``--high-edges`` for a bandpass."""
+    if response != "bandpass":
+        return "--cutoffs"
+    return "--low-edges" if edge == "low" else "--high-edges"

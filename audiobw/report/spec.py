@@ -439,6 +439,7 @@ def build_spec(run: dict) -> dict:
         "binding": binding,
         "binding_margin_db": choice.get("binding_margin_db") if choice else None,
         "grid_limited": bool(choice.get("grid_limited")) if choice else None,
+        "grid_limits": list(choice.get("grid_limits") or []) if choice else [],
         "unmet": unmet,
         "neighbours": neighbours(cases, subject),
         "ser_optimum": ({"case": ser_best["id"], "bandwidth_hz": ser_best["bandwidth_hz"],
@@ -656,7 +657,10 @@ def markdown(spec: dict, renders: list | None = None) -> str:
         if b:
             t = next(t for t in spec["targets"] if t["key"] == b)
             out += ["", f"Bound by **{_target_text(t)}** (margin {margin_value_text(b, spec['binding_margin_db'])})."]
-        if spec["grid_limited"]:
+        if spec["grid_limits"]:
+            from .text import grid_limit_lines
+            out += [""] + grid_limit_lines(spec["filter"]["response"], spec["grid_limits"])
+        elif spec["grid_limited"]:
             out += ["", "This is the narrowest case of its family and order in the grid: extend the grid to see "
                     "whether a narrower passband also passes."]
     out += ["", "| quantity | value |", "|---|---|"]

@@ -187,10 +187,13 @@ def closing_paragraph(doc: dict) -> str:
             margin = choice.get("binding_margin_db")
             lines.append(f"Binding target: {label} {sense} {_target_text(b, targets[b])} "
                          f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin_text(b, margin)}).")
-        if choice.get("grid_limited"):
+        limits = choice.get("grid_limits") or []
+        if limits:
+            lines += grid_limit_lines(c["response"], limits)
+        elif choice.get("grid_limited"):
             lines.append("This is the narrowest case of its family and order in the grid: extend the grid "
                          "to see whether a narrower passband also passes.")
-        elif choice.get("next_narrower"):
+        if choice.get("next_narrower"):
             nn = cases[choice["next_narrower"]]
             fails = ", ".join(TARGET_LABEL[t][0] for t in nn["fails"]) or "none"
             lines.append(f"The next narrower case ({nn['id']}, {format_quantity(nn['bandwidth_hz'], 'Hz')}) "
@@ -247,6 +250,31 @@ def closing_paragraph(doc: dict) -> str:
 #: Alias rejection called poor in the terminal, dB: an image under a tenth of its amplitude
 #: down (a stated choice; the figure and the noise it is compared with are printed beside it).
 POOR_ALIAS_REJECTION_DB = 20.0
+
+
+def grid_limit_lines(response: str, limits: list[dict]) -> list[str]:
+    """One line per grid end the chosen case sits on, with the range to extend.
+
+    An edge at the narrowing end (the lowest upper edge, the highest lower edge)
+    was stopped by the grid; for a bandpass, an edge at the widening end may have
+    stopped a trade with the other edge.
+    """
+    from ..options import grid_option
+
+    out = []
+    for lim in limits:
+        edge, end, hz = lim["edge"], lim["end"], format_quantity(lim["design_hz"], "Hz")
+        opt = grid_option(response, edge)
+        word = "upper" if edge == "high" else "lower"
+        narrowing = (edge, end) in (("high", "lowest"), ("low", "highest"))
+        if narrowing:
+            why = f"the grid stopped it there: extend {opt} {lim['extend']} {hz} to see whether a narrower passband passes"
+        else:
+            other = "upper" if edge == "low" else "lower"
+            why = (f"a {('lower' if end == 'lowest' else 'higher')} {word} edge might let the {other} edge "
+                   f"{'come down' if other == 'upper' else 'go up'} for less ENBW: extend {opt} {lim['extend']} {hz}")
+        out.append(f"Grid limit: the {word} edge (designed at {hz}) is the {end} of its grid; {why}.")
+    return out
 
 
 def filter_quality_lines(c: dict, inp: dict) -> list[str]:
