@@ -29,6 +29,8 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "in": ("amplifier", "current_density", "amplifier input current noise, A/√Hz (e.g. 1.5p)"),
     "h2": ("amplifier", "gain_db", "2nd harmonic at full scale, dB re fundamental (e.g. -110)"),
     "h3": ("amplifier", "gain_db", "3rd harmonic at full scale, dB re fundamental (e.g. -120)"),
+    "en_corner": ("amplifier", "frequency", "1/f corner of e_n, Hz: e_n(f)² = e_n²·(1 + fc/f) (default: none, white)"),
+    "in_corner": ("amplifier", "frequency", "1/f corner of i_n, Hz: i_n(f)² = i_n²·(1 + fc/f) (default: none, white)"),
     "amp_bandwidth": ("amplifier", "frequency", "amplifier's own -3 dB bandwidth, Hz (one pole; default unlimited)"),
     "bits": ("converter", "bits", "converter resolution, bits (1 to 32)"),
     "full_scale": ("converter", "voltage", "rms of a full-scale sine at the converter input (2Vrms, +4dBu)"),

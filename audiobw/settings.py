@@ -8,7 +8,7 @@ typed objects.  Command-line values override the file's.
 TOML layout (same names as the options, in snake_case)::
 
     [source]      source_ohms, temperature, input_level
-    [amplifier]   gain, en, in, h2, h3, amp_bandwidth
+    [amplifier]   gain, en, in, en_corner, in_corner, h2, h3, amp_bandwidth
     [converter]   bits, full_scale, dither, stage
     [grid]        response, family, order, cutoffs, low_edges, high_edges, ripple, stopband
     [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser, max_ber, min_eye,
@@ -34,7 +34,8 @@ from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, R
                       option_name)
 
 CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
-              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
+              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity",
+              "en_corner", "in_corner")
 GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
              "rank", "tie")
 TARGET_OPTION = {"min_snr": "min_snr_db", "min_snr_a": "min_snr_a_db", "max_thdn": "max_thdn_pct",
@@ -310,7 +311,7 @@ def build(raw: dict[str, Raw]) -> Settings:
     mapping = {"source_ohms": "source_ohms", "temperature": "temperature_k", "gain": "gain_db",
                "en": "en_v_rthz", "in": "in_a_rthz", "h2": "h2_db", "h3": "h3_db",
                "amp_bandwidth": "amp_bandwidth_hz", "bits": "bits", "full_scale": "full_scale_vrms",
-               "dither": "dither", "stage": "stage"}
+               "dither": "dither", "stage": "stage", "en_corner": "en_corner_hz", "in_corner": "in_corner_hz"}
     for key, field_name in mapping.items():
         if key in parsed:
             chain_kw[field_name] = int(parsed[key]) if key == "bits" else parsed[key]

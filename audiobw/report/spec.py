@@ -53,6 +53,8 @@ CHAIN_FIELDS = {
     "h2_db": ("2nd harmonic at full scale (null: linear)", "dB re fundamental"),
     "h3_db": ("3rd harmonic at full scale (null: linear)", "dB re fundamental"),
     "amp_bandwidth_hz": ("amplifier −3 dB bandwidth (null: unlimited)", "Hz"),
+    "en_corner_hz": ("1/f corner of e_n (null: white)", "Hz"),
+    "in_corner_hz": ("1/f corner of i_n (null: white)", "Hz"),
     "bits": ("converter resolution N", "bit"),
     "full_scale_vrms": ("full-scale sine at the converter input", "V rms"),
     "dither": ("converter dither", ""),
