@@ -427,6 +427,7 @@ def build_spec(run: dict) -> dict:
             "design_low_hz": subject["design_low_hz"], "design_high_hz": subject["design_high_hz"],
             "bandwidth_hz": subject["bandwidth_hz"], "enbw_hz": subject["enbw_hz"],
             "stopband_design_db": doc["grid"]["stopband_db"] if subject["family"] == "elliptic" else None,
+            "alias_rejection_db": subject.get("alias_rejection_db"),
         },
         "passband": passband_figures(filt, subject, doc),
         "stopband": stopband_points(filt, subject, fs),
@@ -551,6 +552,9 @@ def spec_rows(spec: dict) -> list[tuple[str, str, str, object]]:
                      f"{fmt(pb['flatness']['high_hz'], 'Hz')})", fmt(pb["flatness"]["variation_db"], "dB"),
          "passband.flatness.variation_db"),
     ]
+    if f.get("alias_rejection_db") is not None:
+        rows.append(("Stopband", "alias rejection: least attenuation over what the converter folds into the passband",
+                     fmt(f["alias_rejection_db"], "dB"), "filter.alias_rejection_db"))
     for i, p in enumerate(spec["stopband"]):
         text = fmt(p["attenuation_db"], "dB") if p["attenuation_db"] is not None else f"— ({p['note']})"
         rows.append(("Stopband", f"attenuation at {p['label']} = {fmt(p['freq_hz'], 'Hz')}", text,
