@@ -76,6 +76,10 @@ class Chain:
     input_gain_db : float
         Gain applied to the file's program before it enters the model
         (from ``--input-level``); 0 leaves the samples as they are.
+    en_corner_hz, in_corner_hz : float or None, > 0
+        1/f (flicker) corners of the amplifier's noise densities, Hz:
+        e_n(f)² = e_n²·(1 + f_ce/f), i_n(f)² = i_n²·(1 + f_ci/f) (the usual
+        data-sheet model; Motchenbacher & Connelly ch. 2).  None: white.
     """
 
     source_ohms: float = 200.0
@@ -91,6 +95,8 @@ class Chain:
     dither: str = "tpdf"
     stage: str = "analog"
     input_gain_db: float = 0.0
+    en_corner_hz: float | None = None
+    in_corner_hz: float | None = None
 
     def __post_init__(self):
         checks = [
@@ -107,6 +113,9 @@ class Chain:
         for opt, value in (("--h2", self.h2_db), ("--h3", self.h3_db)):
             if value is not None:
                 checks.append((opt, value, value < 0, "a level below 0 dB re the fundamental"))
+        for opt, value in (("--en-corner", self.en_corner_hz), ("--in-corner", self.in_corner_hz)):
+            if value is not None:
+                checks.append((opt, value, math.isfinite(value) and value > 0, "a frequency > 0 Hz"))
         if self.amp_bandwidth_hz is not None:
             checks.append(("--amp-bandwidth", self.amp_bandwidth_hz, self.amp_bandwidth_hz > 0, "a frequency > 0 Hz"))
         for opt, given, ok, accepted in checks:
@@ -144,6 +153,19 @@ class Chain:
     def density_amplifier_v2_hz(self) -> float:
         """All analog white noise at the converter input, G²(4kTRs + e_n² + (i_n Rs)²)."""
         return self.density_source_v2_hz() + self.density_en_v2_hz() + self.density_in_v2_hz()
+
+    def flicker_en_v2(self) -> float:
+        """The 1/f part of e_n at the converter input as a coefficient of 1/f: G²·e_n²·f_ce (V²)."""
+        return self.density_en_v2_hz() * (self.en_corner_hz or 0.0)
+
+    def flicker_in_v2(self) -> float:
+        """The 1/f part of i_n·Rs at the converter input: G²·(i_n·Rs)²·f_ci (V²)."""
+        return self.density_in_v2_hz() * (self.in_corner_hz or 0.0)
+
+    @property
+    def has_flicker(self) -> bool:
+        """True when a 1/f corner is given (the densities are then not white)."""
+        return bool(self.en_corner_hz or self.in_corner_hz)
 
     @property
     def lsb_v(self) -> float:

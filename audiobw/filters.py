@@ -224,6 +224,39 @@ class Filter:
             den = den * (s - pole)
         return self.k * num / den
 
+    def group_delay_s(self, freq_hz) -> np.ndarray:
+        """Group delay −dφ/dω in seconds at ``freq_hz`` (Hz), analytically from the zpk.
+
+        Analog, H(s) = k·∏(s − z)/∏(s − p): τ(ω) = Σ_p Re 1/(jω − p) − Σ_z Re 1/(jω − z).
+        Digital, H(z) = k·∏(z − z_i)/∏(z − p_i) at z = e^{jωT}:
+        τ = T·[Σ_p Re z/(z − p) − Σ_z Re z/(z − z_i)].  A zero on the jω axis (unit
+        circle) adds no delay except at its own frequency, where the phase jumps by
+        π: that point is given the limit of its neighbours (0 analog, T/2 digital).
+
+        References: A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal
+        Processing*, 3rd ed., §5.1.2 (group delay of a rational system from its
+        poles and zeros).
+        """
+        f = np.atleast_1d(np.asarray(freq_hz, dtype=float))
+        z, p, _k = self.zpk()
+        if self.analog:
+            x = 1j * 2.0 * np.pi * f
+            scale, on_axis = 1.0, 0.0
+        else:
+            x = np.exp(1j * 2.0 * np.pi * f / self.spec.fs_hz)
+            scale, on_axis = 1.0 / self.spec.fs_hz, 0.5
+
+        def total(roots):
+            if len(roots) == 0:
+                return np.zeros(f.shape)
+            d = x[None, :] - np.asarray(roots, complex)[:, None]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                t = np.real((1.0 if self.analog else x[None, :]) / d)
+            t[d == 0] = on_axis
+            return t.sum(axis=0)
+
+        return (total(p) - total(z)) * scale
+
     def _real_factors(self):
         """Zeros and poles as real factors in W = ω² (cached; shared by a prototype), or None."""
         cache = self._proto if self._proto is not None else self._cache

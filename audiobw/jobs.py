@@ -98,7 +98,7 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     """The noise budget for one filter given as LOW:HIGH at sample rate ``rate``."""
     from . import units
     from .filters import FilterSpec, design, validate_spec
-    from .noise import budget
+    from .noise import FLICKER_FROM_HZ, budget
 
     fs = units.parse_quantity(rate, "frequency", name="--rate")
     lo, hi = units.parse_band(band, name="--band")
@@ -117,7 +117,10 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     header = (f"Noise budget: {spec.label()}, {c.stage} stage, fs {fq(fs, 'Hz')}; Rs {fq(c.source_ohms, 'Ω')} at "
               f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {fq(c.en_v_rthz, 'V/√Hz')}, "
               f"i_n {fq(c.in_a_rthz, 'A/√Hz')}, {c.bits} bits, full scale {fq(c.full_scale_vrms, 'V rms')}, "
-              f"dither {c.dither}")
+              f"dither {c.dither}"
+              + (f"; 1/f corners e_n {fq(c.en_corner_hz, 'Hz') if c.en_corner_hz else 'none'}, "
+                 f"i_n {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'} (1/f integrated from "
+                 f"{FLICKER_FROM_HZ:g} Hz)" if c.has_flicker else ""))
     b["filter"] = {"response": response, "family": spec.family, "order": spec.order,
                    "low_hz": filt.edges_3db[0], "high_hz": filt.edges_3db[1]}
     b["chain"] = c.to_json()

@@ -143,6 +143,83 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
     return tau, np.abs(1.0 - H * np.exp(2j * np.pi * f * tau)) ** 2
 
 
+#: Points of the occupied-band grid for flatness and delay spread: linear, plus
+#: logarithmic ones for the low end (a 20 Hz edge in a 20 kHz band).
+BAND_GRID_LINEAR, BAND_GRID_LOG = 512, 128
+#: Points of the image-band grid for alias rejection (per image band).
+IMAGE_GRID = 128
+
+
+def band_grid(low_hz: float, high_hz: float, *, floor_hz: float) -> np.ndarray:
+    """Frequencies over ``low_hz``…``high_hz`` (Hz) for flatness and delay spread.
+
+    The band starts no lower than ``floor_hz`` (> 0; the sweep passes one PSD
+    bin): a program whose occupied band reaches 0 Hz is judged from its first
+    bin, where a highpass still has gain.
+    """
+    lo = max(float(low_hz), float(floor_hz))
+    hi = float(high_hz)
+    if not hi > lo:
+        return np.array([max(hi, lo)])
+    return np.union1d(np.linspace(lo, hi, BAND_GRID_LINEAR), np.geomspace(lo, hi, BAND_GRID_LOG))
+
+
+def flatness_db(filt: Filter, freqs_hz: np.ndarray) -> float:
+    """Peak-to-peak gain (dB) of ``filt`` over the frequencies ``freqs_hz``.
+
+    A Chebyshev type I of ripple r gives r over its ripple band; a gain that
+    reaches zero inside the band gives infinity.
+    """
+    g = filt.power_response(freqs_hz)
+    top, bottom = float(np.max(g)), float(np.min(g))
+    if not top > 0.0:
+        return math.inf
+    return math.inf if bottom <= 0.0 else 10.0 * math.log10(top / bottom)
+
+
+def delay_spread_s(filt: Filter, freqs_hz: np.ndarray) -> float:
+    """Group-delay spread max − min (s) of ``filt`` over ``freqs_hz`` (group delay −dφ/dω)."""
+    tau = filt.group_delay_s(freqs_hz)
+    return float(np.max(tau) - np.min(tau))
+
+
+def image_bands_hz(response: str, low_hz: float | None, high_hz: float | None,
+                   fs_hz: float) -> list[tuple[float, float]]:
+    """The analog frequencies that sampling at ``fs_hz`` folds into the passband.
+
+    A component at fs ± f lands on f.  Passband f_low…f_high (a lowpass from
+    0 Hz, a highpass to fs/2): the images come from fs − f_high…fs − f_low and
+    fs + f_low…fs + f_high (a highpass: fs/2…fs − f_low, and fs + f_low…1.5·fs,
+    where its gain has long settled).
+    """
+    nyq = fs_hz / 2.0
+    lo = 0.0 if response == "lowpass" or low_hz is None else float(low_hz)
+    hi = nyq if response == "highpass" or high_hz is None else min(float(high_hz), nyq)
+    return [(fs_hz - hi, fs_hz - lo), (fs_hz + lo, fs_hz + hi)]
+
+
+def alias_rejection_db(filt: Filter, response: str, low_hz: float | None, high_hz: float | None,
+                       fs_hz: float) -> float | None:
+    """Least attenuation (dB, positive) of an analog ``filt`` over the frequencies that fold
+    into its passband, relative to the passband peak (0 dB by design; see :mod:`audiobw.filters`).
+
+    For a response that falls monotonically above its upper edge this is the
+    attenuation at fs − f_high, the image nearest the band; an elliptic's
+    stopband lobes are searched over the whole image band.  None for the
+    digital stage: that filter acts after sampling, so it cannot reject what
+    has already aliased.
+    """
+    if not filt.analog:
+        return None
+    f = np.concatenate([np.geomspace(max(a, 1e-9), b, IMAGE_GRID) if b > a else np.array([a])
+                        for a, b in image_bands_hz(response, low_hz, high_hz, fs_hz)])
+    worst = float(np.max(filt.power_response(f)))
+    if worst <= 0.0:
+        return math.inf
+    # the passband peak is 0 dB by design: a gain a rounding above it is no attenuation
+    return max(-10.0 * math.log10(worst), 0.0)
+
+
 def _db(ratio: float) -> float | None:
     if ratio is None or not math.isfinite(ratio) or ratio <= 0:
         return None if ratio is None or ratio <= 0 else math.inf
@@ -197,6 +274,10 @@ class Scorer:
             floor = np.maximum(floor, absolute)
         self._pre["floor"] = floor
         self._pre["frames_db"] = 10 * np.log10(np.maximum(fv2, floor))
+        # the program's 99 % occupied band (power summed over channels), for flatness and delay spread
+        occ_lo, occ_hi = a.occupied_band_hz()
+        self._pre["occupied_grid"] = band_grid(occ_lo, min(occ_hi, a.nyquist_hz),
+                                               floor_hz=a.sample_rate_hz / a.nperseg)
 
     def score(self, filt: Filter) -> dict:
         """All metrics for one candidate, as a plain mapping (no targets applied)."""
@@ -229,6 +310,9 @@ class Scorer:
             "loss_db": _db(p["s_total"] / s_out) if s_out > 0 else None,
             "lsd_db": self._lsd(G),
             "ser_db": _db(p["s_total"] / (err + n_pow)),
+            "alias_rejection_db": alias_rejection_db(filt, filt.spec.response, lo3, hi3, a.sample_rate_hz),
+            "flatness_db": flatness_db(filt, p["occupied_grid"]),
+            "delay_spread_s": delay_spread_s(filt, p["occupied_grid"]),
         }
         row.update(self._thdn(filt, n_pow))
         return row
@@ -307,7 +391,7 @@ def check_targets(row: dict, targets: dict) -> tuple[bool, list[str], dict]:
     margins_db : dict
         Target key -> margin in dB (positive: met with room to spare).
         THD+N margins are 20·lg(limit/value); BER margins 10·lg(limit/value);
-        eye margins 20·lg(value/limit).
+        eye margins 20·lg(value/limit); delay-spread margins 20·lg(limit/value).
     """
     fails, margins = [], {}
     for key in TARGET_KEYS:
@@ -329,6 +413,9 @@ def check_targets(row: dict, targets: dict) -> tuple[bool, list[str], dict]:
         elif key == "max_audible_frames_pct":
             # a share of frames: 10·lg(limit/value), inf when no frame is audible
             margin = 10 * math.log10(limit / value) if value > 0 else math.inf
+        elif key == "max_delay_spread_s":
+            # a ratio of times, 20·lg(limit/value) like THD+N; inf for no spread
+            margin = 20 * math.log10(limit / value) if value > 0 else math.inf
         elif key == "min_sii":
             margin = 20 * math.log10(value / limit) if value > 0 else -math.inf
         else:

@@ -33,6 +33,34 @@ import numpy as np
 from .chain import Chain, vrms_to_dbu
 from .filters import Filter
 
+#: 1/f noise is integrated from this frequency, Hz: the lower limit of the
+#: "0.1 Hz to 10 Hz" low-frequency noise figure of amplifier data sheets
+#: (common practice); below it the flicker is drift over a recording, not noise.
+FLICKER_FROM_HZ = 0.1
+
+
+def flicker_per_hz(freqs_hz: np.ndarray, weights_hz: np.ndarray) -> np.ndarray:
+    """Each bin's mean of 1/f over the band it stands for (1/Hz), from :data:`FLICKER_FROM_HZ`.
+
+    Bin k stands for the frequencies between the midpoints to its neighbours
+    (the first from its own frequency, the last to its own), which matches
+    trapezoid weights; the mean of 1/f there is ln(f_hi/f_lo)/w_k, so that
+    Σ_k c/f̄_k·w_k over whole bins is exactly c·ln(f2/f1) — the integral of a
+    1/f density, finite at 0 Hz.
+    """
+    f = np.asarray(freqs_hz, dtype=float)
+    w = np.asarray(weights_hz, dtype=float)
+    if f.size < 2:
+        return np.zeros_like(f)
+    mid = 0.5 * (f[1:] + f[:-1])
+    lo = np.maximum(np.concatenate([[f[0]], mid]), FLICKER_FROM_HZ)
+    hi = np.concatenate([mid, [f[-1]]])
+    out = np.zeros_like(f)
+    ok = (hi > lo) & (w > 0)
+    out[ok] = np.log(hi[ok] / lo[ok]) / w[ok]
+    return out
+
+
 #: Images of the analog response folded explicitly before the rest is spread.
 MAX_IMAGES = 64
 COMPONENTS = ("source_thermal", "amplifier_voltage", "amplifier_current", "quantisation", "dither")
@@ -204,9 +232,24 @@ def noise_total(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np
     h2 = filt.power_response(freqs_hz) if direct is None else direct
     if filt.analog:
         g, _ = folded_noise_gain(filt, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz, direct=h2)
-        return chain.density_amplifier_v2_hz() * g + converter
+        out = chain.density_amplifier_v2_hz() * g + converter
+    else:
+        g = h2 if chain.amp_bandwidth_hz is None else h2 / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
+        out = chain.density_amplifier_v2_hz() * g + converter * h2
+    if chain.has_flicker:
+        out = out + (chain.flicker_en_v2() + chain.flicker_in_v2()) * _flicker_gain(chain, h2, freqs_hz, weights_hz)
+    return out
+
+
+def _flicker_gain(chain: Chain, h2: np.ndarray, freqs_hz: np.ndarray, weights_hz: np.ndarray) -> np.ndarray:
+    """(1/f)·|H|² on the grid (the amplifier pole included): the shape of the 1/f noise at the output.
+
+    Not folded: its images sit near multiples of fs, where 1/f is down by
+    f_c/fs against the white part (under 1 % for a 500 Hz corner at 48 kHz),
+    and the white part's images are folded.
+    """
     g = h2 if chain.amp_bandwidth_hz is None else h2 / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
-    return chain.density_amplifier_v2_hz() * g + converter * h2
+    return flicker_per_hz(freqs_hz, weights_hz) * g
 
 
 def noise_spectra(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray,
@@ -223,10 +266,12 @@ def noise_spectra(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: 
         if chain.amp_bandwidth_hz is not None:
             g = g / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
         gq = filt.power_response(freqs_hz)
+    flicker = (_flicker_gain(chain, filt.power_response(freqs_hz), freqs_hz, weights_hz) if chain.has_flicker
+               else np.zeros_like(freqs_hz))
     parts = {
         "source_thermal": chain.density_source_v2_hz() * g,
-        "amplifier_voltage": chain.density_en_v2_hz() * g,
-        "amplifier_current": chain.density_in_v2_hz() * g,
+        "amplifier_voltage": chain.density_en_v2_hz() * g + chain.flicker_en_v2() * flicker,
+        "amplifier_current": chain.density_in_v2_hz() * g + chain.flicker_in_v2() * flicker,
         "quantisation": q_density * gq,
         "dither": d_density * gq,
     }

@@ -31,6 +31,8 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "in": ("amplifier", "current_density", "amplifier input current noise, A/√Hz (e.g. 1.5p)"),
     "h2": ("amplifier", "gain_db", "2nd harmonic at full scale, dB re fundamental (e.g. -110)"),
     "h3": ("amplifier", "gain_db", "3rd harmonic at full scale, dB re fundamental (e.g. -120)"),
+    "en_corner": ("amplifier", "frequency", "1/f corner of e_n, Hz: e_n(f)² = e_n²·(1 + fc/f) (default: none, white)"),
+    "in_corner": ("amplifier", "frequency", "1/f corner of i_n, Hz: i_n(f)² = i_n²·(1 + fc/f) (default: none, white)"),
     "amp_bandwidth": ("amplifier", "frequency", "amplifier's own -3 dB bandwidth, Hz (one pole; default unlimited)"),
     "bits": ("converter", "bits", "converter resolution, bits (1 to 32)"),
     "full_scale": ("converter", "voltage", "rms of a full-scale sine at the converter input (2Vrms, +4dBu)"),
@@ -72,3 +74,11 @@ OPTIONS.update(target_options())  # the targets, from the one table of metrics
 def option_name(key: str) -> str:
     """The command-line spelling of a key: ``source_ohms`` -> ``--source-ohms``."""
     return "--" + key.replace("_", "-")
+
+
+def grid_option(response: str, edge: str) -> str:
+    """The option that sets the grid of a response's ``edge`` ('low' or 'high'):
+    ``--cutoffs`` for a lowpass or highpass, ``--low-edges``/``--high-edges`` for a bandpass."""
+    if response != "bandpass":
+        return "--cutoffs"
+    return "--low-edges" if edge == "low" else "--high-edges"

@@ -129,6 +129,19 @@ METRICS: tuple[Metric, ...] = (
     Metric("wiener_gap_db", "gap to the Wiener bound", "dB", 2, csv=True),
     Metric("audible_band_hz", "band of the audible error", "Hz", 2),
     Metric("audible_band_pct", "frames audible in that band", "%", 2),
+    Metric("alias_rejection_db", "alias rejection", "dB", 2,
+           _t("min_alias_rejection_db", "min_alias_rejection", +1, "db", "target (analog stage): minimum "
+              "attenuation, dB, of what the converter folds into the passband (at fs − f_high for a "
+              "monotonic lowpass)", 13),
+           Column("alias", "dB", "{:>6.1f}", audio=17), csv=True),
+    Metric("flatness_db", "passband flatness", "dB", 2,
+           _t("max_flatness_db", "max_flatness", -1, "db", "target: maximum peak-to-peak gain over the "
+              "program's 99 % occupied band, dB (e.g. 0.5)", 14),
+           Column("flat", "dB", "{:>6.2f}", audio=18), csv=True),
+    Metric("delay_spread_s", "group-delay spread", "s", 2,
+           _t("max_delay_spread_s", "max_delay_spread", -1, "seconds", "target: maximum group-delay spread "
+              "(max − min) over the program's 99 % occupied band, s (e.g. 200us, 1ms)", 15),
+           Column("Δτ", "µs", "{:>7.1f}", audio=19, show="delay_spread_us"), csv=True),
     Metric("eye_fraction", "eye opening", "", 3,
            _t("min_eye", "min_eye", +1, "fraction", "target (data programs): minimum eye opening, fraction of "
               "the unfiltered one (0.6 or 60%)", 8),

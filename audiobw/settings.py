@@ -8,10 +8,12 @@ typed objects.  Command-line values override the file's.
 TOML layout (same names as the options, in snake_case)::
 
     [source]      source_ohms, temperature, input_level
-    [amplifier]   gain, en, in, h2, h3, amp_bandwidth
+    [amplifier]   gain, en, in, en_corner, in_corner, h2, h3, amp_bandwidth
     [converter]   bits, full_scale, dither, stage
     [grid]        response, family, order, cutoffs, low_edges, high_edges, ripple, stopband
-    [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser
+    [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser, max_ber, min_eye,
+                  min_headroom, max_nmr, max_audible_frames, min_sii, min_alias_rejection,
+                  max_flatness, max_delay_spread
     [meter]       meter, tone, tone_level
 
 Numbers are taken in the option's base unit (Ω, K, dB, V/√Hz, A/√Hz, V rms,
@@ -33,7 +35,8 @@ from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, R
                       option_name)
 
 CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
-              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
+              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity",
+              "en_corner", "in_corner")
 GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
              "rank", "tie")
 METER_KEYS = ("meter", "tone", "tone_level")
@@ -301,7 +304,7 @@ def build(raw: dict[str, Raw]) -> Settings:
     mapping = {"source_ohms": "source_ohms", "temperature": "temperature_k", "gain": "gain_db",
                "en": "en_v_rthz", "in": "in_a_rthz", "h2": "h2_db", "h3": "h3_db",
                "amp_bandwidth": "amp_bandwidth_hz", "bits": "bits", "full_scale": "full_scale_vrms",
-               "dither": "dither", "stage": "stage"}
+               "dither": "dither", "stage": "stage", "en_corner": "en_corner_hz", "in_corner": "in_corner_hz"}
     for key, field_name in mapping.items():
         if key in parsed:
             chain_kw[field_name] = int(parsed[key]) if key == "bits" else parsed[key]
@@ -330,6 +333,14 @@ def build(raw: dict[str, Raw]) -> Settings:
     if "stopband" in parsed and not 0 < parsed["stopband"] <= 200:
         raise ParameterError(f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; "
                              "accepted: 0 < stopband <= 200 dB")
+    for key, what in (("min_alias_rejection", "an attenuation"), ("max_flatness", "a peak-to-peak gain")):
+        if key in parsed and not parsed[key] >= 0:
+            raise ParameterError(f"{raw[key].origin}: {raw[key].value!r} is negative; accepted: {what} "
+                                 "of 0 dB or more")
+    if "min_alias_rejection" in parsed and chain.stage == "digital":
+        raise ParameterError(f"{raw['min_alias_rejection'].origin}: applies to the analog stage only (a digital "
+                             "filter acts after the converter, once the images have folded); accepted: "
+                             "--stage analog, or leave the target out")
     grid_values = {k: parsed[k] for k in GRID_KEYS if k in parsed}
     program = parsed.get("program", "music")
     if program == "audio":

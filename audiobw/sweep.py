@@ -20,6 +20,7 @@ from .chain import Chain
 from .errors import ParameterError
 from .filters import FilterSpec, design, validate_spec
 from .metrics import TARGET_KEYS, TARGET_METRIC, Meter, Scorer, check_targets
+from .options import grid_option
 from .spectrum import Analysis, analyse
 
 
@@ -271,8 +272,60 @@ def _perceptual_metrics(filt, analysis: Analysis, chain: Chain, perceptual) -> d
     return perceptual.score(filt, total)
 
 
+def grid_limits(case: dict, cases: list[dict]) -> list[dict]:
+    """The ends of the grid that ``case`` sits on, edge by edge.
+
+    Lowpass: its upper edge at the grid's lowest cutoff (a narrower one was
+    never tried).  Highpass: its lower edge at the highest.  Bandpass: each
+    edge at either end of its own grid — the lowest upper or highest lower
+    edge stopped it narrowing; the highest upper or lowest lower edge may have
+    stopped a trade (a lower low edge can let the upper edge come down for
+    less ENBW).  Each entry: ``edge`` ('low' or 'high'), ``end`` ('lowest' or
+    'highest'), ``design_hz`` and ``extend`` ('below' or 'above'), the way to
+    extend that edge's grid.  Rows without design edges give none.
+    """
+    response = case.get("response")
+    out = []
+    for edge, key in (("low", "design_low_hz"), ("high", "design_high_hz")):
+        value = case.get(key)
+        if value is None:
+            continue
+        values = [c[key] for c in cases if c.get(key) is not None]
+        ends = []
+        if response == "bandpass":
+            ends = [("lowest", min(values)), ("highest", max(values))]
+        elif response == "lowpass" and edge == "high":
+            ends = [("lowest", min(values))]
+        elif response == "highpass" and edge == "low":
+            ends = [("highest", max(values))]
+        for end, at in ends:
+            if value == at:
+                out.append({"edge": edge, "end": end, "design_hz": _round(value),
+                            "extend": "below" if end == "lowest" else "above"})
+    return out
+
+
 #: gentler families first when ranks tie: no ripple before ripple
 FAMILY_GENTLENESS = {"butterworth": 0, "bessel": 0, "chebyshev1": 1, "elliptic": 2}
+
+
+def _worst_margin(c: dict) -> float:
+    vals = list(c["margins_db"].values())
+    return min((-math.inf if v is None else v) for v in vals) if vals else -math.inf
+
+
+def _wide_ends(case: dict, cases: list[dict], response: str) -> list[dict]:
+    """A lowpass or highpass case at the wide end of its grid (for a case that fails)."""
+    key, end = {"lowpass": ("design_high_hz", "highest"), "highpass": ("design_low_hz", "lowest")}.get(
+        response, (None, None))
+    if key is None or case.get(key) is None:
+        return []
+    values = [c[key] for c in cases if c.get(key) is not None]
+    at = max(values) if end == "highest" else min(values)
+    if case[key] != at or len(set(values)) == 1:
+        return []
+    return [{"edge": "high" if key == "design_high_hz" else "low", "end": end, "design_hz": _round(at),
+             "extend": "above" if end == "highest" else "below"}]
 
 
 def choose(cases: list[dict], targets: dict, rank: str = "enbw", tie: float = 0.01) -> tuple[dict | None, dict]:
@@ -296,13 +349,15 @@ def choose(cases: list[dict], targets: dict, rank: str = "enbw", tie: float = 0.
         narrower = [c for c in cases if c["family"] == best["family"] and c["order"] == best["order"]
                     and c["bandwidth_hz"] < best["bandwidth_hz"]]
         next_narrower = max(narrower, key=lambda c: c["bandwidth_hz"]) if narrower else None
+        limits = grid_limits(best, cases)
         return {
             "case": best["id"],
             "binding": binding,
             "binding_margin_db": _round(margins.get(binding)) if binding else None,
             "next_narrower": next_narrower["id"] if next_narrower else None,
             "next_narrower_fails": next_narrower["fails"] if next_narrower else [],
-            "grid_limited": next_narrower is None,
+            "grid_limited": next_narrower is None or bool(limits),
+            "grid_limits": limits,
         }, {}
     # none passes: unmet names the targets that no case meets on its own, with the best value
     # reached; targets that each hold somewhere but never together are conflicts (see conflicts())
@@ -433,6 +488,9 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
         analysis = analyse(path, progress=progress)
     if data is None and any(k in targets for k in ("max_ber", "min_eye")):
         raise ParameterError("--max-ber/--min-eye: apply to data programs only; accepted: add --program data")
+    if "min_alias_rejection_db" in targets and chain.stage != "analog":
+        raise ParameterError("--min-alias-rejection: applies to the analog stage only (a digital filter acts "
+                             "after the converter, once the images have folded); accepted: --stage analog")
     perceptual_keys = {"max_nmr_db", "max_audible_frames_pct", "min_sii"}
     if listening is None and perceptual_keys & set(targets):
         raise ParameterError("--max-nmr/--max-audible-frames/--min-sii: need playback conditions; "
@@ -446,6 +504,12 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
     cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer)
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
+    if choice is None and cases:
+        closest = max(cases, key=lambda c: (_worst_margin(c), -c["id"]))
+        for lim in grid_limits(closest, cases) + _wide_ends(closest, cases, grid.response):
+            notes.append(f"no case passes; the closest (case {closest['id']}) has its {lim['edge']} edge at the "
+                         f"grid's {lim['end']} ({lim['design_hz']:g} Hz): extend {grid_option(grid.response, lim['edge'])} "
+                         f"{lim['extend']} {lim['design_hz']:g} Hz to see whether a case passes there")
     if chain.stage == "analog" and grid.response == "highpass" and chain.amp_bandwidth_hz is None:
         notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
                      "by the converter's anti-alias filter (give --amp-bandwidth to model it)")

@@ -68,6 +68,8 @@ VALUE_CASES = [
     (["noise", "--band", ":20k", "--h2", "-1e300"], "--h2", 2),
     (["noise", "--band", ":20k", "--amp-bandwidth", "1e-300"], "--amp-bandwidth", 2),
     (["noise", "--band", ":20k", "--amp-bandwidth", "1e300"], "--amp-bandwidth", 2),
+    (["noise", "--band", ":20k", "--en-corner", "1e-300"], "--en-corner", 2),
+    (["noise", "--band", ":20k", "--in-corner", "1e300"], "--in-corner", 2),
     (["noise", "--band", ":1e-300"], "--band", 2),
     (["noise", "--band", "1e-300:20k"], "--band", 2),
     (["noise", "--band", ":20k", "--rate", "1e300"], "--rate", 2),

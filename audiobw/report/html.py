@@ -236,8 +236,12 @@ def page(run: dict, spec: dict, plots: list) -> str:
             t = next(t for t in spec["targets"] if t["key"] == b)
             bound = (f" Bound by <strong>{esc(_target_text(t))}</strong>"
                      f" (margin {esc(margin_value_text(b, spec['binding_margin_db']))}).")
-        grid = (" This is the narrowest case of its family and order in the grid: extend the grid to see whether "
-                "a narrower passband also passes.") if spec["grid_limited"] else ""
+        if spec.get("grid_limits"):
+            from .text import grid_limit_lines
+            grid = " " + " ".join(grid_limit_lines(spec["filter"]["response"], spec["grid_limits"]))
+        else:
+            grid = (" This is the narrowest case of its family and order in the grid: extend the grid to see "
+                    "whether a narrower passband also passes.") if spec["grid_limited"] else ""
         parts.append(f'<div class="verdict" id="verdict"><strong>{esc(role)}: {esc(passband_phrase(spec))}.</strong>'
                      f"<br>Case {esc(spec['subject']['case'])}; {esc(spec['cases_passing'])} of "
                      f"{esc(spec['cases_total'])} cases meet every target.{bound}{esc(grid)}</div>")

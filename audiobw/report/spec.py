@@ -53,6 +53,8 @@ CHAIN_FIELDS = {
     "h2_db": ("2nd harmonic at full scale (null: linear)", "dB re fundamental"),
     "h3_db": ("3rd harmonic at full scale (null: linear)", "dB re fundamental"),
     "amp_bandwidth_hz": ("amplifier −3 dB bandwidth (null: unlimited)", "Hz"),
+    "en_corner_hz": ("1/f corner of e_n (null: white)", "Hz"),
+    "in_corner_hz": ("1/f corner of i_n (null: white)", "Hz"),
     "bits": ("converter resolution N", "bit"),
     "full_scale_vrms": ("full-scale sine at the converter input", "V rms"),
     "dither": ("converter dither", ""),
@@ -200,19 +202,8 @@ def rebuild_chain(doc: dict):
 
 
 def group_delay_s(filt, freqs_hz) -> np.ndarray:
-    """Group delay in seconds at ``freqs_hz``, analytically from the zpk (module reference [2])."""
-    f = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
-    z, p, _k = filt.zpk()
-    if filt.analog:
-        x = 1j * 2.0 * np.pi * f
-        with np.errstate(divide="ignore", invalid="ignore"):
-            tau = sum(np.real(1.0 / (x - c)) for c in p) - sum(np.real(1.0 / (x - c)) for c in z)
-        return np.asarray(tau + 0.0 * f, dtype=float)
-    fs = float(filt.spec.fs_hz)
-    x = np.exp(1j * 2.0 * np.pi * f / fs)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        tau = sum(np.real(x / (x - c)) for c in p) - sum(np.real(x / (x - c)) for c in z)
-    return np.asarray(tau + 0.0 * f, dtype=float) / fs
+    """Group delay in seconds at ``freqs_hz``, analytically from the zpk (:meth:`Filter.group_delay_s`)."""
+    return filt.group_delay_s(freqs_hz)
 
 
 def _band_grid(lo: float, hi: float, n: int = 4000) -> np.ndarray:
@@ -438,6 +429,7 @@ def build_spec(run: dict) -> dict:
             "design_low_hz": subject["design_low_hz"], "design_high_hz": subject["design_high_hz"],
             "bandwidth_hz": subject["bandwidth_hz"], "enbw_hz": subject["enbw_hz"],
             "stopband_design_db": doc["grid"]["stopband_db"] if subject["family"] == "elliptic" else None,
+            "alias_rejection_db": subject.get("alias_rejection_db"),
         },
         "passband": passband_figures(filt, subject, doc),
         "stopband": stopband_points(filt, subject, fs),
@@ -452,6 +444,7 @@ def build_spec(run: dict) -> dict:
         "binding": binding,
         "binding_margin_db": choice.get("binding_margin_db") if choice else None,
         "grid_limited": bool(choice.get("grid_limited")) if choice else None,
+        "grid_limits": list(choice.get("grid_limits") or []) if choice else [],
         "unmet": unmet,
         "conflicts": conflicts,
         "neighbours": neighbours(cases, subject),
@@ -515,11 +508,13 @@ def _target_text(t: dict) -> str:
     sense = "≥" if t["sense"] == "min" else "≤"
     if t["key"] == "min_eye":  # a fraction of the unfiltered eye, read as the value beside it is
         return f"{t['label']} {sense} {100 * t['limit']:g} % of the unfiltered eye"
+    if t["unit"] == "s":
+        return f"{t['label']} {sense} {fmt(t['limit'], 's')}"
     return f"{t['label']} {sense} {t['limit']:g} {t['unit']}".rstrip()
 
 
 def _metric_unit(metric: str) -> str:
-    return "%" if metric == "thdn_pct" else "dB"
+    return {"thdn_pct": "%", "delay_spread_s": "s"}.get(metric, "dB")
 
 
 def metric_value_text(metric: str, value) -> str:
@@ -562,6 +557,9 @@ def spec_rows(spec: dict) -> list[tuple[str, str, str, object]]:
                      f"{fmt(pb['flatness']['high_hz'], 'Hz')})", fmt(pb["flatness"]["variation_db"], "dB"),
          "passband.flatness.variation_db"),
     ]
+    if f.get("alias_rejection_db") is not None:
+        rows.append(("Stopband", "alias rejection: least attenuation over what the converter folds into the passband",
+                     fmt(f["alias_rejection_db"], "dB"), "filter.alias_rejection_db"))
     for i, p in enumerate(spec["stopband"]):
         text = fmt(p["attenuation_db"], "dB") if p["attenuation_db"] is not None else f"— ({p['note']})"
         rows.append(("Stopband", f"attenuation at {p['label']} = {fmt(p['freq_hz'], 'Hz')}", text,
@@ -674,7 +672,10 @@ def markdown(spec: dict, renders: list | None = None) -> str:
         if b:
             t = next(t for t in spec["targets"] if t["key"] == b)
             out += ["", f"Bound by **{_target_text(t)}** (margin {margin_value_text(b, spec['binding_margin_db'])})."]
-        if spec["grid_limited"]:
+        if spec["grid_limits"]:
+            from .text import grid_limit_lines
+            out += [""] + grid_limit_lines(spec["filter"]["response"], spec["grid_limits"])
+        elif spec["grid_limited"]:
             out += ["", "This is the narrowest case of its family and order in the grid: extend the grid to see "
                     "whether a narrower passband also passes."]
     out += ["", "| quantity | value |", "|---|---|"]

@@ -29,6 +29,8 @@ def _derived(case: dict) -> dict:
         c["noise_sigma_uv"] = c["noise_sigma_v"] * 1e6
     if c.get("eye_fraction") is not None:
         c["eye_pct"] = 100 * c["eye_fraction"]
+    if c.get("delay_spread_s") is not None:
+        c["delay_spread_us"] = c["delay_spread_s"] * 1e6
     return c
 
 
@@ -85,6 +87,8 @@ def _fmt_metric(key: str, value) -> str:
         return f"{value:.1f} dBFS"
     if key == "noise_vrms":
         return format_quantity(value, "V rms")
+    if key == "delay_spread_s":
+        return format_quantity(value, "s")
     if key.endswith("_hz"):
         return format_quantity(value, "Hz")
     return f"{value:.2f} dB"
@@ -147,10 +151,13 @@ def closing_paragraph(doc: dict) -> str:
             margin = choice.get("binding_margin_db")
             lines.append(f"Binding target: {label} {sense} {_target_text(b, targets[b])} "
                          f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin_text(b, margin)}).")
-        if choice.get("grid_limited"):
+        limits = choice.get("grid_limits") or []
+        if limits:
+            lines += grid_limit_lines(c["response"], limits)
+        elif choice.get("grid_limited"):
             lines.append("This is the narrowest case of its family and order in the grid: extend the grid "
                          "to see whether a narrower passband also passes.")
-        elif choice.get("next_narrower"):
+        if choice.get("next_narrower"):
             nn = cases[choice["next_narrower"]]
             fails = ", ".join(TARGET_LABEL[t][0] for t in nn["fails"]) or "none"
             lines.append(f"The next narrower case ({nn['id']}, {format_quantity(nn['bandwidth_hz'], 'Hz')}) "
@@ -164,6 +171,7 @@ def closing_paragraph(doc: dict) -> str:
             ("noise", "noise_vrms"), ("", "noise_dbfs"), ("SNR", "snr_db"), ("SNR-A", "snr_a_db"),
             ("loss", "loss_db"), ("LSD", "lsd_db"), ("SER", "ser_db"), ("THD+N", "thdn_pct")))
         lines.append("Its figures: " + figs + ".")
+        lines += filter_quality_lines(c, inp)
         lim = doc.get("limits") or {}
         if lim and c.get("nmr_db") is not None:
             words = [f"NMR {c['nmr_db']:.1f} dB", f"error above the masked threshold in "
@@ -232,6 +240,63 @@ def conflict_text(c: dict, targets: dict, hz=lambda v: format_quantity(v, "Hz"))
         return (f"Conflict: {joined} each hold in some case but never both in one "
                 "(no single edge parts them: they part on family or order).")
     return f"Conflict: {joined} each hold in some case, and every two of them together, but never all in one."
+#: Alias rejection called poor in the terminal, dB: an image under a tenth of its amplitude
+#: down (a stated choice; the figure and the noise it is compared with are printed beside it).
+POOR_ALIAS_REJECTION_DB = 20.0
+
+
+def grid_limit_lines(response: str, limits: list[dict]) -> list[str]:
+    """One line per grid end the chosen case sits on, with the range to extend.
+
+    An edge at the narrowing end (the lowest upper edge, the highest lower edge)
+    was stopped by the grid; for a bandpass, an edge at the widening end may have
+    stopped a trade with the other edge.
+    """
+    from ..options import grid_option
+
+    out = []
+    for lim in limits:
+        edge, end, hz = lim["edge"], lim["end"], format_quantity(lim["design_hz"], "Hz")
+        opt = grid_option(response, edge)
+        word = "upper" if edge == "high" else "lower"
+        narrowing = (edge, end) in (("high", "lowest"), ("low", "highest"))
+        if narrowing:
+            why = f"the grid stopped it there: extend {opt} {lim['extend']} {hz} to see whether a narrower passband passes"
+        else:
+            other = "upper" if edge == "low" else "lower"
+            why = (f"a {('lower' if end == 'lowest' else 'higher')} {word} edge might let the {other} edge "
+                   f"{'come down' if other == 'upper' else 'go up'} for less ENBW: extend {opt} {lim['extend']} {hz}")
+        out.append(f"Grid limit: the {word} edge (designed at {hz}) is the {end} of its grid; {why}.")
+    return out
+
+
+def filter_quality_lines(c: dict, inp: dict) -> list[str]:
+    """What the filter does to the band and what it lets fold into it: flatness, delay spread, alias rejection.
+
+    Rejection under :data:`POOR_ALIAS_REJECTION_DB` is called poor; above it, the
+    line still says when a full-scale component at the nearest image would fold
+    into the band above this case's own noise floor (rejection < −noise dBFS).
+    """
+    band = (f"the 99 % occupied band, {format_quantity(inp['occupied_low_hz'], 'Hz')} to "
+            f"{format_quantity(inp['occupied_high_hz'], 'Hz')}")
+    words = []
+    if c.get("flatness_db") is not None:
+        words.append(f"gain varies {c['flatness_db']:.2f} dB peak to peak")
+    if c.get("delay_spread_s") is not None:
+        words.append(f"group delay varies {format_quantity(c['delay_spread_s'], 's')}")
+    out = [f"Over {band}: " + ", ".join(words) + "."] if words else []
+    rej, noise = c.get("alias_rejection_db"), c.get("noise_dbfs")
+    if rej is not None:
+        text = f"Alias rejection {rej:.1f} dB (the least attenuation of what the converter folds into the passband)"
+        above = (f"a full-scale component there folds in at {-rej:.1f} dBFS, {-noise - rej:.0f} dB above the "
+                 f"case's noise ({noise:.1f} dBFS)") if noise is not None and rej < -noise else None
+        if rej < POOR_ALIAS_REJECTION_DB:
+            text += (": a poor anti-alias filter" + (f" — {above}" if above else "") +
+                     "; a steeper or higher-order filter, or --min-alias-rejection, rules it out")
+        elif above:
+            text += f": {above}"
+        out.append(text + ".")
+    return out
 
 
 def _per_channel_occupied(inp: dict) -> str:
@@ -253,6 +318,8 @@ def _target_text(key: str, value: float) -> str:
         return f"{value:g}"
     if key == "max_audible_frames_pct":
         return f"{value:g} % of frames"
+    if key == "max_delay_spread_s":
+        return format_quantity(value, "s")
     return f"{value:g} %" if key == "max_thdn_pct" else f"{value:g} dB"
 
 

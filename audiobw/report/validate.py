@@ -200,6 +200,8 @@ CHAIN_LIMITS = {
     "in_a_rthz": (0.0, 1e-2, False),
     "full_scale_vrms": (1e-9, 1e5, False),
     "amp_bandwidth_hz": (1e-3, 1e10, True),
+    "en_corner_hz": (1e-3, 1e9, True),
+    "in_corner_hz": (1e-3, 1e9, True),
     "input_gain_db": (-300.0, 300.0, True),
     "h2_db": (-400.0, 0.0, True),
     "h3_db": (-400.0, 0.0, True),
