@@ -38,7 +38,7 @@ def options(keys, group: str):
 
 
 CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
-         "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity")
+         "bits", "full_scale", "dither", "stage", "anti_alias", "source_level", "spl", "mic_sensitivity")
 GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
 TARGETS = ("min_snr", "min_snr_a", "max_thdn", "max_loss", "max_lsd", "min_ser", "max_ber", "min_eye",
            "min_headroom", "max_nmr", "max_audible_frames", "min_sii")

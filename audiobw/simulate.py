@@ -170,6 +170,27 @@ def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS, delay: i
         m *= 2
 
 
+#: The converter's ideal anti-alias filter as rendered: a Kaiser-windowed sinc at fs/2 with this many
+#: zero crossings each side and this window parameter (about 100 dB stopband; the transition band
+#: spans about ±1 % of fs around fs/2, where "ideal" cannot be rendered exactly).
+AA_ZEROS = 160
+AA_BETA = 10.0
+
+
+def anti_alias_fir(r: int) -> np.ndarray:
+    """The ideal anti-alias filter at fs/2 for a signal at r·fs (unit passband gain, linear phase).
+
+    A Kaiser-windowed sinc (scipy.signal.firwin); Kaiser's design formula gives
+    A ≈ 100 dB for β = 10 and a transition width of (A − 7.95)/(14.36·N) of the
+    rate (J. F. Kaiser, "Nonrecursive digital filter design using the I0-sinh
+    window function", Proc. IEEE ISCAS 1974; from memory): ≈ 0.02·fs for
+    N = 2·160·r + 1 taps.
+    """
+    from scipy import signal
+
+    return _cached(("aa", r), lambda: signal.firwin(2 * AA_ZEROS * r + 1, 1.0 / r, window=("kaiser", AA_BETA)))
+
+
 def noise_shaper(gain: np.ndarray, m: int) -> np.ndarray:
     """Linear-phase FIR of M taps whose power response on the M-grid is ``gain``.
 
@@ -303,9 +324,15 @@ class ChainSimulator:
         noise_seq, dither_seq = np.random.SeedSequence(int(self.seed)).spawn(2)
         self.noise_rng = np.random.default_rng(noise_seq)
         self.dither_rng = np.random.default_rng(dither_seq) if c.dither == "tpdf" else None
+        if self.noise:
+            from .noise import check_noise_bounded
+
+            check_noise_bounded(c, self.filt)
         self.delay = 0
         self.nonlinear = bool(self.a2 or self.a3)
-        self.oversampled = self.analog and self.nonlinear
+        # harmonics are formed at OVERSAMPLE·fs wherever something must act on them above fs/2:
+        # the analog filter, or the ideal anti-alias filter ahead of the converter
+        self.oversampled = self.nonlinear and (self.analog or c.anti_alias == "ideal")
         if self.analog:
             taps, self.delay, worst = _cached(
                 ("fir", self.filt.spec, fs, self.fir_max_taps),
@@ -319,8 +346,10 @@ class ChainSimulator:
             self.sos = self.filt.sos()
             self.zi = np.zeros((self.sos.shape[0], 2, self.channels))
             self.info.update(sos_sections=int(self.sos.shape[0]))
+            if self.oversampled:
+                taps, taps_r, interp = self._oversampled_paths(None)
         self.hop = m
-        if self.analog:
+        if self.analog or self.oversampled:
             self.conv = OverlapSave(taps, self.hop, self.channels)
         if self.oversampled:
             r = OVERSAMPLE
@@ -330,7 +359,7 @@ class ChainSimulator:
         self.noise_sigma = math.sqrt(density * fs / 2.0)
         self.noise_conv = None
         if self.noise and density > 0:
-            gain = _cached(("noise", self.filt.spec, fs, m, self.chain.amp_bandwidth_hz),
+            gain = _cached(("noise", self.filt.spec, fs, m, self.chain.amp_bandwidth_hz, self.chain.anti_alias),
                            lambda: self._noise_gain(m))
             if gain is not None:
                 self.noise_conv = OverlapSave(noise_shaper(gain, m), self.hop, self.channels)
@@ -346,16 +375,30 @@ class ChainSimulator:
         """Linear path at fs, harmonics at 3·fs, both with the same total delay.
 
         The harmonics are formed from the band-limited interpolation of the
-        program (a Kaiser-windowed sinc, scipy.signal.firwin), filtered by the
-        analog response at 3·fs (exact below 1.5·fs, where x³ ends) and then
-        taken every third sample: what the filter passes above fs/2 folds at
-        the converter, as in the model.
+        program (a Kaiser-windowed sinc, scipy.signal.firwin), filtered there
+        by the analog response (analog stage; exact below 1.5·fs, where x³
+        ends) and, with ``anti_alias='ideal'``, by the converter's anti-alias
+        filter at fs/2 (:func:`anti_alias_fir`), then taken every third
+        sample: what reaches the sampler above fs/2 folds, as in the model.
+        ``taps`` is the analog FIR at fs, or None on the digital stage (the
+        linear path is then a pure delay).
         """
         from scipy import signal
 
         fs, r = float(self.fs_hz), OVERSAMPLE
         half = INTERP_ZEROS * r
         interp = r * signal.firwin(2 * half + 1, 1.0 / r, window=("kaiser", INTERP_BETA))
+        aa = anti_alias_fir(r) if self.chain.anti_alias == "ideal" else np.ones(1)
+        half += (aa.size - 1) // 2  # the anti-alias FIR is linear-phase: its delay adds to the interpolator's
+        self.info.update(harmonics_oversampling=r)
+        if taps is None:  # digital stage: no analog filter; the linear path waits for the harmonics
+            common = -(-half // r)
+            self.delay = common
+            pre = np.zeros(r * common - half + 1)
+            pre[-1] = 1.0
+            delay_taps = np.zeros(common + 1)
+            delay_taps[common] = 1.0
+            return delay_taps, np.convolve(pre, aa), interp
         taps_r, delay_r, _ = _cached(("fir", self.filt.spec, r * fs, self.fir_max_taps),
                                      lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps))
         common = max(self.delay, -(-(half + delay_r) // r))
@@ -367,23 +410,21 @@ class ChainSimulator:
                                lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps,
                                                   delay=r * common - half, min_taps=taps_r.size))
         self.delay = common
-        self.info.update(harmonics_oversampling=r, harmonics_fir_taps=int(taps_r.size))
-        return taps, taps_r, interp
+        self.info.update(harmonics_fir_taps=int(taps_r.size))
+        return taps, np.convolve(taps_r, aa) if aa.size > 1 else taps_r, interp
 
     def _noise_gain(self, m: int):
         """Power gain shape of the amplifier noise on the M-grid (None: white)."""
-        from .noise import folded_noise_gain
+        from .noise import converter_noise_gain
         from .spectrum import trapezoid_weights
 
         fs = float(self.fs_hz)
+        if not self.analog and self.chain.amp_bandwidth_hz is None:
+            return None  # ideal anti-alias filter (else refused): white to fs/2
         f = _grid(m, fs)
-        if self.analog:
-            w = trapezoid_weights(f.size, fs / m)
-            gain, _ = folded_noise_gain(self.filt, f, w, fs, self.chain.amp_bandwidth_hz)
-            return gain
-        if self.chain.amp_bandwidth_hz is not None:
-            return 1.0 / (1.0 + (f / self.chain.amp_bandwidth_hz) ** 2)
-        return None
+        w = trapezoid_weights(f.size, fs / m)
+        gain, _ = converter_noise_gain(self.chain, self.filt, f, w, fs)
+        return gain
 
     def _white(self) -> np.ndarray:
         return self.noise_rng.standard_normal((self.hop, self.channels)) * self.noise_sigma

@@ -229,7 +229,15 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
     (a :class:`audiobw.perceptual.scoring.PerceptualScorer`) the audibility,
     SII and Wiener-gap figures.
     """
+    from .noise import check_noise_bounded
+
     specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
+    if chain.anti_alias == "none" and chain.amp_bandwidth_hz is None:
+        # refuse an unbounded case before scoring any: only a response with a floor at high
+        # frequencies (highpass, even-order elliptic) or the digital stage can be one
+        for spec in specs:
+            if chain.stage == "digital" or spec.response == "highpass" or spec.family == "elliptic":
+                check_noise_bounded(chain, design(spec))
     scorer = Scorer(analysis, chain, meter)
     # converter full-scale peak over the program's sample peak at the converter (negative: it clips)
     headroom = -(analysis.peak_dbfs + chain.input_gain_db) if math.isfinite(analysis.peak_dbfs) else None

@@ -44,3 +44,17 @@ def test_every_target_metric_is_a_case_key():
 def test_every_case_key_is_in_the_schema():
     props = SCHEMA["properties"]["cases"]["items"]["properties"]
     assert [k for k in CASE_KEYS + DATA_CASE_KEYS if k not in props] == []
+
+
+def test_every_chain_field_is_in_the_schema_and_the_docs():
+    """sweep.json's chain object: every Chain field (anti_alias included) in the schema and in
+    docs/sweep-json.md, and the anti-alias option's choices are the model's."""
+    from audiobw.chain import ANTI_ALIAS, Chain
+
+    props = SCHEMA["properties"]["chain"]["properties"]
+    assert [k for k in Chain.field_names() if k not in props] == []
+    assert [k for k in Chain.field_names() if not re.search(rf"\b{k}\b", DOCS)] == []
+    assert set(props["anti_alias"]["enum"]) == set(ANTI_ALIAS) == set(OPTIONS["anti_alias"][1].split(":")[1].split(","))
+    assert "anti_alias" in SCHEMA["properties"]["chain"]["required"]
+    assert Chain().anti_alias == "none"  # the default the docs and the verdict state
+    assert option_name("anti_alias") in DOCS
