@@ -2,8 +2,11 @@
 
 ::
 
-    analog stage:   program -> amplifier polynomial -> analog filter -> (+ amplifier noise, folded) -> converter
-    digital stage:  program -> amplifier polynomial -> (+ amplifier noise) -> converter -> digital filter (SOS)
+    analog stage:   program -> amplifier polynomial -> analog filter -> [ideal AA] -> (+ amplifier noise) -> converter
+    digital stage:  program -> amplifier polynomial -> [ideal AA] -> (+ amplifier noise) -> converter -> digital filter
+
+``[ideal AA]`` only with ``chain.anti_alias == 'ideal'``; with 'none' everything above fs/2 folds at
+the converter (the sweep's model, :mod:`audiobw.noise`).
 
 Units are converter sample units throughout: a full-scale sine has peak 1.0
 (AES17), so a voltage v at the converter input is v / (√2·full_scale_vrms).
@@ -21,13 +24,12 @@ How each part is made
 * **Noise.** Generated in the time domain: seeded Gaussian white noise with
   the chain model's density at the converter input (amplifier noise
   G²·(4kT·Rs + e_n² + (i_n·Rs)²)), shaped by an FIR whose power response is
-  the *folded* noise gain of the analog path (:func:`audiobw.noise.folded_noise_gain`):
-  what the filter passes above fs/2 aliases into 0…fs/2 at the converter, so
-  the noise is synthesised directly with that folded shape and its exact total.
+  the sweep's noise gain at the converter (:func:`audiobw.noise.converter_noise_gain`):
+  folded into 0…fs/2 with anti-alias 'none', confined to it with 'ideal', so
+  the noise is synthesised directly with that shape and its exact total.
   The noise shaper is started one block early, so the noise is stationary from
-  the first sample.  Digital stage: the converter's anti-alias filter confines
-  the amplifier's noise to 0…fs/2, so it is white there (times the amplifier's
-  own pole when it has a bandwidth).
+  the first sample.  Digital stage: the gain is the amplifier's own pole alone
+  (white without one, which 'none' refuses); the digital filter follows.
 * **Amplifier nonlinearity.** The memoryless polynomial y = x + a2·x² + a3·x³
   with a2 = 2·10^(h2/20) and a3 = 4·10^(h3/20): for a full-scale sine (peak 1)
   the 2nd and 3rd harmonics are then h2 and h3 dB re the fundamental, and they
@@ -36,9 +38,11 @@ How each part is made
   interpolation of the program, filtered there by the analog response and
   taken every third sample, so a harmonic above fs/2 meets the filter at its
   true frequency and then folds at the converter, as in the model; the linear
-  path stays at fs, and both paths carry the same delay.  Digital stage: the
-  polynomial acts at fs (its harmonics fold at the converter, then meet the
-  digital filter, as in the model).
+  path stays at fs, and both paths carry the same delay.  With anti-alias
+  'ideal' the harmonic path also passes :func:`anti_alias_fir` before it is
+  sampled (digital stage too; the linear path is then a pure delay).  Digital
+  stage with 'none': the polynomial acts at fs (its harmonics fold at the
+  converter, then meet the digital filter, as in the model).
 * **Converter.** Rounding to q = 2·√2·FS/2^N (2/2^N in sample units), with
   TPDF dither of 2 LSB peak to peak when asked; codes run from −1 to 1 − q and
   every sample beyond them is clipped *and counted*.

@@ -376,9 +376,9 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
     cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer)
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
-    if chain.stage == "analog" and grid.response == "highpass" and chain.amp_bandwidth_hz is None:
-        notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
-                     "by the converter's anti-alias filter (give --amp-bandwidth to model it)")
+    if chain.stage == "analog" and grid.response == "highpass" and chain.anti_alias == "ideal":
+        notes.append("analog highpass with --anti-alias ideal: its noise is stopped at fs/2 by the converter's "
+                     "anti-alias filter (with --anti-alias none, --amp-bandwidth bounds it instead)")
     return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data,
                        limits=pscorer.limits() if pscorer is not None else {})
 
