@@ -110,8 +110,12 @@ def test_noise_never_falls_as_a_lowpass_widens(program, family, order, stage, f1
     n1, n2 = (sc.score(design(FilterSpec("lowpass", family, order, None, f, stage=stage, fs_hz=FS)))["noise_vrms"]
               for f in (f1, f2))
     # relative slack 1e-5: the folded alias images are interpolated on the
-    # analysis grid (audiobw.noise.IMAGE_STRIDE); measured up to 6e-6 from the exact fold
-    assert n2 >= n1 * (1 - 1e-5)
+    # analysis grid (audiobw.noise.IMAGE_STRIDE); measured up to 6e-6 from the exact fold.
+    # A ripple family on a meter narrower than the passband may move its ripple across the
+    # meter edge: a digital Chebyshev I 2 at 18.1 vs 23.3 kHz passes 1.2e-5 less in 20 Hz–20 kHz
+    # (either anti-alias model); within 1e-3 (0.1 dB ripple: up to 2.3 %)
+    slack = 1e-3 if family in ("chebyshev1", "elliptic") and meter == "aes17" else 1e-5
+    assert n2 >= n1 * (1 - slack)
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
