@@ -308,3 +308,14 @@ def test_the_default_keeps_folding_on_the_analog_stage(program_file, tmp_path, c
     folded = c.density_amplifier_v2_hz() * 20000.0 * (math.pi / 4) / math.sin(math.pi / 4)
     q2 = c.quantisation_power_v2() + c.dither_power_v2()
     assert doc["cases"][0]["noise_vrms"] ** 2 == pytest.approx(folded + q2, rel=1e-3)
+
+
+def test_noise_command_states_the_model_and_refuses_unbounded_noise(capsys):
+    assert main(["noise", "--band", "100:", "--order", "2"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "\n" not in err and "--anti-alias none" in err and "--amp-bandwidth HZ" in err
+    assert main(["noise", "--band", "100:", "--order", "2", "--amp-bandwidth", "60k", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["chain"]["anti_alias"] == "none" and doc["chain"]["amp_bandwidth_hz"] == 60e3
+    assert main(["noise", "--band", "100:", "--order", "2", "--anti-alias", "ideal"]) == 0
+    assert "anti-alias ideal" in capsys.readouterr().out
