@@ -39,6 +39,8 @@ from .errors import ParameterError
 BOLTZMANN = constants.k  # J/K, exact SI value since 2019
 DBU_REF_VRMS = math.sqrt(0.6)  # 0 dBu: 1 mW into 600 Ω
 DITHERS = ("tpdf", "none")
+#: What stands between the chain and the converter's sampler above fs/2 (see :mod:`audiobw.noise`).
+ANTI_ALIAS = ("ideal", "none")
 
 
 @dataclass(frozen=True)
@@ -61,9 +63,8 @@ class Chain:
         2nd and 3rd harmonic levels in dB relative to the fundamental for a
         full-scale sine (None: a linear amplifier).
     amp_bandwidth_hz : float or None, > 0
-        The amplifier's own −3 dB bandwidth, modelled as one real pole; None:
-        unlimited (then an analog-stage highpass is assumed to have its noise
-        stopped at fs/2 by the converter's anti-alias filter).
+        The amplifier's own −3 dB bandwidth, modelled as one real pole acting
+        on its noise; None: unlimited.
     bits : int, 1 <= bits <= 32
         Converter resolution N.
     full_scale_vrms : float, > 0
@@ -80,6 +81,13 @@ class Chain:
         1/f (flicker) corners of the amplifier's noise densities, Hz:
         e_n(f)² = e_n²·(1 + f_ce/f), i_n(f)² = i_n²·(1 + f_ci/f) (the usual
         data-sheet model; Motchenbacher & Connelly ch. 2).  None: white.
+    anti_alias : {'none', 'ideal'}
+        One assumption for noise and harmonics alike.  'none' (default): no
+        anti-alias filter of the converter's own; everything that reaches it
+        above fs/2 folds into 0…fs/2 (on the analog stage the candidate is the
+        only anti-alias filter), and the candidate or ``amp_bandwidth_hz``
+        must bound the noise.  'ideal': a brick-wall at fs/2 ahead of the
+        converter; nothing folds.
     """
 
     source_ohms: float = 200.0
@@ -97,6 +105,7 @@ class Chain:
     input_gain_db: float = 0.0
     en_corner_hz: float | None = None
     in_corner_hz: float | None = None
+    anti_alias: str = "none"
 
     def __post_init__(self):
         checks = [
@@ -108,6 +117,7 @@ class Chain:
             ("--full-scale", self.full_scale_vrms, self.full_scale_vrms > 0, "a voltage > 0 V rms"),
             ("--dither", self.dither, self.dither in DITHERS, "tpdf or none"),
             ("--stage", self.stage, self.stage in ("analog", "digital"), "analog or digital"),
+            ("--anti-alias", self.anti_alias, self.anti_alias in ANTI_ALIAS, "ideal or none"),
             ("--gain", self.gain_db, math.isfinite(self.gain_db) and abs(self.gain_db) <= 200, "a gain in dB, |G| <= 200"),
         ]
         for opt, value in (("--h2", self.h2_db), ("--h3", self.h3_db)):

@@ -19,8 +19,9 @@ the frequency domain, never by filtering the file), and then:
 The minimum bandwidth of a binary stream is 1/(2T) (Nyquist): the fastest
 pattern 1010… has its fundamental there.
 
-Digital stage: the converter's anti-alias filter is taken as ideal at fs/2
-(as for noise); the digital filter then acts on the band-limited stream.
+Digital stage: the stream is taken band-limited to fs/2, as the recording
+holds it; the digital filter then acts on it.  (The chain's noise and
+harmonics follow ``--anti-alias``: :mod:`audiobw.noise`.)
 
 References
 ----------

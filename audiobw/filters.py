@@ -417,8 +417,8 @@ class Filter:
         The passband peak is 0 dB by design, so |H|²max = 1.  An analog
         response with a high-frequency floor (highpass, even-order elliptic)
         has no finite ENBW; with ``nyquist_hz`` given, it is integrated up to
-        that frequency only (the converter's anti-alias filter is taken to
-        stop it there; see :mod:`audiobw.noise`).
+        that frequency only.  ENBW is the filter's own figure; the noise the
+        chain passes follows the anti-alias model (:mod:`audiobw.noise`).
         """
         value = self.power_integral_hz()
         if math.isinf(value):

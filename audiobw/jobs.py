@@ -117,7 +117,8 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     header = (f"Noise budget: {spec.label()}, {c.stage} stage, fs {fq(fs, 'Hz')}; Rs {fq(c.source_ohms, 'Ω')} at "
               f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {fq(c.en_v_rthz, 'V/√Hz')}, "
               f"i_n {fq(c.in_a_rthz, 'A/√Hz')}, {c.bits} bits, full scale {fq(c.full_scale_vrms, 'V rms')}, "
-              f"dither {c.dither}"
+              f"dither {c.dither}, anti-alias {c.anti_alias}"
+              + (f", amplifier bandwidth {fq(c.amp_bandwidth_hz, 'Hz')}" if c.amp_bandwidth_hz is not None else "")
               + (f"; 1/f corners e_n {fq(c.en_corner_hz, 'Hz') if c.en_corner_hz else 'none'}, "
                  f"i_n {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'} (1/f integrated from "
                  f"{FLICKER_FROM_HZ:g} Hz)" if c.has_flicker else ""))

@@ -343,7 +343,11 @@ class Scorer:
         return float(np.mean(np.sqrt(np.mean(out, axis=1))))
 
     def _thdn(self, filt: Filter, n_pow: float) -> dict:
-        """THD+N of the test tone through the chain (model, AES17 ratio to total)."""
+        """THD+N of the test tone through the chain (model, AES17 ratio to total).
+
+        Harmonics above fs/2 follow ``chain.anti_alias`` as the noise does:
+        folded into 0…fs/2 ('none') or stopped at fs/2 ('ideal').
+        """
         a, c, m, p = self.analysis, self.chain, self.meter, self._pre
         fs, nyq = a.sample_rate_hz, a.nyquist_hz
         f0 = m.tone_hz
@@ -371,6 +375,10 @@ class Scorer:
             # memoryless polynomial: the n-th harmonic ratio scales as r^(n-1)
             ratio = 10 ** (level_db / 20.0) * r ** (order - 1)
             fh = order * f0
+            if fh > nyq and c.anti_alias == "ideal":
+                continue  # the brick-wall at fs/2 ahead of the converter stops it
+            # anti_alias 'none': above fs/2 it folds at the converter; an analog filter meets it
+            # at its true frequency first, a digital one after the fold
             folded = abs(fh - fs * round(fh / fs))
             gain = float(filt.power_response(fh if filt.analog else folded))
             if p["lo"] <= folded <= p["hi"]:

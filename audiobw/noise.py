@@ -1,15 +1,25 @@
 """Noise at the chain output: spectra of each contributor and the budget.
 
-Analog stage: the amplifier's white noise is shaped by the candidate filter
-over its whole response, and what the filter passes above fs/2 aliases into
-0…fs/2 at the converter (it is folded there, so a meter band narrower than
-0…fs/2 sees the right share).  Quantisation and dither are white over
-0…fs/2 and not shaped by the filter.
+One anti-alias assumption (``Chain.anti_alias``) governs noise and harmonics
+alike:
 
-Digital stage: the converter samples the amplifier output first.  Its own
-anti-alias filter is assumed to confine the amplifier's noise to 0…fs/2
-(common practice for oversampling converters); then the digital filter shapes
-amplifier noise, quantisation and dither alike.
+* ``'none'`` (the default): the converter has no anti-alias filter of its own.
+  Everything that reaches it above fs/2 folds into 0…fs/2.  On the analog
+  stage the candidate filter is the only anti-alias filter (the common front
+  end): the amplifier's white noise, shaped by the candidate (and the
+  amplifier's own pole, ``amp_bandwidth_hz``), is folded image by image, so a
+  meter band narrower than 0…fs/2 sees the right share.  On the digital stage
+  the amplifier's noise reaches the converter shaped by its own pole only,
+  folds there, and is then shaped by the digital filter.  A case whose noise
+  would have no bound (an analog response that never falls, such as a
+  highpass or an even-order elliptic, or the digital stage, with no
+  ``amp_bandwidth_hz``) is refused: :func:`check_noise_bounded`.
+* ``'ideal'``: a brick-wall at fs/2 ahead of the converter.  Nothing folds:
+  the amplifier's noise counts over 0…fs/2 only, shaped by the candidate
+  (analog stage) and the amplifier's pole.
+
+Quantisation and dither are white over 0…fs/2; the digital filter shapes
+them, the analog one does not.
 
 References
 ----------
@@ -31,7 +41,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .chain import Chain, vrms_to_dbu
-from .filters import Filter
+from .errors import ParameterError
+from .filters import Filter, FilterSpec, design
 
 #: 1/f noise is integrated from this frequency, Hz: the lower limit of the
 #: "0.1 Hz to 10 Hz" low-frequency noise figure of amplifier data sheets
@@ -72,6 +83,43 @@ def with_amplifier_pole(filt: Filter, amp_bandwidth_hz: float | None) -> Filter:
         return filt
     wa = 2.0 * math.pi * amp_bandwidth_hz / filt.ref_rad_s
     return Filter(filt.spec, filt.z, np.concatenate([filt.p, [-wa]]), filt.k * wa, filt.ref_rad_s)
+
+
+def amplifier_pole(amp_bandwidth_hz: float) -> Filter:
+    """The amplifier's own one-pole response at ``amp_bandwidth_hz`` (analog), 1/(1 + jf/f_a)."""
+    return design(FilterSpec("lowpass", "butterworth", 1, None, float(amp_bandwidth_hz)))
+
+
+def unbounded_reason(chain: Chain, filt: Filter) -> str | None:
+    """Why the noise reaching the converter has no bound under ``chain.anti_alias``, or None."""
+    if chain.anti_alias == "ideal" or chain.amp_bandwidth_hz is not None or chain.density_amplifier_v2_hz() == 0:
+        return None
+    if not filt.analog:
+        return "on the digital stage no filter ahead of the converter limits the amplifier's noise"
+    floor = filt.floor_gain()
+    if floor > 0:
+        return (f"the analog {filt.spec.label()} passes noise to infinite frequency "
+                f"(|H| stays at {10 * math.log10(floor):.0f} dB)")
+    return None
+
+
+def check_noise_bounded(chain: Chain, filt: Filter) -> None:
+    """Refuse a case whose folded noise would be infinite (``anti_alias='none'``, nothing bounding it).
+
+    Raises
+    ------
+    ParameterError
+        One line naming ``--anti-alias`` and ``--amp-bandwidth``.
+    """
+    reason = unbounded_reason(chain, filt)
+    if reason is not None:
+        raise _unbounded(reason)
+
+
+def _unbounded(reason: str) -> ParameterError:
+    return ParameterError(f"--anti-alias none: {reason}, so its folded noise is unbounded; accepted: "
+                          "--amp-bandwidth HZ (the amplifier's bandwidth bounds it) or --anti-alias ideal "
+                          "(a brick-wall at fs/2 ahead of the converter)")
 
 
 def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.ndarray | None:
@@ -152,37 +200,36 @@ def _folded_images(filt: Filter, freqs_hz: np.ndarray, fs_hz: float, direct: np.
 
 
 def folded_noise_gain(filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float,
-                      amp_bandwidth_hz: float | None = None, *, direct: np.ndarray | None = None
-                      ) -> tuple[np.ndarray, float]:
-    """Noise power gain of the analog path, folded into 0…fs/2.
+                      amp_bandwidth_hz: float | None = None, *, direct: np.ndarray | None = None,
+                      anti_alias: str = "none") -> tuple[np.ndarray, float]:
+    """Noise power gain of the analog path at the converter output, on 0…fs/2.
 
     Returns ``(g, total)``: ``g`` on the grid such that ``sum(g·weights)``
     equals ``total``.
 
-    * A response that falls at high frequencies (|H(∞)| = 0) passes noise
-      above fs/2 that aliases back: it is folded image by image until what
-      remains is below 1 ppm of the exact integral ∫₀^∞|H|² df
-      (:meth:`Filter.varying_integral_hz`); the remainder, from far images,
-      is nearly flat and is spread evenly.
-    * A response that never falls (a highpass: |H(∞)| = 1; an even-order
-      elliptic: the stopband floor) would pass noise to infinite frequency.
-      The converter's own anti-alias filter is then taken as ideal at fs/2,
-      so only 0…fs/2 counts.  Give the amplifier a bandwidth to model that
-      noise instead.
+    * ``anti_alias='none'``: the response (times the amplifier's own pole,
+      ``amp_bandwidth_hz``) must fall at high frequencies (|H(∞)| = 0); what
+      it passes above fs/2 aliases back.  It is folded, all images at once in
+      closed form or image by image, until what remains is below 1 ppm of the
+      exact integral ∫₀^∞|H|² df (:meth:`Filter.varying_integral_hz`); the
+      remainder, from far images, is nearly flat and is spread evenly.  A
+      response that never falls (a highpass: |H(∞)| = 1; an even-order
+      elliptic: the stopband floor) has no finite noise: refused with
+      :class:`ParameterError` (see :func:`check_noise_bounded`).
+    * ``anti_alias='ideal'``: a brick-wall at fs/2 ahead of the converter;
+      only 0…fs/2 counts, nothing folds.
 
-    The amplifier's own pole (``amp_bandwidth_hz``) multiplies the response
-    first, which makes every response fall.  ``direct``, when given, is
-    |H(f)|² on ``freqs_hz`` already evaluated by the caller (reused when there
-    is no amplifier pole).
+    A digital-stage ``filt`` returns its own |H|² on 0…fs/2.  ``direct``, when
+    given, is |H(f)|² on ``freqs_hz`` already evaluated by the caller (reused
+    when there is no amplifier pole).
     """
     noise_filt = with_amplifier_pole(filt, amp_bandwidth_hz)
     if direct is None or noise_filt is not filt:
         direct = noise_filt.power_response(freqs_hz)
-    floor = noise_filt.floor_gain() if filt.analog else 0.0
-    if not filt.analog or floor > 0:
-        # digital stage, or an analog response that never falls: the
-        # converter's anti-alias filter stops everything above fs/2
+    if not filt.analog or anti_alias == "ideal":
         return direct, float(np.sum(direct * weights_hz))
+    if noise_filt.floor_gain() > 0:
+        raise _unbounded(unbounded_reason(Chain(), filt) or "the response never falls")
     target = noise_filt.varying_integral_hz()
     acc = float(np.sum(direct * weights_hz))
     if abs(target - acc) <= 1e-6 * abs(target):
@@ -223,6 +270,34 @@ class NoiseSpectra:
         return {name: float(np.sum(d * w)) for name, d in self.parts.items()}
 
 
+def converter_noise_gain(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray,
+                         fs_hz: float, *, direct: np.ndarray | None = None) -> tuple[np.ndarray, float]:
+    """Power gain from the amplifier's white noise to the converter's output, on 0…fs/2.
+
+    Analog stage: the candidate and the amplifier's pole, folded or not per
+    ``chain.anti_alias`` (:func:`folded_noise_gain`).  Digital stage: the
+    amplifier's pole alone (the digital filter comes after the converter;
+    the caller multiplies by it): confined to 0…fs/2 by the ideal anti-alias
+    filter, or folded with ``'none'``.  Returns ``(g, Σ g·weights)``.
+
+    Raises
+    ------
+    ParameterError
+        The noise has no bound (:func:`check_noise_bounded`).
+    """
+    check_noise_bounded(chain, filt)
+    if chain.density_amplifier_v2_hz() == 0:  # no amplifier noise: nothing to shape or fold
+        return np.zeros_like(np.asarray(freqs_hz, dtype=float)), 0.0
+    if filt.analog:
+        return folded_noise_gain(filt, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz, direct=direct,
+                                 anti_alias=chain.anti_alias)
+    if chain.amp_bandwidth_hz is None:  # ideal anti-alias filter (or no amplifier noise): white to fs/2
+        g = np.ones_like(np.asarray(freqs_hz, dtype=float))
+        return g, float(np.sum(weights_hz))
+    return folded_noise_gain(amplifier_pole(chain.amp_bandwidth_hz), freqs_hz, weights_hz, fs_hz,
+                             anti_alias=chain.anti_alias)
+
+
 def noise_total(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float,
                 *, direct: np.ndarray | None = None) -> np.ndarray:
     """The total output noise density on ``freqs_hz`` (V²/Hz): the sum of :func:`noise_spectra`'s
@@ -231,11 +306,11 @@ def noise_total(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np
     converter = (chain.quantisation_power_v2() + chain.dither_power_v2()) / nyq_width
     h2 = filt.power_response(freqs_hz) if direct is None else direct
     if filt.analog:
-        g, _ = folded_noise_gain(filt, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz, direct=h2)
+        g, _ = converter_noise_gain(chain, filt, freqs_hz, weights_hz, fs_hz, direct=h2)
         out = chain.density_amplifier_v2_hz() * g + converter
     else:
-        g = h2 if chain.amp_bandwidth_hz is None else h2 / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
-        out = chain.density_amplifier_v2_hz() * g + converter * h2
+        g, _ = converter_noise_gain(chain, filt, freqs_hz, weights_hz, fs_hz)
+        out = (chain.density_amplifier_v2_hz() * g + converter) * h2
     if chain.has_flicker:
         out = out + (chain.flicker_en_v2() + chain.flicker_in_v2()) * _flicker_gain(chain, h2, freqs_hz, weights_hz)
     return out
@@ -258,14 +333,12 @@ def noise_spectra(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: 
     nyq_width = float(np.sum(weights_hz))
     q_density = chain.quantisation_power_v2() / nyq_width
     d_density = chain.dither_power_v2() / nyq_width
+    g, _ = converter_noise_gain(chain, filt, freqs_hz, weights_hz, fs_hz)
     if filt.analog:
-        g, _ = folded_noise_gain(filt, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz)
         gq = np.ones_like(freqs_hz)
     else:
-        g = filt.power_response(freqs_hz)
-        if chain.amp_bandwidth_hz is not None:
-            g = g / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
         gq = filt.power_response(freqs_hz)
+        g = g * gq
     flicker = (_flicker_gain(chain, filt.power_response(freqs_hz), freqs_hz, weights_hz) if chain.has_flicker
                else np.zeros_like(freqs_hz))
     parts = {
@@ -346,7 +419,10 @@ def noise_figure_db(chain: Chain) -> float | None:
     if chain.source_ohms <= 0:
         return None
     excess = chain.en_v_rthz**2 + (chain.in_a_rthz * chain.source_ohms) ** 2
-    return 10.0 * math.log10(1.0 + excess / (4.0 * BOLTZMANN * T0_K * chain.source_ohms))
+    thermal = 4.0 * BOLTZMANN * T0_K * chain.source_ohms
+    if thermal <= 0 or not math.isfinite(excess / thermal):
+        return None  # a source so small its thermal noise underflows a double: as good as ideal
+    return 10.0 * math.log10(1.0 + excess / thermal)
 
 
 def input_referred(chain: Chain, spectra, weights, weights_a) -> dict:

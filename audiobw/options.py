@@ -38,6 +38,10 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "full_scale": ("converter", "voltage", "rms of a full-scale sine at the converter input (2Vrms, +4dBu)"),
     "dither": ("converter", "choice:tpdf,none", "converter dither: tpdf or none"),
     "stage": ("converter", "choice:analog,digital", "filter ahead of the converter (analog) or after it (digital)"),
+    "anti_alias": ("converter", "choice:none,ideal", "what the converter does with content above fs/2, noise and "
+                   "harmonics alike: none (default: it folds; on the analog stage the candidate is the only "
+                   "anti-alias filter, and it or --amp-bandwidth must bound the noise) or ideal (a brick-wall at "
+                   "fs/2 ahead of the converter: nothing folds)"),
     "response": ("grid", "choice:lowpass,highpass,bandpass", "lowpass, highpass or bandpass"),
     "family": ("grid", "families", "filter families, comma list: butterworth,bessel,chebyshev1,elliptic"),
     "order": ("grid", "orders", f"prototype orders, comma list ({MIN_ORDER} to {MAX_ORDER})"),

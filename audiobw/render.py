@@ -265,7 +265,7 @@ def _chain_text(c: Chain) -> str:
             f"h3 {'none' if c.h3_db is None else f'{c.h3_db:g} dB'}; amplifier bandwidth "
             f"{'unlimited' if c.amp_bandwidth_hz is None else f'{c.amp_bandwidth_hz:g} Hz'}; {c.bits} bits; "
             f"full scale {c.full_scale_vrms:g} V rms; dither {c.dither}; filter stage {c.stage}; "
-            f"input gain {c.input_gain_db:.3g} dB")
+            f"anti-alias {c.anti_alias}; input gain {c.input_gain_db:.3g} dB")
 
 
 class _ProgramLevel:

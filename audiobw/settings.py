@@ -9,7 +9,7 @@ TOML layout (same names as the options, in snake_case)::
 
     [source]      source_ohms, temperature, input_level
     [amplifier]   gain, en, in, en_corner, in_corner, h2, h3, amp_bandwidth
-    [converter]   bits, full_scale, dither, stage
+    [converter]   bits, full_scale, dither, stage, anti_alias
     [grid]        response, family, order, cutoffs, low_edges, high_edges, ripple, stopband
     [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser, max_ber, min_eye,
                   min_headroom, max_nmr, max_audible_frames, min_sii, min_alias_rejection,
@@ -35,8 +35,8 @@ from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, R
                       option_name)
 
 CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
-              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "source_level", "spl", "mic_sensitivity",
-              "en_corner", "in_corner")
+              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "anti_alias", "source_level", "spl",
+              "mic_sensitivity", "en_corner", "in_corner")
 GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
              "rank", "tie")
 METER_KEYS = ("meter", "tone", "tone_level")
@@ -304,7 +304,8 @@ def build(raw: dict[str, Raw]) -> Settings:
     mapping = {"source_ohms": "source_ohms", "temperature": "temperature_k", "gain": "gain_db",
                "en": "en_v_rthz", "in": "in_a_rthz", "h2": "h2_db", "h3": "h3_db",
                "amp_bandwidth": "amp_bandwidth_hz", "bits": "bits", "full_scale": "full_scale_vrms",
-               "dither": "dither", "stage": "stage", "en_corner": "en_corner_hz", "in_corner": "in_corner_hz"}
+               "dither": "dither", "stage": "stage", "anti_alias": "anti_alias", "en_corner": "en_corner_hz",
+               "in_corner": "in_corner_hz"}
     for key, field_name in mapping.items():
         if key in parsed:
             chain_kw[field_name] = int(parsed[key]) if key == "bits" else parsed[key]
@@ -417,7 +418,8 @@ def default_chain_text(c) -> str:
     """The chain in one line, for when the user gave none."""
     return (f"Rs {c.source_ohms:g} Ω at {c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {c.en_v_rthz * 1e9:g} nV/√Hz, "
             f"i_n {c.in_a_rthz * 1e12:g} pA/√Hz, {c.bits} bits, full scale {c.full_scale_vrms:g} V rms, "
-            f"dither {c.dither}, {c.stage} filter stage, the program taken as it is at the converter")
+            f"dither {c.dither}, {c.stage} filter stage, anti-alias {c.anti_alias}, the program taken as it is at "
+            "the converter")
 
 
 def _source_vrms(parsed: dict, raw: dict) -> float | None:

@@ -2,8 +2,11 @@
 
 ::
 
-    analog stage:   program -> amplifier polynomial -> analog filter -> (+ amplifier noise, folded) -> converter
-    digital stage:  program -> amplifier polynomial -> (+ amplifier noise) -> converter -> digital filter (SOS)
+    analog stage:   program -> amplifier polynomial -> analog filter -> [ideal AA] -> (+ amplifier noise) -> converter
+    digital stage:  program -> amplifier polynomial -> [ideal AA] -> (+ amplifier noise) -> converter -> digital filter
+
+``[ideal AA]`` only with ``chain.anti_alias == 'ideal'``; with 'none' everything above fs/2 folds at
+the converter (the sweep's model, :mod:`audiobw.noise`).
 
 Units are converter sample units throughout: a full-scale sine has peak 1.0
 (AES17), so a voltage v at the converter input is v / (√2·full_scale_vrms).
@@ -21,13 +24,12 @@ How each part is made
 * **Noise.** Generated in the time domain: seeded Gaussian white noise with
   the chain model's density at the converter input (amplifier noise
   G²·(4kT·Rs + e_n² + (i_n·Rs)²)), shaped by an FIR whose power response is
-  the *folded* noise gain of the analog path (:func:`audiobw.noise.folded_noise_gain`):
-  what the filter passes above fs/2 aliases into 0…fs/2 at the converter, so
-  the noise is synthesised directly with that folded shape and its exact total.
+  the sweep's noise gain at the converter (:func:`audiobw.noise.converter_noise_gain`):
+  folded into 0…fs/2 with anti-alias 'none', confined to it with 'ideal', so
+  the noise is synthesised directly with that shape and its exact total.
   The noise shaper is started one block early, so the noise is stationary from
-  the first sample.  Digital stage: the converter's anti-alias filter confines
-  the amplifier's noise to 0…fs/2, so it is white there (times the amplifier's
-  own pole when it has a bandwidth).
+  the first sample.  Digital stage: the gain is the amplifier's own pole alone
+  (white without one, which 'none' refuses); the digital filter follows.
 * **Amplifier nonlinearity.** The memoryless polynomial y = x + a2·x² + a3·x³
   with a2 = 2·10^(h2/20) and a3 = 4·10^(h3/20): for a full-scale sine (peak 1)
   the 2nd and 3rd harmonics are then h2 and h3 dB re the fundamental, and they
@@ -36,9 +38,11 @@ How each part is made
   interpolation of the program, filtered there by the analog response and
   taken every third sample, so a harmonic above fs/2 meets the filter at its
   true frequency and then folds at the converter, as in the model; the linear
-  path stays at fs, and both paths carry the same delay.  Digital stage: the
-  polynomial acts at fs (its harmonics fold at the converter, then meet the
-  digital filter, as in the model).
+  path stays at fs, and both paths carry the same delay.  With anti-alias
+  'ideal' the harmonic path also passes :func:`anti_alias_fir` before it is
+  sampled (digital stage too; the linear path is then a pure delay).  Digital
+  stage with 'none': the polynomial acts at fs (its harmonics fold at the
+  converter, then meet the digital filter, as in the model).
 * **Converter.** Rounding to q = 2·√2·FS/2^N (2/2^N in sample units), with
   TPDF dither of 2 LSB peak to peak when asked; codes run from −1 to 1 − q and
   every sample beyond them is clipped *and counted*.
@@ -168,6 +172,27 @@ def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS, delay: i
                               NumericalWarning, stacklevel=2)
             return taps, delay, worst
         m *= 2
+
+
+#: The converter's ideal anti-alias filter as rendered: a Kaiser-windowed sinc at fs/2 with this many
+#: zero crossings each side and this window parameter (about 100 dB stopband; the transition band
+#: spans about ±1 % of fs around fs/2, where "ideal" cannot be rendered exactly).
+AA_ZEROS = 160
+AA_BETA = 10.0
+
+
+def anti_alias_fir(r: int) -> np.ndarray:
+    """The ideal anti-alias filter at fs/2 for a signal at r·fs (unit passband gain, linear phase).
+
+    A Kaiser-windowed sinc (scipy.signal.firwin); Kaiser's design formula gives
+    A ≈ 100 dB for β = 10 and a transition width of (A − 7.95)/(14.36·N) of the
+    rate (J. F. Kaiser, "Nonrecursive digital filter design using the I0-sinh
+    window function", Proc. IEEE ISCAS 1974; from memory): ≈ 0.02·fs for
+    N = 2·160·r + 1 taps.
+    """
+    from scipy import signal
+
+    return _cached(("aa", r), lambda: signal.firwin(2 * AA_ZEROS * r + 1, 1.0 / r, window=("kaiser", AA_BETA)))
 
 
 def noise_shaper(gain: np.ndarray, m: int) -> np.ndarray:
@@ -303,9 +328,15 @@ class ChainSimulator:
         noise_seq, dither_seq = np.random.SeedSequence(int(self.seed)).spawn(2)
         self.noise_rng = np.random.default_rng(noise_seq)
         self.dither_rng = np.random.default_rng(dither_seq) if c.dither == "tpdf" else None
+        if self.noise:
+            from .noise import check_noise_bounded
+
+            check_noise_bounded(c, self.filt)
         self.delay = 0
         self.nonlinear = bool(self.a2 or self.a3)
-        self.oversampled = self.analog and self.nonlinear
+        # harmonics are formed at OVERSAMPLE·fs wherever something must act on them above fs/2:
+        # the analog filter, or the ideal anti-alias filter ahead of the converter
+        self.oversampled = self.nonlinear and (self.analog or c.anti_alias == "ideal")
         if self.analog:
             taps, self.delay, worst = _cached(
                 ("fir", self.filt.spec, fs, self.fir_max_taps),
@@ -319,8 +350,10 @@ class ChainSimulator:
             self.sos = self.filt.sos()
             self.zi = np.zeros((self.sos.shape[0], 2, self.channels))
             self.info.update(sos_sections=int(self.sos.shape[0]))
+            if self.oversampled:
+                taps, taps_r, interp = self._oversampled_paths(None)
         self.hop = m
-        if self.analog:
+        if self.analog or self.oversampled:
             self.conv = OverlapSave(taps, self.hop, self.channels)
         if self.oversampled:
             r = OVERSAMPLE
@@ -330,7 +363,7 @@ class ChainSimulator:
         self.noise_sigma = math.sqrt(density * fs / 2.0)
         self.noise_conv = None
         if self.noise and density > 0:
-            gain = _cached(("noise", self.filt.spec, fs, m, self.chain.amp_bandwidth_hz),
+            gain = _cached(("noise", self.filt.spec, fs, m, self.chain.amp_bandwidth_hz, self.chain.anti_alias),
                            lambda: self._noise_gain(m))
             if gain is not None:
                 self.noise_conv = OverlapSave(noise_shaper(gain, m), self.hop, self.channels)
@@ -346,16 +379,30 @@ class ChainSimulator:
         """Linear path at fs, harmonics at 3·fs, both with the same total delay.
 
         The harmonics are formed from the band-limited interpolation of the
-        program (a Kaiser-windowed sinc, scipy.signal.firwin), filtered by the
-        analog response at 3·fs (exact below 1.5·fs, where x³ ends) and then
-        taken every third sample: what the filter passes above fs/2 folds at
-        the converter, as in the model.
+        program (a Kaiser-windowed sinc, scipy.signal.firwin), filtered there
+        by the analog response (analog stage; exact below 1.5·fs, where x³
+        ends) and, with ``anti_alias='ideal'``, by the converter's anti-alias
+        filter at fs/2 (:func:`anti_alias_fir`), then taken every third
+        sample: what reaches the sampler above fs/2 folds, as in the model.
+        ``taps`` is the analog FIR at fs, or None on the digital stage (the
+        linear path is then a pure delay).
         """
         from scipy import signal
 
         fs, r = float(self.fs_hz), OVERSAMPLE
         half = INTERP_ZEROS * r
         interp = r * signal.firwin(2 * half + 1, 1.0 / r, window=("kaiser", INTERP_BETA))
+        aa = anti_alias_fir(r) if self.chain.anti_alias == "ideal" else np.ones(1)
+        half += (aa.size - 1) // 2  # the anti-alias FIR is linear-phase: its delay adds to the interpolator's
+        self.info.update(harmonics_oversampling=r)
+        if taps is None:  # digital stage: no analog filter; the linear path waits for the harmonics
+            common = -(-half // r)
+            self.delay = common
+            pre = np.zeros(r * common - half + 1)
+            pre[-1] = 1.0
+            delay_taps = np.zeros(common + 1)
+            delay_taps[common] = 1.0
+            return delay_taps, np.convolve(pre, aa), interp
         taps_r, delay_r, _ = _cached(("fir", self.filt.spec, r * fs, self.fir_max_taps),
                                      lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps))
         common = max(self.delay, -(-(half + delay_r) // r))
@@ -367,23 +414,21 @@ class ChainSimulator:
                                lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps,
                                                   delay=r * common - half, min_taps=taps_r.size))
         self.delay = common
-        self.info.update(harmonics_oversampling=r, harmonics_fir_taps=int(taps_r.size))
-        return taps, taps_r, interp
+        self.info.update(harmonics_fir_taps=int(taps_r.size))
+        return taps, np.convolve(taps_r, aa) if aa.size > 1 else taps_r, interp
 
     def _noise_gain(self, m: int):
         """Power gain shape of the amplifier noise on the M-grid (None: white)."""
-        from .noise import folded_noise_gain
+        from .noise import converter_noise_gain
         from .spectrum import trapezoid_weights
 
         fs = float(self.fs_hz)
+        if not self.analog and self.chain.amp_bandwidth_hz is None:
+            return None  # ideal anti-alias filter (else refused): white to fs/2
         f = _grid(m, fs)
-        if self.analog:
-            w = trapezoid_weights(f.size, fs / m)
-            gain, _ = folded_noise_gain(self.filt, f, w, fs, self.chain.amp_bandwidth_hz)
-            return gain
-        if self.chain.amp_bandwidth_hz is not None:
-            return 1.0 / (1.0 + (f / self.chain.amp_bandwidth_hz) ** 2)
-        return None
+        w = trapezoid_weights(f.size, fs / m)
+        gain, _ = converter_noise_gain(self.chain, self.filt, f, w, fs)
+        return gain
 
     def _white(self) -> np.ndarray:
         return self.noise_rng.standard_normal((self.hop, self.channels)) * self.noise_sigma

@@ -230,7 +230,15 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
     (a :class:`audiobw.perceptual.scoring.PerceptualScorer`) the audibility,
     SII and Wiener-gap figures.
     """
+    from .noise import check_noise_bounded
+
     specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
+    if chain.anti_alias == "none" and chain.amp_bandwidth_hz is None:
+        # refuse an unbounded case before scoring any: only a response with a floor at high
+        # frequencies (highpass, even-order elliptic) or the digital stage can be one
+        for spec in specs:
+            if chain.stage == "digital" or spec.response == "highpass" or spec.family == "elliptic":
+                check_noise_bounded(chain, design(spec))
     scorer = Scorer(analysis, chain, meter)
     # converter full-scale peak over the program's sample peak at the converter (negative: it clips)
     headroom = -(analysis.peak_dbfs + chain.input_gain_db) if math.isfinite(analysis.peak_dbfs) else None
@@ -510,9 +518,9 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
             notes.append(f"no case passes; the closest (case {closest['id']}) has its {lim['edge']} edge at the "
                          f"grid's {lim['end']} ({lim['design_hz']:g} Hz): extend {grid_option(grid.response, lim['edge'])} "
                          f"{lim['extend']} {lim['design_hz']:g} Hz to see whether a case passes there")
-    if chain.stage == "analog" and grid.response == "highpass" and chain.amp_bandwidth_hz is None:
-        notes.append("analog highpass with no amplifier bandwidth: noise taken as stopped at fs/2 "
-                     "by the converter's anti-alias filter (give --amp-bandwidth to model it)")
+    if chain.stage == "analog" and grid.response == "highpass" and chain.anti_alias == "ideal":
+        notes.append("analog highpass with --anti-alias ideal: its noise is stopped at fs/2 by the converter's "
+                     "anti-alias filter (with --anti-alias none, --amp-bandwidth bounds it instead)")
     return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data,
                        limits=pscorer.limits() if pscorer is not None else {},
                        conflicts=conflicts(cases, targets) if choice is None else [])

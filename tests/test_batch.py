@@ -217,7 +217,7 @@ def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path, monkeypatch):
     rng = np.random.default_rng(11)
     for i in range(12):
         write(lib / f"n{i:02d}.wav", 0.05 * rng.standard_normal(32000), 16000)
-    args = [str(lib), "--cutoffs", "1k:7k:12", "--family", "butterworth,chebyshev1,elliptic",
+    args = [str(lib), "--anti-alias", "ideal", "--cutoffs", "1k:7k:12", "--family", "butterworth,chebyshev1,elliptic",
             "--order", "4,8", "--max-loss", "0.5", "--coverage", "90%"]
     env = {**os.environ, "PYTHONPATH": str(REPO)}
     out = tmp_path / "run"
@@ -238,7 +238,7 @@ def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path, monkeypatch):
     assert f"took {len(before)} from the cache" in r.stdout
     assert {p: p.stat().st_mtime_ns for p in before} == before
     assert len(list((out / "cache").glob("*.json"))) == 12
-    s = settings_from({"cutoffs": "1k:7k:12", "family": "butterworth,chebyshev1,elliptic",
+    s = settings_from({"anti_alias": "ideal", "cutoffs": "1k:7k:12", "family": "butterworth,chebyshev1,elliptic",
                        "order": "4,8", "max_loss": "0.5"}, None)
     monkeypatch.chdir(tmp_path)  # recorded paths are relative to the working folder (audio.canonical_path)
     batch.run_batch([str(lib)], s, tmp_path / "clean", coverage=0.9, workers=0)

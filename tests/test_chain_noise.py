@@ -98,9 +98,10 @@ def test_aliased_noise_lands_in_a_narrow_meter_band():
 
 
 def test_highpass_floor_is_stopped_at_nyquist():
+    # with an ideal anti-alias filter ahead of the converter (with none it is refused: tests/test_antialias.py)
     filt = design(FilterSpec("highpass", "butterworth", 2, 100.0, None))
     f, w = grid()
-    g, total = folded_noise_gain(filt, f, w, FS)
+    g, total = folded_noise_gain(filt, f, w, FS, anti_alias="ideal")
     expected = FS / 2 - 100.0 * butterworth_enbw_ratio(2)  # the in-band integral of 1 - |H_lp|² mirrored
     assert total == pytest.approx(expected, rel=2e-3)
 

@@ -57,3 +57,17 @@ def test_conflicts_agree_between_code_schema_and_docs():
         assert re.search(rf"\b{word}\b", DOCS), f"{word} is not in docs/metrics.md or docs/sweep-json.md"
     spec_schema = json.loads((REPO / "docs" / "spec.schema.json").read_text(encoding="utf-8"))
     assert "conflicts" in spec_schema["properties"]
+
+
+def test_every_chain_field_is_in_the_schema_and_the_docs():
+    """sweep.json's chain object: every Chain field (anti_alias included) in the schema and in
+    docs/sweep-json.md, and the anti-alias option's choices are the model's."""
+    from audiobw.chain import ANTI_ALIAS, Chain
+
+    props = SCHEMA["properties"]["chain"]["properties"]
+    assert [k for k in Chain.field_names() if k not in props] == []
+    assert [k for k in Chain.field_names() if not re.search(rf"\b{k}\b", DOCS)] == []
+    assert set(props["anti_alias"]["enum"]) == set(ANTI_ALIAS) == set(OPTIONS["anti_alias"][1].split(":")[1].split(","))
+    assert "anti_alias" in SCHEMA["properties"]["chain"]["required"]
+    assert Chain().anti_alias == "none"  # the default the docs and the verdict state
+    assert option_name("anti_alias") in DOCS

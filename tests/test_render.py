@@ -66,7 +66,8 @@ def test_analog_response_helper_agrees_with_the_filter_module():
 @pytest.mark.parametrize("stage", ["analog", "digital"])
 def test_streaming_equals_one_shot(stage, rng):
     """Block by block (odd block sizes) gives exactly the samples of a one-shot run."""
-    chain = Chain(bits=16, stage=stage, h2_db=-80.0, h3_db=-90.0)
+    # digital: the ideal anti-alias model, so the oversampled harmonic path streams too
+    chain = Chain(bits=16, stage=stage, h2_db=-80.0, h3_db=-90.0, anti_alias="ideal" if stage == "digital" else "none")
     filt = design(spec("bandpass", "chebyshev1", 6, 80.0, 7000.0, stage=stage))
     x = rng.standard_normal((50000, 2)) * 0.1
     one = ChainSimulator(chain, filt, FS, 2, seed=7).run(x)
@@ -87,7 +88,7 @@ def test_render_streams_the_file_and_writes_the_true_level(tmp_path, write_audio
     """chain-output.wav is the simulation of the whole file (read in blocks), as 32-bit float."""
     x = rng.standard_normal((300000, 1)) * 0.05  # longer than one read block of 2**17 frames
     src = write_audio("prog.wav", x, FS)
-    chain = Chain(bits=20)
+    chain = Chain(bits=20, anti_alias="ideal")  # an even-order elliptic: its noise bounded at fs/2
     s = spec("lowpass", "elliptic", 8, None, 9000.0)
     res = render_file(src, s, chain, tmp_path / "out", RenderOptions(excerpt_s=2, seed=3))
     y, fs = sf.read(str(tmp_path / "out" / "chain-output.wav"), always_2d=True, dtype="float64")
@@ -330,10 +331,11 @@ def test_render_sweep_renders_the_chosen_and_the_next_narrower_case(tmp_path, wr
 def test_noise_the_analog_filter_passes_above_fs_over_2_aliases_into_the_output(response, lo, hi):
     """An analog 2nd-order lowpass at 20 kHz passes much noise above fs/2 = 24 kHz; the converter
     folds it into the output, so the rendered noise matches the model's folded total
-    (audiobw.noise.budget), not the integral of |H|² up to fs/2 only (chain-model.md)."""
+    (audiobw.noise.budget), not the integral of |H|² up to fs/2 only (chain-model.md).  The highpass
+    folds the noise the amplifier's 60 kHz pole lets through (--anti-alias none, the default)."""
     from audiobw.noise import budget
 
-    chain = Chain(bits=24)
+    chain = Chain(bits=24, amp_bandwidth_hz=60e3 if response == "highpass" else None)
     filt = design(spec(response, "butterworth", 2, lo, hi))
     y = ChainSimulator(chain, filt, FS, 1, seed=9).run(np.zeros((4 * FS, 1)))
     measured = math.sqrt(np.mean(y**2)) * math.sqrt(2) * chain.full_scale_vrms

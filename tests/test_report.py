@@ -86,7 +86,7 @@ def failing_run(tmp_path_factory):
     root = tmp_path_factory.mktemp("bp")
     out = make_sweep(root, {"response": "bandpass", "family": "bessel,elliptic", "order": "2",
                             "low_edges": "20:200:3", "high_edges": "4k:16k:4", "stage": "digital",
-                            "min_snr": "150dB", "max_loss": "1dB"}, fs=44100)
+                            "anti_alias": "ideal", "min_snr": "150dB", "max_loss": "1dB"}, fs=44100)
     paths = specmod.write_report(out)
     return {"out": out, "paths": paths, "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
             "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
@@ -376,7 +376,7 @@ def test_highpass_without_spectrum_file(tmp_path):
     """A highpass sweep (lower edge only) whose folder has no spectrum.npz: the sheet and the page still come,
     with the spectrum plot left out and the half-lower-edge stopband point given."""
     out = make_sweep(tmp_path, {"response": "highpass", "family": "butterworth", "order": "2,3",
-                                "cutoffs": "20:200:4", "max_loss": "0.5dB"})
+                                "cutoffs": "20:200:4", "max_loss": "0.5dB", "anti_alias": "ideal"})
     (out / "spectrum.npz").unlink()
     paths = specmod.write_report(out)
     spec = json.loads(paths["spec_json"].read_text(encoding="utf-8"))

@@ -60,6 +60,7 @@ CHAIN_FIELDS = {
     "dither": ("converter dither", ""),
     "stage": ("filter position (analog: ahead of the converter)", ""),
     "input_gain_db": ("gain applied to the file's program", "dB"),
+    "anti_alias": ("anti-alias model (none: everything above fs/2 folds; ideal: a brick-wall at fs/2)", ""),
 }
 NOISE_LABELS = {
     "source_thermal": "source thermal noise (4kT·Rs)",

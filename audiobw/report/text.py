@@ -208,6 +208,9 @@ def closing_paragraph(doc: dict) -> str:
             lines.append(f"Q is highest ({q['q']:.2f}, BER {ber_text(q['ber'])}) at case {q['case']}, bandwidth "
                          f"{format_quantity(q['bandwidth_hz'], 'Hz')}: narrower costs more in inter-symbol "
                          "interference than it saves in noise.")
+    aa = anti_alias_text(doc.get("chain") or {})
+    if aa:
+        lines.append(aa)
     for note in doc.get("notes", []):
         lines.append("Note: " + note)
     return "\n".join(lines)
@@ -297,6 +300,22 @@ def filter_quality_lines(c: dict, inp: dict) -> list[str]:
             text += f": {above}"
         out.append(text + ".")
     return out
+
+
+def anti_alias_text(chain: dict) -> str | None:
+    """The sweep's one anti-alias assumption in words (sweep.json ``chain.anti_alias``)."""
+    aa = chain.get("anti_alias")
+    if aa == "ideal":
+        return ("Anti-alias model: ideal (--anti-alias ideal): a brick-wall at fs/2 ahead of the converter, "
+                "so nothing above fs/2 folds, noise and harmonics alike.")
+    if aa != "none":
+        return None
+    if chain.get("stage") == "digital":
+        return ("Anti-alias model: none (the default): the converter has no anti-alias filter, so noise and "
+                "harmonics above fs/2 fold into 0 to fs/2 before the digital filter; the amplifier's bandwidth "
+                "bounds the noise.")
+    return ("Anti-alias model: none (the default): the analog candidate is the only anti-alias filter, so the "
+            "noise and harmonics it passes above fs/2 fold into 0 to fs/2 at the converter.")
 
 
 def _per_channel_occupied(inp: dict) -> str:
