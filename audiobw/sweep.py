@@ -125,7 +125,7 @@ def _round(x, sig: int = 7):
 
 
 DATA_CASE_KEYS = ("eye_fraction", "eye_opening_v", "sample_delay_ui", "noise_sigma_v", "q", "ber",
-                  "jitter_pp_ui", "ber_worst")
+                  "jitter_pp_ui", "ber_worst", "stream_sigma_v", "eye_ideal", "q_ideal", "ber_ideal")
 CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
              "design_high_hz", "bandwidth_hz", "enbw_hz", "noise_vrms", "noise_dbfs", "snr_db",
              "snr_a_db", "loss_db", "lsd_db", "ser_db", "thdn_pct", "thdn_db", "thdn_note",
