@@ -366,7 +366,8 @@ def reference_symbols(x: np.ndarray, fs_hz: float, bit_rate_hz: float, phase_ui:
     return np.where(np.interp(mid, np.arange(len(xs)), xs) >= 0.0, 1.0, -1.0)
 
 
-def recorded_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="the recording") -> RecordedStream:
+def recorded_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="the recording",
+                    recovered: bool = False) -> RecordedStream:
     """Check that ``x`` (V) carries a clocked stream at ``bit_rate_hz`` and recover its clock.
 
     Raises
@@ -378,13 +379,14 @@ def recorded_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="th
     """
     accepted = (f"accepted: a recorded two-level (NRZ) data stream of at least {MIN_STREAM_BITS} bits whose "
                 f"zero crossings fall on one bit grid (for music or speech use --program music|speech)")
+    how = " (recovered from the recording)" if recovered else ""
     n_bits = int(len(x) * bit_rate_hz / fs_hz)
     if n_bits < MIN_STREAM_BITS:
-        raise AudioFileError(f"{name}: no reliable bit clock: {n_bits} bit(s) at {bit_rate_hz:.6g} bit/s in "
+        raise AudioFileError(f"{name}: no reliable bit clock: {n_bits} bit(s) at {bit_rate_hz:.6g} bit/s{how} in "
                              f"{len(x) / fs_hz:.3g} s; {accepted}")
     phase, coherence, crossings = recover_clock(x, fs_hz, bit_rate_hz)
     if crossings < 8 or coherence < MIN_CLOCK_COHERENCE:
-        raise AudioFileError(f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s: {crossings} zero "
+        raise AudioFileError(f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s{how}: {crossings} zero "
                              f"crossings with a grid coherence of {coherence:.2f} (needs {MIN_CLOCK_COHERENCE:g}); "
                              f"{accepted}")
     x = np.asarray(x, float)
@@ -697,5 +699,6 @@ def data_program_for(analysis, chain, bit_rate) -> DataProgram:
             f"--bit-rate: {rate:g} bit/s cannot be carried at fs = {analysis.sample_rate_hz} Hz; "
             f"accepted: 0 < rate <= fs/2 = {analysis.sample_rate_hz / 2:g}")
     x, fs = read_stream(analysis.path, rate)
-    stream = recorded_stream(x * chain.volts_per_unit, fs, rate, name=str(analysis.path))
+    stream = recorded_stream(x * chain.volts_per_unit, fs, rate, name=str(analysis.path),
+                             recovered=source == "recovered")
     return DataProgram(rate, stream.level_v, source, conf, stream)

@@ -236,3 +236,23 @@ def test_an_implausible_rate_is_refused(tmp_path):
     bits, clean, _ = _stream(0.0, prefilter=False)
     with pytest.raises(AudioFileError, match=r"x\.wav: no reliable bit clock: 2 bit\(s\) at 1\.435 bit/s"):
         recorded_stream(clean, FS, 1.435, name="x.wav")
+
+
+def test_music_with_a_recovered_rate_is_refused_in_one_line(tmp_path, capsys, rng):
+    # a phrase with a strong 1.435 Hz pulse: the transition spectrum offers a "clock" of a few bit/s
+    fs = 44100
+    t = np.arange(20 * fs) / fs
+    x = sum(0.1 * np.sin(2 * np.pi * f0 * t) * (0.5 + 0.5 * np.sin(2 * np.pi * 1.435 * t) ** 8)
+            for f0 in (220.0, 277.2, 329.6, 440.0))
+    x = x + 0.3 * np.sign(np.sin(2 * np.pi * 1.435 * t)) * np.exp(-((t * 1.435) % 1) * 8) * np.sin(2 * np.pi * 80 * t)
+    x = x + rng.normal(0, 0.003, t.size)
+    path = tmp_path / "piece.wav"
+    sf.write(str(path), x, fs, subtype="FLOAT")
+    code = main(["sweep", str(path), "--program", "data", "--bit-rate", "auto", "--max-ber", "1e-6",
+                 "--out", str(tmp_path / "o")])
+    err = capsys.readouterr().err
+    lines = [ln for ln in err.splitlines() if ln.strip()]
+    assert code != 0 and len(lines) == 1, err
+    assert "piece.wav" in lines[0] and "accepted:" in lines[0]
+    assert "no reliable bit clock" in lines[0] or "no bit rate found" in lines[0]
+    assert not (tmp_path / "o" / "sweep.json").exists()
