@@ -256,3 +256,28 @@ def test_music_with_a_recovered_rate_is_refused_in_one_line(tmp_path, capsys, rn
     assert "piece.wav" in lines[0] and "accepted:" in lines[0]
     assert "no reliable bit clock" in lines[0] or "no bit rate found" in lines[0]
     assert not (tmp_path / "o" / "sweep.json").exists()
+
+
+@pytest.fixture(scope="module")
+def noisy_program(tmp_path_factory):
+    _, clean, noise = _stream(0.1)
+    return _program(tmp_path_factory.mktemp("p"), clean + noise)[0]
+
+
+def test_more_chain_noise_never_improves_q_or_ber(noisy_program):
+    """Property (hypothesis): the chain's noise adds in power, so a noisier chain never raises Q, never
+    lowers the error rate, and leaves the eye (a noiseless-chain figure) where it is."""
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    filt = design(FilterSpec("lowpass", "bessel", 4, None, 1100.0))
+
+    @settings(max_examples=12, deadline=None)
+    @given(st.floats(1e-4, 0.05), st.floats(1.01, 4.0))
+    def check(sigma, factor):
+        a = score_data(filt, noisy_program, sigma)
+        b = score_data(filt, noisy_program, sigma * factor)
+        assert b["q"] < a["q"] and b["ber"] >= a["ber"] and b["ber_worst"] >= a["ber_worst"]
+        assert b["eye_fraction"] == a["eye_fraction"]
+
+    check()
