@@ -193,6 +193,7 @@ def test_render_and_sweep_eye_agree(tmp_path, capsys):
     ones = bits[judged] > 0
     eye = max((y[judged * SPB + lag][ones].min() - y[judged * SPB + lag][~ones].max()) / (2 * A * gain)
               for lag in range(4 * SPB))
+    print(f"render eye {eye:.4f}, sweep eye {row['eye_fraction']:.4f}, ideal {row['eye_ideal']:.4f}")
     assert row["eye_fraction"] == pytest.approx(eye, abs=0.02)
     assert row["eye_fraction"] < row["eye_ideal"] - 0.05
 
