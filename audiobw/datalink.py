@@ -1,8 +1,24 @@
 """Data and pulse programs: the bandwidth a bit stream needs, its eye and its error rate.
 
-For a polar NRZ stream of bit period T = 1/R through a candidate filter, the
-channel's unit pulse response y(t) is computed from the case's response (in
-the frequency domain, never by filtering the file), and then:
+Two views of each candidate, both reported:
+
+**Measured on the recording** (``eye_fraction``, ``q``, ``ber``,
+``ber_worst``): the recorded stream — its own channel and noise included — is
+passed through the candidate in the frequency domain (one FFT of the stream,
+times H(f) of the case, inverse FFT), the bit clock is recovered from the
+recording's zero crossings, and at each trial instant the samples are sorted
+by the bit each carries (the recording sliced at the middle of its own bits).
+A least-squares fit of each sample on its own and its neighbours' symbols
+(linear inter-symbol interference; Proakis & Salehi §9.2) gives the level
+means conditioned on the pattern (the channel's cursors) and, in its
+residual, the recording's own noise at the decision point.  The chain's
+modelled noise is added in power to that variance.  See :func:`measure_stream`.
+
+**Ideal pulse** (``eye_ideal``, ``q_ideal``, ``ber_ideal``): the candidate
+alone on a perfect NRZ stream.  For a polar NRZ stream of bit period T = 1/R
+through a candidate filter, the channel's unit pulse response y(t) is
+computed from the case's response (in the frequency domain, never by
+filtering the file), and then:
 
 * worst-case vertical eye opening at the best sampling instant, by
   peak-distortion analysis of inter-symbol interference: for sampling phase
@@ -32,12 +48,15 @@ References
    of binary antipodal signalling, ½·erfc(√(Eb/N0))).
 .. [3] ITU-T O.150 (05/96), §5: pseudo-random test patterns (2^7 − 1,
    2^9 − 1, 2^15 − 1 and their generator polynomials).
+.. [4] S. D. Personick, "Receiver design for digital fiber optic
+   communication systems", Bell Syst. Tech. J. 52(6), 843–874, 1973 (the
+   Q-factor of two Gaussian levels, BER = ½·erfc(Q/√2); from memory).
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -47,6 +66,15 @@ from .errors import AudioFileError, ParameterError
 PRBS_TAPS = {"prbs7": (7, 6), "prbs9": (9, 5), "prbs15": (15, 14)}
 PATTERNS = tuple(PRBS_TAPS) + ("alternating", "random")
 OVERSAMPLE = 64  # fine-grid samples per bit for the pulse response (analog stage)
+#: At most this many bits of a recorded stream are measured (data files are short; the cost is one FFT per case).
+MAX_STREAM_BITS = 8192
+#: A recording needs at least this many bits for its levels' statistics and a clock.
+MIN_STREAM_BITS = 64
+#: Zero crossings of a clocked stream fall on one bit grid: the resultant length of their phases
+#: (1 = every crossing on the grid, about 0 for a program with no clock) must reach this.
+MIN_CLOCK_COHERENCE = 0.5
+#: Trial sampling instants per unit interval in the measured eye.
+PHASES_PER_UI = 32
 
 
 def prbs(name: str, n_bits: int, *, seed: int = 1) -> np.ndarray:
@@ -255,6 +283,254 @@ def ber_from_q(q: float) -> float:
 
 
 @dataclass(frozen=True)
+class RecordedStream:
+    """The recorded data stream the measured figures are taken on.
+
+    Parameters
+    ----------
+    samples_v : ndarray
+        The recording (channel mean) in V at the converter input, at most
+        :data:`MAX_STREAM_BITS` bits plus a margin.
+    fs_hz : float
+    clock_phase_ui : float, 0 <= phase < 1
+        The recovered bit boundaries: bit i spans (i + phase)·T … (i + 1 + phase)·T
+        after the first sample.
+    coherence : float, 0…1
+        Resultant length of the zero crossings' phases on the bit grid.
+    n_bits : int
+        Whole bits in ``samples_v``.
+    symbols : ndarray
+        The bits it carries (±1, :func:`reference_symbols`).
+    name : str
+        The file, for messages.
+    level_v : float
+        The recording's NRZ amplitude A (V): the settled level of long runs,
+        Σ h_k of its cursors fitted at the middle of its bits (on the smoothed
+        stream, whose gain at DC is 1) — exactly A for a
+        clean ±A NRZ and for a stream already low-passed (whatever its
+        overshoot); where the recording blocks DC (Σ h_k under half its rms)
+        its rms.  The unfiltered opening the eye is a fraction of is 2A.
+    """
+
+    samples_v: np.ndarray = field(repr=False)
+    fs_hz: float
+    clock_phase_ui: float
+    coherence: float
+    n_bits: int
+    level_v: float
+    symbols: np.ndarray = field(repr=False)
+    name: str = "the recording"
+
+
+def smoothed_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float) -> np.ndarray:
+    """``x`` less its mean through a zero-phase Gaussian lowpass (|H| = e^(−f²/2R²), R the bit rate).
+
+    Wide-band noise makes many spurious crossings and wrong slices; a
+    zero-phase filter removes it without moving the crossings of the stream
+    (common practice in clock recovery: filter, then detect transitions).
+    """
+    from scipy import fft as sfft
+
+    xc = np.asarray(x, float) - float(np.mean(x))
+    n = sfft.next_fast_len(len(xc), real=True)
+    f = np.fft.rfftfreq(n, 1.0 / fs_hz)
+    return sfft.irfft(sfft.rfft(xc, n) * np.exp(-0.5 * (f / bit_rate_hz) ** 2), n)[: len(xc)]
+
+
+def recover_clock(x: np.ndarray, fs_hz: float, bit_rate_hz: float) -> tuple[float, float, int]:
+    """Bit-boundary phase of a recorded stream from its zero crossings.
+
+    Each crossing of the mean of the smoothed stream (:func:`smoothed_stream`;
+    interpolated between samples) is taken modulo the bit period; the circular
+    mean of those phases is the boundary phase and their resultant length
+    ``|mean(e^{j2πt/T})|`` the coherence (1 when every crossing falls on one
+    grid; near 0 for a program with no clock).
+
+    Returns ``(phase_ui, coherence, crossings)``.
+    """
+    xc = smoothed_stream(x, fs_hz, bit_rate_hz)
+    s = np.signbit(xc)
+    idx = np.nonzero(s[:-1] != s[1:])[0]
+    if idx.size == 0:
+        return 0.0, 0.0, 0
+    den = xc[idx] - xc[idx + 1]
+    frac = np.where(den != 0, xc[idx] / np.where(den != 0, den, 1.0), 0.5)
+    t_ui = (idx + frac) * bit_rate_hz / fs_hz
+    z = np.mean(np.exp(2j * np.pi * t_ui))
+    return float((np.angle(z) / (2 * np.pi)) % 1.0), float(abs(z)), int(idx.size)
+
+
+def reference_symbols(x: np.ndarray, fs_hz: float, bit_rate_hz: float, phase_ui: float, n_bits: int) -> np.ndarray:
+    """The bits the recording carries (±1): its smoothed stream sliced at the middle of each bit."""
+    xs = smoothed_stream(x, fs_hz, bit_rate_hz)
+    mid = (np.arange(n_bits) + phase_ui + 0.5) * fs_hz / bit_rate_hz
+    return np.where(np.interp(mid, np.arange(len(xs)), xs) >= 0.0, 1.0, -1.0)
+
+
+def recorded_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="the recording",
+                    recovered: bool = False) -> RecordedStream:
+    """Check that ``x`` (V) carries a clocked stream at ``bit_rate_hz`` and recover its clock.
+
+    Raises
+    ------
+    AudioFileError
+        Fewer than :data:`MIN_STREAM_BITS` bits, or zero crossings that do not
+        fall on one bit grid (coherence below :data:`MIN_CLOCK_COHERENCE`): no
+        reliable clock, so no eye can be measured.
+    """
+    accepted = (f"accepted: a recorded two-level (NRZ) data stream of at least {MIN_STREAM_BITS} bits whose "
+                f"zero crossings fall on one bit grid (for music or speech use --program music|speech)")
+    how = " (recovered from the recording)" if recovered else ""
+    n_bits = int(len(x) * bit_rate_hz / fs_hz)
+    if n_bits < MIN_STREAM_BITS:
+        raise AudioFileError(f"{name}: no reliable bit clock: {n_bits} bit(s) at {bit_rate_hz:.6g} bit/s{how} in "
+                             f"{len(x) / fs_hz:.3g} s; {accepted}")
+    phase, coherence, crossings = recover_clock(x, fs_hz, bit_rate_hz)
+    if crossings < 8 or coherence < MIN_CLOCK_COHERENCE:
+        raise AudioFileError(f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s{how}: {crossings} zero "
+                             f"crossings with a grid coherence of {coherence:.2f} (needs {MIN_CLOCK_COHERENCE:g}); "
+                             f"{accepted}")
+    x = np.asarray(x, float)
+    xs = smoothed_stream(x, fs_hz, bit_rate_hz)   # unit gain at DC: long runs keep their level
+    mid = (np.arange(n_bits - 1) + phase + 0.5) * fs_hz / bit_rate_hz
+    ref = np.interp(mid, np.arange(len(xs)), xs)
+    a = np.where(ref >= 0.0, 1.0, -1.0)
+    pre, post = 3, 16
+    rows = np.arange(post, len(a) - pre)
+    design_m = np.column_stack([a[rows - k] for k in range(-pre, post + 1)] + [np.ones(rows.size)])
+    coef, *_ = np.linalg.lstsq(design_m, ref[rows], rcond=None)
+    level = float(np.sum(coef[:-1]))
+    rms = float(np.std(x))
+    if level < 0.5 * rms:
+        level = rms
+    if not level > 0:
+        raise AudioFileError(f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s: the bits carry no "
+                             f"level; {accepted}")
+    return RecordedStream(x, float(fs_hz), phase, coherence, n_bits, level, a, str(name))
+
+
+def _tail_bits(y: np.ndarray, share: float = 1e-9) -> int:
+    """Bits of the pulse response holding all but ``share`` of its energy."""
+    e = np.cumsum(np.sum(y**2, axis=1))
+    if e[-1] <= 0:
+        return 1
+    return int(np.searchsorted(e, (1.0 - share) * e[-1])) + 1
+
+
+def filtered_stream(filt, stream: RecordedStream, pad_samples: int, upsample: int = 1) -> np.ndarray:
+    """The recorded stream through ``filt``: one FFT, times H(f), inverse FFT (zero history).
+
+    The stream is zero-padded by ``pad_samples`` so the circular convolution
+    equals the linear one over the stream; ``upsample`` > 1 interpolates
+    band-limited (zeros above fs/2) onto a grid that much finer.
+    """
+    from scipy import fft as sfft
+
+    x = stream.samples_v
+    n = sfft.next_fast_len(len(x) + pad_samples, real=True)
+    spec = sfft.rfft(x, n)
+    spec = spec * complex_response(filt, np.fft.rfftfreq(n, 1.0 / stream.fs_hz))
+    if upsample > 1:
+        wide = np.zeros(n * upsample // 2 + 1, dtype=complex)
+        wide[: spec.size] = spec
+        return sfft.irfft(wide, n * upsample) * upsample
+    return sfft.irfft(spec, n)
+
+
+def measure_stream(filt, program: DataProgram, chain_sigma_v: float, y: np.ndarray, k0: int, j0: int) -> dict:
+    """Eye, Q and BER of the recorded stream through one candidate.
+
+    Method (per case):
+
+    1. The stream through the candidate (:func:`filtered_stream`), sampled at
+       trial instants (i + φ + d)·T for bit i — φ the recovered boundary
+       phase, d on a grid of :data:`PHASES_PER_UI` per UI over ±1 UI around
+       the ideal pulse's best instant.
+    2. Reference symbols aᵢ = ±1: the recording, smoothed by a zero-phase
+       lowpass at the bit rate, sliced at the middle of its own bits.
+    3. At each instant, least squares sᵢ = c + Σ_k h_k·a_{i−k} (3 precursors,
+       postcursors as long as the candidate's pulse holds energy, at most 32):
+       h₀ is the main cursor, the fitted values are the level means
+       conditioned on the pattern, the residual rms σ_rec the recording's own
+       noise at the decision point.  σ² = σ_rec² + σ_chain².
+    4. ``q`` = (h₀ − Σ_{k≠0}|h_k|)/σ (the half-opening of the noiseless eye
+       over the noise), best over the instants; ``ber`` the mean over the
+       recorded bits of ½·erfc(mᵢ/(σ√2)) (mᵢ each bit's fitted margin), at
+       its own best instant among the nine of highest Q; ``ber_worst`` =
+       ½·erfc(q/√2).
+    5. ``eye_fraction``: (min over the ones − max over the zeros) of the
+       samples as they are (recorded noise included), best instant, over the
+       unfiltered opening 2A — what an eye diagram of the output shows.
+    """
+    from scipy.special import erfc
+
+    st = program.stream
+    assert st is not None
+    rate, fs = program.bit_rate_hz, st.fs_hz
+    spb = fs / rate
+    tail = min(_tail_bits(y), y.shape[0])
+    pre = 3
+    post = int(min(max(tail, 4), 48, max(4, (st.n_bits - pre) // 5)))
+    up = max(1, math.ceil(16.0 / spb))
+    centre = k0 + j0 / y.shape[1]
+    d = centre + np.arange(-PHASES_PER_UI, PHASES_PER_UI + 1) / PHASES_PER_UI
+    d = d[d >= 0]
+    pad = int(math.ceil((max(tail, post) + d[-1] + 2) * spb))
+    out = filtered_stream(filt, st, pad, up)
+    n_bits = st.n_bits - 1
+    a = st.symbols[:n_bits]
+    # the case starts from rest: skip its settling (at most a quarter of the stream: a slow AC coupling's
+    # tail lasts longer, and its start-up then counts as the baseline wander it is)
+    first = max(post, min(tail, n_bits // 4))
+    judged = np.arange(first, n_bits - pre)
+    ones = a[judged] > 0
+    if judged.size < 2 * (pre + post + 2) or ones.all() or not ones.any():
+        raise AudioFileError(f"{st.name}: {judged.size} bits left to measure after the filter settles, "
+                             f"{int(ones.sum())} of them ones; accepted: a longer stream with both levels")
+    pos = (judged[:, None] + st.clock_phase_ui + d[None, :]) * spb * up
+    samples = np.interp(pos, np.arange(out.size), out)                 # (bits, instants)
+    design_m = np.column_stack([a[judged - k] for k in range(-pre, post + 1)] + [np.ones(judged.size)])
+    # normal equations: ±1 symbols of a stream with both levels make a well-conditioned Gram matrix
+    # (a constant run would be singular; lstsq then), and this is ~50× faster than an SVD per case
+    gram = design_m.T @ design_m
+    rhs = design_m.T @ samples
+    try:
+        coef = np.linalg.solve(gram, rhs)
+    except np.linalg.LinAlgError:
+        coef = np.linalg.lstsq(design_m, samples, rcond=None)[0]
+    dof = max(judged.size - design_m.shape[1], 1)
+    # residual sum of squares of a least-squares fit: |s|² − coefᵀ·Aᵀs
+    var_rec = np.maximum(np.sum(samples**2, axis=0) - np.sum(coef * rhs, axis=0), 0.0) / dof
+    cursors = coef[:-1]
+    half = cursors[pre] - (np.sum(np.abs(cursors), axis=0) - np.abs(cursors[pre]))
+    sigma = np.sqrt(var_rec + chain_sigma_v**2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q_all = np.where(half > 0, np.where(sigma > 0, half / sigma, np.inf), 0.0)
+    iq = int(np.argmax(q_all))
+    q = float(q_all[iq])
+    # the average error rate at its own best instant, searched among the nine highest-Q instants
+    near = np.argsort(-q_all, kind="stable")[:9]
+    margins = (design_m[:, :-1] @ cursors[:, near]) * a[judged][:, None]
+    if np.all(sigma[near] > 0):
+        p = 0.5 * erfc(margins / (sigma[near][None, :] * math.sqrt(2.0)))
+    else:
+        p = np.where(margins > 0, 0.0, np.where(margins < 0, 1.0, 0.5))
+    ber = float(np.min(p.mean(axis=0)))
+    opening = samples[ones].min(axis=0) - samples[~ones].max(axis=0)
+    ie = int(np.argmax(opening))
+    eye = max(float(opening[ie]), 0.0) / (2.0 * program.amplitude_v)
+    return {
+        "eye_fraction": eye,
+        "eye_opening_v": 2.0 * program.amplitude_v * eye,
+        "sample_delay_ui": float(d[iq]),
+        "q": q if math.isfinite(q) else None,
+        "ber": ber,
+        "ber_worst": ber_from_q(q) if q > 0 else 0.5,
+        "stream_sigma_v": float(math.sqrt(var_rec[iq])),
+    }
+
+
+@dataclass(frozen=True)
 class DataProgram:
     """What the data metrics need from the program: bit rate and amplitude.
 
@@ -268,12 +544,17 @@ class DataProgram:
     confidence_db : float or None
         For a recovered rate: the clock line's height over the median of the
         transition spectrum, dB.
+    stream : RecordedStream, optional
+        The recorded samples: the figures are then measured on them through
+        each case (:func:`measure_stream`); without it, only the ideal-pulse
+        figures exist and they stand in for the measured ones.
     """
 
     bit_rate_hz: float
     amplitude_v: float
     source: str = "given"
     confidence_db: float | None = None
+    stream: RecordedStream | None = field(default=None, compare=False, repr=False)
 
     @property
     def nyquist_min_hz(self) -> float:
@@ -281,19 +562,32 @@ class DataProgram:
         return self.bit_rate_hz / 2.0
 
     def to_json(self) -> dict:
-        return {"bit_rate_hz": self.bit_rate_hz, "bit_rate_source": self.source,
-                "bit_rate_confidence_db": self.confidence_db, "amplitude_v": self.amplitude_v,
-                "nyquist_min_hz": self.nyquist_min_hz}
+        doc = {"bit_rate_hz": self.bit_rate_hz, "bit_rate_source": self.source,
+               "bit_rate_confidence_db": self.confidence_db, "amplitude_v": self.amplitude_v,
+               "nyquist_min_hz": self.nyquist_min_hz,
+               "eye_basis": "recording" if self.stream is not None else "ideal pulse"}
+        if self.stream is not None:
+            doc.update(bits_measured=self.stream.n_bits, clock_phase_ui=self.stream.clock_phase_ui,
+                       clock_coherence=self.stream.coherence)
+        return doc
 
 
 def score_data(filt, program: DataProgram, noise_sigma_v: float) -> dict:
-    """The data-link metrics of one candidate (a plain mapping)."""
+    """The data-link metrics of one candidate (a plain mapping).
+
+    ``noise_sigma_v`` is the chain's modelled noise at the decision point.
+    With a recorded stream (``program.stream``) ``eye_fraction``, ``q``,
+    ``ber``, ``ber_worst`` and ``sample_delay_ui`` are measured on it
+    (:func:`measure_stream`); the ideal-pulse figures are always kept as
+    ``eye_ideal``, ``q_ideal`` and ``ber_ideal``.
+    """
     y = pulse_response(filt, program.bit_rate_hz)
     opening, k0, j0 = eye_from_pulse(y)
     eye = max(opening, 0.0)
     half_v = program.amplitude_v * eye
     q = half_v / noise_sigma_v if noise_sigma_v > 0 else math.inf
-    return {
+    ber_avg = average_ber(y, noise_sigma_v / program.amplitude_v)[0]
+    row = {
         "eye_fraction": eye,
         "eye_opening_v": 2 * half_v,
         "sample_delay_ui": k0 + j0 / y.shape[1],
@@ -301,10 +595,17 @@ def score_data(filt, program: DataProgram, noise_sigma_v: float) -> dict:
         "q": q if math.isfinite(q) else None,
         # the average over the pattern at its best instant (what --max-ber tests) and the
         # peak-distortion bound (the worst pattern at the worst-case eye's instant)
-        "ber": average_ber(y, noise_sigma_v / program.amplitude_v)[0],
+        "ber": ber_avg,
         "ber_worst": ber_from_q(q) if eye > 0 else 0.5,
         "jitter_pp_ui": crossing_jitter_ui(y),
+        "stream_sigma_v": 0.0,
+        "eye_ideal": eye,
+        "q_ideal": q if math.isfinite(q) else None,
+        "ber_ideal": ber_avg,
     }
+    if program.stream is not None:
+        row.update(measure_stream(filt, program, noise_sigma_v, y, k0, j0))
+    return row
 
 
 def recover_bit_rate(path, *, max_seconds: float = 60.0, min_confidence_db: float = 20.0):
@@ -365,11 +666,29 @@ def recover_bit_rate(path, *, max_seconds: float = 60.0, min_confidence_db: floa
     return float((k + shift) * fs / n), confidence
 
 
+def read_stream(path, bit_rate_hz: float, *, max_bits: int = MAX_STREAM_BITS) -> tuple[np.ndarray, float]:
+    """The first ``max_bits`` bits (plus a settling margin) of ``path``, channel mean, sample units."""
+    from .audio import iter_blocks, open_info
+
+    fs = open_info(path).sample_rate_hz
+    need = int(math.ceil((max_bits + 128) * fs / bit_rate_hz))
+    parts, got = [], 0
+    for block in iter_blocks(path):
+        parts.append(block.mean(axis=1))
+        got += block.shape[0]
+        if got >= need:
+            break
+    return (np.concatenate(parts)[:need] if parts else np.zeros(0)), float(fs)
+
+
 def data_program_for(analysis, chain, bit_rate) -> DataProgram:
-    """Build the DataProgram of an analysed file: the given or recovered bit rate and the NRZ amplitude.
+    """Build the DataProgram of an analysed file: bit rate, NRZ amplitude and the recorded stream.
 
     ``bit_rate`` is a float in Hz or the string 'auto'.  The amplitude is the
-    program's rms (exact for polar NRZ) in volts at the converter input.
+    recording's own outer level (:attr:`RecordedStream.level_v`; its rms for a
+    clean polar NRZ) in volts at the converter input.  The recording's clock is recovered from its zero crossings; a program with no
+    reliable clock (too few bits, or crossings on no common bit grid: music
+    or speech swept as data) is refused with :class:`AudioFileError`.
     """
     if bit_rate == "auto":
         rate, conf = recover_bit_rate(analysis.path)
@@ -380,5 +699,7 @@ def data_program_for(analysis, chain, bit_rate) -> DataProgram:
         raise ParameterError(
             f"--bit-rate: {rate:g} bit/s cannot be carried at fs = {analysis.sample_rate_hz} Hz; "
             f"accepted: 0 < rate <= fs/2 = {analysis.sample_rate_hz / 2:g}")
-    rms = math.sqrt(float(np.mean(analysis.mean_square)))
-    return DataProgram(rate, rms * chain.volts_per_unit, source, conf)
+    x, fs = read_stream(analysis.path, rate)
+    stream = recorded_stream(x * chain.volts_per_unit, fs, rate, name=str(analysis.path),
+                             recovered=source == "recovered")
+    return DataProgram(rate, stream.level_v, source, conf, stream)

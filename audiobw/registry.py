@@ -150,12 +150,16 @@ METRICS: tuple[Metric, ...] = (
     Metric("sample_delay_ui", "sampling instant", "UI", 3, median=True),
     Metric("noise_sigma_v", "noise σ", "V", 3, column=Column("σ", "µV", "{:>8.2f}", data=21, show="noise_sigma_uv"),
            median=True),
-    Metric("q", "Q", "", 3, column=Column("Q", "", "{:>8.2f}", data=23), median=True),
+    Metric("q", "Q", "", 3, column=Column("Q", "", "{:>8.3g}", data=23), median=True),
     Metric("ber", "bit-error rate", "", 3,
            _t("max_ber", "max_ber", -1, "probability", "target (data programs): maximum bit-error rate, e.g. 1e-9", 7),
            Column("BER", "", "{:>9.2e}", data=24), median=True),
     Metric("jitter_pp_ui", "jitter", "UI", 3, column=Column("jitter", "UI", "{:>7.3f}", data=25), median=True),
     Metric("ber_worst", "worst-pattern bit-error rate", "", 3),
+    Metric("stream_sigma_v", "the recording's own noise σ", "V", 3),
+    Metric("eye_ideal", "eye opening of the ideal pulse", "", 3),
+    Metric("q_ideal", "Q of the ideal pulse", "", 3),
+    Metric("ber_ideal", "bit-error rate of the ideal pulse", "", 3),
 )
 
 BY_KEY: dict[str, Metric] = {m.key: m for m in METRICS}

@@ -637,8 +637,17 @@ def render_sweep(doc: dict, input_path, settings, out_dir, options: RenderOption
             from .report.eye import eye_diagram
 
             paths.append(eye_diagram(out_dir / folder / "chain-output.wav", doc["data"]["bit_rate_hz"],
-                                     out_dir / folder / "eye.png", sample_delay_ui=case.get("sample_delay_ui")))
+                                     out_dir / folder / "eye.png", sample_delay_ui=_instant(doc, case)))
     return paths
+
+
+def _instant(doc: dict, case: dict) -> float | None:
+    """The best sampling instant on the eye diagram's grid (bit boundaries at whole UIs from the first
+    sample): the sweep's instant after the recording's recovered boundary, plus that boundary's phase."""
+    delay = case.get("sample_delay_ui")
+    if delay is None:
+        return None
+    return float(delay) + float(doc.get("data", {}).get("clock_phase_ui") or 0.0)
 
 
 # -- scoring blind trials ----------------------------------------------------------------

@@ -361,7 +361,8 @@ def noise_figures(chain, filt, doc: dict, case: dict) -> dict:
     }
 
 
-DATA_LINK_KEYS = ("eye_fraction", "eye_opening_v", "q", "ber", "jitter_pp_ui", "sample_delay_ui")
+DATA_LINK_KEYS = ("eye_fraction", "eye_opening_v", "q", "ber", "jitter_pp_ui", "sample_delay_ui", "eye_ideal",
+                  "q_ideal")
 
 
 def _data_link(doc: dict, subject: dict) -> dict | None:
@@ -599,6 +600,8 @@ def spec_rows(spec: dict) -> list[tuple[str, str, str, object]]:
              f"{dl['eye_fraction']:.3f}" if dl["eye_fraction"] is not None else "—", "data_link.eye_fraction"),
             ("Data link", "eye opening", fmt(dl["eye_opening_v"], "V"), "data_link.eye_opening_v"),
             ("Data link", "Q factor", f"{dl['q']:.3g}" if dl["q"] is not None else "—", "data_link.q"),
+            ("Data link", "eye opening of the filter alone on a perfect stream (ideal pulse)",
+             f"{dl['eye_ideal']:.3f}" if dl.get("eye_ideal") is not None else "—", "data_link.eye_ideal"),
             ("Data link", "bit-error rate", metric_value_text("ber", dl["ber"]), "data_link.ber"),
             ("Data link", "peak-to-peak jitter", f"{dl['jitter_pp_ui']:.3g} UI" if dl["jitter_pp_ui"] is not None
              else "—", "data_link.jitter_pp_ui"),

@@ -78,7 +78,7 @@ def _fmt_metric(key: str, value) -> str:
     if key == "eye_fraction":
         return f"{100 * value:.1f} % of the unfiltered opening"
     if key == "q":
-        return f"{value:.2f} (eye half-opening over the noise σ)"
+        return q_text(value)
     if key == "sii":
         return f"{value:.3f}"
     if key == "audible_frames_pct":
@@ -96,6 +96,22 @@ def _fmt_metric(key: str, value) -> str:
 
 #: the smallest BER printed as a number; below it the Gaussian tail underflows a double
 BER_FLOOR = 1e-300
+
+
+#: above this Q the Gaussian error rate ½·erfc(Q/√2) is below 1e-300 (Q = 37.0 gives 1.6e-300)
+Q_FLOOR = 37.0
+
+
+def q_text(value) -> str:
+    """Q for people: the number, in dB (20·lg Q, common practice), and what it means at the extremes."""
+    if value is None:
+        return "unbounded (no noise at the decision point)"
+    if value <= 0:
+        return "0 (the eye is closed)"
+    text = f"{value:.3g} ({20 * math.log10(value):.1f} dB; half the noiseless eye over the noise σ"
+    if value > Q_FLOOR:
+        text += f"; above {Q_FLOOR:g} the Gaussian error rate is below 1e-300"
+    return text + ")"
 
 
 def ber_text(value) -> str:
@@ -203,9 +219,24 @@ def closing_paragraph(doc: dict) -> str:
             rate += f" (recovered from the recording, clock line {d['bit_rate_confidence_db']:.1f} dB up)"
         lines.append(f"Bit rate {rate}; the Nyquist minimum bandwidth 1/(2T) is "
                      f"{format_quantity(d['nyquist_min_hz'], 'Hz')}.")
+        chosen = cases.get(choice["case"]) if choice else None
+        if chosen is not None and chosen["bandwidth_hz"] < d["nyquist_min_hz"]:
+            eye = chosen.get("eye_fraction")
+            lines.append(f"The chosen passband ({format_quantity(chosen['bandwidth_hz'], 'Hz')}) is narrower than "
+                         "1/(2T): a shaped pulse can pass below the Nyquist minimum at a cost in eye"
+                         + (f" (here {100 * eye:.1f} % of the unfiltered opening)." if eye is not None else "."))
+        if d.get("eye_basis") == "recording":
+            ideal = ""
+            if chosen is not None and chosen.get("eye_ideal") is not None:
+                q_i = chosen.get("q_ideal")
+                ideal = (f"; the chosen case alone on a perfect stream has eye {100 * chosen['eye_ideal']:.1f} %, "
+                         f"Q {'unbounded' if q_i is None else format(q_i, '.3g')}")
+            lines.append(f"Eye, Q and BER are measured on the recorded stream through each case "
+                         f"({d['bits_measured']} bits, its own channel and noise included){ideal}.")
         q = d.get("q_optimal")
         if q:
-            lines.append(f"Q is highest ({q['q']:.2f}, BER {ber_text(q['ber'])}) at case {q['case']}, bandwidth "
+            q_num = "unbounded" if q["q"] is None else f"{q['q']:.3g}"
+            lines.append(f"Q is highest ({q_num}, BER {ber_text(q['ber'])}) at case {q['case']}, bandwidth "
                          f"{format_quantity(q['bandwidth_hz'], 'Hz')}: narrower costs more in inter-symbol "
                          "interference than it saves in noise.")
     aa = anti_alias_text(doc.get("chain") or {})

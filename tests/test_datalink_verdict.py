@@ -1,0 +1,55 @@
+"""Issue 13, data mode: the verdict explains the Nyquist minimum, prints BER and Q with sense."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import pytest
+
+from audiobw.cli import main
+from audiobw.report.text import Q_FLOOR, q_text
+
+
+@pytest.fixture(scope="module")
+def narrow_choice(tmp_path_factory):
+    """A clean 1200 bit/s stream with an eye target a Bessel 4 below 600 Hz meets."""
+    d = tmp_path_factory.mktemp("v")
+    stream = d / "b.flac"
+    assert main(["bits", "--bit-rate", "1200", "--bits-count", "1024", "--out", str(stream)]) == 0
+    return d, stream
+
+
+def test_a_choice_below_the_nyquist_minimum_is_explained(narrow_choice, capsys):
+    d, stream = narrow_choice
+    capsys.readouterr()
+    out = d / "s"
+    assert main(["sweep", str(stream), "--program", "data", "--bit-rate", "1200", "--min-eye", "0.5",
+                 "--response", "lowpass", "--family", "bessel", "--order", "4", "--cutoffs", "300:8k:8",
+                 "--out", str(out)]) == 0
+    text = capsys.readouterr().out
+    doc = json.loads((out / "sweep.json").read_text())
+    chosen = next(c for c in doc["cases"] if c["id"] == doc["choice"]["case"])
+    assert chosen["bandwidth_hz"] < doc["data"]["nyquist_min_hz"]          # the premise
+    line = next(ln for ln in text.splitlines() if "narrower than 1/(2T)" in ln)
+    assert "a shaped pulse can pass below the Nyquist minimum at a cost in eye" in line
+    assert f"{100 * chosen['eye_fraction']:.1f} % of the unfiltered opening" in line
+    assert "measured on the recorded stream" in text
+
+
+def test_a_choice_above_the_nyquist_minimum_needs_no_explanation(narrow_choice, capsys):
+    d, stream = narrow_choice
+    capsys.readouterr()
+    assert main(["sweep", str(stream), "--program", "data", "--bit-rate", "1200", "--min-eye", "0.5",
+                 "--response", "lowpass", "--family", "bessel", "--order", "4", "--cutoffs", "1k:8k:3",
+                 "--out", str(d / "w")]) == 0
+    assert "narrower than 1/(2T)" not in capsys.readouterr().out
+
+
+def test_q_reads_as_a_number_with_sense():
+    # ½·erfc(37/√2) = 1.6e-300 (math.erfc): above Q 37 the Gaussian error rate leaves the double range
+    assert 0.5 * math.erfc(Q_FLOOR / math.sqrt(2)) == pytest.approx(1.6e-300, rel=0.05)
+    assert q_text(9.816) == "9.82 (19.8 dB; half the noiseless eye over the noise σ)"
+    big = q_text(5287.0)
+    assert big.startswith("5.29e+03 (74.5 dB;") and "below 1e-300" in big
+    assert q_text(None).startswith("unbounded") and q_text(0.0).startswith("0 (the eye is closed)")
