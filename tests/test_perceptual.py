@@ -7,6 +7,7 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from audiobw.perceptual import masking, sii, threshold, wiener
+from audiobw.metrics import best_delay
 
 
 # ---------------------------------------------------------------- threshold in quiet
@@ -269,9 +270,23 @@ def test_best_delay_recovers_a_pure_delay():
     s = 1.0 / (1 + (f / 3000.0) ** 2)
     tau0 = 0.73e-3
     h = np.exp(-2j * np.pi * f * tau0)
-    tau = wiener.best_delay(h, s, f, w)
+    tau = best_delay(s, h, f, w)[0]
     assert tau == pytest.approx(tau0, abs=2e-6)
     assert wiener.filter_mse(h, s, 0.0, 0.0, f, w, tau) < 1e-3 * np.sum(w * s)
+
+
+def test_best_delay_in_a_causal_window_stays_in_it():
+    # A program of harmonics every 500 Hz makes the cross term periodic in 2 ms: the
+    # unrestricted search may land on any period, the windowed one (the perceptual
+    # scorer's) finds the filter's own delay, 0.3 ms, and never a negative one.
+    f = np.arange(0, 24000.0, 5.0)
+    w = np.full(f.size, 5.0)
+    s = np.where(np.isclose(f % 500.0, 0.0) & (f > 0), 1.0, 1e-9)
+    tau0 = 0.3e-3
+    h = np.exp(-2j * np.pi * f * tau0)
+    tau = best_delay(s, h, f, w, max_delay_s=1e-3)[0]
+    assert tau == pytest.approx(tau0, abs=2e-6)
+    assert best_delay(s, np.ones(f.size, complex), f, w, max_delay_s=1e-3)[0] == pytest.approx(0.0, abs=1e-9)
 
 
 def test_removed_part_never_grows_with_a_wider_butterworth():
@@ -285,6 +300,6 @@ def test_removed_part_never_grows_with_a_wider_butterworth():
     for fc in (3000, 6000, 9000, 12000, 16000):
         sos = butter(4, fc, fs=fs, output="sos")
         _, h = sosfreqz(sos, worN=f, fs=fs)
-        tau = wiener.best_delay(h, s, f, w)
+        tau = best_delay(s, h, f, w)[0]
         removed.append(np.sum(w * wiener.removed_psd(h, s, f, tau)))
     assert np.all(np.diff(removed) < 0)

@@ -28,6 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..metrics import best_delay
 from . import masking, sii, threshold, wiener
 
 #: Default playback level by program kind (dB SPL): speech at ANSI S3.5-1997
@@ -134,7 +135,7 @@ class PerceptualScorer:
     def _delay(self, h, f, w) -> float:
         """Best delay, searched up to twice the filter's largest passband group delay (+ 2 samples)."""
         limit = 2.0 * max(wiener.passband_group_delay_s(h, f), 0.0) + 2.0 / self.analysis.sample_rate_hz
-        return wiener.best_delay(h, self.S, f, w, max_delay_s=limit)
+        return best_delay(self.S, h, f, w, max_delay_s=limit)[0]
 
     def _heard_share(self, h, f, w, tau) -> np.ndarray:
         """Share of each critical band's program power that the filter changes, as heard.
