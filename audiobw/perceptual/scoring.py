@@ -160,9 +160,26 @@ class PerceptualScorer:
         return np.divide(err, self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
 
     def limits(self) -> dict:
-        """Top-level figures of the program and chain (no filter)."""
+        """Top-level figures of the program and chain (no filter), and the playback conditions."""
+        hl = self.listening.audiogram_hl
         return {"wiener_ser_db": _db(self.p_total / self.mse_min) if self.mse_min > 0 else None,
-                "playback_spl_db": self.listening.spl_db}
+                "playback_spl_db": self.listening.spl_db, "program": self.listening.program,
+                "hearing_threshold_hl": [[float(k), float(hl[k])] for k in sorted(hl)] if hl else None}
+
+    def band_errors(self, filt, noise_psd):
+        """(error, delay) of one filter: error power per kept frame and critical band, re (20 µPa)².
+
+        The arrays :meth:`score` compares with :attr:`mask` (the masked threshold,
+        same shape); the report plots them.
+        """
+        return self._errors(complex_response(filt, self.analysis.freqs_hz), noise_psd)
+
+    def _errors(self, h, noise_psd):
+        f, w = self.analysis.freqs_hz, self.analysis.weights_hz
+        tau = self._delay(h, f, w)
+        share = self._heard_share(h, f, w, tau)
+        n_band = self._band_sum(noise_psd * w) * self.k_ac
+        return self.frames * share + n_band, tau
 
     def score(self, filt, noise_psd) -> dict:
         """nmr_db, audible_frames_pct, sii and wiener_gap_db of one filter.
@@ -173,12 +190,8 @@ class PerceptualScorer:
         a = self.analysis
         f, w = a.freqs_hz, a.weights_hz
         h = complex_response(filt, f)
-        tau = self._delay(h, f, w)
-        removed = wiener.removed_psd(h, self.S, f, tau)
-        rw = removed * w
-        share = self._heard_share(h, f, w, tau)
-        n_band = self._band_sum(noise_psd * w) * self.k_ac
-        err = self.frames * share + n_band
+        err, tau = self._errors(h, noise_psd)
+        rw = wiener.removed_psd(h, self.S, f, tau) * w
         ratio = err / self.mask
         over = ratio > 1.0
         audible = np.any(over, axis=1)
@@ -205,18 +218,6 @@ class PerceptualScorer:
         else:
             row["sii"] = None
         return row
-
-    def frame_detail(self, filt, noise_psd, frame: int) -> dict:
-        """Program, error and masked threshold (dB SPL per band) of one kept frame, for plots."""
-        a = self.analysis
-        f, w = a.freqs_hz, a.weights_hz
-        h = complex_response(filt, f)
-        tau = self._delay(h, f, w)
-        share = self._heard_share(h, f, w, tau)
-        err = self.frames[frame] * share + self._band_sum(noise_psd * w) * self.k_ac
-        db = lambda x: 10 * np.log10(np.maximum(x, 1e-12))  # noqa: E731
-        return {"centres_hz": self.centres_hz, "program_db": db(self.frames[frame]),
-                "error_db": db(err), "mask_db": db(self.mask[frame])}
 
 
 def _db(x):
