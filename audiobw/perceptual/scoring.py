@@ -132,12 +132,13 @@ class PerceptualScorer:
         out[..., self._filled] = np.add.reduceat(x, self._starts, axis=-1)
         return out
 
-    def _delay(self, h, f, w) -> float:
-        """Best delay, searched up to twice the filter's largest passband group delay (+ 2 samples)."""
-        limit = 2.0 * max(wiener.passband_group_delay_s(h, f), 0.0) + 2.0 / self.analysis.sample_rate_hz
-        return best_delay(self.S, h, f, w, max_delay_s=limit)[0]
+    def _delay(self, h, f, w, gd):
+        """Best delay (s), searched up to twice the filter's largest passband group delay (+ 2 samples),
+        and |1 − H e^{j2πfτ}|² at it."""
+        limit = 2.0 * max(wiener.passband_group_delay_s(h, f, gd), 0.0) + 2.0 / self.analysis.sample_rate_hz
+        return best_delay(self.S, h, f, w, max_delay_s=limit)
 
-    def _heard_share(self, h, f, w, tau) -> np.ndarray:
+    def _heard_share(self, h, f, w, tau, gd) -> np.ndarray:
         """Share of each critical band's program power that the filter changes, as heard.
 
         Each band is aligned by its own delay (the program-weighted mean group
@@ -148,8 +149,6 @@ class PerceptualScorer:
         as error; gain error and phase dispersion inside a band are.  ``tau``
         (the best overall delay) is used where a band's own delay is undefined.
         """
-        phase = np.unwrap(np.angle(h))
-        gd = -np.gradient(phase, 2 * np.pi * f)
         sw = self.sw
         gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau),
                          where=self.band_s > 0)
@@ -172,14 +171,17 @@ class PerceptualScorer:
         The arrays :meth:`score` compares with :attr:`mask` (the masked threshold,
         same shape); the report plots them.
         """
-        return self._errors(complex_response(filt, self.analysis.freqs_hz), noise_psd)
+        err, tau, _ = self._errors(complex_response(filt, self.analysis.freqs_hz), noise_psd)
+        return err, tau
 
     def _errors(self, h, noise_psd):
+        """(error per frame and band, best delay, |1 − H e^{j2πfτ}|² per bin)."""
         f, w = self.analysis.freqs_hz, self.analysis.weights_hz
-        tau = self._delay(h, f, w)
-        share = self._heard_share(h, f, w, tau)
+        gd = wiener.group_delay_s(h, f)
+        tau, removed_gain = self._delay(h, f, w, gd)
+        share = self._heard_share(h, f, w, tau, gd)
         n_band = self._band_sum(noise_psd * w) * self.k_ac
-        return self.frames * share + n_band, tau
+        return self.frames * share + n_band, tau, removed_gain
 
     def score(self, filt, noise_psd) -> dict:
         """nmr_db, audible_frames_pct, sii and wiener_gap_db of one filter.
@@ -190,8 +192,8 @@ class PerceptualScorer:
         a = self.analysis
         f, w = a.freqs_hz, a.weights_hz
         h = complex_response(filt, f)
-        err, tau = self._errors(h, noise_psd)
-        rw = wiener.removed_psd(h, self.S, f, tau) * w
+        err, tau, removed_gain = self._errors(h, noise_psd)
+        rw = removed_gain * self.S * w   # wiener.removed_psd(h, S, f, tau), already evaluated
         ratio = err / self.mask
         over = ratio > 1.0
         audible = np.any(over, axis=1)

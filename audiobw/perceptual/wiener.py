@@ -55,12 +55,16 @@ def removed_psd(h, s, freqs_hz, delay_s=0.0) -> np.ndarray:
     return np.abs(1.0 - he) ** 2 * np.asarray(s, float)
 
 
-def passband_group_delay_s(h, freqs_hz) -> float:
+def group_delay_s(h, freqs_hz) -> np.ndarray:
+    """Group delay −dφ/dω (s) of the complex response ``h`` on the grid ``freqs_hz``."""
+    return -np.gradient(np.unwrap(np.angle(h)), 2 * np.pi * np.asarray(freqs_hz, float))
+
+
+def passband_group_delay_s(h, freqs_hz, gd=None) -> float:
     """Largest group delay −dφ/dω (s) where |H|² ≥ 1/2: sets the window in which
-    :func:`audiobw.metrics.best_delay` (the one delay search, shared with SER) looks."""
-    f = np.asarray(freqs_hz, float)
-    phase = np.unwrap(np.angle(h))
-    gd = -np.gradient(phase, 2 * np.pi * f)
+    :func:`audiobw.metrics.best_delay` (the one delay search, shared with SER) looks.
+    ``gd``: :func:`group_delay_s` of ``h`` when already computed."""
+    gd = group_delay_s(h, freqs_hz) if gd is None else gd
     band = np.abs(h) ** 2 >= 0.5
     return float(np.max(gd[band])) if np.any(band) else 0.0
 
