@@ -79,7 +79,8 @@ def write_spectrum(analysis, target, *, inputs=()):
     """Save the program's long-term spectrum beside sweep.json (numpy .npz, no pickled objects).
 
     Keys: ``freqs_hz``, ``psd`` (channel mean, FS²/Hz: sample units), ``psd_channels``,
-    ``weights_hz``, ``band_edges_hz``, ``sample_rate_hz``, ``sha256``.  Reports read it
+    ``weights_hz``, ``band_edges_hz``, ``band_frames`` (kept short frames × critical bands,
+    FS², the masking plot's input), ``sample_rate_hz``, ``sha256``.  Reports read it
     with ``numpy.load(..., allow_pickle=False)``.
     """
     import numpy as np
@@ -90,6 +91,7 @@ def write_spectrum(analysis, target, *, inputs=()):
         with open(tmp, "wb") as fh:
             np.savez(fh, freqs_hz=analysis.freqs_hz, psd=analysis.psd, psd_channels=analysis.psd_channels,
                      weights_hz=analysis.weights_hz, band_edges_hz=analysis.band_edges_hz,
+                     band_frames=analysis.band_frames,
                      sample_rate_hz=np.int64(analysis.sample_rate_hz), sha256=np.str_(analysis.sha256))
     return target
 

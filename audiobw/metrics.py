@@ -74,8 +74,11 @@ class Meter:
 DELAY_OVERSAMPLE = 2
 
 
-def _delay_cross(c: np.ndarray, f: np.ndarray) -> tuple[float, float]:
-    """(τ, max_τ Re Σ c_k e^{j2π f_k τ}) for a uniform grid f from 0 Hz (see :func:`best_delay`)."""
+def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None) -> tuple[float, float]:
+    """(τ, max_τ Re Σ c_k e^{j2π f_k τ}) for a uniform grid f from 0 Hz (see :func:`best_delay`).
+
+    τ is searched in ±1/(2·df), or in 0 … ``max_delay_s`` when that is given.
+    """
     if f.size < 2 or not np.any(c):
         return 0.0, float(np.sum(c.real))
     df = f[1] - f[0]
@@ -87,13 +90,22 @@ def _delay_cross(c: np.ndarray, f: np.ndarray) -> tuple[float, float]:
     d = c.copy()
     d[0] *= 2.0
     g = sfft.irfft(d, n_fft) * (n_fft / 2.0)
-    n = int(np.argmax(g))
+    step_s = 1.0 / (n_fft * df)
+    if max_delay_s is None:
+        n = int(np.argmax(g))
+    else:
+        # a causal window 0 … max_delay_s: a tonal program makes the cross term nearly
+        # periodic, and a delay far beyond the filter's own would match one partial
+        # while misaligning the rest (the window is at least three coarse steps)
+        stop = max(3, min(n_fft // 2, int(math.ceil(max_delay_s / step_s)) + 2))
+        n = int(np.argmax(g[:stop]))
     # parabola through the peak sample and its neighbours, then one Newton step on the exact sum
     y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
     den = y0 - 2.0 * y1 + y2
     frac = 0.5 * (y0 - y2) / den if den < 0 else 0.0
-    step_s = 1.0 / (n_fft * df)
     tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
+    if max_delay_s is not None:
+        tau = max(tau, 0.0)
     om = 2.0 * np.pi * f
     e = c * np.exp(1j * om * tau)
     g0 = float(np.sum(e.real))
@@ -101,13 +113,15 @@ def _delay_cross(c: np.ndarray, f: np.ndarray) -> tuple[float, float]:
     d2 = -float(np.sum(om * om * e.real))     # d²/dτ²
     if d2 < 0.0:
         delta = -d1 / d2
-        if abs(delta) <= step_s:               # stay on the peak the coarse search found
+        # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
+        if abs(delta) <= step_s and (max_delay_s is None or tau + delta >= 0.0):
             return tau + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
     return tau, g0
 
 
 def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
-               weights_hz: np.ndarray | None = None) -> tuple[float, np.ndarray]:
+               weights_hz: np.ndarray | None = None, *,
+               max_delay_s: float | None = None) -> tuple[float, np.ndarray]:
     """The single delay τ that best aligns the input with the filtered output.
 
     Minimises the error power ∫ S(f)·|1 − H(f)·e^{j2πfτ}|² df, i.e. the
@@ -126,6 +140,10 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
         A uniform grid from 0 Hz (the analysis grid, 0 … fs/2).
     weights_hz : array (bins,), optional
         Integration widths (meter band included); default the grid step.
+    max_delay_s : float, optional
+        Search only 0 ≤ τ ≤ max_delay_s (about; the window is rounded up to
+        the coarse grid).  Default: the whole ±1/(2·df).  The perceptual
+        scorer passes twice the filter's passband group delay.
 
     Returns
     -------
@@ -139,7 +157,7 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
     f = np.asarray(freqs_hz, dtype=float)
     H = np.asarray(H, dtype=complex)
     w = np.full(f.shape, f[1] - f[0]) if weights_hz is None else np.asarray(weights_hz, dtype=float)
-    tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f)
+    tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f, max_delay_s)
     return tau, np.abs(1.0 - H * np.exp(2j * np.pi * f * tau)) ** 2
 
 

@@ -239,9 +239,11 @@ def test_log_average_keeps_power_and_thins_the_trace():
 def test_plots_are_written_and_decode(lowpass_run, failing_run):
     from PIL import Image  # Pillow, installed with matplotlib
 
-    for run, expect in ((lowpass_run, {"metrics-upper-edge", "spectrum", "filter", "noise-budget", "ser"}),
+    # music is the default program kind: its sweeps carry the audibility plots (tests/test_report_perceptual.py)
+    for run, expect in ((lowpass_run, {"metrics-upper-edge", "spectrum", "filter", "noise-budget", "ser", "masking",
+                                       "wiener"}),
                         (failing_run, {"metrics-upper-edge", "metrics-lower-edge", "spectrum", "filter",
-                                       "noise-budget", "ser"})):
+                                       "noise-budget", "ser", "masking", "wiener"})):
         names = {k[len("plot_"):-len("_png")] for k in run["paths"] if k.startswith("plot_") and k.endswith("_png")}
         assert names == expect
         for key, path in run["paths"].items():
@@ -278,7 +280,7 @@ def test_html_is_self_contained(lowpass_run):
     assert "Content-Security-Policy" in page and "default-src 'none'" in unescape(page)
     assert not re.search(r'(?:src|href)="(?:https?:)?//', page)
     imgs = re.findall(r'<img src="([^"]+)"', page)
-    assert len(imgs) == 5 and all(s.startswith("data:image/png;base64,") for s in imgs)
+    assert len(imgs) == 7 and all(s.startswith("data:image/png;base64,") for s in imgs)  # 5 + masking, wiener
 
 
 def test_html_audio_players_and_listening_caution(lowpass_run):

@@ -28,6 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..metrics import best_delay
 from . import masking, sii, threshold, wiener
 
 #: Default playback level by program kind (dB SPL): speech at ANSI S3.5-1997
@@ -134,12 +135,13 @@ class PerceptualScorer:
         out[..., self._filled] = np.add.reduceat(x, self._starts, axis=-1)
         return out
 
-    def _delay(self, h, f, w) -> float:
-        """Best delay, searched up to twice the filter's largest passband group delay (+ 2 samples)."""
-        limit = 2.0 * max(wiener.passband_group_delay_s(h, f), 0.0) + 2.0 / self.analysis.sample_rate_hz
-        return wiener.best_delay(h, self.S, f, w, max_delay_s=limit)
+    def _delay(self, h, f, w, gd):
+        """Best delay (s), searched up to twice the filter's largest passband group delay (+ 2 samples),
+        and |1 − H e^{j2πfτ}|² at it."""
+        limit = 2.0 * max(wiener.passband_group_delay_s(h, f, gd), 0.0) + 2.0 / self.analysis.sample_rate_hz
+        return best_delay(self.S, h, f, w, max_delay_s=limit)
 
-    def _heard_share(self, h, f, w, tau) -> np.ndarray:
+    def _heard_share(self, h, f, w, tau, gd) -> np.ndarray:
         """Share of each critical band's program power that the filter changes, as heard.
 
         Each band is aligned by its own delay (the program-weighted mean group
@@ -150,8 +152,6 @@ class PerceptualScorer:
         as error; gain error and phase dispersion inside a band are.  ``tau``
         (the best overall delay) is used where a band's own delay is undefined.
         """
-        phase = np.unwrap(np.angle(h))
-        gd = -np.gradient(phase, 2 * np.pi * f)
         sw = self.sw
         gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau),
                          where=self.band_s > 0)
@@ -162,9 +162,29 @@ class PerceptualScorer:
         return np.divide(err, self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
 
     def limits(self) -> dict:
-        """Top-level figures of the program and chain (no filter)."""
+        """Top-level figures of the program and chain (no filter), and the playback conditions."""
+        hl = self.listening.audiogram_hl
         return {"wiener_ser_db": _db(self.p_total / self.mse_min) if self.mse_min > 0 else None,
-                "playback_spl_db": self.listening.spl_db}
+                "playback_spl_db": self.listening.spl_db, "program": self.listening.program,
+                "hearing_threshold_hl": [[float(k), float(hl[k])] for k in sorted(hl)] if hl else None}
+
+    def band_errors(self, filt, noise_psd):
+        """(error, delay) of one filter: error power per kept frame and critical band, re (20 µPa)².
+
+        The arrays :meth:`score` compares with :attr:`mask` (the masked threshold,
+        same shape); the report plots them.
+        """
+        err, tau, _ = self._errors(complex_response(filt, self.analysis.freqs_hz), noise_psd)
+        return err, tau
+
+    def _errors(self, h, noise_psd):
+        """(error per frame and band, best delay, |1 − H e^{j2πfτ}|² per bin)."""
+        f, w = self.analysis.freqs_hz, self.analysis.weights_hz
+        gd = wiener.group_delay_s(h, f)
+        tau, removed_gain = self._delay(h, f, w, gd)
+        share = self._heard_share(h, f, w, tau, gd)
+        n_band = self._band_sum(noise_psd * w) * self.k_ac
+        return self.frames * share + n_band, tau, removed_gain
 
     def score(self, filt, noise_psd) -> dict:
         """nmr_db, audible_frames_pct, sii and wiener_gap_db of one filter.
@@ -175,12 +195,8 @@ class PerceptualScorer:
         a = self.analysis
         f, w = a.freqs_hz, a.weights_hz
         h = complex_response(filt, f)
-        tau = self._delay(h, f, w)
-        removed = wiener.removed_psd(h, self.S, f, tau)
-        rw = removed * w
-        share = self._heard_share(h, f, w, tau)
-        n_band = self._band_sum(noise_psd * w) * self.k_ac
-        err = self.frames * share + n_band
+        err, tau, removed_gain = self._errors(h, noise_psd)
+        rw = removed_gain * self.S * w   # wiener.removed_psd(h, S, f, tau), already evaluated
         ratio = err / self.mask
         over = ratio > 1.0
         audible = np.any(over, axis=1)
@@ -207,18 +223,6 @@ class PerceptualScorer:
         else:
             row["sii"] = None
         return row
-
-    def frame_detail(self, filt, noise_psd, frame: int) -> dict:
-        """Program, error and masked threshold (dB SPL per band) of one kept frame, for plots."""
-        a = self.analysis
-        f, w = a.freqs_hz, a.weights_hz
-        h = complex_response(filt, f)
-        tau = self._delay(h, f, w)
-        share = self._heard_share(h, f, w, tau)
-        err = self.frames[frame] * share + self._band_sum(noise_psd * w) * self.k_ac
-        db = lambda x: 10 * np.log10(np.maximum(x, 1e-12))  # noqa: E731
-        return {"centres_hz": self.centres_hz, "program_db": db(self.frames[frame]),
-                "error_db": db(err), "mask_db": db(self.mask[frame])}
 
 
 def _db(x):

@@ -55,45 +55,16 @@ def removed_psd(h, s, freqs_hz, delay_s=0.0) -> np.ndarray:
     return np.abs(1.0 - he) ** 2 * np.asarray(s, float)
 
 
-def best_delay(h, s, freqs_hz, weights_hz, *, oversample: int = 4, max_delay_s: float | None = None) -> float:
-    """Delay τ ≥ 0 (s) that minimises Σ w·|1 − H e^{j2πfτ}|² S on a uniform grid.
-
-    Minimising the error is maximising Re Σ w·S·H·e^{j2πfτ}, a cross-correlation
-    evaluated for all τ at once by an inverse FFT (zero-padded by
-    ``oversample``) and refined by a parabola through the peak.  ``freqs_hz``
-    must be uniform from 0 (k·df).  Only τ below half the grid's period
-    1/df is searched, and only up to ``max_delay_s`` when given: a tonal program
-    makes the correlation periodic, and a delay far beyond the filter's own group
-    delay would match one partial while misaligning the rest.
-    """
-    f = np.asarray(freqs_hz, float)
-    df = f[1] - f[0]
-    g = np.asarray(weights_hz, float) * np.asarray(s, float) * np.asarray(h, complex)
-    # a power of two: an FFT of 16 × 8193 points (a large prime factor) costs 40 × more.
-    # Re Σ g_k e^{j2πkn/N} = (N·irfft(g)[n] + Re g_0)/2: a real inverse transform suffices
-    # (the constant does not move the maximum).
-    from scipy import fft as sfft
-
-    n = 1 << int(np.ceil(np.log2(oversample * 2 * len(f))))
-    corr = sfft.irfft(g, n=n)
-    half = n // 2
-    if max_delay_s is not None:
-        half = max(3, min(half, int(np.ceil(max_delay_s * n * df)) + 2))
-    i = int(np.argmax(corr[:half]))
-    shift = 0.0
-    if 0 < i < half - 1:
-        y0, y1, y2 = corr[i - 1], corr[i], corr[i + 1]
-        den = y0 - 2 * y1 + y2
-        if den < 0:
-            shift = 0.5 * (y0 - y2) / den
-    return float((i + shift) / (n * df))
+def group_delay_s(h, freqs_hz) -> np.ndarray:
+    """Group delay −dφ/dω (s) of the complex response ``h`` on the grid ``freqs_hz``."""
+    return -np.gradient(np.unwrap(np.angle(h)), 2 * np.pi * np.asarray(freqs_hz, float))
 
 
-def passband_group_delay_s(h, freqs_hz) -> float:
-    """Largest group delay −dφ/dω (s) where |H|² ≥ 1/2: the range a best delay is searched in."""
-    f = np.asarray(freqs_hz, float)
-    phase = np.unwrap(np.angle(h))
-    gd = -np.gradient(phase, 2 * np.pi * f)
+def passband_group_delay_s(h, freqs_hz, gd=None) -> float:
+    """Largest group delay −dφ/dω (s) where |H|² ≥ 1/2: sets the window in which
+    :func:`audiobw.metrics.best_delay` (the one delay search, shared with SER) looks.
+    ``gd``: :func:`group_delay_s` of ``h`` when already computed."""
+    gd = group_delay_s(h, freqs_hz) if gd is None else gd
     band = np.abs(h) ** 2 >= 0.5
     return float(np.max(gd[band])) if np.any(band) else 0.0
 

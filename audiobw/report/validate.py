@@ -253,4 +253,13 @@ def load_spectrum(npz, doc) -> dict:
         bad(f"sample_rate_hz {sr!r} is not sweep.json's {doc['input']['sample_rate_hz']} Hz")
     if f[-1] > int(sr) / 2 * (1 + 1e-9):
         bad(f"freqs_hz reaches {f[-1]:g} Hz, above fs/2 = {int(sr) / 2:g} Hz")
+    if "band_frames" in spectrum:   # the masking plot's input (sweeps before it lack it: no plot)
+        e, bf = spectrum.get("band_edges_hz"), spectrum["band_frames"]
+        if e is None or e.ndim != 1 or e.size < 2 or e.dtype.kind not in "fiu" or not np.all(np.isfinite(e)) \
+                or np.any(np.diff(e) <= 0):
+            bad("band_edges_hz is not a rising row of band edges")
+        if bf.ndim != 2 or bf.dtype.kind not in "fiu" or bf.shape[1] != e.size - 1 or bf.shape[0] < 1:
+            bad(f"band_frames has shape {bf.shape}; accepted: (frames, {e.size - 1}) numbers")
+        if not np.all(np.isfinite(bf)) or np.any(bf < 0):
+            bad("band_frames holds NaN, infinite or negative values")
     return spectrum
