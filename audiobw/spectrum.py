@@ -193,6 +193,7 @@ def _hash_in_background(path):
         thread.join()
         return box["hex"] if "hex" in box else audio.sha256_file(path)
 
+    result.ready = lambda: not thread.is_alive()  # type: ignore[attr-defined]
     return result
 
 
@@ -248,7 +249,8 @@ def _prefetched(blocks, depth: int = 2):
         thread.join(timeout=5.0)
 
 
-def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None) -> Analysis:
+def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None,
+            cache: bool = False) -> Analysis:
     """Run the single streaming pass over ``path``.
 
     Parameters
@@ -261,6 +263,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         The file's SHA-256 (hex) when the caller has just computed it (batch
         hashes each file once, for its cache); otherwise it is computed here
         in a helper thread during the pass.
+    cache : bool
+        Look the analysis up in the analysis cache (:mod:`audiobw.cache`) as
+        soon as the digest is known, and store it there after a full pass.
+        A hit gives the same object, bit for bit, as the pass would.
 
     Returns
     -------
@@ -279,6 +285,28 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         raise AudioFileError(f"{audio.shown(path)}: cannot read ({exc.strerror or exc})") from None
     # a caller that has just hashed the file (batch) passes the digest: no second hash
     digest = (lambda: sha256) if sha256 else _hash_in_background(path)
+    looked_up = not cache
+
+    def lookup():
+        """The cached analysis (warnings re-issued, file checked unchanged), or None."""
+        nonlocal looked_up
+        from . import cache as acache
+
+        looked_up = True
+        hit = acache.load(digest(), info, blocksize=blocksize)
+        if hit is None:
+            return None
+        audio.check_unchanged(path, before)
+        _warn_truncated(info.path, hit.frames, hit.meta.get("declared_frames"))
+        _warn_about(hit)
+        if progress is not None:
+            progress(hit.frames, max(info.frames, hit.frames))
+        return hit
+
+    if cache and sha256:
+        found = lookup()
+        if found is not None:
+            return found
     fs = info.sample_rate_hz
     nch = info.channels
     nper, nshort = frame_lengths(fs, info.frames if info.frames > 0 else None)
@@ -320,6 +348,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     near_full = 1.0 - 2.0**-15
 
     for block_fc in _prefetched(audio.iter_blocks(path, blocksize=blocksize)):
+        if not looked_up and getattr(digest, "ready", bool)():
+            found = lookup()  # the digest came in: a hit ends the pass here
+            if found is not None:
+                return found
         block = np.ascontiguousarray(block_fc.T)  # (channels, frames)
         n = block.shape[1]
         frames += n
@@ -368,11 +400,12 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             progress(frames, max(info.frames, frames))
 
     acc = acc[:, 0::2] + acc[:, 1::2]
+    if not looked_up:
+        found = lookup()  # a short file can end before its digest does
+        if found is not None:
+            return found
     declared = audio.wav_declared_frames(path) if info.format == "WAV" else info.frames
-    if declared and 0 < frames < declared:
-        # a truncated file: the header promises more than could be read
-        audio.warn(f"{info.path}: the header promises {declared} frames but only {frames} could be read "
-                   "(truncated file?); the readable part is used")
+    _warn_truncated(info.path, frames, declared)
     if frames < nshort or n_seg == 0:
         raise AudioFileError(
             f"{info.path}: {frames} frames is shorter than one analysis frame "
@@ -397,8 +430,21 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         band_frames=np.asarray(kept), frame_len=nshort, frame_stride=stride,
         meta={"format": info.format, "subtype": info.subtype, "welch_segments": n_seg},
     )
+    if declared and 0 < frames < declared:
+        a.meta["declared_frames"] = int(declared)
     _warn_about(a)
+    if cache:
+        from . import cache as acache
+
+        acache.store(a, blocksize=blocksize)
     return a
+
+
+def _warn_truncated(path, frames: int, declared) -> None:
+    if declared and 0 < frames < declared:
+        # a truncated file: the header promises more than could be read
+        audio.warn(f"{path}: the header promises {declared} frames but only {frames} could be read "
+                   "(truncated file?); the readable part is used")
 
 
 def _warn_about(a: Analysis) -> None:

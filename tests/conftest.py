@@ -12,6 +12,15 @@ HERE = Path(__file__).parent
 REPO = HERE.parent
 
 
+@pytest.fixture(autouse=True)
+def _analysis_cache_in_tmp(tmp_path_factory, monkeypatch):
+    """Every test (and every process it starts) keeps the analysis cache in its own
+    temporary folder: nothing is written to ~/.cache, and no test sees another's entries."""
+    monkeypatch.setenv("AUDIOBW_CACHE_DIR", str(tmp_path_factory.mktemp("analysis-cache")))
+    monkeypatch.delenv("AUDIOBW_NO_CACHE", raising=False)
+    monkeypatch.delenv("AUDIOBW_CACHE_MAX_MB", raising=False)
+
+
 @pytest.fixture
 def rng():
     return np.random.default_rng(20261201)
