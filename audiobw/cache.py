@@ -41,6 +41,7 @@ import json
 import os
 import sys
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -141,7 +142,7 @@ def store(analysis, *, blocksize: int, folder=None) -> Path | None:
     from .errors import OutputError
 
     key = entry_key(analysis.sha256, blocksize)
-    data = {
+    data: dict[str, Any] = {
         "psd_channels": np.asarray(analysis.psd_channels, dtype=np.float64),
         "peak": np.asarray(analysis.peak, dtype=np.float64),
         "mean_square": np.asarray(analysis.mean_square, dtype=np.float64),

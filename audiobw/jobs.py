@@ -47,7 +47,8 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
         notify(time_estimate(grid.count()))
     from . import cache
 
-    analysis = analyse(path, progress=progress, sha256=sha256, cache=use_cache and cache.enabled())
+    analysis = analyse(path, progress=progress, sha256=sha256,
+                       cache=cache if use_cache and cache.enabled() else None)
     chain = settings.chain_for(analysis)
     data = None
     if settings.program == "data":

@@ -250,7 +250,7 @@ def _prefetched(blocks, depth: int = 2):
 
 
 def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None,
-            cache: bool = False) -> Analysis:
+            cache=None) -> Analysis:
     """Run the single streaming pass over ``path``.
 
     Parameters
@@ -263,9 +263,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         The file's SHA-256 (hex) when the caller has just computed it (batch
         hashes each file once, for its cache); otherwise it is computed here
         in a helper thread during the pass.
-    cache : bool
-        Look the analysis up in the analysis cache (:mod:`audiobw.cache`) as
-        soon as the digest is known, and store it there after a full pass.
+    cache : module or None
+        The analysis cache (:mod:`audiobw.cache`, or any object with its
+        ``load(sha256, info, blocksize=)`` and ``store(analysis, blocksize=)``):
+        looked up as soon as the digest is known, written after a full pass.
         A hit gives the same object, bit for bit, as the pass would.
 
     Returns
@@ -285,15 +286,13 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         raise AudioFileError(f"{audio.shown(path)}: cannot read ({exc.strerror or exc})") from None
     # a caller that has just hashed the file (batch) passes the digest: no second hash
     digest = (lambda: sha256) if sha256 else _hash_in_background(path)
-    looked_up = not cache
+    looked_up = cache is None
 
     def lookup():
         """The cached analysis (warnings re-issued, file checked unchanged), or None."""
         nonlocal looked_up
-        from . import cache as acache
-
         looked_up = True
-        hit = acache.load(digest(), info, blocksize=blocksize)
+        hit = cache.load(digest(), info, blocksize=blocksize)
         if hit is None:
             return None
         audio.check_unchanged(path, before)
@@ -303,7 +302,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             progress(hit.frames, max(info.frames, hit.frames))
         return hit
 
-    if cache and sha256:
+    if cache is not None and sha256:
         found = lookup()
         if found is not None:
             return found
@@ -433,10 +432,8 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     if declared and 0 < frames < declared:
         a.meta["declared_frames"] = int(declared)
     _warn_about(a)
-    if cache:
-        from . import cache as acache
-
-        acache.store(a, blocksize=blocksize)
+    if cache is not None:
+        cache.store(a, blocksize=blocksize)
     return a
 
 

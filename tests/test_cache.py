@@ -91,12 +91,12 @@ def test_second_sweep_hits_and_matches_no_cache_byte_for_byte(take, tmp_path, fo
 
 def test_cached_analysis_is_the_pass_bit_for_bit(take):
     fresh = spectrum.analyse(take)
-    spectrum.analyse(take, cache=True)
-    hit = spectrum.analyse(take, cache=True)
+    spectrum.analyse(take, cache=cache)
+    hit = spectrum.analyse(take, cache=cache)
     assert cache.STATS["hits"] == 1
     same_analysis(fresh, hit)
     # a digest given by the caller (batch) is looked up before any decoding
-    given_sha = spectrum.analyse(take, cache=True, sha256=fresh.sha256)
+    given_sha = spectrum.analyse(take, cache=cache, sha256=fresh.sha256)
     assert cache.STATS["hits"] == 2
     same_analysis(fresh, given_sha)
 
@@ -122,9 +122,9 @@ def test_warnings_of_the_pass_are_given_again_on_a_hit(tmp_path):
     x = np.clip(program(5) * 6.0, -1.0, 1.0) + 0.02
     path = write(tmp_path / "hot.wav", np.clip(x, -1.0, 1.0), FS, "PCM_16")
     with pytest.warns(UserWarning) as fresh:
-        spectrum.analyse(path, cache=True)
+        spectrum.analyse(path, cache=cache)
     with pytest.warns(UserWarning) as again:
-        spectrum.analyse(path, cache=True)
+        spectrum.analyse(path, cache=cache)
     assert cache.STATS["hits"] == 1
     assert [str(w.message) for w in fresh] == [str(w.message) for w in again]
     assert any("full scale" in str(w.message) for w in again) and any("DC" in str(w.message) for w in again)
@@ -231,7 +231,7 @@ def test_entry_of_another_file_with_its_key_forged_is_refused(take, tmp_path, fo
 
 def test_entry_for_another_rate_or_channel_count_is_refused(tmp_path, folder):
     stereo = write(tmp_path / "s.wav", program(4), FS, "PCM_24")
-    a = spectrum.analyse(stereo, cache=True)
+    a = spectrum.analyse(stereo, cache=cache)
     mono_info = open_info(write(tmp_path / "m.wav", program(4)[:, 0], FS, "PCM_24"))
     assert cache.load(a.sha256, mono_info, blocksize=1 << 17) is None
     assert cache.load(a.sha256, open_info(stereo), blocksize=1 << 17) is not None
@@ -275,7 +275,7 @@ def test_changed_file_with_the_same_name_misses(take, tmp_path, folder, capsys):
 
 def test_eviction_keeps_the_folder_under_the_bound_least_recently_used_first(tmp_path, folder, monkeypatch):
     paths = [write(tmp_path / f"p{i}.wav", program(10 + i, 3.0), FS, "PCM_16") for i in range(5)]
-    first = spectrum.analyse(paths[0], cache=True)
+    first = spectrum.analyse(paths[0], cache=cache)
     size = entries(folder)[0].stat().st_size
     monkeypatch.setenv("AUDIOBW_CACHE_MAX_MB", str(3.5 * size / 1e6))  # room for three entries
     shas = [first.sha256]
@@ -285,8 +285,8 @@ def test_eviction_keeps_the_folder_under_the_bound_least_recently_used_first(tmp
             st = e.stat()
             os.utime(e, ns=(st.st_atime_ns, st.st_mtime_ns - 10**9 * (10 - i)))
         if i == 3:
-            spectrum.analyse(paths[0], cache=True)  # a hit makes entry 0 the most recently used
-        shas.append(spectrum.analyse(p, cache=True).sha256)
+            spectrum.analyse(paths[0], cache=cache)  # a hit makes entry 0 the most recently used
+        shas.append(spectrum.analyse(p, cache=cache).sha256)
         total = sum(e.stat().st_size for e in entries(folder))
         assert total <= 3.5 * size
     kept = {e.name.split("-")[0] for e in entries(folder)}
