@@ -51,10 +51,12 @@ ENV_MAX_MB = "AUDIOBW_CACHE_MAX_MB"
 #: Default bound on the folder's size, bytes (500 MB).
 DEFAULT_MAX_BYTES = 500 * 10**6
 SUFFIX = ".npz"
+#: Index records (path → digest), one small JSON file per file path, named by a hash of the path.
+INDEX_PREFIX, INDEX_SUFFIX = "path-", ".json"
 
 #: Counters for this process (tests and ``--debug`` read them): lookups that hit, missed,
 #: found an entry and refused it, entries written, entries evicted, writes that failed.
-STATS = {"hits": 0, "misses": 0, "rejected": 0, "writes": 0, "evicted": 0, "write_failures": 0}
+STATS = {"hits": 0, "misses": 0, "rejected": 0, "writes": 0, "evicted": 0, "write_failures": 0, "index_hits": 0}
 
 _ARRAYS = ("psd_channels", "peak", "mean_square", "dc", "band_frames")
 _INTS = ("sample_rate_hz", "channels", "frames", "nperseg", "frame_len", "frame_stride", "full_scale_samples",
@@ -172,6 +174,53 @@ def store(analysis, *, blocksize: int, folder=None) -> Path | None:
     return target
 
 
+def _index_path(path, folder=None) -> Path:
+    real = os.path.realpath(os.fspath(path))
+    name = hashlib.sha256(os.fsencode(real)).hexdigest()[:32]
+    return Path(folder or cache_dir()) / f"{INDEX_PREFIX}{name}{INDEX_SUFFIX}"
+
+
+def known_digest(path, fingerprint: tuple, folder=None) -> str | None:
+    """The SHA-256 recorded for ``path`` when the file is still the one hashed then, else None.
+
+    "Still the one" means the same device, inode, size, modification and change time
+    (:func:`audiobw.audio.fingerprint`); a writer cannot set the change time back, so a
+    changed file misses and is hashed again (the rule ``make`` and ``git`` use).
+    """
+    target = _index_path(path, folder)
+    try:
+        rec = json.loads(target.read_text(encoding="utf-8"))
+    except (OSError, ValueError, RecursionError):
+        return None
+    if not isinstance(rec, dict) or rec.get("format") != FORMAT:
+        return None
+    if rec.get("path") != os.path.realpath(os.fspath(path)) or rec.get("fingerprint") != list(fingerprint):
+        return None
+    sha = rec.get("sha256")
+    if not isinstance(sha, str) or len(sha) != 64 or sha.strip("0123456789abcdef"):
+        return None
+    STATS["index_hits"] += 1
+    try:
+        os.utime(target)
+    except OSError:
+        pass
+    return sha
+
+
+def remember(path, fingerprint: tuple, sha256: str, folder=None) -> None:
+    """Record ``path``'s digest with its fingerprint (see :func:`known_digest`); failures are silent
+    (the entry's own write has warned)."""
+    from .audio import write_text_atomic
+    from .errors import OutputError
+
+    rec = {"format": FORMAT, "path": os.path.realpath(os.fspath(path)), "fingerprint": list(fingerprint),
+           "sha256": sha256}
+    try:
+        write_text_atomic(_index_path(path, folder), json.dumps(rec) + "\n")
+    except OutputError:
+        pass
+
+
 def load(sha256: str, info, *, blocksize: int, folder=None):
     """The cached :class:`~audiobw.spectrum.Analysis` of the file ``info`` describes, or None.
 
@@ -274,7 +323,7 @@ def _validated(raw: bytes, sha256: str, info, blocksize: int):
 
 
 def evict(folder=None, *, keep=None, limit: int | None = None) -> int:
-    """Remove least recently used entries until the folder's entries total at most ``limit`` bytes.
+    """Remove least recently used entries (and index records) until they total at most ``limit`` bytes.
 
     ``keep`` (the entry just written) goes last.  Returns how many were removed.
     """
@@ -284,7 +333,8 @@ def evict(folder=None, *, keep=None, limit: int | None = None) -> int:
     try:
         with os.scandir(folder) as it:
             for e in it:
-                if not e.name.endswith(SUFFIX):
+                if not (e.name.endswith(SUFFIX) or
+                        (e.name.startswith(INDEX_PREFIX) and e.name.endswith(INDEX_SUFFIX))):
                     continue
                 try:
                     st = e.stat(follow_symlinks=False)

@@ -265,8 +265,9 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         in a helper thread during the pass.
     cache : module or None
         The analysis cache (:mod:`audiobw.cache`, or any object with its
-        ``load(sha256, info, blocksize=)`` and ``store(analysis, blocksize=)``):
-        looked up as soon as the digest is known, written after a full pass.
+        ``load``, ``store``, ``known_digest`` and ``remember``): looked up as
+        soon as the digest is known (at once when the file's size and time
+        stamps are those of a file hashed before), written after a full pass.
         A hit gives the same object, bit for bit, as the pass would.
 
     Returns
@@ -284,24 +285,40 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         before = audio.fingerprint(path)
     except OSError as exc:
         raise AudioFileError(f"{audio.shown(path)}: cannot read ({exc.strerror or exc})") from None
-    # a caller that has just hashed the file (batch) passes the digest: no second hash
-    digest = (lambda: sha256) if sha256 else _hash_in_background(path)
     looked_up = cache is None
+    tried = None
 
-    def lookup():
+    def lookup(hex_=None, *, by_digest=True):
         """The cached analysis (warnings re-issued, file checked unchanged), or None."""
-        nonlocal looked_up
-        looked_up = True
-        hit = cache.load(digest(), info, blocksize=blocksize)
+        nonlocal looked_up, tried
+        if by_digest:
+            looked_up = True
+        hex_ = hex_ or digest()
+        if hex_ == tried:  # the digest the index gave, already looked up
+            return None
+        tried = hex_
+        hit = cache.load(hex_, info, blocksize=blocksize)
         if hit is None:
             return None
         audio.check_unchanged(path, before)
+        if by_digest:  # the next run finds the digest from the file's size and time stamps
+            cache.remember(path, before, hex_)
         _warn_truncated(info.path, hit.frames, hit.meta.get("declared_frames"))
         _warn_about(hit)
         if progress is not None:
             progress(hit.frames, max(info.frames, hit.frames))
         return hit
 
+    if cache is not None and not sha256:
+        # the same file (inode, size, modification and change times) as a run that hashed it:
+        # its digest is known without reading it again
+        known = cache.known_digest(path, before)
+        if known:
+            found = lookup(known, by_digest=False)
+            if found is not None:
+                return found
+    # a caller that has just hashed the file (batch) passes the digest: no second hash
+    digest = (lambda: sha256) if sha256 else _hash_in_background(path)
     if cache is not None and sha256:
         found = lookup()
         if found is not None:
@@ -433,7 +450,8 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         a.meta["declared_frames"] = int(declared)
     _warn_about(a)
     if cache is not None:
-        cache.store(a, blocksize=blocksize)
+        if cache.store(a, blocksize=blocksize) is not None:
+            cache.remember(path, before, a.sha256)
     return a
 
 

@@ -366,3 +366,41 @@ def test_cache_folder_follows_xdg_and_the_override(monkeypatch, tmp_path):
 def test_the_suite_does_not_write_to_the_home_cache():
     assert Path(os.environ["AUDIOBW_CACHE_DIR"]).resolve() != (Path.home() / ".cache").resolve()
     assert not str(cache.cache_dir().resolve()).startswith(str((Path.home() / ".cache").resolve()))
+
+
+# -- the path index: an unchanged file is not hashed again ------------------------
+
+def test_unchanged_file_is_found_without_hashing(take, tmp_path, folder, capsys, monkeypatch):
+    first = sweep(take, tmp_path / "a", capsys=capsys)
+    assert len(list(folder.glob("path-*.json"))) == 1
+
+    def no_hash(path, **kw):
+        raise AssertionError("hashed again")
+
+    monkeypatch.setattr("audiobw.audio.sha256_file", no_hash)
+    assert sweep(take, tmp_path / "b", capsys=capsys) == first
+    assert cache.STATS["index_hits"] == 1 and cache.STATS["hits"] == 1
+
+
+def test_touched_file_is_hashed_again_and_still_hits(take, tmp_path, folder, capsys):
+    first = sweep(take, tmp_path / "a", capsys=capsys)
+    st = take.stat()
+    os.utime(take, ns=(st.st_atime_ns, st.st_mtime_ns + 10**9))  # same bytes, new time stamp
+    assert sweep(take, tmp_path / "b", capsys=capsys) == first
+    assert cache.STATS["index_hits"] == 0 and cache.STATS["hits"] == 1  # found by its SHA-256
+    sweep(take, tmp_path / "c", capsys=capsys)
+    assert cache.STATS["index_hits"] == 1  # the new time stamp was recorded
+
+
+@pytest.mark.parametrize("damage", [
+    lambda rec: "not json {",
+    lambda rec: rec.replace('"sha256": "', '"sha256": "zz'),
+    lambda rec: rec.replace('"fingerprint": [', '"fingerprint": [1, '),
+    lambda rec: rec.replace('"format": "', '"format": "other/'),
+], ids=["garbage", "bad-digest", "other-fingerprint", "other-format"])
+def test_damaged_index_record_is_ignored(take, tmp_path, folder, capsys, damage):
+    first = sweep(take, tmp_path / "a", capsys=capsys)
+    (rec,) = folder.glob("path-*.json")
+    rec.write_text(damage(rec.read_text()))
+    assert sweep(take, tmp_path / "b", capsys=capsys) == first
+    assert cache.STATS["index_hits"] == 0 and cache.STATS["hits"] == 1
