@@ -51,6 +51,8 @@ ENV_MAX_MB = "AUDIOBW_CACHE_MAX_MB"
 #: Default bound on the folder's size, bytes (500 MB).
 DEFAULT_MAX_BYTES = 500 * 10**6
 SUFFIX = ".npz"
+#: An entry larger than this is refused unread (a 192 kHz 8-channel entry is about 6 MB).
+MAX_ENTRY_BYTES = 64 * 2**20
 #: Index records (path → digest), one small JSON file per file path, named by a hash of the path.
 INDEX_PREFIX, INDEX_SUFFIX = "path-", ".json"
 
@@ -231,12 +233,13 @@ def load(sha256: str, info, *, blocksize: int, folder=None):
     target = entry_path(sha256, blocksize, folder)
     try:
         with open(target, "rb") as fh:
-            raw = fh.read()
+            # a real entry is well under 1 MB (48 kHz stereo: 180 kB); anything far larger is not ours
+            raw = fh.read(MAX_ENTRY_BYTES + 1)
     except OSError:
         STATS["misses"] += 1
         return None
     try:
-        a = _validated(raw, sha256, info, blocksize)
+        a = _validated(raw, sha256, info, blocksize) if len(raw) <= MAX_ENTRY_BYTES else None
     except Exception:  # noqa: BLE001 - any failure to read or validate means: rebuild
         a = None
     if a is None:
@@ -264,7 +267,13 @@ def _validated(raw: bytes, sha256: str, info, blocksize: int):
     from .spectrum import MAX_FRAMES, Analysis, frame_lengths, trapezoid_weights
     from .weighting import critical_band_edges
 
+    import zipfile
+
     with np.load(io.BytesIO(raw), allow_pickle=False) as z:
+        members = z.zip.infolist()
+        # written by np.savez: stored, not deflated; so no member can expand beyond the file read
+        if any(m.compress_type != zipfile.ZIP_STORED or m.file_size > len(raw) for m in members):
+            return None
         names = set(z.files)
         if names != set(_ARRAYS) | set(_INTS) | set(_STRS) | {"checksum"}:
             return None

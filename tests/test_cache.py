@@ -404,3 +404,17 @@ def test_damaged_index_record_is_ignored(take, tmp_path, folder, capsys, damage)
     rec.write_text(damage(rec.read_text()))
     assert sweep(take, tmp_path / "b", capsys=capsys) == first
     assert cache.STATS["index_hits"] == 0 and cache.STATS["hits"] == 1
+
+
+def test_compressed_or_oversized_entry_is_refused_unread(take, tmp_path, folder, capsys, monkeypatch):
+    first = sweep(take, tmp_path / "a", capsys=capsys)
+    (entry,) = entries(folder)
+    with np.load(entry, allow_pickle=False) as z:
+        data = {k: z[k] for k in z.files}
+    with open(entry, "wb") as fh:
+        np.savez_compressed(fh, **data)  # same content, deflated: not what store() writes
+    assert sweep(take, tmp_path / "b", capsys=capsys) == first
+    assert cache.STATS["rejected"] == 1
+    monkeypatch.setattr(cache, "MAX_ENTRY_BYTES", entry.stat().st_size - 1)
+    assert sweep(take, tmp_path / "c", capsys=capsys) == first
+    assert cache.STATS["rejected"] == 2 and cache.STATS["hits"] == 0
