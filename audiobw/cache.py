@@ -28,6 +28,12 @@ widths, band edges and the channel mean are recomputed as the pass computes
 them, so a hit gives byte-identical figures.  A cache folder that cannot be
 written costs one warning line on stderr, never the sweep.
 
+A small index record per file path (``path-<hash of the real path>.json``)
+keeps the digest with the file's device, inode, size, modification and change
+time; when all five are unchanged the digest is taken from it instead of
+hashing the file again (the rule ``make`` and ``git`` use: a writer cannot set
+the change time back).  A record that does not match exactly is ignored.
+
 References
 ----------
 .. [1] XDG Base Directory Specification 0.8, freedesktop.org (``XDG_CACHE_HOME``).
@@ -51,7 +57,7 @@ ENV_MAX_MB = "AUDIOBW_CACHE_MAX_MB"
 #: Default bound on the folder's size, bytes (500 MB).
 DEFAULT_MAX_BYTES = 500 * 10**6
 SUFFIX = ".npz"
-#: An entry larger than this is refused unread (a 192 kHz 8-channel entry is about 6 MB).
+#: An entry larger than this is refused unread (a 192 kHz 8-channel entry is about 2.3 MB).
 MAX_ENTRY_BYTES = 64 * 2**20
 #: Index records (path → digest), one small JSON file per file path, named by a hash of the path.
 INDEX_PREFIX, INDEX_SUFFIX = "path-", ".json"
