@@ -239,7 +239,7 @@ def load(sha256: str, info, *, blocksize: int, folder=None):
     target = entry_path(sha256, blocksize, folder)
     try:
         with open(target, "rb") as fh:
-            # a real entry is well under 1 MB (48 kHz stereo: 180 kB); anything far larger is not ours
+            # a real entry is well under 1 MB (48 kHz stereo: 250 kB); anything far larger is not ours
             raw = fh.read(MAX_ENTRY_BYTES + 1)
     except OSError:
         STATS["misses"] += 1
