@@ -335,7 +335,7 @@ class SweepResult:
         return self.cases[case_id - 1]
 
 
-def sweep(path, study: Study | None = None, *, out_dir=None, progress=None) -> SweepResult:
+def sweep(path, study: Study | None = None, *, out_dir=None, progress=None, use_cache: bool = True) -> SweepResult:
     """Sweep one recording.
 
     Parameters
@@ -348,6 +348,9 @@ def sweep(path, study: Study | None = None, *, out_dir=None, progress=None) -> S
         When given, sweep.json, sweep.csv and spectrum.npz are written there,
         byte for byte as ``audiobw sweep --out`` writes them.
     progress : callable(frames_done, frames_expected), optional
+    use_cache : bool
+        Take the analysis from (and keep it in) the analysis cache, ``audiobw.cache``
+        (the same figures; ``False`` is the CLI's ``--no-cache``).
 
     Returns
     -------
@@ -356,7 +359,7 @@ def sweep(path, study: Study | None = None, *, out_dir=None, progress=None) -> S
     from .jobs import sweep_file
 
     study = study or Study()
-    doc, paths = sweep_file(path, study.settings(), out_dir=out_dir, progress=progress)
+    doc, paths = sweep_file(path, study.settings(), out_dir=out_dir, progress=progress, use_cache=use_cache)
     return SweepResult(doc, paths)
 
 

@@ -495,7 +495,9 @@ def sweep_task(task: dict) -> dict:
         settings = settings_from_plain(task["settings"])
         # the digest just taken is reused by the analysis (one hash per file);
         # a change while the file is read shows in its fingerprint (check_unchanged)
-        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir, sha256=sha)
+        # the analysis cache is keyed by that digest too: options changed since, the file is not decoded
+        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir, sha256=sha,
+                                 use_cache=task.get("use_cache", True))
     except AudiobwError as exc:
         return {"status": "failed", "cached": False, "reason": str(exc)}
     except Exception as exc:  # a bug or exhausted memory: list the file and go on
@@ -841,7 +843,7 @@ def run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int |
 
 def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
               cluster: str | None = None, follow_links: bool = False, progress=None,
-              cluster_timeout_s: float = 10.0) -> BatchResult:
+              cluster_timeout_s: float = 10.0, use_cache: bool = True) -> BatchResult:
     """Sweep every input file and write corpus.json and corpus.csv into ``out_dir``.
 
     Parameters
@@ -861,6 +863,10 @@ def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int 
         Follow symbolic links to folders, and links that lead out of a given folder.
     progress : callable(stats: dict), optional
         Called after each file with ``done``, ``failed``, ``cached``, ``total``, ``elapsed_s``.
+    use_cache : bool
+        Read and write the analysis cache (:mod:`audiobw.cache`, the user's cache folder):
+        a file swept before, with any options, is not decoded again.  ``OUT/cache/``
+        (finished files of this option set, for resuming) is used either way.
     """
     from .audio import write_text_atomic
     from .report.sweepio import dumps
@@ -879,7 +885,8 @@ def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int 
     opt = options_hash(plain)
     out_abs = Path(os.path.abspath(out))
     tasks = [{"path": os.path.abspath(it.path), "out_dir": str(out_abs / "files" / it.name),
-              "cache_dir": str(out_abs / "cache"), "settings": plain, "options": opt} for it in inputs.items]
+              "cache_dir": str(out_abs / "cache"), "settings": plain, "options": opt, "use_cache": use_cache}
+             for it in inputs.items]
     results: list = [None] * len(tasks)
     stats = {"done": 0, "failed": 0, "cached": 0, "total": len(tasks), "elapsed_s": 0.0}
     start = time.monotonic()

@@ -46,8 +46,10 @@ def _default_out(input_path: Path) -> Path:
               help="Also render the chosen case and the next narrower one (A/B clips, chain output).")
 @click.option("--report", "do_report", is_flag=True,
               help="Also write the spec sheet, plots and report.html beside sweep.json.")
+@click.option("--no-cache", "no_cache", is_flag=True,
+              help="Neither read nor write the analysis cache (~/.cache/audiobw; AUDIOBW_CACHE_DIR moves it).")
 @sweep_options
-def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
+def sweep(input, out, as_json, do_render, do_report, no_cache, chain_file, **kwargs):
     """Sweep candidate filters over INPUT and choose the narrowest passing passband.
 
     Example:
@@ -65,7 +67,7 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     from .audio import output_lock
 
     with output_lock(out_dir):
-        doc, paths, extra = _sweep_into(input, settings, out_dir, do_render, do_report)
+        doc, paths, extra = _sweep_into(input, settings, out_dir, do_render, do_report, use_cache=not no_cache)
     if as_json:
         click.echo(dumps(doc), nl=False)
         for line in extra:
@@ -83,7 +85,7 @@ def sweep(input, out, as_json, do_render, do_report, chain_file, **kwargs):
     click.echo(ESTIMATE_CAUTION)
 
 
-def _sweep_into(input, settings, out_dir, do_render, do_report):
+def _sweep_into(input, settings, out_dir, do_render, do_report, *, use_cache: bool = True):
     """sweep's work (sweep, then --render and --report), run while the output folder is locked."""
     from .jobs import sweep_file
     from .names import shown
@@ -91,7 +93,7 @@ def _sweep_into(input, settings, out_dir, do_render, do_report):
     progress = Progress(f"analysing {shown(input.name)}")
     try:
         doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress,
-                                notify=lambda line: click.echo(f"audiobw: {line}", err=True))
+                                notify=lambda line: click.echo(f"audiobw: {line}", err=True), use_cache=use_cache)
     finally:
         progress.close()
     extra = []

@@ -12,8 +12,12 @@ from .errors import OutputError, ParameterError
 from .settings import Settings
 
 
-def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=None, notify=None):
+def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=None, notify=None,
+               use_cache: bool = True):
     """Analyse ``path``, sweep the grid, write sweep.json/sweep.csv to ``out_dir``.
+
+    With ``use_cache`` the analysis comes from, and goes to, the analysis cache
+    (:mod:`audiobw.cache`, keyed by the file's SHA-256); the figures are the same.
 
     Returns
     -------
@@ -41,7 +45,10 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
 
     if notify is not None and grid.count() >= ESTIMATE_FROM_CASES:
         notify(time_estimate(grid.count()))
-    analysis = analyse(path, progress=progress, sha256=sha256)
+    from . import cache
+
+    analysis = analyse(path, progress=progress, sha256=sha256,
+                       cache=cache if use_cache and cache.enabled() else None)
     chain = settings.chain_for(analysis)
     data = None
     if settings.program == "data":

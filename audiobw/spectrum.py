@@ -193,6 +193,7 @@ def _hash_in_background(path):
         thread.join()
         return box["hex"] if "hex" in box else audio.sha256_file(path)
 
+    result.ready = lambda: not thread.is_alive()  # type: ignore[attr-defined]
     return result
 
 
@@ -248,7 +249,8 @@ def _prefetched(blocks, depth: int = 2):
         thread.join(timeout=5.0)
 
 
-def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None) -> Analysis:
+def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None,
+            cache=None) -> Analysis:
     """Run the single streaming pass over ``path``.
 
     Parameters
@@ -261,6 +263,12 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         The file's SHA-256 (hex) when the caller has just computed it (batch
         hashes each file once, for its cache); otherwise it is computed here
         in a helper thread during the pass.
+    cache : module or None
+        The analysis cache (:mod:`audiobw.cache`, or any object with its
+        ``load``, ``store``, ``known_digest`` and ``remember``): looked up as
+        soon as the digest is known (at once when the file's size and time
+        stamps are those of a file hashed before), written after a full pass.
+        A hit gives the same object, bit for bit, as the pass would.
 
     Returns
     -------
@@ -277,8 +285,44 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         before = audio.fingerprint(path)
     except OSError as exc:
         raise AudioFileError(f"{audio.shown(path)}: cannot read ({exc.strerror or exc})") from None
+    looked_up = cache is None
+    tried = None
+
+    def lookup(hex_=None, *, by_digest=True):
+        """The cached analysis (warnings re-issued, file checked unchanged), or None."""
+        nonlocal looked_up, tried
+        if by_digest:
+            looked_up = True
+        hex_ = hex_ or digest()
+        if hex_ == tried:  # the digest the index gave, already looked up
+            return None
+        tried = hex_
+        hit = cache.load(hex_, info, blocksize=blocksize)
+        if hit is None:
+            return None
+        audio.check_unchanged(path, before)
+        if by_digest:  # the next run finds the digest from the file's size and time stamps
+            cache.remember(path, before, hex_)
+        _warn_truncated(info.path, hit.frames, hit.meta.get("declared_frames"))
+        _warn_about(hit)
+        if progress is not None:
+            progress(hit.frames, max(info.frames, hit.frames))
+        return hit
+
+    if cache is not None and not sha256:
+        # the same file (inode, size, modification and change times) as a run that hashed it:
+        # its digest is known without reading it again
+        known = cache.known_digest(path, before)
+        if known:
+            found = lookup(known, by_digest=False)
+            if found is not None:
+                return found
     # a caller that has just hashed the file (batch) passes the digest: no second hash
     digest = (lambda: sha256) if sha256 else _hash_in_background(path)
+    if cache is not None and sha256:
+        found = lookup()
+        if found is not None:
+            return found
     fs = info.sample_rate_hz
     nch = info.channels
     nper, nshort = frame_lengths(fs, info.frames if info.frames > 0 else None)
@@ -320,6 +364,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     near_full = 1.0 - 2.0**-15
 
     for block_fc in _prefetched(audio.iter_blocks(path, blocksize=blocksize)):
+        if not looked_up and getattr(digest, "ready", bool)():
+            found = lookup()  # the digest came in: a hit ends the pass here
+            if found is not None:
+                return found
         block = np.ascontiguousarray(block_fc.T)  # (channels, frames)
         n = block.shape[1]
         frames += n
@@ -368,11 +416,12 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             progress(frames, max(info.frames, frames))
 
     acc = acc[:, 0::2] + acc[:, 1::2]
+    if not looked_up:
+        found = lookup()  # a short file can end before its digest does
+        if found is not None:
+            return found
     declared = audio.wav_declared_frames(path) if info.format == "WAV" else info.frames
-    if declared and 0 < frames < declared:
-        # a truncated file: the header promises more than could be read
-        audio.warn(f"{info.path}: the header promises {declared} frames but only {frames} could be read "
-                   "(truncated file?); the readable part is used")
+    _warn_truncated(info.path, frames, declared)
     if frames < nshort or n_seg == 0:
         raise AudioFileError(
             f"{info.path}: {frames} frames is shorter than one analysis frame "
@@ -397,8 +446,20 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         band_frames=np.asarray(kept), frame_len=nshort, frame_stride=stride,
         meta={"format": info.format, "subtype": info.subtype, "welch_segments": n_seg},
     )
+    if declared and 0 < frames < declared:
+        a.meta["declared_frames"] = int(declared)
     _warn_about(a)
+    if cache is not None:
+        if cache.store(a, blocksize=blocksize) is not None:
+            cache.remember(path, before, a.sha256)
     return a
+
+
+def _warn_truncated(path, frames: int, declared) -> None:
+    if declared and 0 < frames < declared:
+        # a truncated file: the header promises more than could be read
+        audio.warn(f"{path}: the header promises {declared} frames but only {frames} could be read "
+                   "(truncated file?); the readable part is used")
 
 
 def _warn_about(a: Analysis) -> None:

@@ -13,6 +13,11 @@ the programs in a child).
 
     python benchmarks/whole.py            # full table (also run by `make bench`)
     python benchmarks/whole.py --quick    # a smaller, faster table for development
+    python benchmarks/whole.py --cache-only   # the re-sweep table (analysis cache) only
+
+Every sweep runs with its own empty analysis cache (``AUDIOBW_CACHE_DIR``, a
+new temporary folder per run) except the "again" subjects, which re-sweep with
+other targets against a cache warmed by one untimed run.
 
 Nothing here is a test: no time is asserted anywhere in ``make test``.
 """
@@ -68,22 +73,32 @@ def timed(cmd, env=None):
     proc.stderr.close()
     if proc.returncode not in (0, 3):  # 3: no case met the targets (still a full sweep)
         raise RuntimeError(f"{' '.join(map(str, cmd))} exited {proc.returncode}:\n{err[-2000:]}")
+    timed.cpu = usage.ru_utime + usage.ru_stime  # type: ignore[attr-defined]  # CPU s of the child
     return wall, usage.ru_maxrss / 1024.0, load
 
 
+def cold_env():
+    """An environment whose analysis cache is a new, empty folder: the run analyses the file
+    (and writes its cache entry) as a first run on a file does."""
+    return {**os.environ, "AUDIOBW_CACHE_DIR": tempfile.mkdtemp(prefix="audiobw-cold-cache-")}
+
+
 def interleaved(repeats, subjects):
-    """Run the subjects one after the other, ``repeats`` rounds; per subject: min, median, loads, RSS."""
-    runs = {name: [] for name, _ in subjects}
+    """Run the subjects one after the other, ``repeats`` rounds; per subject: min, median, loads, RSS.
+
+    A subject is ``(name, cmd)`` (run with a cold analysis cache) or ``(name, cmd, env)``."""
+    runs = {s[0]: [] for s in subjects}
     for _ in range(repeats):
-        for name, cmd in subjects:
-            runs[name].append(timed(cmd))
-            w, r, l = runs[name][-1]
-            print(f"  {name}: {w:.2f} s, {r:.0f} MB, load {l:.2f}", flush=True)
+        for name, cmd, *env in subjects:
+            runs[name].append((*timed(cmd, env[0] if env else cold_env()), timed.cpu))
+            w, r, ld, cpu = runs[name][-1]
+            print(f"  {name}: {w:.2f} s, CPU {cpu:.2f} s, {r:.0f} MB, load {ld:.2f}", flush=True)
     out = {}
     for name, rs in runs.items():
-        walls = [w for w, _, _ in rs]
-        out[name] = dict(min=min(walls), median=statistics.median(walls), rss=max(r for _, r, _ in rs),
-                         load=statistics.median(l for _, _, l in rs))
+        walls = [x[0] for x in rs]
+        out[name] = dict(min=min(walls), median=statistics.median(walls), rss=max(x[1] for x in rs),
+                         load=statistics.median(x[2] for x in rs), cpu_min=min(x[3] for x in rs),
+                         cpu_median=statistics.median(x[3] for x in rs))
     return out
 
 
@@ -102,13 +117,77 @@ def program(kind, seconds, seed=1):
     return Path(out.stdout.strip().splitlines()[-1])
 
 
+def warm_env(tmp, cmd):
+    """An environment whose analysis cache holds the file's analysis (``cmd`` run once, untimed)."""
+    env = {**os.environ, "AUDIOBW_CACHE_DIR": str(tmp / f"warm-cache-{time.monotonic_ns()}")}
+    timed(cmd, env)
+    return env
+
+
+CACHE_BEGIN = "<!-- analysis-cache table: written by benchmarks/whole.py --cache-only -->"
+CACHE_END = "<!-- end of analysis-cache table -->"
+
+
+def cache_table(reps: int, seconds: float, write: bool):
+    """The re-sweep loop: first sweep (cold cache), the same file again with other targets
+    (analysis cached), and the floor process; 3-minute stereo FLAC, 96 cases."""
+    load0 = os.getloadavg()
+    p3 = program("noise", seconds)
+    tmp = Path(tempfile.mkdtemp(prefix="audiobw-cache-bench-"))
+    floor = [sys.executable, "-c", FLOOR, str(p3)]
+    warm = warm_env(tmp, sweep_cmd(p3, [2, 4, 8], 8, tmp / "w"))
+    r = interleaved(reps, [("floor", floor), ("first", sweep_cmd(p3, [2, 4, 8], 8, tmp / "a")),
+                           ("again", sweep_cmd(p3, [2, 4, 8], 8, tmp / "b", ("--max-loss", "0.2")), warm),
+                           ("no-cache", sweep_cmd(p3, [2, 4, 8], 8, tmp / "c", ("--max-loss", "0.2", "--no-cache")),
+                            warm)])
+    rows = []
+    for label, num, den in (("first sweep (cold cache) / floor", "first", "floor"),
+                            ("again, other targets (analysis cached) / floor", "again", "floor"),
+                            ("again / first", "again", "first"),
+                            ("again with --no-cache / floor", "no-cache", "floor")):
+        n, d = r[num], r[den]
+        rows.append(f"| {label} | {n['min']:.2f} / {d['min']:.2f} s | {n['median']:.2f} / {d['median']:.2f} s | "
+                    f"{n['min'] / d['min']:.2f} × | {n['median'] / d['median']:.2f} × | "
+                    f"{n['cpu_min']:.2f} / {d['cpu_min']:.2f} s ({n['cpu_min'] / d['cpu_min']:.2f} ×) | "
+                    f"{n['load']:.2f} |")
+    load1 = os.getloadavg()
+    lines = [CACHE_BEGIN, "", f"Run: {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}; {os.cpu_count()} cores; "
+             f"{seconds / 60:g}-min stereo 48 kHz 24-bit FLAC, 96 cases; {reps} interleaved runs each; "
+             f"load average (1, 5, 15 min) {load0[0]:.2f}, {load0[1]:.2f}, {load0[2]:.2f} at start and "
+             f"{load1[0]:.2f}, {load1[1]:.2f}, {load1[2]:.2f} at the end.", "",
+             "| measurement | wall min (num / den) | wall median (num / den) | ratio of minima | ratio of medians "
+             "| CPU min, user + sys (ratio) | load |",
+             "|---|---|---|---|---|---|---|", *rows, "", CACHE_END]
+    text = "\n".join(lines) + "\n"
+    print(text)
+    if write:
+        _replace_between(CACHE_BEGIN, CACHE_END, text)
+
+
+def _replace_between(begin, end, text):
+    page = ROOT / "docs" / "performance.md"
+    old = page.read_text(encoding="utf-8") if page.exists() else ""
+    if begin in old and end in old:
+        new = old.split(begin)[0] + text.rstrip("\n") + old.split(end, 1)[1]
+    else:
+        new = old.rstrip("\n") + "\n\n" + text
+    tmp_page = page.with_suffix(".md.part")
+    tmp_page.write_text(new, encoding="utf-8")
+    os.replace(tmp_page, page)
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="shorter files, fewer repeats (development)")
     ap.add_argument("--no-write", action="store_true", help="print the table only; leave docs/performance.md")
+    ap.add_argument("--cache-only", action="store_true",
+                    help="only the re-sweep table (analysis cache): 3-min file, first / again / floor")
+    ap.add_argument("--repeats", type=int, default=None, help="interleaved runs per subject")
     a = ap.parse_args(argv)
+    if a.cache_only:
+        return cache_table(a.repeats or (1 if a.quick else 5), 30 if a.quick else 180, not a.no_write)
     load0 = os.getloadavg()
-    reps = 1 if a.quick else 3
+    reps = a.repeats or (1 if a.quick else 3)
     short, long_ = (30, 60) if a.quick else (180, 600)
     p3 = program("noise", short)
     p10 = program("noise", long_)
@@ -126,8 +205,9 @@ def main(argv=None):
     r = interleaved(reps, [("floor", floor(p3)), ("sweep", sweep_cmd(p3, [2, 4, 8], 8, tmp / "a"))])
     row(f"{short / 60:g}-min stereo FLAC, 96 cases / floor", r["sweep"], r["floor"], "≤ 1.3 ×")
     print(f"2. {long_:g} s stereo, 288 cases (+ repeat with new targets)", flush=True)
+    warm = warm_env(tmp, sweep_cmd(p10, [2, 4, 8], 24, tmp / "w"))
     r = interleaved(reps, [("floor", floor(p10)), ("sweep", sweep_cmd(p10, [2, 4, 8], 24, tmp / "b")),
-                           ("again", sweep_cmd(p10, [2, 4, 8], 24, tmp / "c", ("--max-loss", "0.2")))])
+                           ("again", sweep_cmd(p10, [2, 4, 8], 24, tmp / "c", ("--max-loss", "0.2")), warm)])
     row(f"{long_ / 60:g}-min stereo FLAC, 288 cases / floor", r["sweep"], r["floor"], "≤ 1.1 ×")
     row("same, repeated with new targets / floor", r["again"], r["floor"], "≤ 0.3 ×")
     print("3. 1000 / 100 cases", flush=True)

@@ -12,6 +12,31 @@ HERE = Path(__file__).parent
 REPO = HERE.parent
 
 
+@pytest.fixture(scope="session", autouse=True)
+def _analysis_cache_of_the_session(tmp_path_factory):
+    """Module- and session-scoped fixtures (set up before any function-scoped one) sweep
+    too: the whole session keeps the analysis cache in a temporary folder, never ~/.cache."""
+    import os
+
+    saved = {k: os.environ.get(k) for k in ("AUDIOBW_CACHE_DIR", "AUDIOBW_NO_CACHE", "AUDIOBW_CACHE_MAX_MB")}
+    os.environ["AUDIOBW_CACHE_DIR"] = str(tmp_path_factory.mktemp("analysis-cache-session"))
+    os.environ.pop("AUDIOBW_NO_CACHE", None)
+    os.environ.pop("AUDIOBW_CACHE_MAX_MB", None)
+    yield
+    for k, v in saved.items():
+        if v is None:
+            os.environ.pop(k, None)
+        else:
+            os.environ[k] = v
+
+
+@pytest.fixture(autouse=True)
+def _analysis_cache_in_tmp(_analysis_cache_of_the_session, tmp_path_factory, monkeypatch):
+    """Every test (and every process it starts) keeps the analysis cache in its own
+    temporary folder: nothing is written to ~/.cache, and no test sees another's entries."""
+    monkeypatch.setenv("AUDIOBW_CACHE_DIR", str(tmp_path_factory.mktemp("analysis-cache")))
+
+
 @pytest.fixture
 def rng():
     return np.random.default_rng(20261201)

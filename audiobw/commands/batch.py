@@ -67,8 +67,11 @@ def _duration(seconds: float) -> str:
 @click.option("--follow-links", is_flag=True,
               help="Follow symbolic links to folders and links that lead out of a folder given.")
 @click.option("--json", "as_json", is_flag=True, help="Print corpus.json to stdout instead of the summary.")
+@click.option("--no-cache", "no_cache", is_flag=True,
+              help="Neither read nor write the analysis cache (~/.cache/audiobw); OUT/cache/ still resumes.")
 @sweep_options
-def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_links, as_json, chain_file, **kwargs):
+def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_links, as_json, no_cache, chain_file,
+            **kwargs):
     """Sweep every file of a library and choose the narrowest case that passes on
     at least the --coverage share of them.
 
@@ -97,7 +100,8 @@ def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_lin
     progress = BatchProgress()
     try:
         result = run_batch(list(inputs), settings, out, coverage=share, workers=workers, cluster=cluster,
-                           follow_links=follow_links, progress=progress, cluster_timeout_s=timeout_s)
+                           follow_links=follow_links, progress=progress, cluster_timeout_s=timeout_s,
+                           use_cache=not no_cache)
     except KeyboardInterrupt:
         progress.close()
         click.echo(f"audiobw: finished files are kept in {out / 'cache'}; run the same command again to resume",
