@@ -2,7 +2,7 @@
 
 Everything the sweep scores is derived from this pass: the long-term power
 spectral density (Welch's method, per channel and power-averaged over
-channels), a second, finer Welch PSD of the low decades (segments 16 times
+channels), a second, finer Welch PSD of the low decades (segments 8 times
 longer, computed from the same blocks: the file is still read once), sample
 levels, a compact short-time critical-band summary for the
 log-spectral distance, and the 99 % occupied bandwidth.  No candidate filter
@@ -42,9 +42,11 @@ PSD_RESOLUTION_HZ = 3.0
 #: segment of T seconds; against a response falling s dB/Hz the power-averaged
 #: gain is off by about (ln 10/20)·s²·σ² dB (a Gaussian-spread estimate).  At
 #: 3 Hz a Butterworth 8 highpass at 50 Hz read 0.8 dB too little loss at 40 Hz;
-#: at 0.2 Hz the worst 20-50 Hz highpass of any family and order 1-8 is within
-#: 0.005 dB of |H(f)|² at the tone (tests/test_lowfreq.py).
-FINE_RESOLUTION_HZ = 0.2
+#: at 0.37 Hz (48 kHz) the worst 20-50 Hz highpass of every family, orders 2-8,
+#: on tones at 25, 40 and 60 Hz is within 0.01 dB of |H(f)|² at the tones
+#: (tests/test_lowfreq.py).  Halving it again cost 40 % more analysis time for
+#: 0.007 dB.
+FINE_RESOLUTION_HZ = 0.4
 #: The fine PSD is kept up to this frequency, Hz; the crossover to the normal
 #: PSD is chosen between FINE_CROSSOVER_HZ[0] and [1] (see Analysis.scoring_grid).
 FINE_TOP_HZ = 560.0
@@ -387,6 +389,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     acc_f = np.zeros((nch, 2 * n_keep))
     n_seg_f = 0
     carry_f = np.zeros((nch, 0))
+    work_f = np.zeros((0,))
 
     edges = critical_band_edges(fs / 2.0)
     band_of_bin = np.clip(np.searchsorted(edges, freqs_s, side="right") - 1, 0, len(edges) - 2)
@@ -445,7 +448,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             buf_f = np.concatenate([carry_f, block], axis=1) if carry_f.size else block
             if buf_f.shape[1] >= nfine:
                 segs = np.lib.stride_tricks.sliding_window_view(buf_f, nfine, axis=1)[:, ::hop_f]
-                v = sfft.rfft(segs * win_f, axis=-1)[..., :n_keep].view(np.float64)
+                if work_f.shape != segs.shape:  # reused: fresh pages of a large array cost system time
+                    work_f = np.empty(segs.shape)
+                np.multiply(segs, win_f, out=work_f)
+                v = sfft.rfft(work_f, axis=-1, overwrite_x=True)[..., :n_keep].view(np.float64)
                 acc_f += np.einsum("ijk,ijk->ik", v, v)
                 n_seg_f += segs.shape[1]
                 carry_f = buf_f[:, segs.shape[1] * hop_f:]
