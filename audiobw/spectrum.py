@@ -146,8 +146,9 @@ class Analysis:
     frame_stride: int
     meta: dict = field(default_factory=dict)
     #: The fine low-frequency PSD (channel mean, (sample units)²/Hz) on a grid of
-    #: step fs/fine_nperseg from 0 Hz up to about FINE_TOP_HZ; empty when the
-    #: file is too short for a segment longer than ``nperseg``.
+    #: step fs/fine_nperseg from 0 Hz up to about FINE_TOP_HZ, its DC bin doubled
+    #: for the half-width trapezoid weight; empty when the file is too short
+    #: for a segment longer than ``nperseg``.
     fine_nperseg: int = 0
     fine_freqs_hz: np.ndarray = field(default_factory=lambda: np.zeros(0))
     fine_psd: np.ndarray = field(default_factory=lambda: np.zeros(0))
@@ -181,14 +182,15 @@ class Analysis:
         (``freqs_hz[-(bins - k):]`` is ``self.freqs_hz[k:]``).  f_x is the lower
         edge (k − ½)·df of a normal bin, chosen between FINE_CROSSOVER_HZ where
         the normal PSD holds the least power within ±CROSSOVER_HALF_BINS bins
-        (a spectral valley: little of either estimate's leakage crosses it).
-        Fine bins take trapezoid widths over [0, f_x] (the bin on f_x counts
-        half), so the widths still add up to fs/2; the fine PSD is scaled so
-        that it holds exactly the power the normal PSD holds below f_x: no
-        power is counted twice or lost, and the total equals the normal
-        PSD's.  The scale is kept in ``meta['fine_scale']`` (1 for a steady
-        program whose spectrum has a valley in the range).  Without a fine PSD
-        this is the normal grid with k = 0.
+        (a spectral valley: little of either estimate's leakage crosses it, so
+        little power is counted twice or not at all).  Fine bins take
+        trapezoid widths over [0, f_x] (the bin on f_x counts half), normal
+        bins their own from f_x up: each frequency is integrated by one
+        estimate and the widths add up to fs/2.  ``meta['fine_vs_normal_db']``
+        is 10·lg of the fine over the normal estimate of the power below f_x
+        (0 for a steady program; the normal PSD counts half its DC bin, so a
+        program with DC or infrasonic content reads higher on the fine one).
+        Without a fine PSD this is the normal grid with k = 0.
         """
         if self._scoring is not None:
             return self._scoring
@@ -200,7 +202,7 @@ class Analysis:
         hi_k = min(hi_k, f.size - 1 - CROSSOVER_HALF_BINS)
         if ratio < 2 or self.fine_psd.size == 0 or hi_k < lo_k:
             self._scoring = (f, p, w, 0)
-            self.meta["fine_scale"] = None
+            self.meta["fine_vs_normal_db"] = None
             return self._scoring
         power = p * w
         cum = np.concatenate([[0.0], np.cumsum(power)])
@@ -210,17 +212,17 @@ class Analysis:
         j_end = k * ratio - ratio // 2        # fine bin on the crossover (k − ½)·df
         if j_end >= self.fine_psd.size:
             self._scoring = (f, p, w, 0)
-            self.meta["fine_scale"] = None
+            self.meta["fine_vs_normal_db"] = None
             return self._scoring
         ff = self.fine_freqs_hz[: j_end + 1]
         fw = trapezoid_weights(ff.size, ff[1] - ff[0])
         fp = self.fine_psd[: j_end + 1]
         below = float(cum[k])  # normal bins 0 … k−1 cover [0, (k − ½)·df]
         fine_power = float(np.sum(fp * fw))
-        scale = below / fine_power if fine_power > 0 else 1.0
-        self.meta["fine_scale"] = scale
+        self.meta["fine_vs_normal_db"] = (10.0 * math.log10(fine_power / below)
+                                          if fine_power > 0 and below > 0 else None)
         self.meta["crossover_hz"] = float(ff[-1])
-        self._scoring = (np.concatenate([ff, f[k:]]), np.concatenate([fp * scale, p[k:]]),
+        self._scoring = (np.concatenate([ff, f[k:]]), np.concatenate([fp, p[k:]]),
                          np.concatenate([fw, w[k:]]), k)
         return self._scoring
 
@@ -506,9 +508,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     fine_psd = np.zeros(0)
     if n_seg_f:
         fine_ch = (acc_f[:, 0::2] + acc_f[:, 1::2]) / (fs * np.sum(win_f**2) * n_seg_f)
-        fine_ch[:, 1:] *= 2.0  # one-sided
-        if n_keep == nfine // 2 + 1:
-            fine_ch[:, -1] /= 2.0  # the Nyquist bin (kept only at a rate below 2·FINE_TOP_HZ)
+        # one-sided, every bin doubled: the DC bin (and a kept Nyquist bin) then holds its
+        # power over the half-width trapezoid weight, so a DC offset integrates exactly
+        # (scipy.signal.welch leaves them single, for rectangle weights)
+        fine_ch *= 2.0
         fine_psd = fine_ch.mean(axis=0)
     else:
         nfine = n_keep = 0

@@ -171,8 +171,9 @@ def test_total_power_is_preserved(tmp_path):
     assert np.all(np.diff(f) > 0)
     ms = float(np.mean(x**2))
     assert 10 * math.log10(float(np.sum(p * w)) / ms) == pytest.approx(0.0, abs=0.01)
-    # the fine PSD alone, below the crossover, holds what the normal one holds there
-    assert a.meta["fine_scale"] == pytest.approx(1.0, abs=0.003)
+    # the fine PSD, below the crossover, holds what the normal one holds there (a steady
+    # program: the two estimates differ only by leakage across the crossover)
+    assert a.meta["fine_vs_normal_db"] == pytest.approx(0.0, abs=0.01)
     # and the sweep's full-band program power is that total (no case removes anything at 0 dB)
     sc = Scorer(a, Chain(**QUIET), Meter())
     assert sc._pre["x_total"] == pytest.approx(float(np.sum(p * w)) * Chain(**QUIET).volts_per_unit**2, rel=1e-12)
@@ -190,7 +191,9 @@ def test_fine_psd_streams_like_one_block(tmp_path):
     x = sf.read(str(path))[0]  # the samples as stored (32-bit float)
     fw, pw = signal.welch(x, fs=FS, window="hann", nperseg=a.fine_nperseg, noverlap=a.fine_nperseg // 2,
                           detrend=False, scaling="density")
-    np.testing.assert_allclose(a.fine_psd, pw[: a.fine_psd.size], rtol=1e-7, atol=1e-18)
+    # (the fine DC bin is doubled, for its half-width trapezoid weight)
+    np.testing.assert_allclose(a.fine_psd[1:], pw[1: a.fine_psd.size], rtol=1e-7, atol=1e-18)
+    assert a.fine_psd[0] == pytest.approx(2 * pw[0], rel=1e-7)
     np.testing.assert_allclose(a.fine_freqs_hz, fw[: a.fine_psd.size])
 
 
@@ -215,3 +218,22 @@ def test_a_lower_highpass_edge_never_removes_more(low_scorer, c1, c2, order):
     r_lo = low_scorer.score(design(FilterSpec("highpass", "butterworth", order, lo, None)))
     r_hi = low_scorer.score(design(FilterSpec("highpass", "butterworth", order, hi, None)))
     assert r_lo["loss_db"] <= r_hi["loss_db"] + 1e-9
+
+
+@pytest.mark.filterwarnings("ignore::audiobw.errors.AudiobwWarning")  # the DC-offset warning, expected here
+def test_dc_offset_is_counted_on_the_scoring_grid(tmp_path):
+    # a DC offset and a 40 Hz tone: the scoring grid holds the time-domain mean square
+    # (numpy) within 0.01 dB (the normal grid, which counts half its DC bin: −0.27 dB), and a highpass removes the offset as loss (exact: the tone
+    # power through |H(40 Hz)|², scipy.signal.freqs on scipy.signal.butter(analog=True))
+    x = 0.1 + _tones([40.0], [0.3], seconds=20.0)
+    path = tmp_path / "dc.wav"
+    sf.write(str(path), x, FS, subtype="FLOAT")
+    a = analyse(path)
+    f, p, w, _ = a.scoring_grid()
+    ms = float(np.mean(sf.read(str(path))[0] ** 2))
+    assert 10 * math.log10(float(np.sum(p * w)) / ms) == pytest.approx(0.0, abs=0.01)
+    b, aa = signal.butter(4, 2 * np.pi * 20.0, "highpass", analog=True)
+    g40 = float(np.abs(signal.freqs(b, aa, [2 * np.pi * 40.0])[1][0]) ** 2)
+    exact = 10 * math.log10(ms / (0.3**2 / 2 * g40))
+    row = Scorer(a, Chain(**QUIET), Meter()).score(design(FilterSpec("highpass", "butterworth", 4, 20.0, None)))
+    assert row["loss_db"] == pytest.approx(exact, abs=TOL_DB)
