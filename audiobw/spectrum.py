@@ -50,6 +50,9 @@ FINE_RESOLUTION_HZ = 0.4
 #: The fine PSD is kept up to this frequency, Hz; the crossover to the normal
 #: PSD is chosen between FINE_CROSSOVER_HZ[0] and [1] (see Analysis.scoring_grid).
 FINE_TOP_HZ = 560.0
+#: The fine PSD needs at least this many half-overlapped segments (a 3-minute
+#: file at 48 kHz has 130); with fewer its segment is shortened.
+FINE_MIN_SEGMENTS = 7
 FINE_CROSSOVER_HZ = (250.0, 500.0)
 #: Half-width of the neighbourhood, in normal bins, whose power the crossover
 #: minimises (the Hann kernel's leakage beyond 8 bins is below -70 dB).
@@ -112,12 +115,13 @@ def fine_length(fs_hz: float, n_psd: int, n_frames: int | None = None) -> int:
     """Segment length of the fine low-frequency PSD, samples (0: none).
 
     The power of two giving at most FINE_RESOLUTION_HZ, halved until the file
-    holds at least three segments (50 % overlap); 0 when that leaves it no
-    longer than the normal segment ``n_psd``.
+    holds at least FINE_MIN_SEGMENTS segments (50 % overlap: a noise-like
+    program's low band is then estimated about as steadily as on the normal
+    grid); 0 when that leaves it no longer than the normal segment ``n_psd``.
     """
     n = _pow2_at_least(fs_hz / FINE_RESOLUTION_HZ)
     if n_frames is not None:
-        while n > n_psd and 2 * n > n_frames:
+        while n > n_psd and (FINE_MIN_SEGMENTS + 1) * n // 2 > n_frames:
             n //= 2
     return n if n > n_psd else 0
 
