@@ -2,9 +2,9 @@
 
 Everything the sweep scores is derived from this pass: the long-term power
 spectral density (Welch's method, per channel and power-averaged over
-channels), a second, finer Welch PSD of the low decades (segments 8 times
-longer, computed from the same blocks: the file is still read once), sample
-levels, a compact short-time critical-band summary for the
+channels), a second, finer Welch PSD of the low decades (Hann segments 8 times
+longer at 75 % overlap, so that the samples weigh the same; computed from the
+same blocks: the file is still read once), sample levels, a compact short-time critical-band summary for the
 log-spectral distance, and the 99 % occupied bandwidth.  No candidate filter
 ever touches the audio.
 
@@ -50,9 +50,12 @@ FINE_RESOLUTION_HZ = 0.4
 #: The fine PSD is kept up to this frequency, Hz; the crossover to the normal
 #: PSD is chosen between FINE_CROSSOVER_HZ[0] and [1] (see Analysis.scoring_grid).
 FINE_TOP_HZ = 560.0
-#: The fine PSD needs at least this many half-overlapped segments (a 3-minute
-#: file at 48 kHz has 130); with fewer its segment is shortened.
-FINE_MIN_SEGMENTS = 7
+#: The file must be at least this many fine segments long; a shorter file gets
+#: a shorter fine segment.  Welch weighs the first and last 3/4 segment less, so
+#: a long segment on a short clip whose level changes near its ends reads its
+#: low band off (a 9 s speech clip: +0.6 dB with 1.5 s segments, against a
+#: periodogram of the whole file); 16 lengths keep that share of the file small.
+FINE_MIN_LENGTHS = 16
 FINE_CROSSOVER_HZ = (250.0, 500.0)
 #: Half-width of the neighbourhood, in normal bins, whose power the crossover
 #: minimises (the Hann kernel's leakage beyond 8 bins is below -70 dB).
@@ -115,13 +118,12 @@ def fine_length(fs_hz: float, n_psd: int, n_frames: int | None = None) -> int:
     """Segment length of the fine low-frequency PSD, samples (0: none).
 
     The power of two giving at most FINE_RESOLUTION_HZ, halved until the file
-    holds at least FINE_MIN_SEGMENTS segments (50 % overlap: a noise-like
-    program's low band is then estimated about as steadily as on the normal
-    grid); 0 when that leaves it no longer than the normal segment ``n_psd``.
+    is at least FINE_MIN_LENGTHS segments long; 0 when that leaves it no
+    longer than the normal segment ``n_psd``.
     """
     n = _pow2_at_least(fs_hz / FINE_RESOLUTION_HZ)
     if n_frames is not None:
-        while n > n_psd and (FINE_MIN_SEGMENTS + 1) * n // 2 > n_frames:
+        while n > n_psd and FINE_MIN_LENGTHS * n > n_frames:
             n //= 2
     return n if n > n_psd else 0
 
@@ -150,9 +152,10 @@ class Analysis:
     frame_stride: int
     meta: dict = field(default_factory=dict)
     #: The fine low-frequency PSD (channel mean, (sample units)²/Hz) on a grid of
-    #: step fs/fine_nperseg from 0 Hz up to about FINE_TOP_HZ, its DC bin doubled
-    #: for the half-width trapezoid weight; empty when the file is too short
-    #: for a segment longer than ``nperseg``.
+    #: step fs/fine_nperseg from 0 Hz up to about FINE_TOP_HZ: Welch, Hann
+    #: segments at 75 % overlap, the DC bin doubled for its half-width trapezoid
+    #: weight; empty when the file is too short for a segment longer than
+    #: ``nperseg``.
     fine_nperseg: int = 0
     fine_freqs_hz: np.ndarray = field(default_factory=lambda: np.zeros(0))
     fine_psd: np.ndarray = field(default_factory=lambda: np.zeros(0))
@@ -388,14 +391,31 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     freqs_s = np.arange(nshort // 2 + 1) * fs / nshort
     # the fine low-frequency PSD: longer segments of the same blocks, only the
     # bins up to FINE_TOP_HZ accumulated (the transform itself is full length)
+    # Welch with Hann at 75 % overlap: the squared windows add up to a constant,
+    # so every sample but those of the first and last 3/4 segment weighs the
+    # same (at 50 % overlap the weights run from 0.5 to 1 with the period of the
+    # hop, 1.4 s here).  The ends weigh less (see FINE_MIN_LENGTHS).  The file
+    # is not zero-padded to weigh them fully: its abrupt ends would then count
+    # as clicks (a 30 s, 20 Hz tone read 1.2 dB high A-weighted).
     nfine = fine_length(fs, nper, info.frames if info.frames > 0 else None)
-    hop_f = nfine // 2
+    hop_f = nfine // 4
     win_f = hann_periodic(nfine) if nfine else np.zeros(0)
     n_keep = min(int(math.ceil(FINE_TOP_HZ * nfine / fs)) + 1, nfine // 2 + 1) if nfine else 0
     acc_f = np.zeros((nch, 2 * n_keep))
     n_seg_f = 0
     carry_f = np.zeros((nch, 0))
     work_f = np.zeros((0,))
+
+    def fine_segments(buf):
+        """Accumulate |X|² of the whole segments of ``buf``; returns how many."""
+        nonlocal work_f
+        segs = np.lib.stride_tricks.sliding_window_view(buf, nfine, axis=1)[:, ::hop_f]
+        if work_f.shape != segs.shape:  # reused: fresh pages of a large array cost system time
+            work_f = np.empty(segs.shape)
+        np.multiply(segs, win_f, out=work_f)
+        v = sfft.rfft(work_f, axis=-1, overwrite_x=True)[..., :n_keep].view(np.float64)
+        acc_f[:] += np.einsum("ijk,ijk->ik", v, v)
+        return segs.shape[1]
 
     edges = critical_band_edges(fs / 2.0)
     band_of_bin = np.clip(np.searchsorted(edges, freqs_s, side="right") - 1, 0, len(edges) - 2)
@@ -453,14 +473,9 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         if nfine:
             buf_f = np.concatenate([carry_f, block], axis=1) if carry_f.size else block
             if buf_f.shape[1] >= nfine:
-                segs = np.lib.stride_tricks.sliding_window_view(buf_f, nfine, axis=1)[:, ::hop_f]
-                if work_f.shape != segs.shape:  # reused: fresh pages of a large array cost system time
-                    work_f = np.empty(segs.shape)
-                np.multiply(segs, win_f, out=work_f)
-                v = sfft.rfft(work_f, axis=-1, overwrite_x=True)[..., :n_keep].view(np.float64)
-                acc_f += np.einsum("ijk,ijk->ik", v, v)
-                n_seg_f += segs.shape[1]
-                carry_f = buf_f[:, segs.shape[1] * hop_f:]
+                done = fine_segments(buf_f)
+                n_seg_f += done
+                carry_f = buf_f[:, done * hop_f:]
             else:
                 carry_f = buf_f
 
@@ -514,7 +529,6 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         fine_ch = (acc_f[:, 0::2] + acc_f[:, 1::2]) / (fs * np.sum(win_f**2) * n_seg_f)
         # one-sided, every bin doubled: the DC bin (and a kept Nyquist bin) then holds its
         # power over the half-width trapezoid weight, so a DC offset integrates exactly
-        # (scipy.signal.welch leaves them single, for rectangle weights)
         fine_ch *= 2.0
         fine_psd = fine_ch.mean(axis=0)
     else:

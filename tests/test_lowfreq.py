@@ -25,7 +25,7 @@ from audiobw.spectrum import analyse
 from audiobw.sweep import Grid, run_sweep
 
 FS = 48000
-SECONDS = 30.0
+SECONDS = 45.0  # the full fine resolution (131072 samples at 48 kHz) needs 16 segments: 43.7 s
 QUIET = dict(source_ohms=0.0, en_v_rthz=0.0, in_a_rthz=0.0, bits=32, dither="none")
 #: the goal of the fine grid: 20–50 Hz highpass decisions within 0.1 dB of exact filtering
 TOL_DB = 0.1
@@ -42,7 +42,7 @@ def _tones(freqs, amps, seconds=SECONDS, seed=7):
 
 @pytest.fixture(scope="module")
 def low_tones(tmp_path_factory):
-    """Stereo, 30 s: a 40 Hz tone with weaker 25 and 60 Hz tones and a 1 kHz tone (program above the crossover)."""
+    """Stereo, 45 s: a 40 Hz tone with weaker 25 and 60 Hz tones and a 1 kHz tone (program above the crossover)."""
     freqs, amps = (25.0, 40.0, 60.0, 1000.0), (0.1, 0.5, 0.05, 0.02)
     left = _tones(freqs, amps, seed=1)
     right = _tones(freqs, amps, seed=2)
@@ -180,21 +180,32 @@ def test_total_power_is_preserved(tmp_path):
 
 
 def test_fine_psd_streams_like_one_block(tmp_path):
-    x = _tones([33.0, 47.0], [0.3, 0.3], seconds=8.0) + 0.01 * np.random.default_rng(9).standard_normal(8 * FS)
+    x = _tones([33.0, 47.0], [0.3, 0.3], seconds=20.0) + 0.01 * np.random.default_rng(9).standard_normal(20 * FS)
+    x[4 * FS: 7 * FS] *= 0.1                                 # a level change: the time weights matter
     path = tmp_path / "s.wav"
     sf.write(str(path), x, FS, subtype="FLOAT")
     a = analyse(path, blocksize=1 << 17)
     b = analyse(path, blocksize=12345)
-    assert a.fine_nperseg == b.fine_nperseg > 0
+    assert a.fine_nperseg == b.fine_nperseg == 32768         # 20 s: 16 segments of 0.68 s
     np.testing.assert_allclose(a.fine_psd, b.fine_psd, rtol=1e-9)
-    # and agrees with scipy.signal.welch at the same segment (Hann, 50 % overlap, no detrend)
     x = sf.read(str(path))[0]  # the samples as stored (32-bit float)
-    fw, pw = signal.welch(x, fs=FS, window="hann", nperseg=a.fine_nperseg, noverlap=a.fine_nperseg // 2,
-                          detrend=False, scaling="density")
-    # (the fine DC bin is doubled, for its half-width trapezoid weight)
-    np.testing.assert_allclose(a.fine_psd[1:], pw[1: a.fine_psd.size], rtol=1e-7, atol=1e-18)
-    assert a.fine_psd[0] == pytest.approx(2 * pw[0], rel=1e-7)
-    np.testing.assert_allclose(a.fine_freqs_hz, fw[: a.fine_psd.size])
+    # scipy.signal.welch at the same segment: Hann, 75 % overlap, no detrending, density;
+    # the fine DC bin is doubled (for its half-width trapezoid weight)
+    n = a.fine_nperseg
+    fw, pw = signal.welch(x, fs=FS, window="hann", nperseg=n, noverlap=3 * n // 4, detrend=False,
+                          scaling="density")
+    m = a.fine_psd.size
+    np.testing.assert_allclose(a.fine_psd[1:], pw[1:m], rtol=1e-9, atol=1e-20)
+    assert a.fine_psd[0] == pytest.approx(2 * pw[0], rel=1e-9)
+    np.testing.assert_allclose(a.fine_freqs_hz, fw[:m])
+    # the level change is weighed like the time domain: its power below 100 Hz is that of a
+    # numpy periodogram of the whole file within 0.05 dB (−0.02 dB: the first and last 3/4
+    # segment weigh less)
+    X = np.fft.rfft(x)
+    fr = np.fft.rfftfreq(x.size, 1 / FS)
+    p_true = (np.abs(X[0]) ** 2 + 2 * np.sum(np.abs(X[(fr > 0) & (fr < 100)]) ** 2)) / x.size**2
+    fine = a.fine_psd * np.where(a.fine_freqs_hz == 0, 0.5, 1.0) * (a.fine_freqs_hz[1])
+    assert 10 * math.log10(np.sum(fine[a.fine_freqs_hz < 100]) / p_true) == pytest.approx(0.0, abs=0.05)
 
 
 def test_short_file_keeps_the_normal_grid(tmp_path):
@@ -225,7 +236,7 @@ def test_dc_offset_is_counted_on_the_scoring_grid(tmp_path):
     # a DC offset and a 40 Hz tone: the scoring grid holds the time-domain mean square
     # (numpy) within 0.01 dB (the normal grid, which counts half its DC bin: −0.27 dB), and a highpass removes the offset as loss (exact: the tone
     # power through |H(40 Hz)|², scipy.signal.freqs on scipy.signal.butter(analog=True))
-    x = 0.1 + _tones([40.0], [0.3], seconds=20.0)
+    x = 0.1 + _tones([40.0], [0.3])
     path = tmp_path / "dc.wav"
     sf.write(str(path), x, FS, subtype="FLOAT")
     a = analyse(path)
