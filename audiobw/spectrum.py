@@ -3,8 +3,8 @@
 Everything the sweep scores is derived from this pass: the long-term power
 spectral density (Welch's method, per channel and power-averaged over
 channels), a second, finer Welch PSD of the low decades (Hann segments 8 times
-longer at 75 % overlap, so that the samples weigh the same; computed from the
-same blocks: the file is still read once), sample levels, a compact short-time critical-band summary for the
+longer, computed from the same blocks: the file is still read once), sample
+levels, a compact short-time critical-band summary for the
 log-spectral distance, and the 99 % occupied bandwidth.  No candidate filter
 ever touches the audio.
 
@@ -53,7 +53,7 @@ FINE_TOP_HZ = 560.0
 #: The file must be at least this many fine segments long; a shorter file gets
 #: a shorter fine segment.  Welch weighs the first and last 3/4 segment less, so
 #: a long segment on a short clip whose level changes near its ends reads its
-#: low band off (a 9 s speech clip: +0.6 dB with 1.5 s segments, against a
+#: low band off (a 9 s speech clip: +0.5 dB with 1.5 s segments, against a
 #: periodogram of the whole file); 16 lengths keep that share of the file small.
 FINE_MIN_LENGTHS = 16
 FINE_CROSSOVER_HZ = (250.0, 500.0)
@@ -153,7 +153,7 @@ class Analysis:
     meta: dict = field(default_factory=dict)
     #: The fine low-frequency PSD (channel mean, (sample units)²/Hz) on a grid of
     #: step fs/fine_nperseg from 0 Hz up to about FINE_TOP_HZ: Welch, Hann
-    #: segments at 75 % overlap, the DC bin doubled for its half-width trapezoid
+    #: segments at 50 % overlap, the DC bin doubled for its half-width trapezoid
     #: weight; empty when the file is too short for a segment longer than
     #: ``nperseg``.
     fine_nperseg: int = 0
@@ -391,14 +391,14 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     freqs_s = np.arange(nshort // 2 + 1) * fs / nshort
     # the fine low-frequency PSD: longer segments of the same blocks, only the
     # bins up to FINE_TOP_HZ accumulated (the transform itself is full length)
-    # Welch with Hann at 75 % overlap: the squared windows add up to a constant,
-    # so every sample but those of the first and last 3/4 segment weighs the
-    # same (at 50 % overlap the weights run from 0.5 to 1 with the period of the
-    # hop, 1.4 s here).  The ends weigh less (see FINE_MIN_LENGTHS).  The file
-    # is not zero-padded to weigh them fully: its abrupt ends would then count
-    # as clicks (a 30 s, 20 Hz tone read 1.2 dB high A-weighted).
+    # Welch with Hann at 50 % overlap, like the normal PSD.  The first and last
+    # half segment weigh less (see FINE_MIN_LENGTHS); the file is not zero-padded
+    # to weigh them fully: its abrupt ends would then count as clicks (a 30 s,
+    # 20 Hz tone read 1.2 dB high A-weighted).  75 % overlap (squared windows
+    # adding to a constant) moved a level-change test by 0.004 dB for 1.2x the
+    # sweep's CPU time, and was left out.
     nfine = fine_length(fs, nper, info.frames if info.frames > 0 else None)
-    hop_f = nfine // 4
+    hop_f = nfine // 2
     win_f = hann_periodic(nfine) if nfine else np.zeros(0)
     n_keep = min(int(math.ceil(FINE_TOP_HZ * nfine / fs)) + 1, nfine // 2 + 1) if nfine else 0
     acc_f = np.zeros((nch, 2 * n_keep))
