@@ -277,11 +277,25 @@ class Scorer:
         self._bands = (filled, np.searchsorted(band_of_bin, filled), len(edges) - 1)
         sw = S * a.weights_hz
         band_s = self._band_sum(sw)
+        # loss and SNR integrate the program on the scoring grid: the fine
+        # low-frequency PSD below the crossover, the normal PSD (bins k …) above
+        # (Analysis.scoring_grid; its widths add up to fs/2 and its power to the
+        # normal PSD's, so nothing is counted twice)
+        fx, px, wx, k = a.scoring_grid()
+        fl = fx[: fx.size - (f.size - k)]
+        wml = (wx * ((fx >= lo) & (fx <= hi)))[: fl.size]
+        Sl = px[: fl.size] * v2
+        Sh = S[k:]
         self._pre = dict(
             wm=wm, S=S, aw=aw, bins_per_band=bins_per_band, sw=sw, band_s=band_s,
-            s_total=float(np.sum(S * wm)), s_total_a=float(np.sum(S * wm * aw)),
+            s_total=float(np.sum(S * wm)),
+            k=k, fl=fl, swl=Sl * wml, swl_a=Sl * wml * a_weighting_power(fl),
+            swh=Sh * wm[k:], swh_a=Sh * wm[k:] * aw[k:],
             frames_v2=a.band_frames * v2, lo=lo, hi=hi,
         )
+        p = self._pre
+        p["x_total"] = float(np.sum(p["swl"])) + float(np.sum(p["swh"]))
+        p["x_total_a"] = float(np.sum(p["swl_a"])) + float(np.sum(p["swh_a"]))
         fv2 = self._pre["frames_v2"]
         # the floor of each frame: LSD_FRAME_FLOOR_DB under its level (a silent frame: a tiny
         # positive floor, so input and output sit on it and the frame's distance is 0)
@@ -307,10 +321,16 @@ class Scorer:
         n_pow = float(np.sum(N * wm))
         n_pow_a = float(np.sum(N * wm * p["aw"]))
         S = p["S"]
-        s_out = float(np.sum(S * G * wm))
-        s_out_a = float(np.sum(S * G * wm * p["aw"]))
+        # program out on the scoring grid (fine below the crossover)
+        k = p["k"]
+        Gl = filt.power_response(p["fl"]) if p["fl"].size else p["fl"]
+        Gh = G[k:]
+        x_out = float(np.dot(p["swl"], Gl)) + float(np.dot(p["swh"], Gh))
+        x_out_a = float(np.dot(p["swl_a"], Gl)) + float(np.dot(p["swh_a"], Gh))
         # error against the input at the best single delay, phase included
-        # (∫S|1 − H·e^{j2πfτ}|² = ∫S(1 + |H|²) − 2·max_τ Re ∫S·H·e^{j2πfτ}; see best_delay)
+        # (∫S|1 − H·e^{j2πfτ}|² = ∫S(1 + |H|²) − 2·max_τ Re ∫S·H·e^{j2πfτ}; see best_delay):
+        # on the normal grid throughout (the delay search needs a uniform grid from 0 Hz)
+        s_out = float(np.sum(S * G * wm))
         _, cross = _delay_cross(S * wm * filt.response(f), f)
         err = max(p["s_total"] + s_out - 2.0 * cross, 0.0)
         nyq = a.nyquist_hz
@@ -323,9 +343,9 @@ class Scorer:
                         else filt.enbw_hz(nyq)),
             "noise_vrms": math.sqrt(n_pow),
             "noise_dbfs": _db(n_pow / c.full_scale_power_v2),
-            "snr_db": _db(s_out / n_pow) if s_out > 0 else None,
-            "snr_a_db": _db(s_out_a / n_pow_a) if s_out_a > 0 and n_pow_a > 0 else None,
-            "loss_db": _db(p["s_total"] / s_out) if s_out > 0 else None,
+            "snr_db": _db(x_out / n_pow) if x_out > 0 else None,
+            "snr_a_db": _db(x_out_a / n_pow_a) if x_out_a > 0 and n_pow_a > 0 else None,
+            "loss_db": _db(p["x_total"] / x_out) if x_out > 0 else None,
             "lsd_db": self._lsd(G),
             "ser_db": _db(p["s_total"] / (err + n_pow)),
             "alias_rejection_db": alias_rejection_db(filt, filt.spec.response, lo3, hi3, a.sample_rate_hz),

@@ -2,7 +2,9 @@
 
 Everything the sweep scores is derived from this pass: the long-term power
 spectral density (Welch's method, per channel and power-averaged over
-channels), sample levels, a compact short-time critical-band summary for the
+channels), a second, finer Welch PSD of the low decades (Hann segments 8 times
+longer, computed from the same blocks: the file is still read once), sample
+levels, a compact short-time critical-band summary for the
 log-spectral distance, and the 99 % occupied bandwidth.  No candidate filter
 ever touches the audio.
 
@@ -35,6 +37,29 @@ from .weighting import critical_band_edges
 
 #: Target resolution of the long-term PSD, Hz (edges near 20 Hz need it).
 PSD_RESOLUTION_HZ = 3.0
+#: Target resolution of the fine low-frequency PSD, Hz.  A Hann window smears a
+#: tone over a main lobe whose power-weighted spread is σ = 1/(√3·T) for a
+#: segment of T seconds; against a response falling s dB/Hz the power-averaged
+#: gain is off by about (ln 10/20)·s²·σ² dB (a Gaussian-spread estimate).  At
+#: 3 Hz a Butterworth 8 highpass at 50 Hz read 0.8 dB too little loss at 40 Hz;
+#: at 0.37 Hz (48 kHz) the worst 20-50 Hz highpass of every family, orders 2-8,
+#: on tones at 25, 40 and 60 Hz is within 0.01 dB of |H(f)|² at the tones
+#: (tests/test_lowfreq.py).  Halving it again cost 40 % more analysis time for
+#: 0.007 dB.
+FINE_RESOLUTION_HZ = 0.4
+#: The fine PSD is kept up to this frequency, Hz; the crossover to the normal
+#: PSD is chosen between FINE_CROSSOVER_HZ[0] and [1] (see Analysis.scoring_grid).
+FINE_TOP_HZ = 560.0
+#: The file must be at least this many fine segments long; a shorter file gets
+#: a shorter fine segment.  Welch weighs the first and last 3/4 segment less, so
+#: a long segment on a short clip whose level changes near its ends reads its
+#: low band off (a 9 s speech clip: +0.5 dB with 1.5 s segments, against a
+#: periodogram of the whole file); 16 lengths keep that share of the file small.
+FINE_MIN_LENGTHS = 16
+FINE_CROSSOVER_HZ = (250.0, 500.0)
+#: Half-width of the neighbourhood, in normal bins, whose power the crossover
+#: minimises (the Hann kernel's leakage beyond 8 bins is below -70 dB).
+CROSSOVER_HALF_BINS = 8
 #: Length of a short-time frame for the band summary, s (~43 ms).
 FRAME_SECONDS = 0.043
 #: At most this many short-time frames are kept (evenly spaced in time).
@@ -89,6 +114,20 @@ def frame_lengths(fs_hz: float, n_frames: int | None = None) -> tuple[int, int]:
     return n_psd, n_short
 
 
+def fine_length(fs_hz: float, n_psd: int, n_frames: int | None = None) -> int:
+    """Segment length of the fine low-frequency PSD, samples (0: none).
+
+    The power of two giving at most FINE_RESOLUTION_HZ, halved until the file
+    is at least FINE_MIN_LENGTHS segments long; 0 when that leaves it no
+    longer than the normal segment ``n_psd``.
+    """
+    n = _pow2_at_least(fs_hz / FINE_RESOLUTION_HZ)
+    if n_frames is not None:
+        while n > n_psd and FINE_MIN_LENGTHS * n > n_frames:
+            n //= 2
+    return n if n > n_psd else 0
+
+
 @dataclass
 class Analysis:
     """The result of one pass over a program (see module docstring for units)."""
@@ -112,6 +151,15 @@ class Analysis:
     frame_len: int
     frame_stride: int
     meta: dict = field(default_factory=dict)
+    #: The fine low-frequency PSD (channel mean, (sample units)²/Hz) on a grid of
+    #: step fs/fine_nperseg from 0 Hz up to about FINE_TOP_HZ: Welch, Hann
+    #: segments at 50 % overlap, the DC bin doubled for its half-width trapezoid
+    #: weight; empty when the file is too short for a segment longer than
+    #: ``nperseg``.
+    fine_nperseg: int = 0
+    fine_freqs_hz: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    fine_psd: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    _scoring: tuple | None = field(default=None, repr=False, compare=False)
 
     @property
     def duration_s(self) -> float:
@@ -132,6 +180,58 @@ class Analysis:
         """rms (power mean over channels) re a full-scale sine, dBFS (AES17)."""
         ms = float(np.mean(self.mean_square))
         return 10.0 * math.log10(2.0 * ms) if ms > 0 else -math.inf
+
+    def scoring_grid(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+        """The grid the program's power integrals use: fine below a crossover, normal above.
+
+        Returns ``(freqs_hz, psd, weights_hz, k)``: fine bins from 0 Hz up to
+        the crossover f_x, then the normal bins ``k`` … end unchanged
+        (``freqs_hz[-(bins - k):]`` is ``self.freqs_hz[k:]``).  f_x is the lower
+        edge (k − ½)·df of a normal bin, chosen between FINE_CROSSOVER_HZ where
+        the normal PSD holds the least power within ±CROSSOVER_HALF_BINS bins
+        (a spectral valley: little of either estimate's leakage crosses it, so
+        little power is counted twice or not at all).  Fine bins take
+        trapezoid widths over [0, f_x] (the bin on f_x counts half), normal
+        bins their own from f_x up: each frequency is integrated by one
+        estimate and the widths add up to fs/2.  ``meta['fine_vs_normal_db']``
+        is 10·lg of the fine over the normal estimate of the power below f_x
+        (0 for a steady program; the normal PSD counts half its DC bin, so a
+        program with DC or infrasonic content reads higher on the fine one).
+        Without a fine PSD this is the normal grid with k = 0.
+        """
+        if self._scoring is not None:
+            return self._scoring
+        f, p, w = self.freqs_hz, self.psd, self.weights_hz
+        ratio = self.fine_nperseg // self.nperseg if self.nperseg else 0
+        df = f[1] - f[0] if f.size > 1 else 0.0
+        lo_k = int(math.ceil(FINE_CROSSOVER_HZ[0] / df + 0.5)) if df else 0
+        hi_k = int(math.floor(FINE_CROSSOVER_HZ[1] / df + 0.5)) if df else 0
+        hi_k = min(hi_k, f.size - 1 - CROSSOVER_HALF_BINS)
+        if ratio < 2 or self.fine_psd.size == 0 or hi_k < lo_k:
+            self._scoring = (f, p, w, 0)
+            self.meta["fine_vs_normal_db"] = None
+            return self._scoring
+        power = p * w
+        cum = np.concatenate([[0.0], np.cumsum(power)])
+        ks = np.arange(lo_k, hi_k + 1)
+        around = cum[ks + CROSSOVER_HALF_BINS + 1] - cum[ks - CROSSOVER_HALF_BINS]
+        k = int(ks[np.argmin(around)])
+        j_end = k * ratio - ratio // 2        # fine bin on the crossover (k − ½)·df
+        if j_end >= self.fine_psd.size:
+            self._scoring = (f, p, w, 0)
+            self.meta["fine_vs_normal_db"] = None
+            return self._scoring
+        ff = self.fine_freqs_hz[: j_end + 1]
+        fw = trapezoid_weights(ff.size, ff[1] - ff[0])
+        fp = self.fine_psd[: j_end + 1]
+        below = float(cum[k])  # normal bins 0 … k−1 cover [0, (k − ½)·df]
+        fine_power = float(np.sum(fp * fw))
+        self.meta["fine_vs_normal_db"] = (10.0 * math.log10(fine_power / below)
+                                          if fine_power > 0 and below > 0 else None)
+        self.meta["crossover_hz"] = float(ff[-1])
+        self._scoring = (np.concatenate([ff, f[k:]]), np.concatenate([fp, p[k:]]),
+                         np.concatenate([fw, w[k:]]), k)
+        return self._scoring
 
     def occupied_band_hz(self, fraction: float = 0.99) -> tuple[float, float]:
         """(lower, upper) limits holding ``fraction`` of the power, equal tails (ITU-R SM.328)."""
@@ -333,6 +433,33 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     scale_short = 2.0 / (nshort * np.sum(win_s**2))
     freqs = np.arange(nper // 2 + 1) * fs / nper
     freqs_s = np.arange(nshort // 2 + 1) * fs / nshort
+    # the fine low-frequency PSD: longer segments of the same blocks, only the
+    # bins up to FINE_TOP_HZ accumulated (the transform itself is full length)
+    # Welch with Hann at 50 % overlap, like the normal PSD.  The first and last
+    # half segment weigh less (see FINE_MIN_LENGTHS); the file is not zero-padded
+    # to weigh them fully: its abrupt ends would then count as clicks (a 30 s,
+    # 20 Hz tone read 1.2 dB high A-weighted).  75 % overlap (squared windows
+    # adding to a constant) moved a level-change test by 0.004 dB for 1.2x the
+    # sweep's CPU time, and was left out.
+    nfine = fine_length(fs, nper, info.frames if info.frames > 0 else None)
+    hop_f = nfine // 2
+    win_f = hann_periodic(nfine) if nfine else np.zeros(0)
+    n_keep = min(int(math.ceil(FINE_TOP_HZ * nfine / fs)) + 1, nfine // 2 + 1) if nfine else 0
+    acc_f = np.zeros((nch, 2 * n_keep))
+    n_seg_f = 0
+    carry_f = np.zeros((nch, 0))
+    work_f = np.zeros((0,))
+
+    def fine_segments(buf):
+        """Accumulate |X|² of the whole segments of ``buf``; returns how many."""
+        nonlocal work_f
+        segs = np.lib.stride_tricks.sliding_window_view(buf, nfine, axis=1)[:, ::hop_f]
+        if work_f.shape != segs.shape:  # reused: fresh pages of a large array cost system time
+            work_f = np.empty(segs.shape)
+        np.multiply(segs, win_f, out=work_f)
+        v = sfft.rfft(work_f, axis=-1, overwrite_x=True)[..., :n_keep].view(np.float64)
+        acc_f[:] += np.einsum("ijk,ijk->ik", v, v)
+        return segs.shape[1]
 
     edges = critical_band_edges(fs / 2.0)
     band_of_bin = np.clip(np.searchsorted(edges, freqs_s, side="right") - 1, 0, len(edges) - 2)
@@ -391,6 +518,15 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         else:
             carry = buf
 
+        if nfine:
+            buf_f = np.concatenate([carry_f, block], axis=1) if carry_f.size else block
+            if buf_f.shape[1] >= nfine:
+                done = fine_segments(buf_f)
+                n_seg_f += done
+                carry_f = buf_f[:, done * hop_f:]
+            else:
+                carry_f = buf_f
+
         buf_s = np.concatenate([carry_s, block], axis=1) if carry_s.size else block
         nfr = buf_s.shape[1] // nshort
         if nfr:
@@ -437,6 +573,15 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
 
     psd_ch = acc * scale_psd / n_seg
     psd_ch[:, 1:-1] *= 2.0  # one-sided
+    fine_psd = np.zeros(0)
+    if n_seg_f:
+        fine_ch = (acc_f[:, 0::2] + acc_f[:, 1::2]) / (fs * np.sum(win_f**2) * n_seg_f)
+        # one-sided, every bin doubled: the DC bin (and a kept Nyquist bin) then holds its
+        # power over the half-width trapezoid weight, so a DC offset integrates exactly
+        fine_ch *= 2.0
+        fine_psd = fine_ch.mean(axis=0)
+    else:
+        nfine = n_keep = 0
     df = fs / nper
     a = Analysis(
         path=str(info.path), sha256=_digest_unchanged(digest, path, before), sample_rate_hz=fs, channels=nch,
@@ -444,7 +589,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         weights_hz=trapezoid_weights(freqs.size, df), peak=peak, mean_square=sumsq / frames,
         dc=sums / frames, full_scale_samples=at_full_scale, band_edges_hz=edges,
         band_frames=np.asarray(kept), frame_len=nshort, frame_stride=stride,
-        meta={"format": info.format, "subtype": info.subtype, "welch_segments": n_seg},
+        meta={"format": info.format, "subtype": info.subtype, "welch_segments": n_seg,
+              "fine_welch_segments": n_seg_f},
+        fine_nperseg=nfine, fine_freqs_hz=np.arange(n_keep) * fs / nfine if nfine else np.zeros(0),
+        fine_psd=fine_psd,
     )
     if declared and 0 < frames < declared:
         a.meta["declared_frames"] = int(declared)
