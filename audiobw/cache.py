@@ -51,7 +51,7 @@ from typing import Any
 
 import numpy as np
 
-FORMAT = "audiobw-analysis-cache/1"
+FORMAT = "audiobw-analysis-cache/2"  # 2: the fine low-frequency PSD
 ENV_DIR = "AUDIOBW_CACHE_DIR"
 ENV_MAX_MB = "AUDIOBW_CACHE_MAX_MB"
 #: Default bound on the folder's size, bytes (500 MB).
@@ -66,9 +66,9 @@ INDEX_PREFIX, INDEX_SUFFIX = "path-", ".json"
 #: found an entry and refused it, entries written, entries evicted, writes that failed.
 STATS = {"hits": 0, "misses": 0, "rejected": 0, "writes": 0, "evicted": 0, "write_failures": 0, "index_hits": 0}
 
-_ARRAYS = ("psd_channels", "peak", "mean_square", "dc", "band_frames")
+_ARRAYS = ("psd_channels", "peak", "mean_square", "dc", "band_frames", "fine_psd")
 _INTS = ("sample_rate_hz", "channels", "frames", "nperseg", "frame_len", "frame_stride", "full_scale_samples",
-         "welch_segments", "declared_frames")
+         "welch_segments", "declared_frames", "fine_nperseg", "fine_welch_segments")
 _STRS = ("format", "key", "sha256", "audio_format", "subtype")
 _warned = False
 
@@ -113,6 +113,8 @@ def params(blocksize: int) -> dict:
     return {"format": FORMAT, "audiobw": __version__, "numpy": np.__version__, "scipy": scipy.__version__,
             "libsndfile": soundfile.__libsndfile_version__, "psd_resolution_hz": spectrum.PSD_RESOLUTION_HZ,
             "frame_seconds": spectrum.FRAME_SECONDS, "max_frames": spectrum.MAX_FRAMES,
+            "fine_resolution_hz": spectrum.FINE_RESOLUTION_HZ, "fine_top_hz": spectrum.FINE_TOP_HZ,
+            "fine_min_lengths": spectrum.FINE_MIN_LENGTHS,
             "blocksize": int(blocksize)}
 
 
@@ -158,6 +160,9 @@ def store(analysis, *, blocksize: int, folder=None) -> Path | None:
         "mean_square": np.asarray(analysis.mean_square, dtype=np.float64),
         "dc": np.asarray(analysis.dc, dtype=np.float64),
         "band_frames": np.asarray(analysis.band_frames, dtype=np.float64),
+        "fine_psd": np.asarray(analysis.fine_psd, dtype=np.float64),
+        "fine_nperseg": np.int64(analysis.fine_nperseg),
+        "fine_welch_segments": np.int64(analysis.meta.get("fine_welch_segments", 0)),
         "sample_rate_hz": np.int64(analysis.sample_rate_hz), "channels": np.int64(analysis.channels),
         "frames": np.int64(analysis.frames), "nperseg": np.int64(analysis.nperseg),
         "frame_len": np.int64(analysis.frame_len), "frame_stride": np.int64(analysis.frame_stride),
@@ -270,7 +275,7 @@ def _debug(message: str) -> None:
 def _validated(raw: bytes, sha256: str, info, blocksize: int):
     import io
 
-    from .spectrum import MAX_FRAMES, Analysis, frame_lengths, trapezoid_weights
+    from .spectrum import MAX_FRAMES, Analysis, fine_length, frame_lengths, trapezoid_weights
     from .weighting import critical_band_edges
 
     import zipfile
@@ -317,6 +322,11 @@ def _validated(raw: bytes, sha256: str, info, blocksize: int):
             return None
         if n != "dc" and np.any(arr < 0):
             return None
+    nfine, fine = ints["fine_nperseg"], data["fine_psd"]
+    if nfine < 0 or fine.ndim != 1 or (nfine == 0) != (fine.size == 0) or fine.size > nfine // 2 + 1:
+        return None
+    if nfine and nfine != fine_length(fs, nper, info.frames if info.frames > 0 else None):
+        return None
     bf = data["band_frames"]
     if bf.ndim != 2 or bf.shape[1] != len(edges) - 1 or not 1 <= bf.shape[0] <= MAX_FRAMES:
         return None
@@ -325,7 +335,7 @@ def _validated(raw: bytes, sha256: str, info, blocksize: int):
     psd_ch = data["psd_channels"]
     freqs = np.arange(nper // 2 + 1) * fs / nper
     meta = {"format": str(data["audio_format"]), "subtype": str(data["subtype"]),
-            "welch_segments": ints["welch_segments"]}
+            "welch_segments": ints["welch_segments"], "fine_welch_segments": ints["fine_welch_segments"]}
     if ints["declared_frames"]:
         meta["declared_frames"] = ints["declared_frames"]
     return Analysis(
@@ -334,6 +344,8 @@ def _validated(raw: bytes, sha256: str, info, blocksize: int):
         weights_hz=trapezoid_weights(freqs.size, fs / nper), peak=data["peak"], mean_square=data["mean_square"],
         dc=data["dc"], full_scale_samples=ints["full_scale_samples"], band_edges_hz=edges,
         band_frames=bf, frame_len=nshort, frame_stride=stride, meta=meta,
+        fine_nperseg=nfine, fine_freqs_hz=np.arange(fine.size) * fs / nfine if nfine else np.zeros(0),
+        fine_psd=fine,
     )
 
 

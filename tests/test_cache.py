@@ -63,11 +63,11 @@ def entries(folder: Path) -> list[Path]:
 
 def same_analysis(a, b) -> None:
     for name in ("freqs_hz", "psd_channels", "psd", "weights_hz", "peak", "mean_square", "dc",
-                 "band_edges_hz", "band_frames"):
+                 "band_edges_hz", "band_frames", "fine_freqs_hz", "fine_psd"):
         x, y = getattr(a, name), getattr(b, name)
         assert x.dtype == y.dtype and x.shape == y.shape and x.tobytes() == y.tobytes(), name
     for name in ("sha256", "sample_rate_hz", "channels", "frames", "nperseg", "full_scale_samples",
-                 "frame_len", "frame_stride", "meta"):
+                 "frame_len", "frame_stride", "meta", "fine_nperseg"):
         assert getattr(a, name) == getattr(b, name), name
 
 
@@ -99,6 +99,20 @@ def test_cached_analysis_is_the_pass_bit_for_bit(take):
     given_sha = spectrum.analyse(take, cache=cache, sha256=fresh.sha256)
     assert cache.STATS["hits"] == 2
     same_analysis(fresh, given_sha)
+
+
+def test_a_hit_keeps_the_fine_low_frequency_psd(tmp_path):
+    # 14 s: long enough for the fine low-frequency PSD (audiobw.spectrum.fine_length), which
+    # loss and SNR integrate below the crossover; a hit must give it back bit for bit
+    long_take = write(tmp_path / "long.flac", program(2, seconds=14.0), FS, "PCM_24")
+    fresh = spectrum.analyse(long_take)
+    assert fresh.fine_nperseg > fresh.nperseg and fresh.fine_psd.size > 0
+    spectrum.analyse(long_take, cache=cache)
+    hit = spectrum.analyse(long_take, cache=cache)
+    assert cache.STATS["hits"] == 1
+    same_analysis(fresh, hit)
+    for a, b in zip(fresh.scoring_grid(), hit.scoring_grid()):
+        assert np.array_equal(a, b)
 
 
 def test_no_cache_writes_nothing(take, tmp_path, folder, capsys):

@@ -118,7 +118,8 @@ def test_snr_follows_the_program_out(low_tones):
     # SNR = program out / modelled noise; with the noise model unchanged, the program out is
     # checked against the filtered samples (scipy.signal.sosfilt as above)
     path, _, _, x = low_tones
-    chain = Chain(source_ohms=150.0, en_v_rthz=1e-9, bits=24)
+    # a highpass's noise needs a bound: the ideal anti-alias filter (the default 'none' refuses it)
+    chain = Chain(source_ohms=150.0, en_v_rthz=1e-9, bits=24, anti_alias="ideal")
     fc = 45.0
     r = run_sweep(path, chain=chain, grid=Grid("highpass", ("butterworth",), (8,), (fc,)), targets={"min_snr_db": 0})
     row = r.cases[0]
@@ -143,7 +144,8 @@ def test_a_weighted_20_hz_tone(tmp_path):
     # noise term cancels between a 20 Hz and a 1 kHz tone scored through the same chain and filter
     assert _a_weighting_db(20.0) == pytest.approx(-50.5, abs=0.15)   # IEC 61672-1 Table 3
     assert _a_weighting_db(1000.0) == pytest.approx(0.0, abs=0.001)
-    chain = Chain(source_ohms=150.0, en_v_rthz=1e-9, bits=24)
+    # a highpass's noise needs a bound: the ideal anti-alias filter (the default 'none' refuses it)
+    chain = Chain(source_ohms=150.0, en_v_rthz=1e-9, bits=24, anti_alias="ideal")
     grid = Grid("lowpass", ("butterworth",), (2,), (20000.0,))
     diff = {}
     for f0 in (20.0, 1000.0):
@@ -219,7 +221,7 @@ def test_short_file_keeps_the_normal_grid(tmp_path):
 
 @pytest.fixture(scope="module")
 def low_scorer(low_tones):
-    return Scorer(analyse(low_tones[0]), Chain(source_ohms=150.0, en_v_rthz=1e-9, bits=24), Meter())
+    return Scorer(analyse(low_tones[0]), Chain(source_ohms=150.0, en_v_rthz=1e-9, bits=24, anti_alias="ideal"), Meter())
 
 
 @hsettings(max_examples=25, deadline=None)
