@@ -626,18 +626,10 @@ def recover_bit_rate(path, *, max_seconds: float = 60.0, min_confidence_db: floa
     AudioFileError
         When no line stands ``min_confidence_db`` above the spectrum's median.
     """
-    from .audio import iter_blocks, open_info
+    from .audio import open_info
 
-    info = open_info(path)
-    fs = info.sample_rate_hz
-    need = int(max_seconds * fs)
-    parts, got = [], 0
-    for block in iter_blocks(path):
-        parts.append(block.mean(axis=1))
-        got += block.shape[0]
-        if got >= need:
-            break
-    x = np.concatenate(parts)[:need]
+    fs = open_info(path).sample_rate_hz
+    x = _channel_mean_head(path, int(max_seconds * fs))
     d = np.diff(x) ** 2
     d = d - d.mean()
     n = 1 << int(math.ceil(math.log2(max(len(d), 16))))
@@ -668,17 +660,23 @@ def recover_bit_rate(path, *, max_seconds: float = 60.0, min_confidence_db: floa
 
 def read_stream(path, bit_rate_hz: float, *, max_bits: int = MAX_STREAM_BITS) -> tuple[np.ndarray, float]:
     """The first ``max_bits`` bits (plus a settling margin) of ``path``, channel mean, sample units."""
-    from .audio import iter_blocks, open_info
+    from .audio import open_info
 
     fs = open_info(path).sample_rate_hz
-    need = int(math.ceil((max_bits + 128) * fs / bit_rate_hz))
+    return _channel_mean_head(path, int(math.ceil((max_bits + 128) * fs / bit_rate_hz))), float(fs)
+
+
+def _channel_mean_head(path, need: int) -> np.ndarray:
+    """The first ``need`` frames of ``path`` (fewer if it is shorter), channel mean, sample units."""
+    from .audio import iter_blocks
+
     parts, got = [], 0
     for block in iter_blocks(path):
         parts.append(block.mean(axis=1))
         got += block.shape[0]
         if got >= need:
             break
-    return (np.concatenate(parts)[:need] if parts else np.zeros(0)), float(fs)
+    return np.concatenate(parts)[:need] if parts else np.zeros(0)
 
 
 def data_program_for(analysis, chain, bit_rate) -> DataProgram:

@@ -58,3 +58,13 @@ def write_audio(tmp_path):
     def _w(name, data, fs, subtype="FLOAT"):
         return write(tmp_path / name, data, fs, subtype)
     return _w
+
+
+def clean_stream(tmp_path_factory, prefix: str):
+    """A folder and in it a clean 1200 bit/s NRZ stream of 1024 bits written by ``audiobw bits``."""
+    from audiobw.cli import main
+
+    d = tmp_path_factory.mktemp(prefix)
+    stream = d / "b.flac"
+    assert main(["bits", "--bit-rate", "1200", "--bits-count", "1024", "--out", str(stream)]) == 0
+    return d, stream

@@ -9,14 +9,13 @@ import pytest
 
 from audiobw.cli import main
 
+from .conftest import clean_stream
+
 
 @pytest.fixture(scope="module")
 def clean_link(tmp_path_factory):
     """A 1200 bit/s stream swept with a BER target: its BER underflows a double (exactly 0)."""
-    d = tmp_path_factory.mktemp("link")
-    stream = d / "b.flac"
-    assert main(["bits", "--bit-rate", "1200", "--bits-count", "1024", "--out", str(stream)]) == 0
-    return d, stream
+    return clean_stream(tmp_path_factory, "link")
 
 
 def test_data_sweep_with_an_underflowing_ber_prints_a_verdict(clean_link, capsys):

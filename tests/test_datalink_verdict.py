@@ -8,16 +8,15 @@ import math
 import pytest
 
 from audiobw.cli import main
+
+from .conftest import clean_stream
 from audiobw.report.text import Q_FLOOR, q_text
 
 
 @pytest.fixture(scope="module")
 def narrow_choice(tmp_path_factory):
     """A clean 1200 bit/s stream with an eye target a Bessel 4 below 600 Hz meets."""
-    d = tmp_path_factory.mktemp("v")
-    stream = d / "b.flac"
-    assert main(["bits", "--bit-rate", "1200", "--bits-count", "1024", "--out", str(stream)]) == 0
-    return d, stream
+    return clean_stream(tmp_path_factory, "v")
 
 
 def test_a_choice_below_the_nyquist_minimum_is_explained(narrow_choice, capsys):
