@@ -62,7 +62,7 @@ def check_rows(rows, *, name: str) -> tuple[tuple[float, float], ...]:
         raise ParameterError(f"{name}: {len(pairs)} rows; {ACCEPTED}")
     if len(pairs) < 2:
         raise ParameterError(f"{name}: {len(pairs)} row{'s' if len(pairs) != 1 else ''}; {ACCEPTED}")
-    out = []
+    out: list[tuple[float, float]] = []
     for i, pair in enumerate(pairs, start=1):
         if len(pair) != 2 or any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in pair):
             raise ParameterError(f"{name}: row {i}: {pair!r} is not two numbers; {ACCEPTED}")
@@ -99,7 +99,8 @@ def read_table(path, *, origin: str) -> tuple[tuple[float, float], ...]:
         raise ParameterError(f"{where}: is a folder; {ACCEPTED}") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise ParameterError(f"{where}: cannot read ({type(exc).__name__}); {ACCEPTED}") from None
-    rows, lines = [], []
+    rows: list[tuple[float, float]] = []
+    lines: list[int] = []
     for lineno, cells in enumerate(csv.reader(text.splitlines()), start=1):
         cells = [c.strip() for c in cells]
         if not any(cells) or cells[0].startswith("#"):
@@ -167,7 +168,7 @@ def _antiderivative(table, x: np.ndarray) -> np.ndarray:
     ratio = np.log(fk[1:] / fk[:-1])
     slope = np.log(pk[1:] / pk[:-1]) / ratio          # b per segment
     # ∫ over each whole segment of P: P_i·f_i·L·E((b+1)L), E(u) = expm1(u)/u
-    seg = pk[:-1] * fk[:-1] * ratio * _expm1_over(( slope + 1.0) * ratio) - pw * (fk[1:] - fk[:-1])
+    seg = pk[:-1] * fk[:-1] * ratio * _expm1_over((slope + 1.0) * ratio) - pw * (fk[1:] - fk[:-1])
     knots = np.concatenate([[(pk[0] - pw) * fk[0]], (pk[0] - pw) * fk[0] + np.cumsum(seg)])
     x = np.asarray(x, dtype=float)
     out = np.empty_like(x)

@@ -412,7 +412,7 @@ def sanity_warnings(settings: Settings, raw_keys=()) -> list[str]:
     c, out = settings.chain, []
     if c.en_v_rthz > 1e-6:
         v = c.gain * c.en_v_rthz * math.sqrt(20000.0)
-        out.append(f"--en {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
+        out.append(f"{'--en-table (its top row)' if c.en_table is not None else '--en'} {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
                    "over 20 kHz); amplifiers are 0.5 to 50 nV/√Hz: was a prefix left off?")
     if c.in_a_rthz > 1e-9:
         out.append(f"--in {c.in_a_rthz:g} A/√Hz is {c.in_a_rthz * 1e12:.3g} pA/√Hz; amplifiers are 0.01 to "
