@@ -88,6 +88,15 @@ class Chain:
         only anti-alias filter), and the candidate or ``amp_bandwidth_hz``
         must bound the noise.  'ideal': a brick-wall at fs/2 ahead of the
         converter; nothing folds.
+    en_table : tuple of (f_hz, e_n_v_rthz) pairs, or None
+        A measured e_n density (``--en-table``; :mod:`audiobw.entable`): 2 to
+        10 000 rows, frequencies strictly increasing, interpolated in log-log,
+        held flat beyond both ends.  It replaces the white e_n and its corner:
+        ``en_v_rthz`` is set to the value of its highest-frequency row (the
+        white level), and the excess e_n(f)² − e_n,white² joins the 1/f path.
+        Given with ``en_corner_hz`` it is refused.  None: no table.
+    en_table_file : str or None
+        The table's file name, as recorded in sweep.json (None without a table).
     """
 
     source_ohms: float = 200.0
@@ -106,8 +115,22 @@ class Chain:
     en_corner_hz: float | None = None
     in_corner_hz: float | None = None
     anti_alias: str = "none"
+    en_table: tuple | None = None
+    en_table_file: str | None = None
 
     def __post_init__(self):
+        if self.en_table is not None:
+            from .entable import check_rows
+
+            table = check_rows(self.en_table, name="--en-table")
+            if self.en_corner_hz is not None:
+                raise ParameterError("--en-table: conflicts with --en-corner (the table gives e_n at every "
+                                     "frequency, its 1/f part included); accepted: one of them")
+            object.__setattr__(self, "en_table", table)
+            object.__setattr__(self, "en_v_rthz", table[-1][1])
+        elif self.en_table_file is not None:
+            raise ParameterError(f"--en-table: a file name ({self.en_table_file!r}) without its rows; "
+                                 "accepted: en_table given with en_table_file")
         checks = [
             ("--source-ohms", self.source_ohms, self.source_ohms >= 0, "a resistance >= 0 ohm"),
             ("--temperature", self.temperature_k, self.temperature_k > 0, "a temperature > 0 K"),
@@ -174,8 +197,10 @@ class Chain:
 
     @property
     def has_flicker(self) -> bool:
-        """True when a 1/f corner is given (the densities are then not white)."""
-        return bool(self.en_corner_hz or self.in_corner_hz)
+        """True when the densities are not white: a 1/f corner, or an e_n table that is not flat."""
+        from .entable import is_flat
+
+        return bool(self.en_corner_hz or self.in_corner_hz or (self.en_table is not None and not is_flat(self.en_table)))
 
     @property
     def lsb_v(self) -> float:
@@ -191,8 +216,11 @@ class Chain:
         return 2.0 * self.lsb_v**2 / 12.0 if self.dither == "tpdf" else 0.0
 
     def to_json(self) -> dict:
-        """Every parameter with its SI unit in the key name."""
-        return asdict(self)
+        """Every parameter with its SI unit in the key name (the e_n table as [f_hz, e_n] lists)."""
+        out = asdict(self)
+        if self.en_table is not None:
+            out["en_table"] = [list(row) for row in self.en_table]
+        return out
 
     @classmethod
     def field_names(cls) -> tuple[str, ...]:

@@ -37,7 +37,7 @@ def options(keys, group: str):
 
 CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
          "bits", "full_scale", "dither", "stage", "anti_alias", "source_level", "spl", "mic_sensitivity",
-         "en_corner", "in_corner")
+         "en_corner", "en_table", "in_corner")
 GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
 TARGETS = tuple(TARGET_OPTION)  # in target rank order (audiobw.registry)
 PROGRAM = ("program", "bit_rate", "playback_spl", "hearing_threshold")

@@ -123,14 +123,23 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     b = budget(settings.chain, filt, fs, meter=settings.meter.band(fs / 2.0))
     c = settings.chain
     fq = units.format_quantity
+    if c.en_table is not None:
+        from .entable import summary
+
+        en_text = (f"e_n from the table {summary(c.en_table, c.en_table_file)}, log-log between rows, flat beyond "
+                   f"them; white level {fq(c.en_v_rthz, 'V/√Hz')} at its top row")
+    else:
+        en_text = f"e_n {fq(c.en_v_rthz, 'V/√Hz')}"
     header = (f"Noise budget: {spec.label()}, {c.stage} stage, fs {fq(fs, 'Hz')}; Rs {fq(c.source_ohms, 'Ω')} at "
-              f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {fq(c.en_v_rthz, 'V/√Hz')}, "
+              f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, {en_text}, "
               f"i_n {fq(c.in_a_rthz, 'A/√Hz')}, {c.bits} bits, full scale {fq(c.full_scale_vrms, 'V rms')}, "
               f"dither {c.dither}, anti-alias {c.anti_alias}"
               + (f", amplifier bandwidth {fq(c.amp_bandwidth_hz, 'Hz')}" if c.amp_bandwidth_hz is not None else "")
               + (f"; 1/f corners e_n {fq(c.en_corner_hz, 'Hz') if c.en_corner_hz else 'none'}, "
                  f"i_n {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'} (1/f integrated from "
-                 f"{FLICKER_FROM_HZ:g} Hz)" if c.has_flicker else ""))
+                 f"{FLICKER_FROM_HZ:g} Hz)" if c.has_flicker and c.en_table is None else "")
+              + (f"; i_n 1/f corner {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'}; the table's excess "
+                 f"over its white level integrated from {FLICKER_FROM_HZ:g} Hz" if c.en_table is not None else ""))
     b["filter"] = {"response": response, "family": spec.family, "order": spec.order,
                    "low_hz": filt.edges_3db[0], "high_hz": filt.edges_3db[1]}
     b["chain"] = c.to_json()

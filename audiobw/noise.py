@@ -312,19 +312,36 @@ def noise_total(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np
         g, _ = converter_noise_gain(chain, filt, freqs_hz, weights_hz, fs_hz)
         out = (chain.density_amplifier_v2_hz() * g + converter) * h2
     if chain.has_flicker:
-        out = out + (chain.flicker_en_v2() + chain.flicker_in_v2()) * _flicker_gain(chain, h2, freqs_hz, weights_hz)
+        en_x, in_x = amplifier_excess(chain, freqs_hz, weights_hz)
+        out = out + (en_x + in_x) * _excess_gain(chain, h2, freqs_hz)
     return out
 
 
-def _flicker_gain(chain: Chain, h2: np.ndarray, freqs_hz: np.ndarray, weights_hz: np.ndarray) -> np.ndarray:
-    """(1/f)·|H|² on the grid (the amplifier pole included): the shape of the 1/f noise at the output.
+def amplifier_excess(chain: Chain, freqs_hz: np.ndarray, weights_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The amplifier's noise above its white densities, at the converter input, per bin (V²/Hz).
 
-    Not folded: its images sit near multiples of fs, where 1/f is down by
-    f_c/fs against the white part (under 1 % for a 500 Hz corner at 48 kHz),
-    and the white part's images are folded.
+    Returns ``(voltage, current)``: G²·e_n²·f_ce/f̄ plus G²·(e_n,table(f)² − e_n,white²)
+    (the e_n table's excess, :func:`audiobw.entable.excess_per_hz`), and G²·(i_n·Rs)²·f_ci/f̄;
+    each the mean over the bin's band, integrated from :data:`FLICKER_FROM_HZ`.
     """
-    g = h2 if chain.amp_bandwidth_hz is None else h2 / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
-    return flicker_per_hz(freqs_hz, weights_hz) * g
+    per_hz = flicker_per_hz(freqs_hz, weights_hz)
+    voltage = chain.flicker_en_v2() * per_hz
+    if chain.en_table is not None:
+        from .entable import excess_per_hz
+
+        voltage = voltage + chain.gain**2 * excess_per_hz(chain.en_table, freqs_hz, weights_hz, FLICKER_FROM_HZ)
+    return voltage, chain.flicker_in_v2() * per_hz
+
+
+def _excess_gain(chain: Chain, h2: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
+    """|H|² with the amplifier pole: the shape of the 1/f and table excess at the output.
+
+    Not folded: the 1/f images sit near multiples of fs, where 1/f is down by
+    f_c/fs against the white part (under 1 % for a 500 Hz corner at 48 kHz),
+    and the white part's images are folded.  An e_n table's excess is folded
+    neither: what of it lies above fs/2 is not counted.
+    """
+    return h2 if chain.amp_bandwidth_hz is None else h2 / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
 
 
 def noise_spectra(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray,
@@ -339,12 +356,16 @@ def noise_spectra(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: 
     else:
         gq = filt.power_response(freqs_hz)
         g = g * gq
-    flicker = (_flicker_gain(chain, filt.power_response(freqs_hz), freqs_hz, weights_hz) if chain.has_flicker
-               else np.zeros_like(freqs_hz))
+    if chain.has_flicker:
+        shape = _excess_gain(chain, filt.power_response(freqs_hz), freqs_hz)
+        en_x, in_x = amplifier_excess(chain, freqs_hz, weights_hz)
+        en_x, in_x = en_x * shape, in_x * shape
+    else:
+        en_x = in_x = np.zeros_like(freqs_hz)
     parts = {
         "source_thermal": chain.density_source_v2_hz() * g,
-        "amplifier_voltage": chain.density_en_v2_hz() * g + chain.flicker_en_v2() * flicker,
-        "amplifier_current": chain.density_in_v2_hz() * g + chain.flicker_in_v2() * flicker,
+        "amplifier_voltage": chain.density_en_v2_hz() * g + en_x,
+        "amplifier_current": chain.density_in_v2_hz() * g + in_x,
         "quantisation": q_density * gq,
         "dither": d_density * gq,
     }

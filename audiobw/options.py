@@ -32,6 +32,9 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
     "h2": ("amplifier", "gain_db", "2nd harmonic at full scale, dB re fundamental (e.g. -110)"),
     "h3": ("amplifier", "gain_db", "3rd harmonic at full scale, dB re fundamental (e.g. -120)"),
     "en_corner": ("amplifier", "frequency", "1/f corner of e_n, Hz: e_n(f)² = e_n²·(1 + fc/f) (default: none, white)"),
+    "en_table": ("amplifier", "en_table", "measured e_n density, a CSV file of rows 'frequency_Hz,e_n_V_per_rtHz' "
+                 "(one header line allowed; TOML: a path relative to the TOML file): interpolated in log-log, held "
+                 "flat beyond both ends; replaces --en and --en-corner (its top row is the white level)"),
     "in_corner": ("amplifier", "frequency", "1/f corner of i_n, Hz: i_n(f)² = i_n²·(1 + fc/f) (default: none, white)"),
     "amp_bandwidth": ("amplifier", "frequency", "amplifier's own -3 dB bandwidth, Hz (one pole; default unlimited)"),
     "bits": ("converter", "bits", "converter resolution, bits (1 to 32)"),

@@ -265,7 +265,15 @@ def _chain_text(c: Chain) -> str:
             f"h3 {'none' if c.h3_db is None else f'{c.h3_db:g} dB'}; amplifier bandwidth "
             f"{'unlimited' if c.amp_bandwidth_hz is None else f'{c.amp_bandwidth_hz:g} Hz'}; {c.bits} bits; "
             f"full scale {c.full_scale_vrms:g} V rms; dither {c.dither}; filter stage {c.stage}; "
-            f"anti-alias {c.anti_alias}; input gain {c.input_gain_db:.3g} dB")
+            f"anti-alias {c.anti_alias}; input gain {c.input_gain_db:.3g} dB"
+            + (f"; e_n table {c.en_table_file or '(no file name)'}, {len(c.en_table)} rows, its top row the e_n above"
+               if c.en_table is not None else "")
+            + (f"; {WHITE_ONLY}" if c.has_flicker else ""))
+
+
+#: what the time-domain render leaves out of the noise it synthesises
+WHITE_ONLY = ("the render synthesises the white noise only: the 1/f part and the excess of an e_n table over its "
+              "top row are in the sweep estimate, not in the audio")
 
 
 class _ProgramLevel:

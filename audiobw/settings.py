@@ -8,7 +8,7 @@ typed objects.  Command-line values override the file's.
 TOML layout (same names as the options, in snake_case)::
 
     [source]      source_ohms, temperature, input_level
-    [amplifier]   gain, en, in, en_corner, in_corner, h2, h3, amp_bandwidth
+    [amplifier]   gain, en, in, en_corner, en_table, in_corner, h2, h3, amp_bandwidth
     [converter]   bits, full_scale, dither, stage, anti_alias
     [grid]        response, family, order, cutoffs, low_edges, high_edges, ripple, stopband
     [targets]     min_snr, min_snr_a, max_thdn, max_loss, max_lsd, min_ser, max_ber, min_eye,
@@ -36,7 +36,7 @@ from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, R
 
 CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
               "amp_bandwidth", "bits", "full_scale", "dither", "stage", "anti_alias", "source_level", "spl",
-              "mic_sensitivity", "en_corner", "in_corner")
+              "mic_sensitivity", "en_corner", "en_table", "in_corner")
 GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
              "rank", "tie")
 METER_KEYS = ("meter", "tone", "tone_level")
@@ -92,6 +92,8 @@ def load_toml(path) -> dict[str, Raw]:
                 raise ConfigError(f"{p}: [{section}] {key} must be a number, a string or a flat list")
             if isinstance(value, bool):
                 raise ConfigError(f"{p}: [{section}] {key} = {value!r} is a boolean; accepted: a number or a string")
+            if key == "en_table" and isinstance(value, str) and value.strip():
+                value = str(p.parent / value)  # a path relative to the TOML file (an absolute one stays)
             out[key] = Raw(value, f"{p} [{section}] {key}")
     return out
 
@@ -134,6 +136,12 @@ def _parse(key: str, raw: Raw):
         return _parse_probability(v, name)
     if kind == "percent":
         return _parse_percent(v, name)
+    if kind == "en_table":
+        from .entable import ACCEPTED, read_table
+
+        if not isinstance(v, str) or not v.strip():
+            raise ParameterError(f"{name}: {v!r} is not a file name; {ACCEPTED}")
+        return (Path(v).name, read_table(v, origin=name))
     if kind == "audiogram":
         from .perceptual.threshold import parse_audiogram
         try:
@@ -309,6 +317,13 @@ def build(raw: dict[str, Raw]) -> Settings:
     for key, field_name in mapping.items():
         if key in parsed:
             chain_kw[field_name] = int(parsed[key]) if key == "bits" else parsed[key]
+    if "en_table" in parsed:
+        for other in ("en", "en_corner"):
+            if other in parsed:
+                raise ParameterError(f"{raw['en_table'].origin}: conflicts with {raw[other].origin} (the table gives "
+                                     "e_n at every frequency: its top row is the white level, its low rows the 1/f "
+                                     "part); accepted: the table or --en/--en-corner, not both")
+        chain_kw["en_table_file"], chain_kw["en_table"] = parsed["en_table"]
     for key in ("h2", "h3"):
         if key in parsed and parsed[key] >= 0:
             raise ParameterError(f"{raw[key].origin}: {raw[key].value!r} is not below 0 dB; "
@@ -397,7 +412,7 @@ def sanity_warnings(settings: Settings, raw_keys=()) -> list[str]:
     c, out = settings.chain, []
     if c.en_v_rthz > 1e-6:
         v = c.gain * c.en_v_rthz * math.sqrt(20000.0)
-        out.append(f"--en {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
+        out.append(f"{'--en-table (its top row)' if c.en_table is not None else '--en'} {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
                    "over 20 kHz); amplifiers are 0.5 to 50 nV/√Hz: was a prefix left off?")
     if c.in_a_rthz > 1e-9:
         out.append(f"--in {c.in_a_rthz:g} A/√Hz is {c.in_a_rthz * 1e12:.3g} pA/√Hz; amplifiers are 0.01 to "

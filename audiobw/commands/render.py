@@ -107,6 +107,10 @@ def command(input, band, family, order, ripple, stopband, out, loudness, ceiling
 
     for line in noise_check_lines(f["noise_check"]):
         click.echo(line)
+    if settings.chain.has_flicker:
+        from ..render import WHITE_ONLY
+
+        click.echo(f"Note: {WHITE_ONLY}.")
     if bit_rate is not None:
         from ..datalink import recover_bit_rate
         from ..report.eye import eye_diagram

@@ -122,9 +122,10 @@ class PerceptualScorer:
         nyq_width = float(np.sum(w))
         conv = (chain.quantisation_power_v2() + chain.dither_power_v2()) / nyq_width
         amp = chain.density_amplifier_v2_hz()
-        if chain.has_flicker:
-            from ..noise import flicker_per_hz
-            amp = amp + (chain.flicker_en_v2() + chain.flicker_in_v2()) * flicker_per_hz(f, w)
+        if chain.has_flicker:  # 1/f corners and an e_n table's excess, as in audiobw.noise
+            from ..noise import amplifier_excess
+            en_x, in_x = amplifier_excess(chain, f, w)
+            amp = amp + en_x + in_x
         analog = chain.stage == "analog"
         self.n_pre = np.full(f.size, amp + (0.0 if analog else conv))
         self.n_post = np.full(f.size, conv if analog else 0.0)

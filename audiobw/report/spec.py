@@ -55,6 +55,8 @@ CHAIN_FIELDS = {
     "amp_bandwidth_hz": ("amplifier −3 dB bandwidth (null: unlimited)", "Hz"),
     "en_corner_hz": ("1/f corner of e_n (null: white)", "Hz"),
     "in_corner_hz": ("1/f corner of i_n (null: white)", "Hz"),
+    "en_table": ("measured e_n table (log-log between rows, flat beyond; null: none)", ""),
+    "en_table_file": ("file of the e_n table", ""),
     "bits": ("converter resolution N", "bit"),
     "full_scale_vrms": ("full-scale sine at the converter input", "V rms"),
     "dither": ("converter dither", ""),
@@ -413,7 +415,7 @@ def build_spec(run: dict) -> dict:
     conflicts = [{"targets": list(c["targets"]), "edge": c.get("edge"), "needs": c["needs"],
                   "text": conflict_text(c, doc["targets"], hz=lambda v: fmt(v, "Hz")).removeprefix("Conflict: ")}
                  for c in doc.get("conflicts") or []]
-    chain_rows = [{"key": k, "label": CHAIN_FIELDS.get(k, (k, ""))[0], "value": v,
+    chain_rows = [{"key": k, "label": CHAIN_FIELDS.get(k, (k, ""))[0], "value": _chain_value(k, v),
                    "unit": CHAIN_FIELDS.get(k, (k, ""))[1]} for k, v in doc["chain"].items()]
     spec = {
         "tool": "audiobw", "version": __version__, "spec_version": SPEC_VERSION,
@@ -614,6 +616,15 @@ def json_pointer(spec: dict, pointer: str):
     for part in pointer.split("."):
         node = node[int(part)] if isinstance(node, list) else node[part]
     return node
+
+
+def _chain_value(key: str, v):
+    """A chain value as a spec row holds it: the e_n table as one line (its rows stay in sweep.json)."""
+    if key == "en_table" and v is not None:
+        from ..entable import summary
+
+        return summary(v) + "; rows in sweep.json chain.en_table"
+    return v
 
 
 def chain_value_text(row: dict) -> str:

@@ -163,6 +163,7 @@ def validate_sweep(doc, path) -> None:
             continue
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not low <= v <= high:
             _refuse(path, ["chain", key], f"{_short(v)} is outside the physical range {low:g} to {high:g}")
+    _check_en_table(chain, path)
     for i, c in enumerate(cases):
         _number(doc, ["cases", i, "bandwidth_hz"], path, positive=True)
         if not isinstance(c.get("margins_db"), dict):
@@ -206,6 +207,27 @@ CHAIN_LIMITS = {
     "h2_db": (-400.0, 0.0, True),
     "h3_db": (-400.0, 0.0, True),
 }
+
+def _check_en_table(chain: dict, path) -> None:
+    """``chain.en_table``: null, or the rows --en-table accepts, its top row's e_n equal to ``en_v_rthz``."""
+    from ..entable import check_rows
+    from ..errors import ParameterError
+
+    table, name = chain.get("en_table"), chain.get("en_table_file")
+    if name is not None and (not isinstance(name, str) or table is None):
+        _refuse(path, ["chain", "en_table_file"], f"{_short(name)} is not the file name of chain.en_table")
+    if table is None:
+        return
+    if not isinstance(table, list):
+        _refuse(path, ["chain", "en_table"], "not a list of [frequency_hz, e_n_v_rthz] rows")
+    try:
+        rows = check_rows(table, name="table")
+    except ParameterError as exc:
+        _refuse(path, ["chain", "en_table"], str(exc).split(";")[0])
+    if rows[-1][1] != chain.get("en_v_rthz"):
+        _refuse(path, ["chain", "en_v_rthz"], f"{_short(chain.get('en_v_rthz'))} is not the e_n of the table's top "
+                f"row ({rows[-1][1]!r})")
+
 
 NPZ_ACCEPTED = "accepted: the spectrum.npz written by the same audiobw sweep"
 
