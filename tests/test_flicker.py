@@ -38,9 +38,11 @@ def test_brickwall_band_matches_the_closed_form(corner, band):
     b = budget(chain, flat_digital(), FS, meter=band, n_bins=24000)
     f1, f2 = band
     closed = chain.en_v_rthz**2 * ((f2 - f1) + corner * math.log(f2 / f1))
-    quad, _ = integrate.quad(lambda f: chain.en_v_rthz**2 * (1 + corner / f), f1, f2, limit=200, points=[10 * f1])
-    assert closed == pytest.approx(quad, rel=1e-9)
-    assert b["components"]["amplifier_voltage"]["vrms"] ** 2 == pytest.approx(closed, rel=1e-9)
+    # in u = ln f (smooth: e_n²·(f + fc) du), absolute tolerance 0 since the values are ~1e-13 V²
+    quad, _ = integrate.quad(lambda u: chain.en_v_rthz**2 * (math.exp(u) + corner), math.log(f1), math.log(f2),
+                             limit=200, epsabs=0.0, epsrel=1e-12)
+    assert closed == pytest.approx(quad, rel=1e-9, abs=0)
+    assert b["components"]["amplifier_voltage"]["vrms"] ** 2 == pytest.approx(closed, rel=1e-9, abs=0)
 
 
 def test_current_noise_corner_through_the_source():
@@ -49,7 +51,7 @@ def test_current_noise_corner_through_the_source():
                   anti_alias="ideal")
     b = budget(chain, flat_digital(), FS, meter=(20.5, 20000.5), n_bins=24000)
     closed = chain.gain**2 * (2e-12 * 10e3) ** 2 * (19980.0 + 300.0 * math.log(20000.5 / 20.5))
-    assert b["components"]["amplifier_current"]["vrms"] ** 2 == pytest.approx(closed, rel=1e-9)
+    assert b["components"]["amplifier_current"]["vrms"] ** 2 == pytest.approx(closed, rel=1e-9, abs=0)
     assert b["components"]["amplifier_voltage"]["vrms"] == 0.0
 
 
