@@ -198,7 +198,7 @@ def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
                 ax.plot(x, y, label=f"{fam} {order}", **_style(fam, oi))
         if tkey and tkey in doc["targets"]:
             limit = doc["targets"][tkey]
-            from .spec import target_info
+            from .formatting import target_info
 
             sense = target_info(tkey)[3]
             ax.axhline(limit, color=TARGET, linewidth=2.2, linestyle="-.", zorder=1)
@@ -288,8 +288,6 @@ def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
     """Magnitude and group delay of the subject filter."""
     from matplotlib.figure import Figure
 
-    from .spec import group_delay_s
-
     lo, hi = spec["filter"]["low_hz"], spec["filter"]["high_hz"]
     nyq = fs_hz / 2.0
     f_min = (lo / 30.0) if lo else (hi / 300.0)
@@ -317,7 +315,7 @@ def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
     ax1.set_ylim(floor, 5)
     ax1.set_ylabel("magnitude [dB]")
     ax1.legend(loc="lower center" if lo and hi else ("lower left" if hi else "lower right"))
-    tau_ms = 1e3 * group_delay_s(filt, f)
+    tau_ms = 1e3 * filt.group_delay_s(f)
     ax2.plot(f, tau_ms, color=colour, linewidth=1.6, linestyle="--")
     pb = spec["group_delay"]["passband"]
     inside = (f >= pb["low_hz"]) & (f <= pb["high_hz"]) & np.isfinite(tau_ms)
@@ -435,7 +433,7 @@ def masking_plot(doc: dict, spec: dict, scorer, chain) -> Plot:
     """Masked threshold per critical band against the error of the subject and next-narrower cases."""
     from matplotlib.figure import Figure
 
-    from .spec import rebuild_filter
+    from .run import rebuild_filter
 
     subject = doc["cases"][spec["subject"]["case"] - 1]
     nn_id = (doc.get("choice") or {}).get("next_narrower") if spec["status"] == "chosen" else None
@@ -565,7 +563,7 @@ def make_plots(run: dict, spec: dict) -> list[Plot]:
     """All plots of the report, in page order."""
     import matplotlib
 
-    from .spec import rebuild_chain, rebuild_filter
+    from .run import rebuild_chain, rebuild_filter
 
     doc = run["doc"]
     subject = doc["cases"][spec["subject"]["case"] - 1]
