@@ -419,7 +419,7 @@ def run_batch(inputs, study: Study | None, out_dir, *, coverage: float = 0.95, w
     -------
     audiobw.batch.BatchResult
     """
-    from .batch import run_batch as _run_batch
+    from .corpus.run import run_batch as _run_batch
 
     return _run_batch([str(p) for p in inputs], (study or Study()).settings(), out_dir, coverage=coverage,
                       workers=workers, cluster=cluster, progress=progress)
