@@ -20,7 +20,7 @@ from audiobw.filters import FilterSpec, design
 from audiobw.report import formatting, measure
 from audiobw.report import run as runmod
 from audiobw.report.write import write_report
-from audiobw.report.plots import log_average
+from audiobw.report.figure import log_average
 
 HERE = Path(__file__).parent
 SCHEMA = HERE.parent / "docs" / "spec.schema.json"

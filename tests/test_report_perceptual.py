@@ -14,7 +14,8 @@ import pytest
 
 from audiobw.report import run as runmod
 from audiobw.report.write import write_report
-from audiobw.report.plots import make_plots, masking_plot, perceptual_scorer, wiener_plot
+from audiobw.report.perceptual_plots import masking_plot, perceptual_scorer, wiener_plot
+from audiobw.report.plots import make_plots
 from audiobw.report.text import closing_paragraph
 from audiobw.units import format_quantity
 
