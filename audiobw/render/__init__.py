@@ -24,6 +24,9 @@ returned), :mod:`~audiobw.render.excerpt` (the A/B excerpt),
 re-exported here, so ``from audiobw.render import render_file`` keeps working.
 """
 
+import sys
+
+from .. import _CallableRender
 from .chosen import render_sweep
 from .clips import render_file
 from .loudness import (GATE_BLOCK_S, K_WEIGHTING_48K_SOS, channel_weights, integrated_loudness, k_weighting_derived_sos,
@@ -36,3 +39,8 @@ __all__ = ["CHOICES", "DEFAULT_SEED", "GATE_BLOCK_S", "K_WEIGHTING_48K_SOS", "KE
            "RenderResult", "channel_weights", "integrated_loudness", "k_weighting_derived_sos", "k_weighting_sos",
            "noise_check", "noise_check_lines", "notes_text", "read_answers", "read_key", "render_file", "render_sweep",
            "score_trials", "true_peak"]
+
+# ``audiobw.render`` is also the public function (audiobw.api.render): make this
+# package callable so that the package attribute, which importing it sets, still
+# renders when called (as audiobw.sweep does).
+sys.modules[__name__].__class__ = _CallableRender
