@@ -27,13 +27,24 @@ class _CallableModule(type(_sys)):
         return sweep(path, study, **kw)
 
 
+class _CallableRender(type(_sys)):
+    """The class of the package :mod:`audiobw.render`, which shares its name with
+    the public function :func:`audiobw.api.render`: calling the package renders."""
+
+    def __call__(self, result, path, out_dir, listening=None, study=None):
+        """Render the chosen case and the next-narrower one: see :func:`audiobw.api.render`."""
+        from .api import render
+
+        return render(result, path, out_dir, listening, study)
+
+
 def __getattr__(name: str):
-    if name == "sweep":
-        # the submodule audiobw.sweep is callable and forwards to api.sweep
-        # (importing it sets this attribute, so the two must be one object)
+    if name in ("sweep", "render"):
+        # the submodule audiobw.sweep (package audiobw.render) is callable and forwards
+        # to api.sweep (api.render); importing it sets this attribute, so the two must be one object
         import importlib
 
-        return importlib.import_module(".sweep", __name__)
+        return importlib.import_module("." + name, __name__)
     if name in _PUBLIC:
         from . import api
 

@@ -392,9 +392,9 @@ def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str,
     """Write spec.json, spec.md, plots and report.html beside ``out_dir/sweep.json``.
 
     The spec sheet's figures are engineering estimates, to be verified by
-    measurement. See :func:`audiobw.report.spec.write_report`.
+    measurement. See :func:`audiobw.report.write.write_report`.
     """
-    from .report.spec import write_report as _write_report
+    from .report.write import write_report as _write_report
 
     return _write_report(out_dir, plots=plots, html=html)
 
@@ -419,7 +419,7 @@ def run_batch(inputs, study: Study | None, out_dir, *, coverage: float = 0.95, w
     -------
     audiobw.batch.BatchResult
     """
-    from .batch import run_batch as _run_batch
+    from .corpus.run import run_batch as _run_batch
 
     return _run_batch([str(p) for p in inputs], (study or Study()).settings(), out_dir, coverage=coverage,
                       workers=workers, cluster=cluster, progress=progress)

@@ -107,7 +107,7 @@ def _sweep_into(input, settings, out_dir, do_render, do_report, *, use_cache: bo
         else:
             extra.append("Nothing rendered: no case meets the targets.")
     if do_report:
-        from .report.spec import write_report
+        from .report.write import write_report
 
         written = write_report(out_dir)
         extra.append(f"Wrote the spec sheet and report: {written.get('html', written['spec_md'])}.")

@@ -61,7 +61,7 @@ def _render_and_report(doc, path, settings, out_dir):
     """Render the chosen and next-narrower cases (A/B clips), then write the report."""
     from .cautions import LISTENING_CAUTION
     from .render import render_sweep
-    from .report.spec import write_report
+    from .report.write import write_report
 
     if doc.get("choice"):
         render_sweep(doc, path, settings, out_dir)
@@ -87,7 +87,7 @@ def _data_link(out: Path, summary: list):
     write_audio_atomic(stream, x[:, None], fs, subtype="PCM_24")
     raw = {k: Raw(v, f"demo {k}") for k, v in {**DATA_CHAIN, **DATA_TARGETS, **DATA_GRID, **DATA_PROGRAM}.items()}
     doc, paths = sweep_file(stream, build(raw), out_dir=out / "telemetry-2k")
-    from .report.spec import write_report
+    from .report.write import write_report
 
     report = write_report(out / "telemetry-2k")
     yield (f"== {stream.name}  (the Saltmarsh tide gauge, invented: 2 kbit/s PRBS-9 NRZ at ±10 mV; "

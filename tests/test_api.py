@@ -32,6 +32,14 @@ def test_public_names_resolve():
         audiobw.NoSuchThing  # noqa: B018
 
 
+def test_render_stays_callable_once_its_package_is_imported():
+    # importing the package audiobw.render sets the attribute audiobw.render: it must still render
+    code = ("import audiobw, audiobw.render as pkg; from audiobw.render import render_file; "
+            "print(audiobw.render is pkg, callable(audiobw.render), callable(render_file))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=REPO)
+    assert out.stdout.split() == ["True", "True", "True"]
+
+
 def test_grid_lowpass_matches_cli_grid_syntax():
     from audiobw import units
 
@@ -112,6 +120,19 @@ def test_library_sweep_writes_what_the_cli_writes(prog, tmp_path, capsys):
     assert result.choice.binding == doc_choice["binding"]
     with pytest.raises(AttributeError):
         c.id = 3
+
+
+def test_render_renders_on_every_call(prog, tmp_path):
+    # the first call imports the package audiobw.render, which replaces the package attribute:
+    # the second call goes through the package and must render the same folders
+    study = audiobw.Study(grid=audiobw.Grid.lowpass(2000, 20000, 6, families=("butterworth",), orders=(4,)),
+                          targets=audiobw.Targets(max_loss_db=0.2))
+    result = audiobw.sweep(prog, study)
+    first = audiobw.render(result, prog, tmp_path / "a", study=study)
+    second = audiobw.render(result, prog, tmp_path / "b", study=study)
+    assert first and [p.relative_to(tmp_path / "a") for p in first] == [p.relative_to(tmp_path / "b") for p in second]
+    wavs = [p for p in first if p.suffix == ".wav"]
+    assert wavs and all(p.read_bytes() == (tmp_path / "b" / p.relative_to(tmp_path / "a")).read_bytes() for p in wavs)
 
 
 def test_default_grid_is_the_cli_default(prog, tmp_path, capsys):

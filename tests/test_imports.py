@@ -12,11 +12,7 @@ PKG = Path(__file__).resolve().parents[1] / "audiobw"
 
 #: Circles that exist today and are left for the module split (issue 14);
 #: each is a set of modules that import one another.  Do not add to this list.
-KNOWN: list[frozenset] = [
-    # spec.write_report imports html/plots lazily, and they import spec's helpers:
-    # moving write_report to its own module (report/write.py) breaks it
-    frozenset({"audiobw.report.spec", "audiobw.report.html", "audiobw.report.plots"}),
-]
+KNOWN: list[frozenset] = []
 
 
 def module_name(path: Path) -> str:

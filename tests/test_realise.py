@@ -299,7 +299,7 @@ def test_realise_a_sweep_folder_second_pass(write_audio, rng, tmp_path):
     assert sp["snr_db"] - sp["snr_db_with_filter"] == pytest.approx(sp["added_noise_db"], abs=1e-6)
     assert "Second pass:" in res.output and "verified on the bench" in res.output
     # the report picks up realise.json: the stage table and the yield in spec.md and report.html
-    from audiobw.report.spec import write_report
+    from audiobw.report.write import write_report
 
     paths = write_report(out, plots=True, html=True)
     md = paths["spec_md"].read_text()

@@ -17,8 +17,10 @@ import soundfile as sf
 from audiobw.cli import main
 from audiobw.clikit import ESTIMATE_CAUTION, LISTENING_CAUTION
 from audiobw.filters import FilterSpec, design
-from audiobw.report import spec as specmod
-from audiobw.report.plots import log_average
+from audiobw.report import formatting, measure
+from audiobw.report import run as runmod
+from audiobw.report.write import write_report
+from audiobw.report.figure import log_average
 
 HERE = Path(__file__).parent
 SCHEMA = HERE.parent / "docs" / "spec.schema.json"
@@ -73,7 +75,7 @@ def lowpass_run(tmp_path_factory):
                      name="<script>alert(1)</" + "script>.wav")
     add_render(out)
     before = (out / "sweep.json").read_bytes()
-    paths = specmod.write_report(out)
+    paths = write_report(out)
     return {"out": out, "paths": paths, "sweep_before": before,
             "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
             "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
@@ -87,7 +89,7 @@ def failing_run(tmp_path_factory):
     out = make_sweep(root, {"response": "bandpass", "family": "bessel,elliptic", "order": "2",
                             "low_edges": "20:200:3", "high_edges": "4k:16k:4", "stage": "digital",
                             "anti_alias": "ideal", "min_snr": "150dB", "max_loss": "1dB"}, fs=44100)
-    paths = specmod.write_report(out)
+    paths = write_report(out)
     return {"out": out, "paths": paths, "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
             "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
             "html": paths["html"].read_text(encoding="utf-8")}
@@ -180,7 +182,7 @@ def test_markdown_holds_the_block_and_the_caution(lowpass_run):
 def test_group_delay_of_second_order_butterworth_at_dc():
     # H(s) = ω²/(s² + √2 ω s + ω²): τ(0) = 2ζ/ω = √2/ω (standard second-order result, common practice)
     filt = design(FilterSpec("lowpass", "butterworth", 2, None, 1000.0))
-    assert specmod.group_delay_s(filt, [0.0])[0] == pytest.approx(math.sqrt(2) / (2 * math.pi * 1000.0), rel=1e-9)
+    assert filt.group_delay_s([0.0])[0] == pytest.approx(math.sqrt(2) / (2 * math.pi * 1000.0), rel=1e-9)
 
 
 @pytest.mark.parametrize("stage", ["analog", "digital"])
@@ -198,7 +200,7 @@ def test_group_delay_matches_the_phase_slope_from_scipy(stage, family):
     else:
         _, h = signal.freqz_zpk(z, p, k, worN=f, fs=fs)
     slope = -np.gradient(np.unwrap(np.angle(h)), 2 * np.pi * f)
-    tau = specmod.group_delay_s(filt, f)
+    tau = filt.group_delay_s(f)
     inner = slice(10, -10)
     assert np.max(np.abs(tau[inner] - slope[inner])) < 1e-3 * np.max(np.abs(tau))
 
@@ -208,7 +210,7 @@ def test_stopband_attenuation_of_butterworth_is_its_closed_form():
     fs = 48000.0
     filt = design(FilterSpec("lowpass", "butterworth", 4, None, 1000.0, fs_hz=fs))
     case = {"high_hz": 1000.0, "low_hz": None}
-    pts = {p["name"]: p for p in specmod.stopband_points(filt, case, fs)}
+    pts = {p["name"]: p for p in measure.stopband_points(filt, case, fs)}
     assert pts["twice_upper_edge"]["attenuation_db"] == pytest.approx(10 * math.log10(1 + 2.0**8), abs=1e-6)
     assert pts["alias_of_upper_edge"]["freq_hz"] == 47000.0
     assert pts["alias_of_upper_edge"]["attenuation_db"] == pytest.approx(10 * math.log10(1 + 47.0**8), abs=1e-6)
@@ -217,12 +219,12 @@ def test_stopband_attenuation_of_butterworth_is_its_closed_form():
 def test_chebyshev_ripple_is_measured_as_designed(lowpass_run):
     doc = lowpass_run["doc"]
     case = next(c for c in doc["cases"] if c["family"] == "chebyshev1" and c["order"] == 4)
-    filt = specmod.rebuild_filter(doc, case)
-    pb = specmod.passband_figures(filt, case, doc)
+    filt = runmod.rebuild_filter(doc, case)
+    pb = measure.passband_figures(filt, case, doc)
     # scipy.signal.cheby1: rp is the peak-to-peak passband ripple in dB
     assert pb["ripple_db"] == pytest.approx(0.5, abs=0.005)
     bw = next(c for c in doc["cases"] if c["family"] == "butterworth")
-    assert specmod.passband_figures(specmod.rebuild_filter(doc, bw), bw, doc)["ripple_db"] == 0.0
+    assert measure.passband_figures(runmod.rebuild_filter(doc, bw), bw, doc)["ripple_db"] == 0.0
 
 
 def test_log_average_keeps_power_and_thins_the_trace():
@@ -313,7 +315,7 @@ def check_shown_values(items, spec) -> int:
     """Each shown value: its data-value is the spec.json value, and its text shows it to 3 digits or better."""
     checked = 0
     for key, value_json, text in items:
-        expected = specmod.json_pointer(spec, key)
+        expected = formatting.json_pointer(spec, key)
         assert json.loads(value_json) == expected, key
         if isinstance(expected, (int, float)) and not isinstance(expected, bool) and not text.startswith("—"):
             shown = shown_number(text)
@@ -343,7 +345,7 @@ def test_report_leaves_inputs_alone_and_is_deterministic(lowpass_run):
     out = lowpass_run["out"]
     assert (out / "sweep.json").read_bytes() == lowpass_run["sweep_before"]
     first = {k: p.read_bytes() for k, p in lowpass_run["paths"].items()}
-    again = specmod.write_report(out)
+    again = write_report(out)
     for key in ("spec_json", "spec_md", "html", "plot_filter_svg", "plot_ser_png"):
         assert again[key].read_bytes() == first[key], key
 
@@ -380,7 +382,7 @@ def test_highpass_without_spectrum_file(tmp_path):
     out = make_sweep(tmp_path, {"response": "highpass", "family": "butterworth", "order": "2,3",
                                 "cutoffs": "20:200:4", "max_loss": "0.5dB", "anti_alias": "ideal"})
     (out / "spectrum.npz").unlink()
-    paths = specmod.write_report(out)
+    paths = write_report(out)
     spec = json.loads(paths["spec_json"].read_text(encoding="utf-8"))
     assert spec["sweep"]["spectrum_file"] is None and spec["filter"]["high_hz"] is None
     assert [p["name"] for p in spec["stopband"]] == ["half_lower_edge"]

@@ -13,7 +13,7 @@ from urllib.parse import unquote
 
 import pytest
 
-from audiobw.report import spec as specmod
+from audiobw.report.write import write_report
 from audiobw.report.browser import find_chromium, screenshot, selftest
 
 from .test_report import CLIP_NAME, add_render, check_shown_values, make_sweep
@@ -31,7 +31,7 @@ def page(tmp_path_factory):
                             "max_loss": "0.2dB"},
                      name="<script>alert(1)</" + "script>.wav")
     add_render(out)
-    paths = specmod.write_report(out)
+    paths = write_report(out)
     spec = json.loads(paths["spec_json"].read_text(encoding="utf-8"))
     return {"out": out, "paths": paths, "spec": spec, "result": selftest(paths["html"])}
 

@@ -12,8 +12,10 @@ from html import unescape
 import numpy as np
 import pytest
 
-from audiobw.report import spec as specmod
-from audiobw.report.plots import make_plots, masking_plot, perceptual_scorer, wiener_plot
+from audiobw.report import run as runmod
+from audiobw.report.write import write_report
+from audiobw.report.perceptual_plots import masking_plot, perceptual_scorer, wiener_plot
+from audiobw.report.plots import make_plots
 from audiobw.report.text import closing_paragraph
 from audiobw.units import format_quantity
 
@@ -34,7 +36,7 @@ def run(request, tmp_path_factory):
     """A lowpass sweep whose choice has a next-narrower case that fails, and its report."""
     root = tmp_path_factory.mktemp(request.param)
     out = make_sweep(root, {"response": "lowpass", "family": "butterworth", "order": "4", **RUNS[request.param]})
-    paths = specmod.write_report(out)
+    paths = write_report(out)
     return {"out": out, "paths": paths,
             "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
             "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
@@ -43,7 +45,7 @@ def run(request, tmp_path_factory):
 
 def _rebuilt(run):
     """The scorer and plots rebuilt from the folder as the report does."""
-    from audiobw.report.spec import rebuild_chain, rebuild_filter
+    from audiobw.report.run import rebuild_chain, rebuild_filter
     from audiobw.report.validate import load_spectrum
 
     doc, spec = run["doc"], run["spec"]
@@ -133,7 +135,7 @@ def test_no_perceptual_plots_without_the_frames(run):
     doc = run["doc"]
     with np.load(run["out"] / "spectrum.npz", allow_pickle=False) as z:
         spectrum = {k: z[k] for k in z.files if k != "band_frames"}
-    assert perceptual_scorer(doc, spectrum, specmod.rebuild_chain(doc)) is None
+    assert perceptual_scorer(doc, spectrum, runmod.rebuild_chain(doc)) is None
     names = [p.name for p in make_plots({"doc": doc, "spectrum": spectrum}, run["spec"])]
     assert "masking" not in names and "wiener" not in names and "spectrum" in names
 

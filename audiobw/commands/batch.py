@@ -85,7 +85,9 @@ def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_lin
       audiobw batch library/ more/*.flac --coverage 95% --cutoffs 4k:20k:24
       --order 2,4 --max-loss 0.1 --min-snr-a 90 --out corpus/
     """
-    from ..batch import parse_coverage, run_batch, summary_lines
+    from ..corpus.inputs import parse_coverage
+    from ..corpus.run import run_batch
+    from ..corpus.text import summary_lines
     from ..errors import AudioFileError, ParameterError
 
     share = parse_coverage(coverage)

@@ -26,7 +26,9 @@ def command(folder, no_html):
 
       audiobw report audiobw-out/take3
     """
-    from ..report.spec import passband_phrase, read_run, write_report
+    from ..report.formatting import passband_phrase
+    from ..report.run import read_run
+    from ..report.write import write_report
 
     paths = write_report(folder, plots=not no_html, html=not no_html)
     import json

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from ..audio import atomic_path
-from .plots import GRIDLINE, HIGHLIGHT, INK, MUTED, PAPER, RC
+from .figure import GRIDLINE, HIGHLIGHT, INK, MUTED, PAPER, RC
 
 MAX_TRACES = 600
 

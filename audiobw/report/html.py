@@ -23,8 +23,8 @@ from pathlib import Path
 from urllib.parse import quote
 
 from ..cautions import LISTENING_CAUTION
-from .spec import _target_text, margin_value_text, metric_value_text
-from .spec import case_line, chain_value_text, fmt, json_pointer, passband_phrase, spec_rows, target_info
+from .formatting import (case_line, chain_value_text, fmt, json_pointer, margin_value_text, metric_value_text,
+                         passband_phrase, spec_rows, target_info, target_text)
 from .text import COLUMNS
 
 CSP = ("default-src 'none'; img-src data:; media-src 'self' file:; style-src 'unsafe-inline'; "
@@ -146,7 +146,7 @@ def _clip_url(folder: str, name: str) -> str:
 
 def _eye_figure(base, r: dict) -> str:
     """The render's eye diagram (data programs), embedded like the plots."""
-    from .spec import PNG_MAGIC, safe_member
+    from .run import PNG_MAGIC, safe_member
 
     target = Path(base) / r["folder"] / str(r.get("eye"))
     if not r.get("eye") or not safe_member(base, target, PNG_MAGIC):  # checked again when read
@@ -234,7 +234,7 @@ def page(run: dict, spec: dict, plots: list) -> str:
         bound = ""
         if b:
             t = next(t for t in spec["targets"] if t["key"] == b)
-            bound = (f" Bound by <strong>{esc(_target_text(t))}</strong>"
+            bound = (f" Bound by <strong>{esc(target_text(t))}</strong>"
                      f" (margin {esc(margin_value_text(b, spec['binding_margin_db']))}).")
         if spec.get("grid_limits"):
             from .text import grid_limit_lines
@@ -247,7 +247,7 @@ def page(run: dict, spec: dict, plots: list) -> str:
                      f"{esc(spec['cases_total'])} cases meet every target.{bound}{esc(grid)}</div>")
     else:
         items = "".join(
-            f"<li>{esc(_target_text(u))}: "
+            f"<li>{esc(target_text(u))}: "
             f"best reached {esc(metric_value_text(u['metric'], u['best']))}</li>"
             for u in spec["unmet"])
         unmet = (" No case meets these targets even on their own (the best value any case reached):"
@@ -271,7 +271,7 @@ def page(run: dict, spec: dict, plots: list) -> str:
     for i, t in enumerate(spec["targets"]):
         cls = ' class="binding"' if t["binding"] else ""
         margin = margin_value_text(t["key"], t["margin_db"])
-        trows.append(f"<tr{cls}><td>{esc(_target_text(t))}</td>"
+        trows.append(f"<tr{cls}><td>{esc(target_text(t))}</td>"
                      f"{_value_cell(spec, f'targets.{i}.value', metric_value_text(t['metric'], t['value']))}"
                      f"<td class='n'>{esc(margin)}</td><td>{'met' if t['met'] else 'missed'}"
                      f"{' — bound the choice' if t['binding'] else ''}</td></tr>")

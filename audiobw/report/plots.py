@@ -28,131 +28,13 @@ References
 
 from __future__ import annotations
 
-import io
 import math
-from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
-from ..audio import atomic_path
-
-#: Our palette: ink, paper, and four hues of clearly different lightness.
-INK = "#1d2433"
-MUTED = "#6b7280"
-PAPER = "#fbfaf7"
-GRIDLINE = "#d9d6cf"
-TARGET = "#8c8c8c"
-HIGHLIGHT = "#e0a526"
-FAMILY_STYLE = {  # family -> (colour, marker)
-    "butterworth": ("#213a6b", "o"),
-    "bessel": ("#d07a2c", "s"),
-    "chebyshev1": ("#5fae95", "^"),
-    "elliptic": ("#7c2e6b", "D"),
-}
-ORDER_LINES = ("-", "--", ":", "-.", (0, (5, 1, 1, 1, 1, 1)), (0, (1, 1)), (0, (8, 2)), (0, (3, 3)))
-HATCHES = ("////", "....", "xxxx", "\\\\\\\\", "oo", "++")
-RC = {
-    "font.size": 8.5, "axes.titlesize": 9.5, "axes.labelsize": 8.5, "axes.edgecolor": INK,
-    "axes.labelcolor": INK, "axes.facecolor": "white", "figure.facecolor": PAPER, "text.color": INK,
-    "xtick.color": INK, "ytick.color": INK, "axes.grid": True, "grid.color": GRIDLINE, "grid.linewidth": 0.6,
-    "axes.spines.top": False, "axes.spines.right": False, "legend.frameon": False, "legend.fontsize": 7.5,
-    "svg.hashsalt": "audiobw", "svg.fonttype": "none", "lines.linewidth": 1.4, "lines.markersize": 4,
-}
-POINTS_PER_DECADE = 160
-
-
-@dataclass
-class Plot:
-    """One rendered plot: PNG bytes (for the page and the file), SVG text where useful."""
-
-    name: str
-    title: str
-    caption: str
-    png: bytes
-    svg: bytes | None = None
-    width_px: int = 0
-    height_px: int = 0
-    data: dict | None = None   # the numbers drawn, where a test checks them against the sweep
-
-    def write(self, out_dir, *, inputs=()) -> dict[str, Path]:
-        out = {}
-        for ext, data in (("png", self.png), ("svg", self.svg)):
-            if data is None:
-                continue
-            target = Path(out_dir) / f"plot-{self.name}.{ext}"
-            with atomic_path(target, inputs=inputs) as tmp:
-                tmp.write_bytes(data)
-            out[ext] = target
-        return out
-
-
-def _render(fig, name: str, title: str, caption: str, *, svg: bool) -> Plot:
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-
-    FigureCanvasAgg(fig)
-    buf = io.BytesIO()
-    dpi = 110
-    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
-    w, h = fig.get_size_inches()
-    svg_bytes = None
-    if svg:
-        sbuf = io.BytesIO()
-        fig.savefig(sbuf, format="svg", metadata={"Date": None, "Creator": None})
-        svg_bytes = sbuf.getvalue()
-    return Plot(name, title, caption, buf.getvalue(), svg_bytes, int(round(w * dpi)), int(round(h * dpi)))
-
-
-def log_average(freqs_hz, power, *, per_decade: int = POINTS_PER_DECADE):
-    """Average a power spectrum onto a log-frequency grid (bins at 0 Hz dropped).
-
-    Power (not dB) is averaged within each 1/``per_decade``-decade cell, so
-    the plotted level keeps the cell's power; cells holding one bin keep it
-    as it is.  Returns (frequencies at the geometric mean of each cell, power).
-    """
-    f = np.asarray(freqs_hz, float)
-    p = np.asarray(power, float)
-    keep = f > 0
-    f, p = f[keep], p[keep]
-    cell = np.floor(np.log10(f) * per_decade).astype(int)
-    _, start = np.unique(cell, return_index=True)
-    counts = np.diff(np.append(start, f.size))
-    fm = np.exp(np.add.reduceat(np.log(f), start) / counts)
-    pm = np.add.reduceat(p, start) / counts
-    return fm, pm
-
-
-def _db(x):
-    with np.errstate(divide="ignore"):
-        return 10.0 * np.log10(np.maximum(np.asarray(x, float), 1e-300))
-
-
-def _style(family: str, order_index: int):
-    colour, marker = FAMILY_STYLE.get(family, (INK, "v"))
-    return dict(color=colour, marker=marker, linestyle=ORDER_LINES[order_index % len(ORDER_LINES)],
-                markerfacecolor=colour if order_index % 2 == 0 else "white", markeredgecolor=colour)
-
-
-def _series_keys(cases):
-    fams = [f for f in FAMILY_STYLE if any(c["family"] == f for c in cases)]
-    fams += sorted({c["family"] for c in cases} - set(fams))
-    orders = sorted({c["order"] for c in cases})
-    return [(f, o, orders.index(o)) for f in fams for o in orders
-            if any(c["family"] == f and c["order"] == o for c in cases)]
-
-
-def _khz(ax, axis="x"):
-    """Log axis ticks at 1-2-5 steps, labelled 20, 50, 1k, 2k, ... (no exponent labels)."""
-    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-
-    def f(v, _pos):
-        if v >= 1000:
-            return f"{v / 1000:g}k"
-        return f"{v:g}"
-    a = ax.xaxis if axis == "x" else ax.yaxis
-    a.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
-    a.set_major_formatter(FuncFormatter(f))
-    a.set_minor_formatter(NullFormatter())
+from .figure import (FAMILY_STYLE, GRIDLINE, HATCHES, HIGHLIGHT, INK, MUTED, RC, TARGET, Plot, _db, _khz, _render,
+                     _series_keys, _style, log_average)
+from .perceptual_plots import masking_plot, perceptual_scorer, wiener_plot
 
 
 METRIC_PANELS = (  # key, label with unit, target key, log y
@@ -198,7 +80,7 @@ def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
                 ax.plot(x, y, label=f"{fam} {order}", **_style(fam, oi))
         if tkey and tkey in doc["targets"]:
             limit = doc["targets"][tkey]
-            from .spec import target_info
+            from .formatting import target_info
 
             sense = target_info(tkey)[3]
             ax.axhline(limit, color=TARGET, linewidth=2.2, linestyle="-.", zorder=1)
@@ -288,8 +170,6 @@ def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
     """Magnitude and group delay of the subject filter."""
     from matplotlib.figure import Figure
 
-    from .spec import group_delay_s
-
     lo, hi = spec["filter"]["low_hz"], spec["filter"]["high_hz"]
     nyq = fs_hz / 2.0
     f_min = (lo / 30.0) if lo else (hi / 300.0)
@@ -317,7 +197,7 @@ def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
     ax1.set_ylim(floor, 5)
     ax1.set_ylabel("magnitude [dB]")
     ax1.legend(loc="lower center" if lo and hi else ("lower left" if hi else "lower right"))
-    tau_ms = 1e3 * group_delay_s(filt, f)
+    tau_ms = 1e3 * filt.group_delay_s(f)
     ax2.plot(f, tau_ms, color=colour, linewidth=1.6, linestyle="--")
     pb = spec["group_delay"]["passband"]
     inside = (f >= pb["low_hz"]) & (f <= pb["high_hz"]) & np.isfinite(tau_ms)
@@ -404,168 +284,11 @@ def ser_plot(doc: dict, spec: dict) -> Plot:
                    f"{'chosen' if spec['status'] == 'chosen' else 'closest'} case.", svg=True)
 
 
-def perceptual_scorer(doc: dict, spectrum: dict, chain):
-    """The sweep's :class:`~audiobw.perceptual.scoring.PerceptualScorer`, rebuilt from
-    sweep.json (playback conditions in ``limits``) and spectrum.npz; None when either lacks them."""
-    from types import SimpleNamespace
-
-    from ..perceptual.scoring import Listening, PerceptualScorer
-
-    lim = doc.get("limits")
-    if not lim or spectrum is None or "band_frames" not in spectrum:
-        return None
-    program = lim.get("program") or ("speech" if any(c.get("sii") is not None for c in doc["cases"]) else "music")
-    hl = lim.get("hearing_threshold_hl")
-    listening = Listening(program, lim["playback_spl_db"], {float(k): float(v) for k, v in hl} if hl else None)
-    analysis = SimpleNamespace(
-        freqs_hz=np.asarray(spectrum["freqs_hz"], float), weights_hz=np.asarray(spectrum["weights_hz"], float),
-        psd=np.asarray(spectrum["psd"], float), band_edges_hz=np.asarray(spectrum["band_edges_hz"], float),
-        band_frames=np.asarray(spectrum["band_frames"], float), sample_rate_hz=int(spectrum["sample_rate_hz"]))
-    return PerceptualScorer(analysis, chain, listening)
-
-
-def _case_noise(scorer, chain, filt):
-    from ..noise import noise_total
-
-    a = scorer.analysis
-    return noise_total(chain, filt, a.freqs_hz, a.weights_hz, a.sample_rate_hz)
-
-
-def masking_plot(doc: dict, spec: dict, scorer, chain) -> Plot:
-    """Masked threshold per critical band against the error of the subject and next-narrower cases."""
-    from matplotlib.figure import Figure
-
-    from .spec import rebuild_filter
-
-    subject = doc["cases"][spec["subject"]["case"] - 1]
-    nn_id = (doc.get("choice") or {}).get("next_narrower") if spec["status"] == "chosen" else None
-    role = "chosen" if spec["status"] == "chosen" else "closest (fails)"
-    shown = [(subject, role)] + ([(doc["cases"][nn_id - 1], "next narrower")] if nn_id else [])
-    mask = scorer.mask
-    edges = scorer.edges
-    rows = {}
-    for case, label in shown:
-        cf = rebuild_filter(doc, case)
-        err, _tau = scorer.band_errors(cf, _case_noise(scorer, chain, cf))
-        over = err > mask
-        counts = over.sum(axis=0)
-        b = int(np.argmax(counts))
-        rows[case["id"]] = {
-            "label": label, "error": err, "over_pct_by_band": 100.0 * counts / over.shape[0],
-            "audible_frames_pct": 100.0 * float(np.mean(np.any(over, axis=1))),
-            "audible_band_hz": [float(edges[b]), float(edges[b + 1])] if counts[b] > 0 else None,
-            "nmr_db": 10.0 * math.log10(float(np.mean(err / mask))),
-        }
-    # the frame shown: where the narrowest case shown is furthest above the threshold
-    worst = rows[shown[-1][0]["id"]]["error"] / mask
-    frame = int(np.argmax(worst.max(axis=1)))
-    an = doc["analysis"]
-    t_s = frame * an["frame_stride"] * an["frame_len"] / doc["input"]["sample_rate_hz"]
-    x = scorer.centres_hz
-    fig = Figure(figsize=(7.6, 7.2), layout="constrained")
-    ax1, ax2 = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
-    ax1.plot(x, _db(scorer.frames[frame]), color=MUTED, linewidth=1.0, marker=".", label="program")
-    ax1.plot(x, _db(mask[frame]), color=INK, linewidth=2.4, label="masked threshold")
-    ax1.plot(x, _db(scorer.quiet), color=INK, linewidth=1.0, linestyle=":", label="threshold in quiet")
-    styles = (dict(color=HIGHLIGHT, linestyle="-", marker="o", markeredgecolor=INK),
-              dict(color=FAMILY_STYLE["elliptic"][0], linestyle="--", marker="s", markerfacecolor="white"))
-    for (case, label), st in zip(shown, styles):
-        r = rows[case["id"]]
-        ax1.plot(x, _db(r["error"][frame]), label=f"error, {label}: case {case['id']}", **st)
-        ax2.step(edges[1:], r["over_pct_by_band"], where="pre", color=st["color"], linestyle=st["linestyle"],
-                 linewidth=1.8, label=f"{label}: case {case['id']}, {r['audible_frames_pct']:.1f} % of frames "
-                 "above in some band")
-    named = rows[shown[-1][0]["id"]]["audible_band_hz"]
-    if named:
-        for ax in (ax1, ax2):
-            ax.axvspan(max(named[0], x[0]), named[1], color=GRIDLINE, alpha=0.45, zorder=0)
-    finite = _db(mask[frame])
-    ax1.set_ylim(min(float(np.min(_db(scorer.quiet))), float(np.min(finite))) - 25.0,
-                 max(float(np.max(_db(scorer.frames[frame]))), float(np.max(finite))) + 10.0)
-    ax1.set_ylabel("band level [dB SPL]")
-    ax2.set_ylabel("frames with error above\nthe masked threshold [%]")
-    top = max(float(np.max(r["over_pct_by_band"])) for r in rows.values())
-    ax2.set_ylim(0, min(105.0, max(5.0, 1.25 * top)))
-    ax2.set_xlabel("critical-band centre frequency [Hz]")
-    ax2.set_xscale("log")
-    ax2.set_xlim(max(edges[0], 20.0), edges[-1])
-    _khz(ax2)
-    handles, labels = ax1.get_legend_handles_labels()
-    h2, l2 = ax2.get_legend_handles_labels()
-    fig.legend(handles + h2, labels + l2, loc="outside lower center", ncol=2)
-    kept = mask.shape[0]
-    fig.suptitle(f"Audibility at {scorer.listening.spl_db:g} dB SPL: frame {frame + 1} of {kept} kept "
-                 f"(t = {t_s:.2f} s, the {shown[-1][1]} case's worst)")
-    data = {"frame": frame, "time_s": t_s, "centres_hz": x, "mask_db": _db(mask[frame]),
-            "quiet_db": _db(scorer.quiet), "program_db": _db(scorer.frames[frame]),
-            "cases": {cid: {k: v for k, v in r.items() if k != "error"} | {"error_db": _db(r["error"][frame])}
-                      for cid, r in rows.items()}}
-    shaded = (f" The shaded band, {named[0]:.4g}–{named[1]:.4g} Hz, is the one above its threshold in the most "
-              "frames for the narrowest case shown." if named else "")
-    plot = _render(fig, "masking", "Masked threshold and error per critical band",
-                   f"Top: at the {shown[-1][1]} case's worst frame (largest error over threshold in any band), "
-                   "per critical band in dB SPL at the playback level: the program, its masked threshold "
-                   "(spreading function of Schroeder, Atal & Hall 1979, offsets of Johnston 1988, not below the "
-                   "threshold in quiet of ISO 226:2003), and each case's error (what the filter removes, phase "
-                   "included, plus the chain noise). Bottom: over all kept frames, the share in which each "
-                   f"band's error is above its masked threshold.{shaded}",
-                   svg=True)
-    plot.data = data
-    return plot
-
-
-def wiener_plot(doc: dict, spec: dict, scorer, chain, filt) -> Plot:
-    """|H(f)|² of the subject filter against the Wiener gain S/(S + N_pre)."""
-    from matplotlib.figure import Figure
-
-    from ..perceptual import wiener
-    from ..perceptual.scoring import complex_response
-
-    subject = doc["cases"][spec["subject"]["case"] - 1]
-    a = scorer.analysis
-    f, w = a.freqs_hz, a.weights_hz
-    fm, sm = log_average(f, scorer.S)
-    _, nm = log_average(f, scorer.n_pre)
-    gain = wiener.wiener_gain(sm, nm)
-    h2 = np.abs(complex_response(filt, fm)) ** 2
-    h = complex_response(filt, f)
-    noise = _case_noise(scorer, chain, filt)
-    _err, tau = scorer.band_errors(filt, noise)
-    mse = float(np.sum(w * wiener.removed_psd(h, scorer.S, f, tau)) + np.sum(noise * w))
-    ser_bound = 10.0 * math.log10(scorer.p_total / scorer.mse_min)
-    gap = wiener.gap_db(mse, scorer.mse_min)
-    fig = Figure(figsize=(7.6, 4.2), layout="constrained")
-    ax = fig.subplots()
-    colour = FAMILY_STYLE.get(spec["filter"]["family"], (INK,))[0]
-    ax.plot(fm, _db(gain), color=INK, linewidth=2.2, label="Wiener gain S/(S+N)")
-    ax.plot(fm, _db(h2), color=colour, linewidth=1.6, linestyle="--",
-            label=f"|H|², {'chosen' if spec['status'] == 'chosen' else 'closest'}: case {subject['id']}")
-    ax.axhline(-3.0103, color=MUTED, linewidth=0.8, linestyle=":")
-    ax.set_xscale("log")
-    ax.set_xlim(max(fm[0], 1.0), f[-1])
-    ax.set_ylim(-80.0, 5.0)
-    ax.set_xlabel("frequency [Hz]")
-    ax.set_ylabel("power gain [dB]")
-    _khz(ax)
-    ax.legend(loc="lower left")
-    ax.set_title(f"Wiener bound: SER ≤ {ser_bound:.1f} dB for any linear filter; case {subject['id']} is "
-                 f"{gap:.1f} dB above the bound's error")
-    data = {"freqs_hz": fm, "gain_db": _db(gain), "h2_db": _db(h2), "wiener_ser_db": ser_bound,
-            "wiener_gap_db": gap}
-    plot = _render(fig, "wiener", "Filter against the Wiener gain",
-                   "Power gain of the filter, |H(f)|², beside the non-causal Wiener gain S/(S+N) of the program "
-                   "(S, long-term spectrum at the converter input) and the chain noise entering before the filter "
-                   "(N; noise added after it only raises the bound). Spectra averaged over 1/160-decade cells. "
-                   "(Wiener 1949; Van Trees 1968, §6.2.)", svg=True)
-    plot.data = data
-    return plot
-
-
 def make_plots(run: dict, spec: dict) -> list[Plot]:
     """All plots of the report, in page order."""
     import matplotlib
 
-    from .spec import rebuild_chain, rebuild_filter
+    from .run import rebuild_chain, rebuild_filter
 
     doc = run["doc"]
     subject = doc["cases"][spec["subject"]["case"] - 1]
