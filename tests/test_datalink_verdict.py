@@ -46,8 +46,10 @@ def test_a_choice_above_the_nyquist_minimum_needs_no_explanation(narrow_choice, 
 
 
 def test_q_reads_as_a_number_with_sense():
-    # ½·erfc(37/√2) = 1.6e-300 (math.erfc): above Q 37 the Gaussian error rate leaves the double range
-    assert 0.5 * math.erfc(Q_FLOOR / math.sqrt(2)) == pytest.approx(1.6e-300, rel=0.05)
+    # math.erfc: ½·erfc(Q/√2) is below 1e-300 from Q_FLOOR on, and above it 0.1 lower
+    # (abs=0: pytest.approx's default absolute floor of 1e-12 would pass any such number)
+    assert 0.5 * math.erfc(Q_FLOOR / math.sqrt(2)) < 1e-300 < 0.5 * math.erfc((Q_FLOOR - 0.1) / math.sqrt(2))
+    assert 0.5 * math.erfc(Q_FLOOR / math.sqrt(2)) == pytest.approx(1.4e-301, rel=0.05, abs=0)
     assert q_text(9.816) == "9.82 (19.8 dB; half the noiseless eye over the noise σ)"
     big = q_text(5287.0)
     assert big.startswith("5.29e+03 (74.5 dB;") and "below 1e-300" in big

@@ -98,8 +98,9 @@ def _fmt_metric(key: str, value) -> str:
 BER_FLOOR = 1e-300
 
 
-#: above this Q the Gaussian error rate ½·erfc(Q/√2) is below 1e-300 (Q = 37.0 gives 1.6e-300)
-Q_FLOOR = 37.0
+#: above this Q the Gaussian error rate ½·erfc(Q/√2) is below 1e-300 (math.erfc: Q = 37.05 gives
+#: 1.0e-300; Q = 37.0 gives 5.7e-300, so 37.0 would overstate it)
+Q_FLOOR = 37.1
 
 
 def q_text(value) -> str:
