@@ -339,7 +339,7 @@ class Scorer:
         self.full_meter = bool(np.all(in_band))
         self._pre = dict(
             wm=wm, S=S, aw=aw, bins_per_band=bins_per_band, sw=sw, band_s=band_s,
-            s_total=float(np.sum(S * wm)),
+            s_total=float(np.sum(S * wm)), swm=S * wm, wm_a=wm * aw,
             k=k, fl=fl, swl=Sl * wml, swl_a=Sl * wml * a_weighting_power(fl),
             swh=Sh * wm[k:], swh_a=Sh * wm[k:] * aw[k:],
             frames_v2=a.band_frames * v2, lo=lo, hi=hi,
@@ -357,6 +357,11 @@ class Scorer:
             floor = np.maximum(floor, absolute)
         self._pre["floor"] = floor
         self._pre["frames_db"] = 10 * np.log10(np.maximum(fv2, floor))
+        # the same in dB, for _lsd: lg(max(P·g, F)) = max(lg P + lg g, lg F) (lg is monotone), so a
+        # case takes one logarithm per band instead of one per frame and band
+        with np.errstate(divide="ignore"):
+            self._pre["raw_db"] = 10 * np.log10(fv2)
+        self._pre["floor_db"] = 10 * np.log10(floor)
         # the program's 99 % occupied band (power summed over channels), for flatness and delay spread
         occ_lo, occ_hi = a.occupied_band_hz()
         self._pre["occupied_grid"] = band_grid(occ_lo, min(occ_hi, a.nyquist_hz),
@@ -376,8 +381,8 @@ class Scorer:
         G = filt.power_response(f)
         N = noise_total(c, filt, f, a.weights_hz, a.sample_rate_hz, direct=G)
         H = filt.response(f)
-        n_pow = float(np.sum(N * wm))
-        n_pow_a = float(np.sum(N * wm * p["aw"]))
+        n_pow = float(np.dot(N, wm))
+        n_pow_a = float(np.dot(N, p["wm_a"]))
         S = p["S"]
         # program out on the scoring grid (fine below the crossover)
         k = p["k"]
@@ -388,8 +393,8 @@ class Scorer:
         # error against the input at the best single delay, phase included
         # (∫S|1 − H·e^{j2πfτ}|² = ∫S(1 + |H|²) − 2·max_τ Re ∫S·H·e^{j2πfτ}; see best_delay):
         # on the normal grid throughout (the delay search needs a uniform grid from 0 Hz)
-        s_out = float(np.sum(S * G * wm))
-        cs = S * wm * H
+        s_out = float(np.dot(p["swm"], G))
+        cs = p["swm"] * H
         coarse = coarse_cross(cs, f) if f.size > 1 and np.any(cs) else None
         _, cross = _delay_cross(cs, f, coarse=coarse)
         if shared is not None:
@@ -435,11 +440,11 @@ class Scorer:
         if np.any(empty):
             counts = p["bins_per_band"]
             gain[empty] = (self._band_sum(G) / np.maximum(counts, 1))[empty]
-        # in place: (frames x bands) arrays
-        out = p["frames_v2"] * gain
-        np.maximum(out, p["floor"], out=out)
-        np.log10(out, out=out)
-        out *= 10
+        # in place: (frames x bands) arrays; 10·lg(max(P·g, F)) as max(10·lg P + 10·lg g, 10·lg F)
+        with np.errstate(divide="ignore"):
+            gain_db = 10 * np.log10(gain)
+        out = p["raw_db"] + gain_db
+        np.maximum(out, p["floor_db"], out=out)
         out -= p["frames_db"]
         out *= out
         return float(np.mean(np.sqrt(np.mean(out, axis=1))))
