@@ -111,9 +111,10 @@ def coarse_cross(c: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, float]:
     n_fft = DELAY_OVERSAMPLE * (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
     # Re Σ c_k e^{j2π k df τ} at τ = n/(n_fft·df), n = 0 … n_fft − 1 (circular in 1/df):
     # a real inverse FFT counts every bin but DC twice, so DC is doubled and the result halved
-    d = c.copy()
+    # (the scale n_fft/2 is applied to the bins, a quarter of the samples)
+    d = c * (n_fft / 2.0)
     d[0] *= 2.0
-    g = sfft.irfft(d, n_fft) * (n_fft / 2.0)
+    g = sfft.irfft(d, n_fft, overwrite_x=True)
     return g, 1.0 / (n_fft * df)
 
 

@@ -101,6 +101,9 @@ class PerceptualScorer:
         self._nb = len(edges) - 1
         self.band_s = self._band_sum(self.sw)
         self._band_phasor_tables(f, band_of_bin)
+        # the SII needs the bins up to its top band edge only (sii.band_spectrum_levels
+        # finds the same edges in this prefix: the bin after the top edge is kept)
+        self._sii_bins = int(np.searchsorted(f, sii.BAND_EDGES_HZ.max())) + 1
         lo = np.maximum(edges[:-1], 20.0)
         hi = np.maximum(edges[1:], lo * 1.001)
         grid = np.geomspace(lo, hi, 12, axis=1)
@@ -252,9 +255,11 @@ class PerceptualScorer:
             row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
         if self.listening.program == "speech":
             k = self.k_ac
-            g2 = h.real * h.real + h.imag * h.imag
-            e18 = sii.band_spectrum_levels(f, self.S * g2 * k, w)
-            n18 = sii.band_spectrum_levels(f, noise_psd * k, w)
+            m = self._sii_bins    # the bins up to the top SII band edge: the same band sums
+            hm = h[:m]
+            g2 = hm.real * hm.real + hm.imag * hm.imag
+            e18 = sii.band_spectrum_levels(f[:m], self.S[:m] * g2 * k, w[:m])
+            n18 = sii.band_spectrum_levels(f[:m], noise_psd[:m] * k, w[:m])
             row["sii"] = sii.sii(np.maximum(e18, -200.0), n18, self.hl18)
         else:
             row["sii"] = None
