@@ -384,7 +384,6 @@ class Scorer:
         H = filt.response(f)
         n_pow = float(np.dot(N, wm))
         n_pow_a = float(np.dot(N, p["wm_a"]))
-        S = p["S"]
         # program out on the scoring grid (fine below the crossover)
         k = p["k"]
         Gl = filt.power_response(p["fl"]) if p["fl"].size else p["fl"]
