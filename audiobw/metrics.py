@@ -74,23 +74,61 @@ class Meter:
 DELAY_OVERSAMPLE = 2
 
 
-def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None) -> tuple[float, float]:
-    """(τ, max_τ Re Σ c_k e^{j2π f_k τ}) for a uniform grid f from 0 Hz (see :func:`best_delay`).
+#: Block length of :func:`uniform_phasor` (e^{jθk} as an outer product of two short tables).
+PHASOR_BLOCK = 128
 
-    τ is searched in ±1/(2·df), or in 0 … ``max_delay_s`` when that is given.
+
+def uniform_phasor(n: int, step_rad: float) -> np.ndarray:
+    """e^{j·k·step_rad} for k = 0 … n − 1 (complex, shape (n,)).
+
+    Written k = q·B + r, it is e^{jqBθ}·e^{jrθ}: an outer product of two tables
+    of about √n complex exponentials, each correctly rounded, so every value is
+    within a few units in the last place of ``np.exp(1j * k * step_rad)`` at a
+    tenth of its cost (a grid of 8193 bins: 129 + 128 exponentials).
     """
-    if f.size < 2 or not np.any(c):
-        return 0.0, float(np.sum(c.real))
+    b = PHASOR_BLOCK
+    q = -(-n // b)
+    hi = np.exp(1j * (step_rad * b) * np.arange(q))
+    lo = np.exp(1j * step_rad * np.arange(b))
+    return np.multiply.outer(hi, lo).ravel()[:n]
+
+
+def _check_uniform(f: np.ndarray) -> float:
     df = f[1] - f[0]
     if f[0] != 0.0 or abs(f[-1] - df * (f.size - 1)) > 1e-9 * f[-1]:
         raise ValueError("best_delay needs a uniform frequency grid starting at 0 Hz")
+    return float(df)
+
+
+def coarse_cross(c: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, float]:
+    """(g, step_s): Re Σ c_k e^{j2π f_k τ} on the coarse delay grid τ = n·step_s (one inverse FFT).
+
+    Computed once per case and shared by every delay search on the same cross
+    spectrum ``c`` (SER's and the perceptual scorer's: :func:`_delay_cross` with
+    ``coarse=``).  ``f``: a uniform grid from 0 Hz with at least 2 bins.
+    """
+    df = _check_uniform(f)
     n_fft = DELAY_OVERSAMPLE * (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
     # Re Σ c_k e^{j2π k df τ} at τ = n/(n_fft·df), n = 0 … n_fft − 1 (circular in 1/df):
     # a real inverse FFT counts every bin but DC twice, so DC is doubled and the result halved
-    d = c.copy()
+    # (the scale n_fft/2 is applied to the bins, a quarter of the samples)
+    d = c * (n_fft / 2.0)
     d[0] *= 2.0
-    g = sfft.irfft(d, n_fft) * (n_fft / 2.0)
-    step_s = 1.0 / (n_fft * df)
+    g = sfft.irfft(d, n_fft, overwrite_x=True)
+    return g, 1.0 / (n_fft * df)
+
+
+def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None,
+                 coarse: tuple[np.ndarray, float] | None = None) -> tuple[float, float]:
+    """(τ, max_τ Re Σ c_k e^{j2π f_k τ}) for a uniform grid f from 0 Hz (see :func:`best_delay`).
+
+    τ is searched in ±1/(2·df), or in 0 … ``max_delay_s`` when that is given.
+    ``coarse``: :func:`coarse_cross` of the same ``c`` and ``f``, when already computed.
+    """
+    if f.size < 2 or not np.any(c):
+        return 0.0, float(np.sum(c.real))
+    g, step_s = coarse_cross(c, f) if coarse is None else coarse
+    n_fft = g.size
     if max_delay_s is None:
         n = int(np.argmax(g))
     else:
@@ -107,10 +145,10 @@ def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None)
     if max_delay_s is not None:
         tau = max(tau, 0.0)
     om = 2.0 * np.pi * f
-    e = c * np.exp(1j * om * tau)
+    e = c * uniform_phasor(f.size, 2.0 * np.pi * (f[1] - f[0]) * tau)
     g0 = float(np.sum(e.real))
-    d1 = -float(np.sum(om * e.imag))          # d/dτ Re Σ c e^{jωτ}
-    d2 = -float(np.sum(om * om * e.real))     # d²/dτ²
+    d1 = -float(np.dot(om, e.imag))           # d/dτ Re Σ c e^{jωτ}
+    d2 = -float(np.dot(om * om, e.real))      # d²/dτ²
     if d2 < 0.0:
         delta = -d1 / d2
         # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
@@ -121,7 +159,8 @@ def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None)
 
 def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
                weights_hz: np.ndarray | None = None, *,
-               max_delay_s: float | None = None) -> tuple[float, np.ndarray]:
+               max_delay_s: float | None = None,
+               cross: tuple[np.ndarray, tuple[np.ndarray, float]] | None = None) -> tuple[float, np.ndarray]:
     """The single delay τ that best aligns the input with the filtered output.
 
     Minimises the error power ∫ S(f)·|1 − H(f)·e^{j2πfτ}|² df, i.e. the
@@ -144,6 +183,10 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
         Search only 0 ≤ τ ≤ max_delay_s (about; the window is rounded up to
         the coarse grid).  Default: the whole ±1/(2·df).  The perceptual
         scorer passes twice the filter's passband group delay.
+    cross : (c, coarse), optional
+        The cross spectrum S·w·H and its :func:`coarse_cross`, when the caller
+        has them (the sweep shares one inverse FFT per case between SER and
+        the perceptual figures).
 
     Returns
     -------
@@ -157,8 +200,14 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
     f = np.asarray(freqs_hz, dtype=float)
     H = np.asarray(H, dtype=complex)
     w = np.full(f.shape, f[1] - f[0]) if weights_hz is None else np.asarray(weights_hz, dtype=float)
-    tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f, max_delay_s)
-    return tau, np.abs(1.0 - H * np.exp(2j * np.pi * f * tau)) ** 2
+    if cross is None:
+        tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f, max_delay_s)
+    else:
+        tau, _ = _delay_cross(cross[0], f, max_delay_s, coarse=cross[1])
+    he = H * (uniform_phasor(f.size, 2.0 * np.pi * (f[1] - f[0]) * tau) if f.size > 1
+              else np.exp(2j * np.pi * f * tau))
+    re = 1.0 - he.real
+    return tau, re * re + he.imag * he.imag
 
 
 #: Points of the occupied-band grid for flatness and delay spread: linear, plus
@@ -286,9 +335,12 @@ class Scorer:
         wml = (wx * ((fx >= lo) & (fx <= hi)))[: fl.size]
         Sl = px[: fl.size] * v2
         Sh = S[k:]
+        #: the meter band is the whole grid: SER's cross spectrum S·wm·H is the perceptual
+        #: scorer's S·w·H, so one inverse FFT per case serves both delay searches
+        self.full_meter = bool(np.all(in_band))
         self._pre = dict(
             wm=wm, S=S, aw=aw, bins_per_band=bins_per_band, sw=sw, band_s=band_s,
-            s_total=float(np.sum(S * wm)),
+            s_total=float(np.sum(S * wm)), swm=S * wm, wm_a=wm * aw,
             k=k, fl=fl, swl=Sl * wml, swl_a=Sl * wml * a_weighting_power(fl),
             swh=Sh * wm[k:], swh_a=Sh * wm[k:] * aw[k:],
             frames_v2=a.band_frames * v2, lo=lo, hi=hi,
@@ -306,21 +358,32 @@ class Scorer:
             floor = np.maximum(floor, absolute)
         self._pre["floor"] = floor
         self._pre["frames_db"] = 10 * np.log10(np.maximum(fv2, floor))
+        # the same in dB, for _lsd: lg(max(P·g, F)) = max(lg P + lg g, lg F) (lg is monotone), so a
+        # case takes one logarithm per band instead of one per frame and band
+        with np.errstate(divide="ignore"):
+            self._pre["raw_db"] = 10 * np.log10(fv2)
+        self._pre["floor_db"] = 10 * np.log10(floor)
         # the program's 99 % occupied band (power summed over channels), for flatness and delay spread
         occ_lo, occ_hi = a.occupied_band_hz()
         self._pre["occupied_grid"] = band_grid(occ_lo, min(occ_hi, a.nyquist_hz),
                                                floor_hz=a.sample_rate_hz / a.nperseg)
 
-    def score(self, filt: Filter) -> dict:
-        """All metrics for one candidate, as a plain mapping (no targets applied)."""
+    def score(self, filt: Filter, shared: dict | None = None) -> dict:
+        """All metrics for one candidate, as a plain mapping (no targets applied).
+
+        ``shared``: a dict that receives this case's arrays for the other scorers of
+        the same case (complex response ``H``, power response ``G``, output noise
+        density ``N``, and ``cross`` — the cross spectrum and its coarse delay
+        search — when the meter band is the whole grid).
+        """
         a, c, p = self.analysis, self.chain, self._pre
         f = a.freqs_hz
         wm = p["wm"]
         G = filt.power_response(f)
         N = noise_total(c, filt, f, a.weights_hz, a.sample_rate_hz, direct=G)
-        n_pow = float(np.sum(N * wm))
-        n_pow_a = float(np.sum(N * wm * p["aw"]))
-        S = p["S"]
+        H = filt.response(f)
+        n_pow = float(np.dot(N, wm))
+        n_pow_a = float(np.dot(N, p["wm_a"]))
         # program out on the scoring grid (fine below the crossover)
         k = p["k"]
         Gl = filt.power_response(p["fl"]) if p["fl"].size else p["fl"]
@@ -330,8 +393,14 @@ class Scorer:
         # error against the input at the best single delay, phase included
         # (∫S|1 − H·e^{j2πfτ}|² = ∫S(1 + |H|²) − 2·max_τ Re ∫S·H·e^{j2πfτ}; see best_delay):
         # on the normal grid throughout (the delay search needs a uniform grid from 0 Hz)
-        s_out = float(np.sum(S * G * wm))
-        _, cross = _delay_cross(S * wm * filt.response(f), f)
+        s_out = float(np.dot(p["swm"], G))
+        cs = p["swm"] * H
+        coarse = coarse_cross(cs, f) if f.size > 1 and np.any(cs) else None
+        _, cross = _delay_cross(cs, f, coarse=coarse)
+        if shared is not None:
+            shared.update(H=H, G=G, N=N)
+            if self.full_meter and coarse is not None:
+                shared["cross"] = (cs, coarse)
         err = max(p["s_total"] + s_out - 2.0 * cross, 0.0)
         nyq = a.nyquist_hz
         lo3, hi3 = filt.edges_3db
@@ -371,11 +440,11 @@ class Scorer:
         if np.any(empty):
             counts = p["bins_per_band"]
             gain[empty] = (self._band_sum(G) / np.maximum(counts, 1))[empty]
-        # in place: (frames x bands) arrays
-        out = p["frames_v2"] * gain
-        np.maximum(out, p["floor"], out=out)
-        np.log10(out, out=out)
-        out *= 10
+        # in place: (frames x bands) arrays; 10·lg(max(P·g, F)) as max(10·lg P + 10·lg g, 10·lg F)
+        with np.errstate(divide="ignore"):
+            gain_db = 10 * np.log10(gain)
+        out = p["raw_db"] + gain_db
+        np.maximum(out, p["floor_db"], out=out)
         out -= p["frames_db"]
         out *= out
         return float(np.mean(np.sqrt(np.mean(out, axis=1))))

@@ -247,37 +247,44 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
         filt = design(spec)
         row = {"id": i, "response": spec.response, "family": spec.family, "order": spec.order,
                "poles": spec.poles, "design_low_hz": spec.low_hz, "design_high_hz": spec.high_hz}
-        row.update(scorer.score(filt))
+        shared: dict = {}   # this case's response, noise and delay search, for the other scorers
+        row.update(scorer.score(filt, shared))
         row["bandwidth_hz"] = filt.bandwidth_3db(analysis.nyquist_hz)
         row["headroom_db"] = headroom
         if data is not None:
-            row.update(_data_metrics(filt, analysis, chain, data))
+            row.update(_data_metrics(filt, analysis, chain, data, shared.get("N")))
         if perceptual is not None:
-            row.update(_perceptual_metrics(filt, analysis, chain, perceptual))
+            row.update(_perceptual_metrics(filt, analysis, chain, perceptual, shared))
         passes, fails, margins = check_targets(row, targets)
         row.update(passes=passes, fails=fails, margins_db=margins)
         rows.append(row)
     return rows
 
 
-def _data_metrics(filt, analysis: Analysis, chain: Chain, data) -> dict:
-    """Eye, Q and BER of one case; σ is the chain's output noise over the whole 0…fs/2."""
+def _data_metrics(filt, analysis: Analysis, chain: Chain, data, total=None) -> dict:
+    """Eye, Q and BER of one case; σ is the chain's output noise over the whole 0…fs/2
+    (``total``: the case's output noise density when the scorer has it)."""
     import numpy as np
 
     from .datalink import score_data
     from .noise import noise_total
 
-    total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
+    if total is None:
+        total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
     sigma = math.sqrt(float(np.sum(total * analysis.weights_hz)))
     return score_data(filt, data, sigma)
 
 
-def _perceptual_metrics(filt, analysis: Analysis, chain: Chain, perceptual) -> dict:
-    """nmr_db, audible_frames_pct, sii, wiener_gap_db of one case (see audiobw.perceptual.scoring)."""
+def _perceptual_metrics(filt, analysis: Analysis, chain: Chain, perceptual, shared=None) -> dict:
+    """nmr_db, audible_frames_pct, sii, wiener_gap_db of one case (see audiobw.perceptual.scoring);
+    ``shared``: what :meth:`Scorer.score` left for this case (response, noise, delay search)."""
     from .noise import noise_total
 
-    total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
-    return perceptual.score(filt, total)
+    shared = shared or {}
+    total = shared.get("N")
+    if total is None:
+        total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
+    return perceptual.score(filt, total, shared)
 
 
 def grid_limits(case: dict, cases: list[dict]) -> list[dict]:

@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..metrics import best_delay
+from ..metrics import PHASOR_BLOCK, best_delay
 from . import masking, sii, threshold, wiener
 
 #: Default playback level by program kind (dB SPL): speech at ANSI S3.5-1997
@@ -100,6 +100,10 @@ class PerceptualScorer:
         self._starts = np.searchsorted(band_of_bin, self._filled)
         self._nb = len(edges) - 1
         self.band_s = self._band_sum(self.sw)
+        self._band_phasor_tables(f, band_of_bin)
+        # the SII needs the bins up to its top band edge only (sii.band_spectrum_levels
+        # finds the same edges in this prefix: the bin after the top edge is kept)
+        self._sii_bins = int(np.searchsorted(f, sii.BAND_EDGES_HZ.max())) + 1
         lo = np.maximum(edges[:-1], 20.0)
         hi = np.maximum(edges[1:], lo * 1.001)
         grid = np.geomspace(lo, hi, 12, axis=1)
@@ -131,16 +135,44 @@ class PerceptualScorer:
         self.n_post = np.full(f.size, conv if analog else 0.0)
         self.mse_min = wiener.wiener_mse(self.S, self.n_pre, self.n_post, w)
 
+    def _band_phasor_tables(self, f, band_of_bin):
+        """Indices for :meth:`_band_phasor`: bin k of band b is k = s_b + q·B + r."""
+        n = f.size
+        self._df = float(f[1] - f[0]) if n > 1 else 0.0
+        k = np.arange(n)
+        first = np.zeros(self._nb, dtype=np.int64)
+        first[self._filled] = self._starts
+        i = k - first[band_of_bin]
+        B = PHASOR_BLOCK
+        q, r = np.divmod(i, B)
+        nq = int(q.max()) + 1 if n else 1
+        self._ph_first, self._ph_nq = first, nq
+        self._ph_i1 = band_of_bin * nq + q
+        self._ph_i2 = band_of_bin * B + r
+
+    def _band_phasor(self, delay_b):
+        """e^{j2π f_k τ_b(k)} on the uniform analysis grid, τ constant within each critical band.
+
+        Each band's phasor is a table product (see :func:`audiobw.metrics.uniform_phasor`):
+        e^{j(s_b + qB)θ_b}·e^{jrθ_b}, θ_b = 2π·df·τ_b, within a few units in the last
+        place of the direct exponential.
+        """
+        B = PHASOR_BLOCK
+        th = 2.0 * np.pi * self._df * delay_b
+        t1 = np.exp(1j * th[:, None] * (self._ph_first[:, None] + B * np.arange(self._ph_nq)[None, :]))
+        t2 = np.exp(1j * th[:, None] * np.arange(B)[None, :])
+        return t1.ravel()[self._ph_i1] * t2.ravel()[self._ph_i2]
+
     def _band_sum(self, x):
         out = np.zeros(x.shape[:-1] + (self._nb,))
         out[..., self._filled] = np.add.reduceat(x, self._starts, axis=-1)
         return out
 
-    def _delay(self, h, f, w, gd):
+    def _delay(self, h, f, w, gd, cross=None):
         """Best delay (s), searched up to twice the filter's largest passband group delay (+ 2 samples),
-        and |1 − H e^{j2πfτ}|² at it."""
+        and |1 − H e^{j2πfτ}|² at it.  ``cross``: the case's shared cross spectrum and coarse search."""
         limit = 2.0 * max(wiener.passband_group_delay_s(h, f, gd), 0.0) + 2.0 / self.analysis.sample_rate_hz
-        return best_delay(self.S, h, f, w, max_delay_s=limit)
+        return best_delay(self.S, h, f, w, max_delay_s=limit, cross=cross)
 
     def _heard_share(self, h, f, w, tau, gd) -> np.ndarray:
         """Share of each critical band's program power that the filter changes, as heard.
@@ -156,7 +188,10 @@ class PerceptualScorer:
         sw = self.sw
         gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau),
                          where=self.band_s > 0)
-        he = h * np.exp(2j * np.pi * f * gd_b[self._band_of_bin])
+        if f.size > 1:
+            he = h * self._band_phasor(gd_b)
+        else:
+            he = h * np.exp(2j * np.pi * f * gd_b[self._band_of_bin])
         power = self._band_sum((1.0 + (he.real ** 2 + he.imag ** 2)) * sw)
         cross = np.abs(self._band_sum(he.real * sw) + 1j * self._band_sum(he.imag * sw))
         err = np.maximum(power - 2.0 * cross, 0.0)
@@ -178,25 +213,29 @@ class PerceptualScorer:
         err, tau, _ = self._errors(complex_response(filt, self.analysis.freqs_hz), noise_psd)
         return err, tau
 
-    def _errors(self, h, noise_psd):
+    def _errors(self, h, noise_psd, cross=None):
         """(error per frame and band, best delay, |1 − H e^{j2πfτ}|² per bin)."""
         f, w = self.analysis.freqs_hz, self.analysis.weights_hz
         gd = wiener.group_delay_s(h, f)
-        tau, removed_gain = self._delay(h, f, w, gd)
+        tau, removed_gain = self._delay(h, f, w, gd, cross)
         share = self._heard_share(h, f, w, tau, gd)
         n_band = self._band_sum(noise_psd * w) * self.k_ac
         return self.frames * share + n_band, tau, removed_gain
 
-    def score(self, filt, noise_psd) -> dict:
+    def score(self, filt, noise_psd, shared: dict | None = None) -> dict:
         """nmr_db, audible_frames_pct, sii and wiener_gap_db of one filter.
 
         ``noise_psd`` is the chain's output noise density (V²/Hz) for this
         filter on the analysis grid (:func:`audiobw.noise.noise_total`).
+        ``shared``: the arrays :meth:`audiobw.metrics.Scorer.score` left for this
+        case (its complex response ``H`` on the same grid and, when the meter band
+        is the whole grid, the cross spectrum with its coarse delay search).
         """
         a = self.analysis
         f, w = a.freqs_hz, a.weights_hz
-        h = complex_response(filt, f)
-        err, tau, removed_gain = self._errors(h, noise_psd)
+        shared = shared or {}
+        h = shared["H"] if "H" in shared else complex_response(filt, f)
+        err, tau, removed_gain = self._errors(h, noise_psd, shared.get("cross"))
         rw = removed_gain * self.S * w   # wiener.removed_psd(h, S, f, tau), already evaluated
         ratio = err / self.mask
         over = ratio > 1.0
@@ -217,9 +256,11 @@ class PerceptualScorer:
             row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
         if self.listening.program == "speech":
             k = self.k_ac
-            g2 = np.abs(h) ** 2
-            e18 = sii.band_spectrum_levels(f, self.S * g2 * k, w)
-            n18 = sii.band_spectrum_levels(f, noise_psd * k, w)
+            m = self._sii_bins    # the bins up to the top SII band edge: the same band sums
+            hm = h[:m]
+            g2 = hm.real * hm.real + hm.imag * hm.imag
+            e18 = sii.band_spectrum_levels(f[:m], self.S[:m] * g2 * k, w[:m])
+            n18 = sii.band_spectrum_levels(f[:m], noise_psd[:m] * k, w[:m])
             row["sii"] = sii.sii(np.maximum(e18, -200.0), n18, self.hl18)
         else:
             row["sii"] = None

@@ -49,6 +49,9 @@ NORMAL_EFFORT_SPL_DB = 62.35
 # 10 lg of a one-third-octave bandwidth relative to F_i: 10 lg(0.2316) = −6.353,
 # the constant of the standard's slope equation (4.3.2.3).
 _BW_DB = 10.0 * np.log10(CENTRES_HZ) - 6.353
+# lg(0.89 F_i/F_k) of the upward spread (4.3.2.3), row i, column k; only k < i counts
+_SPREAD_LG = np.log10(0.89 * CENTRES_HZ[:, None] / CENTRES_HZ[None, :])
+_LOWER = np.tri(18, 18, -1, dtype=bool)
 BAND_EDGES_HZ = np.stack([CENTRES_HZ * 2 ** (-1 / 6), CENTRES_HZ * 2 ** (1 / 6)], axis=1)
 
 
@@ -79,12 +82,10 @@ def band_audibility(speech_db, noise_db, hearing_hl_db=None) -> np.ndarray:
     v = e - 24.0
     b = np.maximum(n, v)
     c = -80.0 + 0.6 * (b + _BW_DB)
-    z = np.empty(18)
+    # Σ_{k<i} 10^(0.1[B_k + 3.32 C_k lg(0.89 F_i/F_k)]) for every i at once (k < i only)
+    spread = np.where(_LOWER, b[None, :] + 3.32 * c[None, :] * _SPREAD_LG, -np.inf)
+    z = 10.0 * np.log10(10.0 ** (0.1 * n) + np.sum(10.0 ** (0.1 * spread), axis=1))
     z[0] = b[0]
-    for i in range(1, 18):
-        k = np.arange(i)
-        spread = b[k] + 3.32 * c[k] * np.log10(0.89 * CENTRES_HZ[i] / CENTRES_HZ[k])
-        z[i] = 10.0 * np.log10(10.0 ** (0.1 * n[i]) + np.sum(10.0 ** (0.1 * spread)))
     x = INTERNAL_NOISE_DB + t
     d = np.maximum(z, x)
     level = np.minimum(1.0 - (e - SPEECH_NORMAL_DB - 10.0) / 160.0, 1.0)

@@ -56,8 +56,42 @@ def removed_psd(h, s, freqs_hz, delay_s=0.0) -> np.ndarray:
 
 
 def group_delay_s(h, freqs_hz) -> np.ndarray:
-    """Group delay −dφ/dω (s) of the complex response ``h`` on the grid ``freqs_hz``."""
-    return -np.gradient(np.unwrap(np.angle(h)), 2 * np.pi * np.asarray(freqs_hz, float))
+    """Group delay −dφ/dω (s) of the complex response ``h`` on the grid ``freqs_hz``.
+
+    The derivative of the unwrapped phase as :func:`numpy.gradient` takes it
+    (second-order central differences, first-order at the ends), written on the
+    phase steps between neighbouring bins, wrapped into (−π, π] by the rule of
+    :func:`numpy.unwrap`: the same figure without forming the unwrapped phase
+    (whose large values cancel in the differences).
+    """
+    om = 2 * np.pi * np.asarray(freqs_hz, float)
+    ph = np.angle(h)
+    if ph.size < 2:
+        return -np.gradient(ph, om)
+    d = np.diff(ph)
+    # an exact zero at an end of the grid (a highpass's at 0 Hz) has no phase: np.angle reads
+    # 0 or π there by the sign of a zero, so the first (last) step takes its neighbour's value
+    # and the delay at that bin is the limit from inside, as the zpk formula gives it
+    if ph.size > 2:
+        if h[0] == 0:
+            d[0] = d[1]
+        if h[-1] == 0:
+            d[-1] = d[-2]
+    wrap = np.abs(d) >= np.pi          # numpy.unwrap: steps of at least π are taken mod 2π
+    if np.any(wrap):
+        dw = d[wrap]
+        dm = np.mod(dw + np.pi, 2 * np.pi) - np.pi
+        dm[(dm == -np.pi) & (dw > 0)] = np.pi
+        d[wrap] = dm
+    dx = np.diff(om)
+    out = np.empty(ph.shape)
+    out[0] = d[0] / dx[0]
+    out[-1] = d[-1] / dx[-1]
+    if ph.size > 2:
+        h1, h2 = dx[:-1], dx[1:]
+        s = h1 + h2
+        out[1:-1] = h2 / (h1 * s) * d[:-1] + h1 / (h2 * s) * d[1:]
+    return -out
 
 
 def passband_group_delay_s(h, freqs_hz, gd=None) -> float:
