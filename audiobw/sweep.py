@@ -222,23 +222,38 @@ def _round_any(v):
 
 
 def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targets: dict,
-                data=None, perceptual=None) -> list[dict]:
+                data=None, perceptual=None, refused: list | None = None) -> list[dict]:
     """Design and score every case of ``grid`` against one analysis.
 
     With ``data`` (a :class:`audiobw.datalink.DataProgram`) each row also
     carries the data-link metrics (eye, Q, BER, jitter); with ``perceptual``
     (a :class:`audiobw.perceptual.scoring.PerceptualScorer`) the audibility,
     SII and Wiener-gap figures.
+
+    A case whose noise has no bound (``--anti-alias none`` with no
+    ``--amp-bandwidth``: a highpass, an even-order elliptic, the digital
+    stage) is refused before any is scored: left out of the rows (ids count
+    the scored cases) with its reason appended to ``refused``; when every
+    case is refused, the first one's :class:`ParameterError` is raised.
     """
-    from .noise import check_noise_bounded
+    from .noise import unbounded_reason, check_noise_bounded
 
     specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
     if chain.anti_alias == "none" and chain.amp_bandwidth_hz is None:
-        # refuse an unbounded case before scoring any: only a response with a floor at high
-        # frequencies (highpass, even-order elliptic) or the digital stage can be one
+        # only a response with a floor at high frequencies (highpass, even-order elliptic)
+        # or the digital stage can be unbounded
+        kept = []
         for spec in specs:
+            reason = None
             if chain.stage == "digital" or spec.response == "highpass" or spec.family == "elliptic":
-                check_noise_bounded(chain, design(spec))
+                reason = unbounded_reason(chain, design(spec))
+            if reason is None:
+                kept.append(spec)
+            elif refused is not None:
+                refused.append(reason)
+        if not kept:
+            check_noise_bounded(chain, design(specs[0]))
+        specs = kept
     scorer = Scorer(analysis, chain, meter)
     # converter full-scale peak over the program's sample peak at the converter (negative: it clips)
     headroom = -(analysis.peak_dbfs + chain.input_gain_db) if math.isfinite(analysis.peak_dbfs) else None
@@ -516,9 +531,14 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
     if listening is not None:
         from .perceptual.scoring import PerceptualScorer
         pscorer = PerceptualScorer(analysis, chain, listening)
-    cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer)
+    refused: list[str] = []
+    cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer, refused=refused)
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
+    if refused:
+        notes.append(f"{len(refused)} of {len(refused) + len(cases)} cases left out: their noise has no bound under "
+                     f"--anti-alias none ({refused[0]}); give --amp-bandwidth HZ (the amplifier's bandwidth) or "
+                     "--anti-alias ideal to score them")
     if choice is None and cases:
         closest = max(cases, key=lambda c: (_worst_margin(c), -c["id"]))
         for lim in grid_limits(closest, cases) + _wide_ends(closest, cases, grid.response):

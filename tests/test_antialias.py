@@ -262,6 +262,23 @@ def test_cli_refuses_unbounded_noise_in_one_line(program_file, tmp_path, capsys,
     assert "--amp-bandwidth HZ" in lines[0] and "--anti-alias ideal" in lines[0]
 
 
+def test_a_mixed_grid_leaves_out_only_the_unbounded_cases(program_file, tmp_path, capsys):
+    # elliptic 2 (|H(∞)| = −60 dB) has no bound under --anti-alias none; elliptic 3 and the
+    # Butterworths do: 2 of 8 cases are left out with a note, the other 6 are scored
+    out = tmp_path / "o"
+    code = main(["sweep", str(program_file), "--family", "butterworth,elliptic", "--order", "2,3",
+                 "--cutoffs", "8k,16k", "--min-snr", "10", "--out", str(out)])
+    text = capsys.readouterr().out
+    assert code == 0
+    doc = json.loads((out / "sweep.json").read_text())
+    kept = [(c["family"], c["order"]) for c in doc["cases"]]
+    assert len(kept) == 6 and ("elliptic", 2) not in kept and kept.count(("elliptic", 3)) == 2
+    assert [c["id"] for c in doc["cases"]] == list(range(1, 7))
+    note = [n for n in doc["notes"] if "left out" in n]
+    assert len(note) == 1 and note[0].startswith("2 of 8 cases left out") and "--amp-bandwidth HZ" in note[0]
+    assert "2 of 8 cases left out" in text
+
+
 def test_cli_refuses_a_bad_anti_alias_value(program_file, tmp_path, capsys):
     code = main(["sweep", str(program_file), "--min-snr", "10", "--anti-alias", "brickwall",
                  "--out", str(tmp_path / "o")])
