@@ -90,6 +90,8 @@ def interleaved(repeats, subjects):
     runs = {s[0]: [] for s in subjects}
     for _ in range(repeats):
         for name, cmd, *env in subjects:
+            if "--out" in cmd:  # a fresh output folder each run: batch would resume from its own cache
+                shutil.rmtree(cmd[cmd.index("--out") + 1], ignore_errors=True)
             runs[name].append((*timed(cmd, env[0] if env else cold_env()), timed.cpu))
             w, r, ld, cpu = runs[name][-1]
             print(f"  {name}: {w:.2f} s, CPU {cpu:.2f} s, {r:.0f} MB, load {ld:.2f}", flush=True)
@@ -230,7 +232,7 @@ def main(argv=None):
             shutil.copyfile(src, folder / src.name)
     batch = lambda w: _cmd_audiobw("batch", str(folder), "--family", "butterworth,bessel", "--order", "2,4",  # noqa: E731
                                    "--cutoffs", "2k:20k:8", "--max-loss", "0.5", "--workers", str(w),
-                                   "--out", str(tmp / f"batch{w}-{time.monotonic_ns()}"))
+                                   "--out", str(tmp / f"batch{w}"))
     r = interleaved(reps, [("w1", batch(1)), ("w2", batch(2))])
     speedup = {"min": r["w1"]["min"], "median": r["w1"]["median"], "load": r["w2"]["load"], "rss": r["w2"]["rss"]}
     row(f"batch, {n_files} one-minute files: 1 worker / 2 workers (speed-up)", speedup,
