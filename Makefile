@@ -1,4 +1,4 @@
-# `make demo`, `make test` and `make lint` (ruff check + mypy). Both bootstrap .venv themselves.
+# `make demo`, `make test` and `make lint` (ruff check, ruff format --check, mypy). Both bootstrap .venv themselves.
 PYTHON ?= $(shell command -v python3.11 || command -v python3)
 VENV   := .venv
 BIN    := $(VENV)/bin
@@ -29,6 +29,7 @@ test: $(STAMP_TEST)
 
 lint: $(STAMP_TEST)
 	$(BIN)/ruff check audiobw tests
+	$(BIN)/ruff format --check audiobw tests
 	$(BIN)/mypy
 
 clips: $(STAMP_BASE)

@@ -10,8 +10,22 @@ import sys as _sys
 
 __version__ = "0.1.0"
 
-_PUBLIC = ("Study", "Chain", "Grid", "Targets", "Meter", "Listening", "Program", "sweep", "render",
-           "write_report", "run_batch", "SweepResult", "Case", "Choice")
+_PUBLIC = (
+    "Study",
+    "Chain",
+    "Grid",
+    "Targets",
+    "Meter",
+    "Listening",
+    "Program",
+    "sweep",
+    "render",
+    "write_report",
+    "run_batch",
+    "SweepResult",
+    "Case",
+    "Choice",
+)
 
 __all__ = ["__version__", *_PUBLIC]
 

@@ -28,8 +28,21 @@ from .metrics import TARGET_KEYS, Meter
 from .options import FAMILIES, MAX_ORDER, MIN_ORDER
 from .settings import Settings
 
-__all__ = ["Chain", "Grid", "Targets", "Meter", "Program", "Study", "Case", "Choice",
-           "SweepResult", "sweep", "render", "write_report", "run_batch"]
+__all__ = [
+    "Chain",
+    "Grid",
+    "Targets",
+    "Meter",
+    "Program",
+    "Study",
+    "Case",
+    "Choice",
+    "SweepResult",
+    "sweep",
+    "render",
+    "write_report",
+    "run_batch",
+]
 
 RESPONSES = ("lowpass", "highpass", "bandpass")
 
@@ -42,8 +55,7 @@ def _log_grid(start_hz: float, stop_hz: float, count: int, *, name: str) -> tupl
     from . import units
 
     if not (math.isfinite(start_hz) and math.isfinite(stop_hz)) or not 0 < start_hz < stop_hz:
-        raise ParameterError(f"{name}: start {start_hz!r} Hz, stop {stop_hz!r} Hz; "
-                             "accepted: 0 < start < stop, in Hz")
+        raise ParameterError(f"{name}: start {start_hz!r} Hz, stop {stop_hz!r} Hz; accepted: 0 < start < stop, in Hz")
     if isinstance(count, bool) or not isinstance(count, int) or count < 1:
         raise ParameterError(f"{name}: count {count!r}; accepted: an integer >= 1")
     return tuple(units.parse_grid(f"{start_hz!r}:{stop_hz!r}:{count}", name=name))
@@ -60,8 +72,9 @@ class Grid(_sweep.Grid):
     """
 
     @classmethod
-    def lowpass(cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",),
-                orders=(4,), **kw) -> Grid:
+    def lowpass(
+        cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",), orders=(4,), **kw
+    ) -> Grid:
         """Lowpass cases with the upper edge swept over ``count`` log-spaced values.
 
         Parameters
@@ -75,19 +88,37 @@ class Grid(_sweep.Grid):
         orders : tuple of int
             Filter orders.
         """
-        return cls(response="lowpass", families=tuple(families), orders=tuple(orders),
-                   cutoffs_hz=_log_grid(start_hz, stop_hz, count, name="Grid.lowpass"), **kw)
+        return cls(
+            response="lowpass",
+            families=tuple(families),
+            orders=tuple(orders),
+            cutoffs_hz=_log_grid(start_hz, stop_hz, count, name="Grid.lowpass"),
+            **kw,
+        )
 
     @classmethod
-    def highpass(cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",),
-                 orders=(4,), **kw) -> Grid:
+    def highpass(
+        cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",), orders=(4,), **kw
+    ) -> Grid:
         """Highpass cases with the lower edge swept over ``count`` log-spaced values (Hz)."""
-        return cls(response="highpass", families=tuple(families), orders=tuple(orders),
-                   cutoffs_hz=_log_grid(start_hz, stop_hz, count, name="Grid.highpass"), **kw)
+        return cls(
+            response="highpass",
+            families=tuple(families),
+            orders=tuple(orders),
+            cutoffs_hz=_log_grid(start_hz, stop_hz, count, name="Grid.highpass"),
+            **kw,
+        )
 
     @classmethod
-    def bandpass(cls, low: tuple[float, float, int], high: tuple[float, float, int], *,
-                 families=("butterworth",), orders=(4,), **kw) -> Grid:
+    def bandpass(
+        cls,
+        low: tuple[float, float, int],
+        high: tuple[float, float, int],
+        *,
+        families=("butterworth",),
+        orders=(4,),
+        **kw,
+    ) -> Grid:
         """Bandpass cases: every (low edge, high edge) pair with low < high.
 
         Parameters
@@ -95,9 +126,14 @@ class Grid(_sweep.Grid):
         low, high : (start_hz, stop_hz, count)
             Log-spaced grids of the lower and upper edges, Hz.
         """
-        return cls(response="bandpass", families=tuple(families), orders=tuple(orders),
-                   low_edges_hz=_log_grid(*low, name="Grid.bandpass low"),
-                   high_edges_hz=_log_grid(*high, name="Grid.bandpass high"), **kw)
+        return cls(
+            response="bandpass",
+            families=tuple(families),
+            orders=tuple(orders),
+            low_edges_hz=_log_grid(*low, name="Grid.bandpass low"),
+            high_edges_hz=_log_grid(*high, name="Grid.bandpass high"),
+            **kw,
+        )
 
     def check(self) -> None:
         """Refuse a grid that cannot be swept, naming the field (library terms)."""
@@ -106,28 +142,41 @@ class Grid(_sweep.Grid):
         bad = [f for f in self.families if f not in FAMILIES]
         if bad or not self.families:
             raise ParameterError(f"Grid.families: {list(self.families)!r}; accepted: {', '.join(FAMILIES)}")
-        if not self.orders or any(isinstance(o, bool) or not isinstance(o, int) or not MIN_ORDER <= o <= MAX_ORDER
-                                  for o in self.orders):
-            raise ParameterError(f"Grid.orders: {list(self.orders)!r}; accepted: integers "
-                                 f"{MIN_ORDER}..{MAX_ORDER}")
+        if not self.orders or any(
+            isinstance(o, bool) or not isinstance(o, int) or not MIN_ORDER <= o <= MAX_ORDER for o in self.orders
+        ):
+            raise ParameterError(f"Grid.orders: {list(self.orders)!r}; accepted: integers {MIN_ORDER}..{MAX_ORDER}")
         if self.response == "bandpass":
             if not self.low_edges_hz or not self.high_edges_hz:
-                raise ParameterError("Grid.low_edges_hz/high_edges_hz: a bandpass grid needs both edge grids; "
-                                     "accepted: Grid.bandpass((start, stop, count), (start, stop, count))")
+                raise ParameterError(
+                    "Grid.low_edges_hz/high_edges_hz: a bandpass grid needs both edge grids; "
+                    "accepted: Grid.bandpass((start, stop, count), (start, stop, count))"
+                )
         elif not self.cutoffs_hz:
-            raise ParameterError(f"Grid.cutoffs_hz: a {self.response} grid needs cutoffs; accepted: "
-                                 f"Grid.{self.response}(start_hz, stop_hz, count), e.g. (2000, 20000, 16)")
+            raise ParameterError(
+                f"Grid.cutoffs_hz: a {self.response} grid needs cutoffs; accepted: "
+                f"Grid.{self.response}(start_hz, stop_hz, count), e.g. (2000, 20000, 16)"
+            )
 
     def _grid_values(self) -> dict:
-        return {"response": self.response, "family": tuple(self.families), "order": tuple(self.orders),
-                "cutoffs": tuple(self.cutoffs_hz), "low_edges": tuple(self.low_edges_hz),
-                "high_edges": tuple(self.high_edges_hz), "ripple": self.ripple_db,
-                "stopband": self.stopband_db}
+        return {
+            "response": self.response,
+            "family": tuple(self.families),
+            "order": tuple(self.orders),
+            "cutoffs": tuple(self.cutoffs_hz),
+            "low_edges": tuple(self.low_edges_hz),
+            "high_edges": tuple(self.high_edges_hz),
+            "ripple": self.ripple_db,
+            "stopband": self.stopband_db,
+        }
 
 
 _TargetFields = dataclasses.make_dataclass(
-    "_TargetFields", [(k, "float | None", dataclasses.field(default=None)) for k in TARGET_KEYS],
-    frozen=True, kw_only=True)
+    "_TargetFields",
+    [(k, "float | None", dataclasses.field(default=None)) for k in TARGET_KEYS],
+    frozen=True,
+    kw_only=True,
+)
 
 
 class Targets(_TargetFields):  # type: ignore[valid-type,misc]
@@ -144,8 +193,9 @@ class Targets(_TargetFields):  # type: ignore[valid-type,misc]
         if unknown:
             raise ParameterError(f"Targets: unknown {', '.join(unknown)}; accepted: {', '.join(TARGET_KEYS)}")
         for key, value in limits.items():
-            if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
-                                      or not math.isfinite(value)):
+            if value is not None and (
+                isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value)
+            ):
                 raise ParameterError(f"Targets.{key}: {value!r}; accepted: a finite number or None")
         super().__init__(**{k: None if v is None else float(v) for k, v in limits.items()})
 
@@ -230,11 +280,20 @@ class Study:
             raise ParameterError(f"Study.targets: none set; accepted: at least one of {', '.join(TARGET_KEYS)}")
         data_only = [k for k in ("max_ber", "min_eye") if k in targets]
         if data_only and self.program.kind != "data":
-            raise ParameterError(f"Targets.{data_only[0]}: applies to data programs only; "
-                                 "accepted: Program(kind='data', ...)")
-        return Settings(chain=self.chain, grid_values=self.grid._grid_values() if self.grid else {},
-                        meter=self.meter, targets=targets, input_level=None, program=kind,
-                        bit_rate=self.program.bit_rate_hz, listening=listening, default_targets=tuple(added))
+            raise ParameterError(
+                f"Targets.{data_only[0]}: applies to data programs only; accepted: Program(kind='data', ...)"
+            )
+        return Settings(
+            chain=self.chain,
+            grid_values=self.grid._grid_values() if self.grid else {},
+            meter=self.meter,
+            targets=targets,
+            input_level=None,
+            program=kind,
+            bit_rate=self.program.bit_rate_hz,
+            listening=listening,
+            default_targets=tuple(added),
+        )
 
 
 class Case(Mapping):
@@ -321,8 +380,9 @@ class SweepResult:
         self.paths = dict(paths or {})
         self.cases = tuple(Case(c) for c in doc["cases"])
         ch = doc.get("choice")
-        self.choice = None if not ch else Choice(self.cases[ch["case"] - 1], ch.get("binding"),
-                                                  ch.get("binding_margin_db"), ch)
+        self.choice = (
+            None if not ch else Choice(self.cases[ch["case"] - 1], ch.get("binding"), ch.get("binding_margin_db"), ch)
+        )
         self.unmet = dict(doc.get("unmet") or {})
         self.conflicts = [dict(c) for c in doc.get("conflicts") or []]
 
@@ -399,8 +459,16 @@ def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str,
     return _write_report(out_dir, plots=plots, html=html)
 
 
-def run_batch(inputs, study: Study | None, out_dir, *, coverage: float = 0.95, workers: int | None = None,
-              cluster: str | None = None, progress=None):
+def run_batch(
+    inputs,
+    study: Study | None,
+    out_dir,
+    *,
+    coverage: float = 0.95,
+    workers: int | None = None,
+    cluster: str | None = None,
+    progress=None,
+):
     """Sweep many recordings; writes corpus.json and corpus.csv into ``out_dir``.
 
     Parameters
@@ -421,8 +489,15 @@ def run_batch(inputs, study: Study | None, out_dir, *, coverage: float = 0.95, w
     """
     from .corpus.run import run_batch as _run_batch
 
-    return _run_batch([str(p) for p in inputs], (study or Study()).settings(), out_dir, coverage=coverage,
-                      workers=workers, cluster=cluster, progress=progress)
+    return _run_batch(
+        [str(p) for p in inputs],
+        (study or Study()).settings(),
+        out_dir,
+        coverage=coverage,
+        workers=workers,
+        cluster=cluster,
+        progress=progress,
+    )
 
 
 def __getattr__(name: str):

@@ -69,8 +69,7 @@ def open_info(path) -> AudioInfo:
     if not 1 <= info.channels <= MAX_CHANNELS:
         raise AudioFileError(f"{p}: {info.channels} channels; accepted: 1 to {MAX_CHANNELS}")
     if not MIN_RATE_HZ <= info.samplerate <= MAX_RATE_HZ:
-        raise AudioFileError(
-            f"{p}: sample rate {info.samplerate} Hz; accepted: {MIN_RATE_HZ} to {MAX_RATE_HZ} Hz")
+        raise AudioFileError(f"{p}: sample rate {info.samplerate} Hz; accepted: {MIN_RATE_HZ} to {MAX_RATE_HZ} Hz")
     return AudioInfo(p, int(info.samplerate), int(info.channels), int(info.frames), info.format, info.subtype)
 
 
@@ -153,8 +152,7 @@ def iter_blocks(path, *, blocksize: int = 1 << 17):
                 break
             if check and not np.all(np.isfinite(block)):
                 bad = int(np.argwhere(~np.isfinite(block))[0, 0]) + start
-                raise AudioFileError(
-                    f"{p}: NaN or infinite sample at frame {bad}; accepted: finite samples only")
+                raise AudioFileError(f"{p}: NaN or infinite sample at frame {bad}; accepted: finite samples only")
             start += block.shape[0]
             yield block
             if block.shape[0] < blocksize:
@@ -216,12 +214,15 @@ def check_unchanged(path, before: tuple) -> None:
     except OSError:
         after = None
     if after != before:
-        raise AudioFileError(f"{shown(path)}: changed while it was read (size, time stamps or inode differ "
-                             "before and after the pass); nothing was written or cached; accepted: a file no "
-                             "process writes during the run")
+        raise AudioFileError(
+            f"{shown(path)}: changed while it was read (size, time stamps or inode differ "
+            "before and after the pass); nothing was written or cached; accepted: a file no "
+            "process writes during the run"
+        )
 
 
 # -- atomic outputs ---------------------------------------------------------
+
 
 def _identity(path):
     """(resolved path, (st_dev, st_ino) or None) of ``path``; never raises."""
@@ -248,8 +249,10 @@ def refuse_input_target(target, inputs=()) -> None:
             continue
         s_real, s_id = _identity(src)
         if s_real == t_real or (t_id is not None and t_id == s_id):
-            raise OutputError(f"{shown(target)}: is an input ({shown(src)}); refusing to overwrite an input file; "
-                              "accepted: an output path that is not an input")
+            raise OutputError(
+                f"{shown(target)}: is an input ({shown(src)}); refusing to overwrite an input file; "
+                "accepted: an output path that is not an input"
+            )
 
 
 def shown(path) -> str:
@@ -360,8 +363,10 @@ def atomic_path(target, *, inputs=(), input_sha256=None):
         except OSError:
             same = False
         if same:
-            raise OutputError(f"{shown(target)}: holds the input program (same SHA-256); refusing to overwrite "
-                              "an input file; accepted: an output path that is not an input")
+            raise OutputError(
+                f"{shown(target)}: holds the input program (same SHA-256); refusing to overwrite "
+                "an input file; accepted: an output path that is not an input"
+            )
     fd = None
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
@@ -401,8 +406,9 @@ def open_wav_writer(path, sample_rate_hz: int, channels: int, *, subtype: str = 
     """
     import soundfile as sf
 
-    fh = sf.SoundFile(str(path), "w", samplerate=int(sample_rate_hz), channels=int(channels), subtype=subtype,
-                      format=format)
+    fh = sf.SoundFile(
+        str(path), "w", samplerate=int(sample_rate_hz), channels=int(channels), subtype=subtype, format=format
+    )
     sf._snd.sf_command(fh._file, SFC_SET_ADD_PEAK_CHUNK, sf._ffi.NULL, 0)  # SF_FALSE
     return fh
 
@@ -421,8 +427,7 @@ def write_text_atomic(target, text: str, *, inputs=()) -> Path:
     return Path(target)
 
 
-def write_audio_atomic(target, data: np.ndarray, sample_rate_hz: int, *, subtype: str = "FLOAT",
-                       inputs=()) -> Path:
+def write_audio_atomic(target, data: np.ndarray, sample_rate_hz: int, *, subtype: str = "FLOAT", inputs=()) -> Path:
     """Write audio atomically with an explicit subtype (never the PCM_16 default).
 
     Integer subtypes clip above ±1: such data is refused rather than clipped.
@@ -452,8 +457,10 @@ OUTPUT_FORMATS = {".wav": "WAV", ".flac": "FLAC"}
 def _format_for(target: Path) -> str:
     fmt = OUTPUT_FORMATS.get(target.suffix.lower())
     if fmt is None:
-        raise ParameterError(f"--out: {shown(target)!r}: format {target.suffix or '(no extension)'!r} is not "
-                             f"written; accepted: {', '.join(OUTPUT_FORMATS)}")
+        raise ParameterError(
+            f"--out: {shown(target)!r}: format {target.suffix or '(no extension)'!r} is not "
+            f"written; accepted: {', '.join(OUTPUT_FORMATS)}"
+        )
     return fmt
 
 
@@ -513,7 +520,8 @@ def output_lock(folder, *, wait_s: float | None = None):
                     raise OutputError(
                         f"{shown(folder)}: another audiobw run is writing into this folder (lock {LOCK_NAME} "
                         "held); accepted: a folder no other run is using: wait for it to finish or choose "
-                        "another --out") from None
+                        "another --out"
+                    ) from None
                 time.sleep(0.1)
         _held_locks[key] = [fd, 1]
         try:

@@ -67,8 +67,19 @@ INDEX_PREFIX, INDEX_SUFFIX = "path-", ".json"
 STATS = {"hits": 0, "misses": 0, "rejected": 0, "writes": 0, "evicted": 0, "write_failures": 0, "index_hits": 0}
 
 _ARRAYS = ("psd_channels", "peak", "mean_square", "dc", "band_frames", "fine_psd")
-_INTS = ("sample_rate_hz", "channels", "frames", "nperseg", "frame_len", "frame_stride", "full_scale_samples",
-         "welch_segments", "declared_frames", "fine_nperseg", "fine_welch_segments")
+_INTS = (
+    "sample_rate_hz",
+    "channels",
+    "frames",
+    "nperseg",
+    "frame_len",
+    "frame_stride",
+    "full_scale_samples",
+    "welch_segments",
+    "declared_frames",
+    "fine_nperseg",
+    "fine_welch_segments",
+)
 _STRS = ("format", "key", "sha256", "audio_format", "subtype")
 _warned = False
 
@@ -110,12 +121,20 @@ def params(blocksize: int) -> dict:
     from . import __version__, spectrum
 
     # the libraries whose arithmetic or decoding the figures come from: an upgrade rebuilds
-    return {"format": FORMAT, "audiobw": __version__, "numpy": np.__version__, "scipy": scipy.__version__,
-            "libsndfile": soundfile.__libsndfile_version__, "psd_resolution_hz": spectrum.PSD_RESOLUTION_HZ,
-            "frame_seconds": spectrum.FRAME_SECONDS, "max_frames": spectrum.MAX_FRAMES,
-            "fine_resolution_hz": spectrum.FINE_RESOLUTION_HZ, "fine_top_hz": spectrum.FINE_TOP_HZ,
-            "fine_min_lengths": spectrum.FINE_MIN_LENGTHS,
-            "blocksize": int(blocksize)}
+    return {
+        "format": FORMAT,
+        "audiobw": __version__,
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "libsndfile": soundfile.__libsndfile_version__,
+        "psd_resolution_hz": spectrum.PSD_RESOLUTION_HZ,
+        "frame_seconds": spectrum.FRAME_SECONDS,
+        "max_frames": spectrum.MAX_FRAMES,
+        "fine_resolution_hz": spectrum.FINE_RESOLUTION_HZ,
+        "fine_top_hz": spectrum.FINE_TOP_HZ,
+        "fine_min_lengths": spectrum.FINE_MIN_LENGTHS,
+        "blocksize": int(blocksize),
+    }
 
 
 def entry_key(sha256: str, blocksize: int) -> str:
@@ -163,14 +182,20 @@ def store(analysis, *, blocksize: int, folder=None) -> Path | None:
         "fine_psd": np.asarray(analysis.fine_psd, dtype=np.float64),
         "fine_nperseg": np.int64(analysis.fine_nperseg),
         "fine_welch_segments": np.int64(analysis.meta.get("fine_welch_segments", 0)),
-        "sample_rate_hz": np.int64(analysis.sample_rate_hz), "channels": np.int64(analysis.channels),
-        "frames": np.int64(analysis.frames), "nperseg": np.int64(analysis.nperseg),
-        "frame_len": np.int64(analysis.frame_len), "frame_stride": np.int64(analysis.frame_stride),
+        "sample_rate_hz": np.int64(analysis.sample_rate_hz),
+        "channels": np.int64(analysis.channels),
+        "frames": np.int64(analysis.frames),
+        "nperseg": np.int64(analysis.nperseg),
+        "frame_len": np.int64(analysis.frame_len),
+        "frame_stride": np.int64(analysis.frame_stride),
         "full_scale_samples": np.int64(analysis.full_scale_samples),
         "welch_segments": np.int64(analysis.meta.get("welch_segments", 0)),
         "declared_frames": np.int64(analysis.meta.get("declared_frames") or 0),
-        "format": np.str_(FORMAT), "key": np.str_(key), "sha256": np.str_(analysis.sha256),
-        "audio_format": np.str_(analysis.meta.get("format", "")), "subtype": np.str_(analysis.meta.get("subtype", "")),
+        "format": np.str_(FORMAT),
+        "key": np.str_(key),
+        "sha256": np.str_(analysis.sha256),
+        "audio_format": np.str_(analysis.meta.get("format", "")),
+        "subtype": np.str_(analysis.meta.get("subtype", "")),
     }
     data["checksum"] = np.str_(_checksum(key, data))
     target = entry_path(analysis.sha256, blocksize, folder)
@@ -226,8 +251,12 @@ def remember(path, fingerprint: tuple, sha256: str, folder=None) -> None:
     from .audio import write_text_atomic
     from .errors import OutputError
 
-    rec = {"format": FORMAT, "path": os.path.realpath(os.fspath(path)), "fingerprint": list(fingerprint),
-           "sha256": sha256}
+    rec = {
+        "format": FORMAT,
+        "path": os.path.realpath(os.fspath(path)),
+        "fingerprint": list(fingerprint),
+        "sha256": sha256,
+    }
     try:
         write_text_atomic(_index_path(path, folder), json.dumps(rec) + "\n")
     except OutputError:
@@ -334,17 +363,36 @@ def _validated(raw: bytes, sha256: str, info, blocksize: int):
         return None
     psd_ch = data["psd_channels"]
     freqs = np.arange(nper // 2 + 1) * fs / nper
-    meta = {"format": str(data["audio_format"]), "subtype": str(data["subtype"]),
-            "welch_segments": ints["welch_segments"], "fine_welch_segments": ints["fine_welch_segments"]}
+    meta = {
+        "format": str(data["audio_format"]),
+        "subtype": str(data["subtype"]),
+        "welch_segments": ints["welch_segments"],
+        "fine_welch_segments": ints["fine_welch_segments"],
+    }
     if ints["declared_frames"]:
         meta["declared_frames"] = ints["declared_frames"]
     return Analysis(
-        path=str(info.path), sha256=sha256, sample_rate_hz=fs, channels=nch, frames=ints["frames"],
-        nperseg=nper, freqs_hz=freqs, psd_channels=psd_ch, psd=psd_ch.mean(axis=0),
-        weights_hz=trapezoid_weights(freqs.size, fs / nper), peak=data["peak"], mean_square=data["mean_square"],
-        dc=data["dc"], full_scale_samples=ints["full_scale_samples"], band_edges_hz=edges,
-        band_frames=bf, frame_len=nshort, frame_stride=stride, meta=meta,
-        fine_nperseg=nfine, fine_freqs_hz=np.arange(fine.size) * fs / nfine if nfine else np.zeros(0),
+        path=str(info.path),
+        sha256=sha256,
+        sample_rate_hz=fs,
+        channels=nch,
+        frames=ints["frames"],
+        nperseg=nper,
+        freqs_hz=freqs,
+        psd_channels=psd_ch,
+        psd=psd_ch.mean(axis=0),
+        weights_hz=trapezoid_weights(freqs.size, fs / nper),
+        peak=data["peak"],
+        mean_square=data["mean_square"],
+        dc=data["dc"],
+        full_scale_samples=ints["full_scale_samples"],
+        band_edges_hz=edges,
+        band_frames=bf,
+        frame_len=nshort,
+        frame_stride=stride,
+        meta=meta,
+        fine_nperseg=nfine,
+        fine_freqs_hz=np.arange(fine.size) * fs / nfine if nfine else np.zeros(0),
         fine_psd=fine,
     )
 
@@ -360,8 +408,7 @@ def evict(folder=None, *, keep=None, limit: int | None = None) -> int:
     try:
         with os.scandir(folder) as it:
             for e in it:
-                if not (e.name.endswith(SUFFIX) or
-                        (e.name.startswith(INDEX_PREFIX) and e.name.endswith(INDEX_SUFFIX))):
+                if not (e.name.endswith(SUFFIX) or (e.name.startswith(INDEX_PREFIX) and e.name.endswith(INDEX_SUFFIX))):
                     continue
                 try:
                     st = e.stat(follow_symlinks=False)

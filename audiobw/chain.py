@@ -124,13 +124,17 @@ class Chain:
 
             table = check_rows(self.en_table, name="--en-table")
             if self.en_corner_hz is not None:
-                raise ParameterError("--en-table: conflicts with --en-corner (the table gives e_n at every "
-                                     "frequency, its 1/f part included); accepted: one of them")
+                raise ParameterError(
+                    "--en-table: conflicts with --en-corner (the table gives e_n at every "
+                    "frequency, its 1/f part included); accepted: one of them"
+                )
             object.__setattr__(self, "en_table", table)
             object.__setattr__(self, "en_v_rthz", table[-1][1])
         elif self.en_table_file is not None:
-            raise ParameterError(f"--en-table: a file name ({self.en_table_file!r}) without its rows; "
-                                 "accepted: en_table given with en_table_file")
+            raise ParameterError(
+                f"--en-table: a file name ({self.en_table_file!r}) without its rows; "
+                "accepted: en_table given with en_table_file"
+            )
         checks = [
             ("--source-ohms", self.source_ohms, self.source_ohms >= 0, "a resistance >= 0 ohm"),
             ("--temperature", self.temperature_k, self.temperature_k > 0, "a temperature > 0 K"),
@@ -141,7 +145,12 @@ class Chain:
             ("--dither", self.dither, self.dither in DITHERS, "tpdf or none"),
             ("--stage", self.stage, self.stage in ("analog", "digital"), "analog or digital"),
             ("--anti-alias", self.anti_alias, self.anti_alias in ANTI_ALIAS, "ideal or none"),
-            ("--gain", self.gain_db, math.isfinite(self.gain_db) and abs(self.gain_db) <= 200, "a gain in dB, |G| <= 200"),
+            (
+                "--gain",
+                self.gain_db,
+                math.isfinite(self.gain_db) and abs(self.gain_db) <= 200,
+                "a gain in dB, |G| <= 200",
+            ),
         ]
         for opt, value in (("--h2", self.h2_db), ("--h3", self.h3_db)):
             if value is not None:
@@ -200,7 +209,9 @@ class Chain:
         """True when the densities are not white: a 1/f corner, or an e_n table that is not flat."""
         from .entable import is_flat
 
-        return bool(self.en_corner_hz or self.in_corner_hz or (self.en_table is not None and not is_flat(self.en_table)))
+        return bool(
+            self.en_corner_hz or self.in_corner_hz or (self.en_table is not None and not is_flat(self.en_table))
+        )
 
     @property
     def lsb_v(self) -> float:

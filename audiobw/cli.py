@@ -18,8 +18,18 @@ import click
 from . import __version__
 
 from .clikit import default_chain_line
-from .clikit import (CHAIN, CONTEXT, ESTIMATE_CAUTION, LISTENING_CAUTION, Progress, chain_file_option, options,
-                     settings_from, sweep_options)
+from .clikit import (
+    CHAIN,
+    CONTEXT,
+    ESTIMATE_CAUTION,
+    LISTENING_CAUTION,
+    Progress,
+    chain_file_option,
+    options,
+    settings_from,
+    sweep_options,
+)
+
 
 @click.group(context_settings=CONTEXT)
 @click.version_option(__version__, prog_name="audiobw")
@@ -39,15 +49,28 @@ def _default_out(input_path: Path) -> Path:
 
 @cli.command(context_settings=CONTEXT)
 @click.argument("input", type=click.Path(path_type=Path, readable=False))
-@click.option("--out", type=click.Path(path_type=Path), default=None,
-              help="Output folder for sweep.json and sweep.csv [default: audiobw-out/<input name>/].")
+@click.option(
+    "--out",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="Output folder for sweep.json and sweep.csv [default: audiobw-out/<input name>/].",
+)
 @click.option("--json", "as_json", is_flag=True, help="Print sweep.json to stdout instead of the table.")
-@click.option("--render", "do_render", is_flag=True,
-              help="Also render the chosen case and the next narrower one (A/B clips, chain output).")
-@click.option("--report", "do_report", is_flag=True,
-              help="Also write the spec sheet, plots and report.html beside sweep.json.")
-@click.option("--no-cache", "no_cache", is_flag=True,
-              help="Neither read nor write the analysis cache (~/.cache/audiobw; AUDIOBW_CACHE_DIR moves it).")
+@click.option(
+    "--render",
+    "do_render",
+    is_flag=True,
+    help="Also render the chosen case and the next narrower one (A/B clips, chain output).",
+)
+@click.option(
+    "--report", "do_report", is_flag=True, help="Also write the spec sheet, plots and report.html beside sweep.json."
+)
+@click.option(
+    "--no-cache",
+    "no_cache",
+    is_flag=True,
+    help="Neither read nor write the analysis cache (~/.cache/audiobw; AUDIOBW_CACHE_DIR moves it).",
+)
 @sweep_options
 def sweep(input, out, as_json, do_render, do_report, no_cache, chain_file, **kwargs):
     """Sweep candidate filters over INPUT and choose the narrowest passing passband.
@@ -92,8 +115,14 @@ def _sweep_into(input, settings, out_dir, do_render, do_report, *, use_cache: bo
 
     progress = Progress(f"analysing {shown(input.name)}")
     try:
-        doc, paths = sweep_file(input, settings, out_dir=out_dir, progress=progress,
-                                notify=lambda line: click.echo(f"audiobw: {line}", err=True), use_cache=use_cache)
+        doc, paths = sweep_file(
+            input,
+            settings,
+            out_dir=out_dir,
+            progress=progress,
+            notify=lambda line: click.echo(f"audiobw: {line}", err=True),
+            use_cache=use_cache,
+        )
     finally:
         progress.close()
     extra = []
@@ -102,8 +131,10 @@ def _sweep_into(input, settings, out_dir, do_render, do_report, *, use_cache: bo
 
         if doc.get("choice"):
             rendered = render_sweep(doc, input, settings, out_dir)
-            extra.append(f"Rendered the chosen case{' and the next narrower one' if doc['choice'].get('next_narrower') else ''} "
-                         f"into {out_dir}/render-*/ ({len(rendered)} files). {LISTENING_CAUTION}")
+            extra.append(
+                f"Rendered the chosen case{' and the next narrower one' if doc['choice'].get('next_narrower') else ''} "
+                f"into {out_dir}/render-*/ ({len(rendered)} files). {LISTENING_CAUTION}"
+            )
         else:
             extra.append("Nothing rendered: no case meets the targets.")
     if do_report:
@@ -115,10 +146,20 @@ def _sweep_into(input, settings, out_dir, do_render, do_report, *, use_cache: bo
 
 
 @cli.command(context_settings=CONTEXT)
-@click.option("--band", required=True, metavar="LOW:HIGH",
-              help="Passband edges in Hz, e.g. 20:20k; :20k for a lowpass, 40: for a highpass.")
-@click.option("--family", "family", default="butterworth", show_default=True, metavar="NAME",
-              help="Filter family: butterworth, bessel, chebyshev1, elliptic.")
+@click.option(
+    "--band",
+    required=True,
+    metavar="LOW:HIGH",
+    help="Passband edges in Hz, e.g. 20:20k; :20k for a lowpass, 40: for a highpass.",
+)
+@click.option(
+    "--family",
+    "family",
+    default="butterworth",
+    show_default=True,
+    metavar="NAME",
+    help="Filter family: butterworth, bessel, chebyshev1, elliptic.",
+)
 @click.option("--order", "order", default="4", show_default=True, metavar="N", help="Prototype order (1 to 8).")
 @click.option("--ripple", default=None, metavar="DB", help="Passband ripple, dB [default: 0.1].")
 @click.option("--stopband", default=None, metavar="DB", help="Elliptic stopband attenuation, dB [default: 60].")
@@ -165,10 +206,16 @@ def _finite_or_null(x):
 
 
 @cli.command(context_settings=CONTEXT)
-@click.option("--out", type=click.Path(path_type=Path), default=Path("audiobw-out/demo"), show_default=True,
-              help="Output folder.")
-@click.option("--clips", "clips_dir", type=click.Path(path_type=Path), default=None,
-              help="Folder of the bundled clips [default: the repository's clips/].")
+@click.option(
+    "--out", type=click.Path(path_type=Path), default=Path("audiobw-out/demo"), show_default=True, help="Output folder."
+)
+@click.option(
+    "--clips",
+    "clips_dir",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="Folder of the bundled clips [default: the repository's clips/].",
+)
 def demo(out, clips_dir):
     """Run the whole job on the bundled clips and print what it found."""
     from .demo import run_demo
@@ -256,8 +303,11 @@ def main(argv=None) -> int:
             return 0
         _silence_stdout()
         with contextlib.suppress(OSError):
-            click.echo(f"audiobw: error: cannot write to standard output ({exc.strerror or exc}); "
-                       "accepted: a terminal, pipe or file with room", err=True)
+            click.echo(
+                f"audiobw: error: cannot write to standard output ({exc.strerror or exc}); "
+                "accepted: a terminal, pipe or file with room",
+                err=True,
+            )
         return 1
     except KeyboardInterrupt:
         click.echo("audiobw: interrupted; no partial output was left", err=True)
@@ -288,7 +338,8 @@ def _from_stdio(exc: OSError) -> bool:
         tb = tb.tb_next
     last_name, last_file = frames[-1] if frames else ("", "")
     return (last_name == "main" and last_file == __file__) or any(
-        name == "echo" and file.endswith(os.path.join("click", "utils.py")) for name, file in frames)
+        name == "echo" and file.endswith(os.path.join("click", "utils.py")) for name, file in frames
+    )
 
 
 def _silence_stdout() -> None:

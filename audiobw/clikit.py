@@ -26,18 +26,38 @@ def dest(key: str) -> str:
 
 def options(keys, group: str):
     """Declare ``--key`` options from the one table in settings.OPTIONS."""
+
     def deco(fn):
         for key in reversed(keys):
             _, _, text = OPTIONS[key]
-            fn = click.option(option_name(key), dest(key), default=None, metavar="VALUE",
-                              help=text)(fn)
+            fn = click.option(option_name(key), dest(key), default=None, metavar="VALUE", help=text)(fn)
         return fn
+
     return deco
 
 
-CHAIN = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3", "amp_bandwidth",
-         "bits", "full_scale", "dither", "stage", "anti_alias", "source_level", "spl", "mic_sensitivity",
-         "en_corner", "en_table", "in_corner")
+CHAIN = (
+    "source_ohms",
+    "temperature",
+    "input_level",
+    "gain",
+    "en",
+    "in",
+    "h2",
+    "h3",
+    "amp_bandwidth",
+    "bits",
+    "full_scale",
+    "dither",
+    "stage",
+    "anti_alias",
+    "source_level",
+    "spl",
+    "mic_sensitivity",
+    "en_corner",
+    "en_table",
+    "in_corner",
+)
 GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
 TARGETS = tuple(TARGET_OPTION)  # in target rank order (audiobw.registry)
 PROGRAM = ("program", "bit_rate", "playback_spl", "hearing_threshold")
@@ -106,15 +126,24 @@ class Progress:
             self.bar.__exit__(None, None, None)
 
 
-
 chain_file_option = click.option(
-    "--chain", "chain_file", type=click.Path(path_type=Path), default=None,
-    help="TOML file with [source] [amplifier] [converter] [grid] [targets] [meter]; options override it.")
+    "--chain",
+    "chain_file",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="TOML file with [source] [amplifier] [converter] [grid] [targets] [meter]; options override it.",
+)
 
 
 def sweep_options(fn):
     """Everything `sweep` and `batch` share: --chain, the grid, chain, target, meter and program options."""
-    for deco in (options(PROGRAM, "program"), options(METER, "meter"), options(TARGETS, "targets"),
-                 options(CHAIN, "chain"), options(GRID, "grid"), chain_file_option):
+    for deco in (
+        options(PROGRAM, "program"),
+        options(METER, "meter"),
+        options(TARGETS, "targets"),
+        options(CHAIN, "chain"),
+        options(GRID, "grid"),
+        chain_file_option,
+    ):
         fn = deco(fn)
     return fn

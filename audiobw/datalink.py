@@ -159,6 +159,7 @@ def _analog_pulse(filt, n_bits: int, bit_rate_hz: float, oversample: int) -> np.
     def step(tt):
         e = np.expm1(np.outer(tt, lam)) / lam
         return np.where(tt >= 0, d + np.real(e @ coef), 0.0)
+
     return step(t) - step(t - width)
 
 
@@ -185,7 +186,7 @@ def pulse_response(filt, bit_rate_hz: float, *, oversample: int | None = None, m
             y = _spectral_pulse(filt, 2 * length, bit_rate_hz, m)[: length * m]
         y = y.reshape(length, m)
         energy = float(np.sum(y**2))
-        tail = float(np.sum(y[length // 2:] ** 2))
+        tail = float(np.sum(y[length // 2 :] ** 2))
         if tail <= 1e-12 * energy or length >= max_bits:
             return y
         length *= 2
@@ -198,7 +199,7 @@ def _periodic_output(y: np.ndarray, symbols: np.ndarray) -> np.ndarray:
     flat = y.reshape(-1)
     folded = np.zeros(n)
     for start in range(0, flat.size, n):
-        piece = flat[start:start + n]
+        piece = flat[start : start + n]
         folded[: piece.size] += piece
     impulses = np.zeros(n)
     impulses[::m] = symbols
@@ -211,10 +212,10 @@ def eye_from_pulse(y: np.ndarray) -> tuple[float, int, int]:
     Returns ``(opening, k0, j0)``: the best opening (may be negative: the eye is
     closed), the main-cursor bit index and the phase index of the best instant.
     """
-    absum = np.sum(np.abs(y), axis=0)           # per phase
-    k0 = np.argmax(y, axis=0)                    # main cursor per phase
+    absum = np.sum(np.abs(y), axis=0)  # per phase
+    k0 = np.argmax(y, axis=0)  # main cursor per phase
     main = y[k0, np.arange(y.shape[1])]
-    opening = 2 * main - absum                   # y0 - sum_{k != 0} |yk|
+    opening = 2 * main - absum  # y0 - sum_{k != 0} |yk|
     j0 = int(np.argmax(opening))
     return float(opening[j0]), int(k0[j0]), j0
 
@@ -257,7 +258,7 @@ def average_ber(y: np.ndarray, noise_sigma_rel: float, *, pattern: str = "prbs7"
     reps = max(1, math.ceil(y.shape[0] / len(base)))
     symbols = np.tile(2.0 * base - 1.0, reps)
     n_bits, m = len(symbols), y.shape[1]
-    out = _periodic_output(y, symbols).reshape(n_bits, m)   # out[i, j]: bit i, phase j
+    out = _periodic_output(y, symbols).reshape(n_bits, m)  # out[i, j]: bit i, phase j
     best, where = math.inf, 0.0
     for k0 in np.unique(np.argmax(y, axis=0)):
         # bit i is seen at bit slot i + k0 of the output
@@ -367,8 +368,9 @@ def reference_symbols(x: np.ndarray, fs_hz: float, bit_rate_hz: float, phase_ui:
     return np.where(np.interp(mid, np.arange(len(xs)), xs) >= 0.0, 1.0, -1.0)
 
 
-def recorded_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="the recording",
-                    recovered: bool = False) -> RecordedStream:
+def recorded_stream(
+    x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="the recording", recovered: bool = False
+) -> RecordedStream:
     """Check that ``x`` (V) carries a clocked stream at ``bit_rate_hz`` and recover its clock.
 
     Raises
@@ -378,20 +380,26 @@ def recorded_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="th
         fall on one bit grid (coherence below :data:`MIN_CLOCK_COHERENCE`): no
         reliable clock, so no eye can be measured.
     """
-    accepted = (f"accepted: a recorded two-level (NRZ) data stream of at least {MIN_STREAM_BITS} bits whose "
-                f"zero crossings fall on one bit grid (for music or speech use --program music|speech)")
+    accepted = (
+        f"accepted: a recorded two-level (NRZ) data stream of at least {MIN_STREAM_BITS} bits whose "
+        f"zero crossings fall on one bit grid (for music or speech use --program music|speech)"
+    )
     how = " (recovered from the recording)" if recovered else ""
     n_bits = int(len(x) * bit_rate_hz / fs_hz)
     if n_bits < MIN_STREAM_BITS:
-        raise AudioFileError(f"{name}: no reliable bit clock: {n_bits} bit(s) at {bit_rate_hz:.6g} bit/s{how} in "
-                             f"{len(x) / fs_hz:.3g} s; {accepted}")
+        raise AudioFileError(
+            f"{name}: no reliable bit clock: {n_bits} bit(s) at {bit_rate_hz:.6g} bit/s{how} in "
+            f"{len(x) / fs_hz:.3g} s; {accepted}"
+        )
     phase, coherence, crossings = recover_clock(x, fs_hz, bit_rate_hz)
     if crossings < 8 or coherence < MIN_CLOCK_COHERENCE:
-        raise AudioFileError(f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s{how}: {crossings} zero "
-                             f"crossings with a grid coherence of {coherence:.2f} (needs {MIN_CLOCK_COHERENCE:g}); "
-                             f"{accepted}")
+        raise AudioFileError(
+            f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s{how}: {crossings} zero "
+            f"crossings with a grid coherence of {coherence:.2f} (needs {MIN_CLOCK_COHERENCE:g}); "
+            f"{accepted}"
+        )
     x = np.asarray(x, float)
-    xs = smoothed_stream(x, fs_hz, bit_rate_hz)   # unit gain at DC: long runs keep their level
+    xs = smoothed_stream(x, fs_hz, bit_rate_hz)  # unit gain at DC: long runs keep their level
     mid = (np.arange(n_bits - 1) + phase + 0.5) * fs_hz / bit_rate_hz
     ref = np.interp(mid, np.arange(len(xs)), xs)
     a = np.where(ref >= 0.0, 1.0, -1.0)
@@ -404,8 +412,9 @@ def recorded_stream(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, name="th
     if level < 0.5 * rms:
         level = rms
     if not level > 0:
-        raise AudioFileError(f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s: the bits carry no "
-                             f"level; {accepted}")
+        raise AudioFileError(
+            f"{name}: no reliable bit clock at {bit_rate_hz:.6g} bit/s: the bits carry no level; {accepted}"
+        )
     return RecordedStream(x, float(fs_hz), phase, coherence, n_bits, level, a, str(name))
 
 
@@ -485,10 +494,12 @@ def measure_stream(filt, program: DataProgram, chain_sigma_v: float, y: np.ndarr
     judged = np.arange(first, n_bits - pre)
     ones = a[judged] > 0
     if judged.size < 2 * (pre + post + 2) or ones.all() or not ones.any():
-        raise AudioFileError(f"{st.name}: {judged.size} bits left to measure after the filter settles, "
-                             f"{int(ones.sum())} of them ones; accepted: a longer stream with both levels")
+        raise AudioFileError(
+            f"{st.name}: {judged.size} bits left to measure after the filter settles, "
+            f"{int(ones.sum())} of them ones; accepted: a longer stream with both levels"
+        )
     pos = (judged[:, None] + st.clock_phase_ui + d[None, :]) * spb * up
-    samples = np.interp(pos, np.arange(out.size), out)                 # (bits, instants)
+    samples = np.interp(pos, np.arange(out.size), out)  # (bits, instants)
     design_m = np.column_stack([a[judged - k] for k in range(-pre, post + 1)] + [np.ones(judged.size)])
     # normal equations: ±1 symbols of a stream with both levels make a well-conditioned Gram matrix
     # (a constant run would be singular; lstsq then), and this is ~50× faster than an SVD per case
@@ -562,13 +573,20 @@ class DataProgram:
         return self.bit_rate_hz / 2.0
 
     def to_json(self) -> dict:
-        doc = {"bit_rate_hz": self.bit_rate_hz, "bit_rate_source": self.source,
-               "bit_rate_confidence_db": self.confidence_db, "amplitude_v": self.amplitude_v,
-               "nyquist_min_hz": self.nyquist_min_hz,
-               "eye_basis": "recording" if self.stream is not None else "ideal pulse"}
+        doc = {
+            "bit_rate_hz": self.bit_rate_hz,
+            "bit_rate_source": self.source,
+            "bit_rate_confidence_db": self.confidence_db,
+            "amplitude_v": self.amplitude_v,
+            "nyquist_min_hz": self.nyquist_min_hz,
+            "eye_basis": "recording" if self.stream is not None else "ideal pulse",
+        }
         if self.stream is not None:
-            doc.update(bits_measured=self.stream.n_bits, clock_phase_ui=self.stream.clock_phase_ui,
-                       clock_coherence=self.stream.coherence)
+            doc.update(
+                bits_measured=self.stream.n_bits,
+                clock_phase_ui=self.stream.clock_phase_ui,
+                clock_coherence=self.stream.coherence,
+            )
         return doc
 
 
@@ -643,7 +661,8 @@ def recover_bit_rate(path, *, max_seconds: float = 60.0, min_confidence_db: floa
     if confidence < min_confidence_db:
         raise AudioFileError(
             f"{path}: no bit rate found (strongest clock line {confidence:.1f} dB over the spectrum median; "
-            f"accepted: a line at least {min_confidence_db:g} dB up) — give --bit-rate")
+            f"accepted: a line at least {min_confidence_db:g} dB up) — give --bit-rate"
+        )
     # Sharp NRZ edges give lines of similar height at every multiple of R: the
     # bit rate is the lowest line within 12 dB of the strongest.
     threshold = max(0.25 * spec_v[top], median * 10 ** (min_confidence_db / 20))
@@ -651,7 +670,7 @@ def recover_bit_rate(path, *, max_seconds: float = 60.0, min_confidence_db: floa
     k = int(np.nonzero(is_peak)[0][0]) + 1 if np.any(is_peak) else top
     confidence = 20 * math.log10(max(spec_v[k], 1e-300) / median)
     if 0 < k < len(spec) - 1:
-        a, b, c = np.log(spec[k - 1: k + 2] + 1e-300)
+        a, b, c = np.log(spec[k - 1 : k + 2] + 1e-300)
         shift = 0.5 * (a - c) / (a - 2 * b + c) if (a - 2 * b + c) != 0 else 0.0
     else:
         shift = 0.0
@@ -696,8 +715,10 @@ def data_program_for(analysis, chain, bit_rate) -> DataProgram:
     if not 0 < rate <= analysis.sample_rate_hz / 2:
         raise ParameterError(
             f"--bit-rate: {rate:g} bit/s cannot be carried at fs = {analysis.sample_rate_hz} Hz; "
-            f"accepted: 0 < rate <= fs/2 = {analysis.sample_rate_hz / 2:g}")
+            f"accepted: 0 < rate <= fs/2 = {analysis.sample_rate_hz / 2:g}"
+        )
     x, fs = read_stream(analysis.path, rate)
-    stream = recorded_stream(x * chain.volts_per_unit, fs, rate, name=str(analysis.path),
-                             recovered=source == "recovered")
+    stream = recorded_stream(
+        x * chain.volts_per_unit, fs, rate, name=str(analysis.path), recovered=source == "recovered"
+    )
     return DataProgram(rate, stream.level_v, source, conf, stream)

@@ -16,14 +16,24 @@ from pathlib import Path
 
 #: The Tern-2 front end (invented): a 150 Ω dynamic microphone, 40 dB of gain.
 DEMO_CHAIN = {
-    "source_ohms": "150", "temperature": "300K", "gain": "40dB", "en": "1.3n", "in": "1.2p",
-    "bits": "16", "full_scale": "+4dBu", "dither": "tpdf", "stage": "analog",
+    "source_ohms": "150",
+    "temperature": "300K",
+    "gain": "40dB",
+    "en": "1.3n",
+    "in": "1.2p",
+    "bits": "16",
+    "full_scale": "+4dBu",
+    "dither": "tpdf",
+    "stage": "analog",
 }
 #: Fidelity targets for both programs.
 DEMO_TARGETS = {"max_loss": "0.1dB", "max_lsd": "1dB", "min_snr_a": "60dB"}
 DEMO_GRID = {
-    "response": "bandpass", "family": "butterworth,bessel", "order": "2,4",
-    "low_edges": "10:300:10", "high_edges": "2k:20k:24",
+    "response": "bandpass",
+    "family": "butterworth,bessel",
+    "order": "2,4",
+    "low_edges": "10:300:10",
+    "high_edges": "2k:20k:24",
 }
 DEMO_CLIPS = ("ensemble-48k-stereo.flac", "announcement-44k1-mono.flac")
 
@@ -31,8 +41,15 @@ DEMO_CLIPS = ("ensemble-48k-stereo.flac", "announcement-44k1-mono.flac")
 #: the end of a long cable pair, sends 2 kbit/s polar NRZ telemetry (PRBS-9 test
 #: pattern) that arrives at ±10 mV; a high-gain line receiver brings it in.
 DATA_CHAIN = {
-    "source_ohms": "10k", "temperature": "300K", "gain": "60dB", "en": "30n", "in": "0.5p",
-    "bits": "16", "full_scale": "50mV", "dither": "tpdf", "stage": "analog",
+    "source_ohms": "10k",
+    "temperature": "300K",
+    "gain": "60dB",
+    "en": "30n",
+    "in": "0.5p",
+    "bits": "16",
+    "full_scale": "50mV",
+    "dither": "tpdf",
+    "stage": "analog",
 }
 DATA_TARGETS = {"max_ber": "1e-9", "min_eye": "0.6"}
 DATA_GRID = {"response": "lowpass", "family": "bessel,butterworth", "order": "2,4,6", "cutoffs": "500:8k:24"}
@@ -53,8 +70,10 @@ def find_clips(clips_dir=None) -> Path:
     for c in candidates:
         if all((c / name).is_file() for name in DEMO_CLIPS):
             return c
-    raise ParameterError(f"--clips: {str(candidates[0])!r} does not hold the bundled clips "
-                         f"({', '.join(DEMO_CLIPS)}); accepted: the repository's clips/ folder")
+    raise ParameterError(
+        f"--clips: {str(candidates[0])!r} does not hold the bundled clips "
+        f"({', '.join(DEMO_CLIPS)}); accepted: the repository's clips/ folder"
+    )
 
 
 def _render_and_report(doc, path, settings, out_dir):
@@ -65,8 +84,10 @@ def _render_and_report(doc, path, settings, out_dir):
 
     if doc.get("choice"):
         render_sweep(doc, path, settings, out_dir)
-        yield (f"A/B clips of the chosen case and of the next narrower one: {out_dir}/render-*/ "
-               f"(ab-reference.wav, ab-processed.wav). {LISTENING_CAUTION}")
+        yield (
+            f"A/B clips of the chosen case and of the next narrower one: {out_dir}/render-*/ "
+            f"(ab-reference.wav, ab-processed.wav). {LISTENING_CAUTION}"
+        )
     report = write_report(out_dir)
     yield f"Spec sheet {report['spec_md']}; report page {report['html']}."
 
@@ -90,9 +111,11 @@ def _data_link(out: Path, summary: list):
     from .report.write import write_report
 
     report = write_report(out / "telemetry-2k")
-    yield (f"== {stream.name}  (the Saltmarsh tide gauge, invented: 2 kbit/s PRBS-9 NRZ at ±10 mV; "
-           "10 kΩ line, 60 dB receiver gain, e_n 30 nV/√Hz; targets BER ≤ 1e-9, eye ≥ 60 %; "
-           f"{len(doc['cases'])} cases; bit rate recovered from the recording)")
+    yield (
+        f"== {stream.name}  (the Saltmarsh tide gauge, invented: 2 kbit/s PRBS-9 NRZ at ±10 mV; "
+        "10 kΩ line, 60 dB receiver gain, e_n 30 nV/√Hz; targets BER ≤ 1e-9, eye ≥ 60 %; "
+        f"{len(doc['cases'])} cases; bit rate recovered from the recording)"
+    )
     yield closing_paragraph(doc)
     yield f"Wrote {paths['json']} and {paths['csv']}; the report is {report['html']}."
     yield ""
@@ -100,9 +123,17 @@ def _data_link(out: Path, summary: list):
     if doc["choice"]:
         c = doc["cases"][doc["choice"]["case"] - 1]
         q = d["q_optimal"]
-        summary.append((stream.name, passband_text(c), c["enbw_hz"], None, None,
-                        f"; Nyquist minimum {d['nyquist_min_hz']:.0f} Hz, chosen {c['bandwidth_hz']:.0f} Hz, "
-                        f"Q-optimal {q['bandwidth_hz']:.0f} Hz (Q {q['q']:.2f})"))
+        summary.append(
+            (
+                stream.name,
+                passband_text(c),
+                c["enbw_hz"],
+                None,
+                None,
+                f"; Nyquist minimum {d['nyquist_min_hz']:.0f} Hz, chosen {c['bandwidth_hz']:.0f} Hz, "
+                f"Q-optimal {q['bandwidth_hz']:.0f} Hz (Q {q['q']:.2f})",
+            )
+        )
     else:
         summary.append((stream.name, "no passing case", None, None, None, ""))
 
@@ -121,12 +152,16 @@ def _realise(doc, out_dir: Path):
         yield f"Realise: {exc}"
         return
     sp = r["second_pass"]
-    parts = "; ".join(f"stage {s['stage']} {s['kind']}: " + ", ".join(
-        f"{k} {_fmt_part(k, v)}" for k, v in s["parts"].items()) for s in r["stages"])
-    yield (f"Realised ({len(r['stages'])} stages; op-amp e_n 4 nV/√Hz, i_n 0.5 pA/√Hz): {parts}. Their own noise "
-           f"{r['noise']['noise_vrms'] * 1e6:.2f} µV rms adds {sp['added_noise_db']:.2f} dB to the chain's; "
-           f"yield {100 * r['yield']['fraction']:.1f} % of {r['yield']['draws']} builds at R ±1 %, C ±5 %. "
-           f"Wrote {path}. {CAUTION}")
+    parts = "; ".join(
+        f"stage {s['stage']} {s['kind']}: " + ", ".join(f"{k} {_fmt_part(k, v)}" for k, v in s["parts"].items())
+        for s in r["stages"]
+    )
+    yield (
+        f"Realised ({len(r['stages'])} stages; op-amp e_n 4 nV/√Hz, i_n 0.5 pA/√Hz): {parts}. Their own noise "
+        f"{r['noise']['noise_vrms'] * 1e6:.2f} µV rms adds {sp['added_noise_db']:.2f} dB to the chain's; "
+        f"yield {100 * r['yield']['fraction']:.1f} % of {r['yield']['draws']} builds at R ±1 %, C ±5 %. "
+        f"Wrote {path}. {CAUTION}"
+    )
 
 
 def _fmt_part(name, value):
@@ -143,16 +178,26 @@ def _speech(folder: Path, out: Path, summary: list):
 
     raw = {k: Raw(v, f"demo {k}") for k, v in {**DEMO_CHAIN, **SPEECH_TARGETS, **SPEECH_GRID}.items()}
     doc, paths = sweep_file(folder / SPEECH_CLIP, build(raw), out_dir=out / "announcement-speech")
-    yield (f"== {SPEECH_CLIP} as speech  (the Gullhaven paging line, invented: the same Tern-2 chain; "
-           "targets SII ≥ 0.75 at 62.35 dB SPL (ANSI S3.5-1997 normal vocal effort), A-weighted SNR ≥ 60 dB; "
-           f"{len(doc['cases'])} lowpass cases)")
+    yield (
+        f"== {SPEECH_CLIP} as speech  (the Gullhaven paging line, invented: the same Tern-2 chain; "
+        "targets SII ≥ 0.75 at 62.35 dB SPL (ANSI S3.5-1997 normal vocal effort), A-weighted SNR ≥ 60 dB; "
+        f"{len(doc['cases'])} lowpass cases)"
+    )
     yield closing_paragraph(doc)
     yield f"Wrote {paths['json']} and {paths['csv']}."
     yield ""
     if doc["choice"]:
         c = doc["cases"][doc["choice"]["case"] - 1]
-        summary.append((SPEECH_CLIP + " (speech)", passband_text(c), c["enbw_hz"], None, None,
-                        f"; SII {c['sii']:.3f}, error audible in {c['audible_frames_pct']:.1f} % of frames"))
+        summary.append(
+            (
+                SPEECH_CLIP + " (speech)",
+                passband_text(c),
+                c["enbw_hz"],
+                None,
+                None,
+                f"; SII {c['sii']:.3f}, error audible in {c['audible_frames_pct']:.1f} % of frames",
+            )
+        )
     else:
         summary.append((SPEECH_CLIP + " (speech)", "no passing case", None, None, None, ""))
 
@@ -175,13 +220,15 @@ def run(out: Path, *, clips_dir=None):
         pass
     raw = {k: Raw(v, f"demo {k}") for k, v in {**DEMO_CHAIN, **DEMO_TARGETS, **DEMO_GRID}.items()}
     settings = build(raw)
-    yield ("audiobw demo — the Tern-2 field interface (an invented scenario): which passband does each "
-           "program need?")
-    yield ("Chain: 150 Ω source at 300 K, 40 dB gain, e_n 1.3 nV/√Hz, i_n 1.2 pA/√Hz, 16-bit converter "
-           "with TPDF dither, full scale +4 dBu; analog filter ahead of the converter.")
+    yield ("audiobw demo — the Tern-2 field interface (an invented scenario): which passband does each program need?")
+    yield (
+        "Chain: 150 Ω source at 300 K, 40 dB gain, e_n 1.3 nV/√Hz, i_n 1.2 pA/√Hz, 16-bit converter "
+        "with TPDF dither, full scale +4 dBu; analog filter ahead of the converter."
+    )
     yield "Targets: program loss ≤ 0.1 dB, log-spectral distance ≤ 1 dB, A-weighted SNR ≥ 60 dB."
-    yield ("Grid: bandpass, Butterworth and Bessel, orders 2 and 4, low edges 10–300 Hz (10), high edges "
-           "2–20 kHz (24).")
+    yield (
+        "Grid: bandpass, Butterworth and Bessel, orders 2 and 4, low edges 10–300 Hz (10), high edges 2–20 kHz (24)."
+    )
     yield ""
     summary = []
     for name in DEMO_CLIPS:
@@ -196,7 +243,9 @@ def run(out: Path, *, clips_dir=None):
         yield ""
         if doc["choice"]:
             c = doc["cases"][doc["choice"]["case"] - 1]
-            extra = f"; ENBW {c['enbw_hz'] / 1000:.2f} kHz, noise {c['noise_dbfs']:.1f} dBFS, SNR-A {c['snr_a_db']:.1f} dB"
+            extra = (
+                f"; ENBW {c['enbw_hz'] / 1000:.2f} kHz, noise {c['noise_dbfs']:.1f} dBFS, SNR-A {c['snr_a_db']:.1f} dB"
+            )
             summary.append((name, passband_text(c), c["enbw_hz"], None, None, extra))
         else:
             summary.append((name, "no passing case", None, None, None, ""))
@@ -206,8 +255,10 @@ def run(out: Path, *, clips_dir=None):
     for name, band, _enbw, _n, _s, extra in summary:
         yield f"  {name}: {band}{extra}"
     yield ""
-    yield ("These figures are engineering estimates from a model; verify them by measurement, and defer "
-           "to the applicable product standards, local codes and licensed practice.")
+    yield (
+        "These figures are engineering estimates from a model; verify them by measurement, and defer "
+        "to the applicable product standards, local codes and licensed practice."
+    )
 
 
 def run_demo(out, *, clips_dir=None):

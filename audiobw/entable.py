@@ -43,9 +43,11 @@ EN_RANGE = (0.0, 1e-3)
 #: frequency range, Hz: the range accepted for any frequency option (audiobw.units 'frequency')
 FREQ_RANGE = (1e-3, 1e9)
 MAX_BYTES = 2_000_000
-ACCEPTED = (f"accepted: a CSV file of 2 to {MAX_ROWS} rows 'frequency_Hz,e_n_V_per_rtHz' (one header line "
-            f"allowed), frequencies {FREQ_RANGE[0]:g} to {FREQ_RANGE[1]:g} Hz strictly increasing, e_n above 0 and "
-            f"at most {EN_RANGE[1]:g} V/√Hz")
+ACCEPTED = (
+    f"accepted: a CSV file of 2 to {MAX_ROWS} rows 'frequency_Hz,e_n_V_per_rtHz' (one header line "
+    f"allowed), frequencies {FREQ_RANGE[0]:g} to {FREQ_RANGE[1]:g} Hz strictly increasing, e_n above 0 and "
+    f"at most {EN_RANGE[1]:g} V/√Hz"
+)
 
 
 def check_rows(rows, *, name: str) -> tuple[tuple[float, float], ...]:
@@ -68,14 +70,20 @@ def check_rows(rows, *, name: str) -> tuple[tuple[float, float], ...]:
             raise ParameterError(f"{name}: row {i}: {pair!r} is not two numbers; {ACCEPTED}")
         f, e = float(pair[0]), float(pair[1])
         if not (math.isfinite(f) and FREQ_RANGE[0] <= f <= FREQ_RANGE[1]):
-            raise ParameterError(f"{name}: row {i}: frequency {pair[0]!r} is outside {FREQ_RANGE[0]:g} to "
-                                 f"{FREQ_RANGE[1]:g} Hz; {ACCEPTED}")
+            raise ParameterError(
+                f"{name}: row {i}: frequency {pair[0]!r} is outside {FREQ_RANGE[0]:g} to "
+                f"{FREQ_RANGE[1]:g} Hz; {ACCEPTED}"
+            )
         if not (math.isfinite(e) and EN_RANGE[0] < e <= EN_RANGE[1]):
-            raise ParameterError(f"{name}: row {i}: e_n {pair[1]!r} is outside the physical range (above 0, at "
-                                 f"most {EN_RANGE[1]:g} V/√Hz); {ACCEPTED}")
+            raise ParameterError(
+                f"{name}: row {i}: e_n {pair[1]!r} is outside the physical range (above 0, at "
+                f"most {EN_RANGE[1]:g} V/√Hz); {ACCEPTED}"
+            )
         if out and not f > out[-1][0]:
-            raise ParameterError(f"{name}: row {i}: frequency {pair[0]!r} Hz is not above the previous row's "
-                                 f"{out[-1][0]:g} Hz (frequencies must increase strictly); {ACCEPTED}")
+            raise ParameterError(
+                f"{name}: row {i}: frequency {pair[0]!r} Hz is not above the previous row's "
+                f"{out[-1][0]:g} Hz (frequencies must increase strictly); {ACCEPTED}"
+            )
         out.append((f, e))
     return tuple(out)
 
@@ -124,7 +132,7 @@ def read_table(path, *, origin: str) -> tuple[tuple[float, float], ...]:
         msg = str(exc)
         prefix = f"{where}: row "
         if msg.startswith(prefix):
-            index, rest = msg[len(prefix):].split(":", 1)
+            index, rest = msg[len(prefix) :].split(":", 1)
             msg = f"{prefix}{lines[int(index) - 1]}:{rest}"
         raise ParameterError(msg) from None
 
@@ -166,7 +174,7 @@ def _antiderivative(table, x: np.ndarray) -> np.ndarray:
     fk, pk = t[:, 0], t[:, 1] ** 2
     pw = pk[-1]
     ratio = np.log(fk[1:] / fk[:-1])
-    slope = np.log(pk[1:] / pk[:-1]) / ratio          # b per segment
+    slope = np.log(pk[1:] / pk[:-1]) / ratio  # b per segment
     # ∫ over each whole segment of P: P_i·f_i·L·E((b+1)L), E(u) = expm1(u)/u
     seg = pk[:-1] * fk[:-1] * ratio * _expm1_over((slope + 1.0) * ratio) - pw * (fk[1:] - fk[:-1])
     knots = np.concatenate([[(pk[0] - pw) * fk[0]], (pk[0] - pw) * fk[0] + np.cumsum(seg)])
@@ -220,5 +228,7 @@ def summary(table, file_name: str | None = None) -> str:
     from .units import format_quantity
 
     head = f"{file_name}, " if file_name else ""
-    return (f"{head}{len(table)} rows, {format_quantity(table[0][0], 'Hz')} to {format_quantity(table[-1][0], 'Hz')} "
-            f"(e_n {format_quantity(table[0][1], 'V/√Hz')} to {format_quantity(table[-1][1], 'V/√Hz')})")
+    return (
+        f"{head}{len(table)} rows, {format_quantity(table[0][0], 'Hz')} to {format_quantity(table[-1][0], 'Hz')} "
+        f"(e_n {format_quantity(table[0][1], 'V/√Hz')} to {format_quantity(table[-1][1], 'V/√Hz')})"
+    )

@@ -37,8 +37,15 @@ import numpy as np
 
 from .errors import ParameterError
 
-from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, RESPONSE_ALIASES,  # noqa: F401
-                      RESPONSES, STAGES)
+from .options import (
+    FAMILIES,
+    FAMILY_ALIASES,  # noqa: F401  (re-exported)
+    MAX_ORDER,
+    MIN_ORDER,
+    RESPONSE_ALIASES,  # noqa: F401
+    RESPONSES,
+    STAGES,
+)
 
 HALF_POWER = 0.5  # the "−3 dB" point is the half-power point, −3.0103 dB
 
@@ -88,8 +95,7 @@ class FilterSpec:
 
         lo = format_quantity(self.low_hz, "Hz") if self.low_hz else ""
         hi = format_quantity(self.high_hz, "Hz") if self.high_hz else ""
-        band = {"lowpass": f"below {hi}", "highpass": f"above {lo}"}.get(
-            self.response, f"{lo} to {hi}")
+        band = {"lowpass": f"below {hi}", "highpass": f"above {lo}"}.get(self.response, f"{lo} to {hi}")
         return f"{self.family} order {self.order} {self.response} {band}"
 
 
@@ -122,20 +128,23 @@ def validate_spec(spec: FilterSpec, *, fs_hz: float, name: str = "filter") -> No
             if not (0.0 < value < 0.98 * nyq):
                 raise ParameterError(
                     f"{name}: edge {value:g} Hz must be 0 < edge < 0.98*fs/2 "
-                    f"(fs={fs_hz:g} -> 0.98*fs/2={0.98 * nyq:g} Hz)")
+                    f"(fs={fs_hz:g} -> 0.98*fs/2={0.98 * nyq:g} Hz)"
+                )
     if spec.response == "bandpass" and not spec.low_hz < spec.high_hz:
         raise ParameterError(
-            f"{name}: low edge {spec.low_hz:g} Hz is not below high edge {spec.high_hz:g} Hz; "
-            "accepted: LOW < HIGH")
+            f"{name}: low edge {spec.low_hz:g} Hz is not below high edge {spec.high_hz:g} Hz; accepted: LOW < HIGH"
+        )
     if spec.family in ("chebyshev1", "elliptic") and not (0.0 < spec.ripple_db < 3.0):
         raise ParameterError(f"--ripple: {spec.ripple_db!r} dB is out of range; accepted: 0 < ripple < 3 dB")
     if spec.family == "elliptic" and not (spec.stopband_db > spec.ripple_db and spec.stopband_db <= 200):
         raise ParameterError(
-            f"--stopband: {spec.stopband_db!r} dB is out of range; accepted: ripple < stopband <= 200 dB")
+            f"--stopband: {spec.stopband_db!r} dB is out of range; accepted: ripple < stopband <= 200 dB"
+        )
 
 
 def _design(spec: FilterSpec, wn, *, analog: bool, fs: float | None, output: str):
     from scipy import signal  # lazy: the tabled prototypes never need it
+
     btype = {"lowpass": "lowpass", "highpass": "highpass", "bandpass": "bandpass"}[spec.response]
     kw = dict(btype=btype, analog=analog, output=output)
     if not analog:
@@ -192,6 +201,7 @@ class Filter:
         if self.analog:
             raise ValueError("an analog prototype has no discrete-time SOS; discretise it first")
         from scipy import signal
+
         return signal.zpk2sos(self.z, self.p, self.k)
 
     def power_response(self, freq_hz) -> np.ndarray:
@@ -202,7 +212,7 @@ class Filter:
             if factors is not None and f.size > 1:
                 return _analog_power(f * (2.0 * np.pi / self.ref_rad_s), self.k, *factors)
         h = self.response(f)
-        return (h.real**2 + h.imag**2)
+        return h.real**2 + h.imag**2
 
     def response(self, freq_hz) -> np.ndarray:
         """Complex response H(f) at the given frequencies in Hz (phase included).
@@ -273,6 +283,7 @@ class Filter:
         cache = self._proto if self._proto is not None else self._cache
         if "ss" not in cache:
             from scipy import signal
+
             cache["ss"] = signal.zpk2ss(self.z, self.p, self.k)
         return cache["ss"]
 
@@ -307,9 +318,11 @@ class Filter:
                 shared["gram_term"] = self._varying_numeric()
             else:
                 from scipy import linalg
+
                 gram = linalg.solve_continuous_lyapunov(a, -b @ b.T)
-                shared["gram_term"] = float(np.real(c @ gram @ c.T)[0, 0]
-                                            + float(np.real(d[0, 0])) * np.real(c @ b)[0, 0])
+                shared["gram_term"] = float(
+                    np.real(c @ gram @ c.T)[0, 0] + float(np.real(d[0, 0])) * np.real(c @ b)[0, 0]
+                )
         value = float(self.ref_rad_s / 2.0 * shared["gram_term"])
         self._cache["varying"] = value
         return value
@@ -320,6 +333,7 @@ class Filter:
         in log x over three decades either side of the poles (4000 points per
         decade), plus the power-law tails beyond them."""
         from scipy import integrate
+
         mags = np.abs(self.p[np.abs(self.p) > 0])
         lo, hi = float(mags.min()) * 1e-3, float(mags.max()) * 1e3
         n = int(4000 * math.log10(hi / lo)) | 1
@@ -403,6 +417,7 @@ class Filter:
         if (g(b) < 0) != outward:
             return math.exp(b)  # a digital response that does not cross before fs/2
         from scipy import optimize
+
         root = optimize.brentq(g, min(a, b), max(a, b), xtol=1e-12, rtol=1e-12)
         return math.exp(root)
 
@@ -441,8 +456,9 @@ def _real_factors(roots):
     nz = roots[mag > 0]
     tol = 1e-12 * np.abs(nz)
     real, upper, lower = nz[np.abs(nz.imag) <= tol], nz[nz.imag > tol], nz[nz.imag < -tol]
-    if upper.size != lower.size or not np.allclose(np.sort_complex(upper), np.sort_complex(lower.conj()),
-                                                   rtol=1e-9, atol=0.0):
+    if upper.size != lower.size or not np.allclose(
+        np.sort_complex(upper), np.sort_complex(lower.conj()), rtol=1e-9, atol=0.0
+    ):
         return None
     axis, quad = [], []
     for r in upper:
@@ -508,6 +524,7 @@ _PROTOTYPES: dict = {}
 def _tabled(spec: FilterSpec):
     """The shipped normalised prototype for ``spec`` (audiobw._prototypes), or None."""
     from ._prototypes import TABLE
+
     ripple = float(spec.ripple_db) if spec.family == "chebyshev1" else None
     return TABLE.get((spec.response, spec.family, int(spec.order), ripple))
 

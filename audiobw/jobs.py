@@ -12,8 +12,9 @@ from .errors import OutputError, ParameterError
 from .settings import Settings
 
 
-def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=None, notify=None,
-               use_cache: bool = True):
+def sweep_file(
+    path, settings: Settings, *, out_dir=None, progress=None, sha256=None, notify=None, use_cache: bool = True
+):
     """Analyse ``path``, sweep the grid, write sweep.json/sweep.csv to ``out_dir``.
 
     With ``use_cache`` the analysis comes from, and goes to, the analysis cache
@@ -38,7 +39,8 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
     if not settings.targets:
         raise ParameterError(
             "targets: none given; accepted: at least one of --min-snr, --min-snr-a, --max-thdn, "
-            "--max-loss, --max-lsd, --min-ser")
+            "--max-loss, --max-lsd, --min-ser"
+        )
     grid = settings.grid_for(info.sample_rate_hz / 2.0)
     grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
     from .sweep import ESTIMATE_FROM_CASES, time_estimate
@@ -47,16 +49,23 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
         notify(time_estimate(grid.count()))
     from . import cache
 
-    analysis = analyse(path, progress=progress, sha256=sha256,
-                       cache=cache if use_cache and cache.enabled() else None)
+    analysis = analyse(path, progress=progress, sha256=sha256, cache=cache if use_cache and cache.enabled() else None)
     chain = settings.chain_for(analysis)
     data = None
     if settings.program == "data":
         from .datalink import data_program_for
 
         data = data_program_for(analysis, chain, settings.bit_rate)
-    result = run_sweep(path, chain=chain, grid=grid, meter=settings.meter, targets=settings.targets,
-                       analysis=analysis, data=data, listening=settings.listening)
+    result = run_sweep(
+        path,
+        chain=chain,
+        grid=grid,
+        meter=settings.meter,
+        targets=settings.targets,
+        analysis=analysis,
+        data=data,
+        listening=settings.listening,
+    )
     if settings.default_targets:
         result.notes.append(_default_targets_note(settings))
     doc = result.to_json()
@@ -73,12 +82,16 @@ def sweep_file(path, settings: Settings, *, out_dir=None, progress=None, sha256=
 def _default_targets_note(settings) -> str:
     parts = []
     if "max_audible_frames_pct" in settings.default_targets:
-        parts.append("no fidelity target given: the default target is no audible error "
-                     f"(--max-audible-frames {settings.targets['max_audible_frames_pct']:g} % of frames, "
-                     f"music at {settings.listening.spl_db:g} dB SPL)")
+        parts.append(
+            "no fidelity target given: the default target is no audible error "
+            f"(--max-audible-frames {settings.targets['max_audible_frames_pct']:g} % of frames, "
+            f"music at {settings.listening.spl_db:g} dB SPL)"
+        )
     if "min_sii" in settings.default_targets:
-        parts.append(f"speech: the default target is --min-sii {settings.targets['min_sii']:g} "
-                     f"(ANSI S3.5-1997, speech at {settings.listening.spl_db:g} dB SPL)")
+        parts.append(
+            f"speech: the default target is --min-sii {settings.targets['min_sii']:g} "
+            f"(ANSI S3.5-1997, speech at {settings.listening.spl_db:g} dB SPL)"
+        )
     return "; ".join(parts)
 
 
@@ -96,10 +109,17 @@ def write_spectrum(analysis, target, *, inputs=()):
 
     with atomic_path(target, inputs=inputs) as tmp:
         with open(tmp, "wb") as fh:
-            np.savez(fh, freqs_hz=analysis.freqs_hz, psd=analysis.psd, psd_channels=analysis.psd_channels,
-                     weights_hz=analysis.weights_hz, band_edges_hz=analysis.band_edges_hz,
-                     band_frames=analysis.band_frames,
-                     sample_rate_hz=np.int64(analysis.sample_rate_hz), sha256=np.str_(analysis.sha256))
+            np.savez(
+                fh,
+                freqs_hz=analysis.freqs_hz,
+                psd=analysis.psd,
+                psd_channels=analysis.psd_channels,
+                weights_hz=analysis.weights_hz,
+                band_edges_hz=analysis.band_edges_hz,
+                band_frames=analysis.band_frames,
+                sample_rate_hz=np.int64(analysis.sample_rate_hz),
+                sha256=np.str_(analysis.sha256),
+            )
     return target
 
 
@@ -116,8 +136,17 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     families, orders = g.get("family", ("butterworth",)), g.get("order", (4,))
     if len(families) != 1 or len(orders) != 1:
         raise ParameterError("--family/--order: the noise budget takes one family and one order")
-    spec = FilterSpec(response, families[0], orders[0], lo, hi, g.get("ripple", 0.1), g.get("stopband", 60.0),
-                      settings.chain.stage, fs)
+    spec = FilterSpec(
+        response,
+        families[0],
+        orders[0],
+        lo,
+        hi,
+        g.get("ripple", 0.1),
+        g.get("stopband", 60.0),
+        settings.chain.stage,
+        fs,
+    )
     validate_spec(spec, fs_hz=fs, name="--band")
     filt = design(spec)
     b = budget(settings.chain, filt, fs, meter=settings.meter.band(fs / 2.0))
@@ -126,22 +155,39 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     if c.en_table is not None:
         from .entable import summary
 
-        en_text = (f"e_n from the table {summary(c.en_table, c.en_table_file)}, log-log between rows, flat beyond "
-                   f"them; white level {fq(c.en_v_rthz, 'V/√Hz')} at its top row")
+        en_text = (
+            f"e_n from the table {summary(c.en_table, c.en_table_file)}, log-log between rows, flat beyond "
+            f"them; white level {fq(c.en_v_rthz, 'V/√Hz')} at its top row"
+        )
     else:
         en_text = f"e_n {fq(c.en_v_rthz, 'V/√Hz')}"
-    header = (f"Noise budget: {spec.label()}, {c.stage} stage, fs {fq(fs, 'Hz')}; Rs {fq(c.source_ohms, 'Ω')} at "
-              f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, {en_text}, "
-              f"i_n {fq(c.in_a_rthz, 'A/√Hz')}, {c.bits} bits, full scale {fq(c.full_scale_vrms, 'V rms')}, "
-              f"dither {c.dither}, anti-alias {c.anti_alias}"
-              + (f", amplifier bandwidth {fq(c.amp_bandwidth_hz, 'Hz')}" if c.amp_bandwidth_hz is not None else "")
-              + (f"; 1/f corners e_n {fq(c.en_corner_hz, 'Hz') if c.en_corner_hz else 'none'}, "
-                 f"i_n {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'} (1/f integrated from "
-                 f"{FLICKER_FROM_HZ:g} Hz)" if c.has_flicker and c.en_table is None else "")
-              + (f"; i_n 1/f corner {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'}; the table's excess "
-                 f"over its white level integrated from {FLICKER_FROM_HZ:g} Hz" if c.en_table is not None else ""))
-    b["filter"] = {"response": response, "family": spec.family, "order": spec.order,
-                   "low_hz": filt.edges_3db[0], "high_hz": filt.edges_3db[1]}
+    header = (
+        f"Noise budget: {spec.label()}, {c.stage} stage, fs {fq(fs, 'Hz')}; Rs {fq(c.source_ohms, 'Ω')} at "
+        f"{c.temperature_k:g} K, gain {c.gain_db:g} dB, {en_text}, "
+        f"i_n {fq(c.in_a_rthz, 'A/√Hz')}, {c.bits} bits, full scale {fq(c.full_scale_vrms, 'V rms')}, "
+        f"dither {c.dither}, anti-alias {c.anti_alias}"
+        + (f", amplifier bandwidth {fq(c.amp_bandwidth_hz, 'Hz')}" if c.amp_bandwidth_hz is not None else "")
+        + (
+            f"; 1/f corners e_n {fq(c.en_corner_hz, 'Hz') if c.en_corner_hz else 'none'}, "
+            f"i_n {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'} (1/f integrated from "
+            f"{FLICKER_FROM_HZ:g} Hz)"
+            if c.has_flicker and c.en_table is None
+            else ""
+        )
+        + (
+            f"; i_n 1/f corner {fq(c.in_corner_hz, 'Hz') if c.in_corner_hz else 'none'}; the table's excess "
+            f"over its white level integrated from {FLICKER_FROM_HZ:g} Hz"
+            if c.en_table is not None
+            else ""
+        )
+    )
+    b["filter"] = {
+        "response": response,
+        "family": spec.family,
+        "order": spec.order,
+        "low_hz": filt.edges_3db[0],
+        "high_hz": filt.edges_3db[1],
+    }
     b["chain"] = c.to_json()
     b["sample_rate_hz"] = fs
     return b, header

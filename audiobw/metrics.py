@@ -118,8 +118,9 @@ def coarse_cross(c: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, float]:
     return g, 1.0 / (n_fft * df)
 
 
-def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None,
-                 coarse: tuple[np.ndarray, float] | None = None) -> tuple[float, float]:
+def _delay_cross(
+    c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None, coarse: tuple[np.ndarray, float] | None = None
+) -> tuple[float, float]:
     """(τ, max_τ Re Σ c_k e^{j2π f_k τ}) for a uniform grid f from 0 Hz (see :func:`best_delay`).
 
     τ is searched in ±1/(2·df), or in 0 … ``max_delay_s`` when that is given.
@@ -147,8 +148,8 @@ def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None,
     om = 2.0 * np.pi * f
     e = c * uniform_phasor(f.size, 2.0 * np.pi * (f[1] - f[0]) * tau)
     g0 = float(np.sum(e.real))
-    d1 = -float(np.dot(om, e.imag))           # d/dτ Re Σ c e^{jωτ}
-    d2 = -float(np.dot(om * om, e.real))      # d²/dτ²
+    d1 = -float(np.dot(om, e.imag))  # d/dτ Re Σ c e^{jωτ}
+    d2 = -float(np.dot(om * om, e.real))  # d²/dτ²
     if d2 < 0.0:
         delta = -d1 / d2
         # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
@@ -157,10 +158,15 @@ def _delay_cross(c: np.ndarray, f: np.ndarray, max_delay_s: float | None = None,
     return tau, g0
 
 
-def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
-               weights_hz: np.ndarray | None = None, *,
-               max_delay_s: float | None = None,
-               cross: tuple[np.ndarray, tuple[np.ndarray, float]] | None = None) -> tuple[float, np.ndarray]:
+def best_delay(
+    S: np.ndarray,
+    H: np.ndarray,
+    freqs_hz: np.ndarray,
+    weights_hz: np.ndarray | None = None,
+    *,
+    max_delay_s: float | None = None,
+    cross: tuple[np.ndarray, tuple[np.ndarray, float]] | None = None,
+) -> tuple[float, np.ndarray]:
     """The single delay τ that best aligns the input with the filtered output.
 
     Minimises the error power ∫ S(f)·|1 − H(f)·e^{j2πfτ}|² df, i.e. the
@@ -204,8 +210,7 @@ def best_delay(S: np.ndarray, H: np.ndarray, freqs_hz: np.ndarray,
         tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f, max_delay_s)
     else:
         tau, _ = _delay_cross(cross[0], f, max_delay_s, coarse=cross[1])
-    he = H * (uniform_phasor(f.size, 2.0 * np.pi * (f[1] - f[0]) * tau) if f.size > 1
-              else np.exp(2j * np.pi * f * tau))
+    he = H * (uniform_phasor(f.size, 2.0 * np.pi * (f[1] - f[0]) * tau) if f.size > 1 else np.exp(2j * np.pi * f * tau))
     re = 1.0 - he.real
     return tau, re * re + he.imag * he.imag
 
@@ -250,8 +255,9 @@ def delay_spread_s(filt: Filter, freqs_hz: np.ndarray) -> float:
     return float(np.max(tau) - np.min(tau))
 
 
-def image_bands_hz(response: str, low_hz: float | None, high_hz: float | None,
-                   fs_hz: float) -> list[tuple[float, float]]:
+def image_bands_hz(
+    response: str, low_hz: float | None, high_hz: float | None, fs_hz: float
+) -> list[tuple[float, float]]:
     """The analog frequencies that sampling at ``fs_hz`` folds into the passband.
 
     A component at fs ± f lands on f.  Passband f_low…f_high (a lowpass from
@@ -265,8 +271,9 @@ def image_bands_hz(response: str, low_hz: float | None, high_hz: float | None,
     return [(fs_hz - hi, fs_hz - lo), (fs_hz + lo, fs_hz + hi)]
 
 
-def alias_rejection_db(filt: Filter, response: str, low_hz: float | None, high_hz: float | None,
-                       fs_hz: float) -> float | None:
+def alias_rejection_db(
+    filt: Filter, response: str, low_hz: float | None, high_hz: float | None, fs_hz: float
+) -> float | None:
     """Least attenuation (dB, positive) of an analog ``filt`` over the frequencies that fold
     into its passband, relative to the passband peak (0 dB by design; see :mod:`audiobw.filters`).
 
@@ -278,8 +285,12 @@ def alias_rejection_db(filt: Filter, response: str, low_hz: float | None, high_h
     """
     if not filt.analog:
         return None
-    f = np.concatenate([np.geomspace(max(a, 1e-9), b, IMAGE_GRID) if b > a else np.array([a])
-                        for a, b in image_bands_hz(response, low_hz, high_hz, fs_hz)])
+    f = np.concatenate(
+        [
+            np.geomspace(max(a, 1e-9), b, IMAGE_GRID) if b > a else np.array([a])
+            for a, b in image_bands_hz(response, low_hz, high_hz, fs_hz)
+        ]
+    )
     worst = float(np.max(filt.power_response(f)))
     if worst <= 0.0:
         return math.inf
@@ -339,11 +350,24 @@ class Scorer:
         #: scorer's S·w·H, so one inverse FFT per case serves both delay searches
         self.full_meter = bool(np.all(in_band))
         self._pre = dict(
-            wm=wm, S=S, aw=aw, bins_per_band=bins_per_band, sw=sw, band_s=band_s,
-            s_total=float(np.sum(S * wm)), swm=S * wm, wm_a=wm * aw,
-            k=k, fl=fl, swl=Sl * wml, swl_a=Sl * wml * a_weighting_power(fl),
-            swh=Sh * wm[k:], swh_a=Sh * wm[k:] * aw[k:],
-            frames_v2=a.band_frames * v2, lo=lo, hi=hi,
+            wm=wm,
+            S=S,
+            aw=aw,
+            bins_per_band=bins_per_band,
+            sw=sw,
+            band_s=band_s,
+            s_total=float(np.sum(S * wm)),
+            swm=S * wm,
+            wm_a=wm * aw,
+            k=k,
+            fl=fl,
+            swl=Sl * wml,
+            swl_a=Sl * wml * a_weighting_power(fl),
+            swh=Sh * wm[k:],
+            swh_a=Sh * wm[k:] * aw[k:],
+            frames_v2=a.band_frames * v2,
+            lo=lo,
+            hi=hi,
         )
         p = self._pre
         p["x_total"] = float(np.sum(p["swl"])) + float(np.sum(p["swh"]))
@@ -365,8 +389,7 @@ class Scorer:
         self._pre["floor_db"] = 10 * np.log10(floor)
         # the program's 99 % occupied band (power summed over channels), for flatness and delay spread
         occ_lo, occ_hi = a.occupied_band_hz()
-        self._pre["occupied_grid"] = band_grid(occ_lo, min(occ_hi, a.nyquist_hz),
-                                               floor_hz=a.sample_rate_hz / a.nperseg)
+        self._pre["occupied_grid"] = band_grid(occ_lo, min(occ_hi, a.nyquist_hz), floor_hz=a.sample_rate_hz / a.nperseg)
 
     def score(self, filt: Filter, shared: dict | None = None) -> dict:
         """All metrics for one candidate, as a plain mapping (no targets applied).
@@ -408,8 +431,7 @@ class Scorer:
             "low_hz": lo3 if filt.spec.response != "lowpass" else None,
             "high_hz": hi3 if filt.spec.response != "highpass" else None,
             # a response that never falls is integrated to fs/2: on the analysis grid, already evaluated
-            "enbw_hz": (float(np.sum(G * a.weights_hz)) if math.isinf(filt.power_integral_hz())
-                        else filt.enbw_hz(nyq)),
+            "enbw_hz": (float(np.sum(G * a.weights_hz)) if math.isinf(filt.power_integral_hz()) else filt.enbw_hz(nyq)),
             "noise_vrms": math.sqrt(n_pow),
             "noise_dbfs": _db(n_pow / c.full_scale_power_v2),
             "snr_db": _db(x_out / n_pow) if x_out > 0 else None,
@@ -459,12 +481,14 @@ class Scorer:
         fs, nyq = a.sample_rate_hz, a.nyquist_hz
         f0 = m.tone_hz
         if not 0 < f0 < nyq:
-            return {"thdn_pct": None, "thdn_db": None,
-                    "thdn_note": f"tone {f0:g} Hz is not below fs/2 = {nyq:g} Hz"}
+            return {"thdn_pct": None, "thdn_db": None, "thdn_note": f"tone {f0:g} Hz is not below fs/2 = {nyq:g} Hz"}
         g0 = float(filt.power_response(f0))
         if g0 < 0.5:
-            return {"thdn_pct": None, "thdn_db": None,
-                    "thdn_note": f"tone {f0:g} Hz is outside the passband ({10 * math.log10(max(g0, 1e-300)):.1f} dB)"}
+            return {
+                "thdn_pct": None,
+                "thdn_db": None,
+                "thdn_note": f"tone {f0:g} Hz is outside the passband ({10 * math.log10(max(g0, 1e-300)):.1f} dB)",
+            }
         r = 10 ** (m.tone_level_dbfs / 20.0)  # amplitude re full scale
         amp_v = r * math.sqrt(2.0) * c.full_scale_vrms
         # the memoryless polynomial y = x + a2·x² + a3·x³ (simulate.harmonic_coefficients) on

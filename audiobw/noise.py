@@ -98,8 +98,10 @@ def unbounded_reason(chain: Chain, filt: Filter) -> str | None:
         return "on the digital stage no filter ahead of the converter limits the amplifier's noise"
     floor = filt.floor_gain()
     if floor > 0:
-        return (f"the analog {filt.spec.label()} passes noise to infinite frequency "
-                f"(|H| stays at {10 * math.log10(floor):.0f} dB)")
+        return (
+            f"the analog {filt.spec.label()} passes noise to infinite frequency "
+            f"(|H| stays at {10 * math.log10(floor):.0f} dB)"
+        )
     return None
 
 
@@ -117,9 +119,11 @@ def check_noise_bounded(chain: Chain, filt: Filter) -> None:
 
 
 def _unbounded(reason: str) -> ParameterError:
-    return ParameterError(f"--anti-alias none: {reason}, so its folded noise is unbounded; accepted: "
-                          "--amp-bandwidth HZ (the amplifier's bandwidth bounds it) or --anti-alias ideal "
-                          "(a brick-wall at fs/2 ahead of the converter)")
+    return ParameterError(
+        f"--anti-alias none: {reason}, so its folded noise is unbounded; accepted: "
+        "--amp-bandwidth HZ (the amplifier's bandwidth bounds it) or --anti-alias ideal "
+        "(a brick-wall at fs/2 ahead of the converter)"
+    )
 
 
 def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.ndarray | None:
@@ -155,7 +159,9 @@ def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.
     pz = p[:, None] - z[None, :] if z.size else np.ones((n, 1), complex)
     mz = -p[:, None] - z[None, :] if z.size else np.ones((n, 1), complex)
     off = np.where(np.eye(n, dtype=bool), 1.0, p[:, None] - p[None, :])
-    resid = (k * np.prod(pz, axis=1) / np.prod(off, axis=1)) * (k * np.prod(mz, axis=1) / np.prod(-p[:, None] - p[None, :], axis=1))
+    resid = (k * np.prod(pz, axis=1) / np.prod(off, axis=1)) * (
+        k * np.prod(mz, axis=1) / np.prod(-p[:, None] - p[None, :], axis=1)
+    )
     theta_half = math.pi * np.asarray(freqs_hz, dtype=float) / fs_hz
     st, ct = np.sin(theta_half), np.cos(theta_half)
     out = np.zeros_like(theta_half)
@@ -199,9 +205,16 @@ def _folded_images(filt: Filter, freqs_hz: np.ndarray, fs_hz: float, direct: np.
     return direct + np.interp(freqs_hz, freqs_hz[idx], images)
 
 
-def folded_noise_gain(filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float,
-                      amp_bandwidth_hz: float | None = None, *, direct: np.ndarray | None = None,
-                      anti_alias: str = "none") -> tuple[np.ndarray, float]:
+def folded_noise_gain(
+    filt: Filter,
+    freqs_hz: np.ndarray,
+    weights_hz: np.ndarray,
+    fs_hz: float,
+    amp_bandwidth_hz: float | None = None,
+    *,
+    direct: np.ndarray | None = None,
+    anti_alias: str = "none",
+) -> tuple[np.ndarray, float]:
     """Noise power gain of the analog path at the converter output, on 0…fs/2.
 
     Returns ``(g, total)``: ``g`` on the grid such that ``sum(g·weights)``
@@ -270,8 +283,15 @@ class NoiseSpectra:
         return {name: float(np.sum(d * w)) for name, d in self.parts.items()}
 
 
-def converter_noise_gain(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray,
-                         fs_hz: float, *, direct: np.ndarray | None = None) -> tuple[np.ndarray, float]:
+def converter_noise_gain(
+    chain: Chain,
+    filt: Filter,
+    freqs_hz: np.ndarray,
+    weights_hz: np.ndarray,
+    fs_hz: float,
+    *,
+    direct: np.ndarray | None = None,
+) -> tuple[np.ndarray, float]:
     """Power gain from the amplifier's white noise to the converter's output, on 0…fs/2.
 
     Analog stage: the candidate and the amplifier's pole, folded or not per
@@ -289,17 +309,26 @@ def converter_noise_gain(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weigh
     if chain.density_amplifier_v2_hz() == 0:  # no amplifier noise: nothing to shape or fold
         return np.zeros_like(np.asarray(freqs_hz, dtype=float)), 0.0
     if filt.analog:
-        return folded_noise_gain(filt, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz, direct=direct,
-                                 anti_alias=chain.anti_alias)
+        return folded_noise_gain(
+            filt, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz, direct=direct, anti_alias=chain.anti_alias
+        )
     if chain.amp_bandwidth_hz is None:  # ideal anti-alias filter (or no amplifier noise): white to fs/2
         g = np.ones_like(np.asarray(freqs_hz, dtype=float))
         return g, float(np.sum(weights_hz))
-    return folded_noise_gain(amplifier_pole(chain.amp_bandwidth_hz), freqs_hz, weights_hz, fs_hz,
-                             anti_alias=chain.anti_alias)
+    return folded_noise_gain(
+        amplifier_pole(chain.amp_bandwidth_hz), freqs_hz, weights_hz, fs_hz, anti_alias=chain.anti_alias
+    )
 
 
-def noise_total(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float,
-                *, direct: np.ndarray | None = None) -> np.ndarray:
+def noise_total(
+    chain: Chain,
+    filt: Filter,
+    freqs_hz: np.ndarray,
+    weights_hz: np.ndarray,
+    fs_hz: float,
+    *,
+    direct: np.ndarray | None = None,
+) -> np.ndarray:
     """The total output noise density on ``freqs_hz`` (V²/Hz): the sum of :func:`noise_spectra`'s
     parts, computed without building them; ``direct`` is |H(f)|² if the caller has it."""
     nyq_width = float(np.sum(weights_hz))
@@ -344,8 +373,9 @@ def _excess_gain(chain: Chain, h2: np.ndarray, freqs_hz: np.ndarray) -> np.ndarr
     return h2 if chain.amp_bandwidth_hz is None else h2 / (1.0 + (freqs_hz / chain.amp_bandwidth_hz) ** 2)
 
 
-def noise_spectra(chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray,
-                  fs_hz: float) -> NoiseSpectra:
+def noise_spectra(
+    chain: Chain, filt: Filter, freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float
+) -> NoiseSpectra:
     """Each contributor's output noise density on ``freqs_hz`` (0…fs/2)."""
     nyq_width = float(np.sum(weights_hz))
     q_density = chain.quantisation_power_v2() / nyq_width
@@ -408,9 +438,12 @@ def budget(chain: Chain, filt: Filter, fs_hz: float, *, meter=(0.0, None), n_bin
 
     def entry(p):
         v = math.sqrt(p)
-        return {"vrms": v, "dbu": vrms_to_dbu(v),
-                "dbfs": 10 * math.log10(p / fs_v2) if p > 0 else -math.inf,
-                "share": p / total if total > 0 else 0.0}
+        return {
+            "vrms": v,
+            "dbu": vrms_to_dbu(v),
+            "dbfs": 10 * math.log10(p / fs_v2) if p > 0 else -math.inf,
+            "share": p / total if total > 0 else 0.0,
+        }
 
     return {
         "components": {name: entry(p) for name, p in powers.items()},
@@ -453,6 +486,8 @@ def input_referred(chain: Chain, spectra, weights, weights_a) -> dict:
     g2 = chain.gain**2
     p = sum(v for k, v in spectra.power(weights).items() if k in ANALOG_PARTS) / g2
     pa = sum(v for k, v in spectra.power(weights_a).items() if k in ANALOG_PARTS) / g2
-    return {"noise_figure_db": noise_figure_db(chain),
-            "ein_dbu": vrms_to_dbu(math.sqrt(p)) if p > 0 else None,
-            "ein_dbu_a": vrms_to_dbu(math.sqrt(pa)) if pa > 0 else None}
+    return {
+        "noise_figure_db": noise_figure_db(chain),
+        "ein_dbu": vrms_to_dbu(math.sqrt(p)) if p > 0 else None,
+        "ein_dbu_a": vrms_to_dbu(math.sqrt(pa)) if pa > 0 else None,
+    }

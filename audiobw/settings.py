@@ -31,14 +31,31 @@ from .chain import Chain
 from .errors import ConfigError, ParameterError
 from .metrics import Meter
 from .registry import FIDELITY_TARGETS, TARGET_OPTION
-from .options import (FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, RESPONSE_ALIASES,
-                      option_name)
+from .options import FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, RESPONSE_ALIASES, option_name
 
-CHAIN_KEYS = ("source_ohms", "temperature", "input_level", "gain", "en", "in", "h2", "h3",
-              "amp_bandwidth", "bits", "full_scale", "dither", "stage", "anti_alias", "source_level", "spl",
-              "mic_sensitivity", "en_corner", "en_table", "in_corner")
-GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband",
-             "rank", "tie")
+CHAIN_KEYS = (
+    "source_ohms",
+    "temperature",
+    "input_level",
+    "gain",
+    "en",
+    "in",
+    "h2",
+    "h3",
+    "amp_bandwidth",
+    "bits",
+    "full_scale",
+    "dither",
+    "stage",
+    "anti_alias",
+    "source_level",
+    "spl",
+    "mic_sensitivity",
+    "en_corner",
+    "en_table",
+    "in_corner",
+)
+GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
 METER_KEYS = ("meter", "tone", "tone_level")
 MAX_TOML_BYTES = 1_000_000  # a chain file is a few hundred bytes; more is a mistake or hostile
 
@@ -65,12 +82,15 @@ def load_toml(path) -> dict[str, Raw]:
     p = Path(path)
     try:
         if p.is_file() and p.stat().st_size > MAX_TOML_BYTES:
-            raise ConfigError(f"--chain: {str(p)!r}: {p.stat().st_size} bytes is too large for a chain file; "
-                              f"accepted: at most {MAX_TOML_BYTES} bytes")
+            raise ConfigError(
+                f"--chain: {str(p)!r}: {p.stat().st_size} bytes is too large for a chain file; "
+                f"accepted: at most {MAX_TOML_BYTES} bytes"
+            )
         data = tomllib.loads(p.read_text(encoding="utf-8"))
     except RecursionError:  # tables or arrays nested thousands deep
-        raise ConfigError(f"--chain: {str(p)!r}: nested too deeply; accepted: the flat [section] key = value "
-                          "layout") from None
+        raise ConfigError(
+            f"--chain: {str(p)!r}: nested too deeply; accepted: the flat [section] key = value layout"
+        ) from None
     except FileNotFoundError:
         raise ConfigError(f"--chain: {str(p)!r}: no such file") from None
     except (OSError, UnicodeDecodeError) as exc:
@@ -144,6 +164,7 @@ def _parse(key: str, raw: Raw):
         return (Path(v).name, read_table(v, origin=name))
     if kind == "audiogram":
         from .perceptual.threshold import parse_audiogram
+
         try:
             return parse_audiogram(v)
         except ValueError as exc:
@@ -179,8 +200,10 @@ def _parse_bit_rate(v, name):
     try:
         return units.parse_quantity(text if not isinstance(v, (int, float)) else v, "frequency", name=name)
     except ParameterError:
-        raise ParameterError(f"{name}: {v!r} is not a bit rate; accepted: a rate such as 2k, 9600bit/s, "
-                             "1.2kbps (0.001 to 1e+09 bit/s), or auto") from None
+        raise ParameterError(
+            f"{name}: {v!r} is not a bit rate; accepted: a rate such as 2k, 9600bit/s, "
+            "1.2kbps (0.001 to 1e+09 bit/s), or auto"
+        ) from None
 
 
 def _parse_probability(v, name):
@@ -205,8 +228,7 @@ def _parse_mic_sensitivity(v, name):
     try:
         s = units.parse_quantity(text if not isinstance(v, (int, float)) else v, "voltage", name=name)
     except ParameterError:
-        raise ParameterError(f"{name}: {v!r} is not a microphone sensitivity; accepted: 10mV/Pa or "
-                             "-40dBV/Pa") from None
+        raise ParameterError(f"{name}: {v!r} is not a microphone sensitivity; accepted: 10mV/Pa or -40dBV/Pa") from None
     if not s > 0:
         raise ParameterError(f"{name}: {v!r} is out of range; accepted: a sensitivity > 0 V/Pa")
     return s
@@ -228,7 +250,8 @@ def _parse_input_level(v, name):
             raise
         raise ParameterError(
             f"{name}: {v!r} is not an input level; accepted: a level such as -18dBFS, +4dBu, 0.5Vrms, "
-            "or a gain such as 6dB") from None
+            "or a gain such as 6dB"
+        ) from None
 
 
 @dataclass
@@ -244,8 +267,8 @@ class Settings:
     bit_rate: object = None
     #: the program's rms at the source, V (from --source-level, or --spl with --mic-sensitivity)
     source_vrms: float | None = None
-    listening: object = None        # perceptual.scoring.Listening (music, speech)
-    default_targets: tuple = ()     # target keys filled in by program-kind defaults
+    listening: object = None  # perceptual.scoring.Listening (music, speech)
+    default_targets: tuple = ()  # target keys filled in by program-kind defaults
 
     def grid_for(self, nyquist_hz: float):
         """The Grid, with defaults for the edges that were not given, fitted to ``nyquist_hz``."""
@@ -261,8 +284,9 @@ class Settings:
             if not g.get("low_edges"):
                 g["low_edges"] = tuple(units.parse_grid(f"10:{min(400.0, top / 8)}:8", name="default --low-edges"))
             if not g.get("high_edges"):
-                g["high_edges"] = tuple(units.parse_grid(f"{min(2000.0, top / 4)}:{top}:12",
-                                                         name="default --high-edges"))
+                g["high_edges"] = tuple(
+                    units.parse_grid(f"{min(2000.0, top / 4)}:{top}:12", name="default --high-edges")
+                )
         return Grid(
             response=response,
             families=g.get("family", ("butterworth",)),
@@ -309,25 +333,41 @@ def build(raw: dict[str, Raw]) -> Settings:
     """Parse every raw value and build the typed settings."""
     parsed = {key: _parse(key, r) for key, r in raw.items()}
     chain_kw = {}
-    mapping = {"source_ohms": "source_ohms", "temperature": "temperature_k", "gain": "gain_db",
-               "en": "en_v_rthz", "in": "in_a_rthz", "h2": "h2_db", "h3": "h3_db",
-               "amp_bandwidth": "amp_bandwidth_hz", "bits": "bits", "full_scale": "full_scale_vrms",
-               "dither": "dither", "stage": "stage", "anti_alias": "anti_alias", "en_corner": "en_corner_hz",
-               "in_corner": "in_corner_hz"}
+    mapping = {
+        "source_ohms": "source_ohms",
+        "temperature": "temperature_k",
+        "gain": "gain_db",
+        "en": "en_v_rthz",
+        "in": "in_a_rthz",
+        "h2": "h2_db",
+        "h3": "h3_db",
+        "amp_bandwidth": "amp_bandwidth_hz",
+        "bits": "bits",
+        "full_scale": "full_scale_vrms",
+        "dither": "dither",
+        "stage": "stage",
+        "anti_alias": "anti_alias",
+        "en_corner": "en_corner_hz",
+        "in_corner": "in_corner_hz",
+    }
     for key, field_name in mapping.items():
         if key in parsed:
             chain_kw[field_name] = int(parsed[key]) if key == "bits" else parsed[key]
     if "en_table" in parsed:
         for other in ("en", "en_corner"):
             if other in parsed:
-                raise ParameterError(f"{raw['en_table'].origin}: conflicts with {raw[other].origin} (the table gives "
-                                     "e_n at every frequency: its top row is the white level, its low rows the 1/f "
-                                     "part); accepted: the table or --en/--en-corner, not both")
+                raise ParameterError(
+                    f"{raw['en_table'].origin}: conflicts with {raw[other].origin} (the table gives "
+                    "e_n at every frequency: its top row is the white level, its low rows the 1/f "
+                    "part); accepted: the table or --en/--en-corner, not both"
+                )
         chain_kw["en_table_file"], chain_kw["en_table"] = parsed["en_table"]
     for key in ("h2", "h3"):
         if key in parsed and parsed[key] >= 0:
-            raise ParameterError(f"{raw[key].origin}: {raw[key].value!r} is not below 0 dB; "
-                                 "accepted: a harmonic level in dB re the fundamental, e.g. -110")
+            raise ParameterError(
+                f"{raw[key].origin}: {raw[key].value!r} is not below 0 dB; "
+                "accepted: a harmonic level in dB re the fundamental, e.g. -110"
+            )
     try:
         chain = Chain(**chain_kw)
     except ParameterError as exc:
@@ -335,43 +375,56 @@ def build(raw: dict[str, Raw]) -> Settings:
         msg = str(exc)
         for key, r in raw.items():
             if msg.startswith(option_name(key) + ":") and r.origin != option_name(key):
-                msg = r.origin + msg[len(option_name(key)):]
+                msg = r.origin + msg[len(option_name(key)) :]
         raise ParameterError(msg) from None
-    meter = Meter(mode=parsed.get("meter", "full"), tone_hz=parsed.get("tone", 997.0),
-                  tone_level_dbfs=parsed.get("tone_level", -1.0))
+    meter = Meter(
+        mode=parsed.get("meter", "full"),
+        tone_hz=parsed.get("tone", 997.0),
+        tone_level_dbfs=parsed.get("tone_level", -1.0),
+    )
     if meter.tone_level_dbfs > 0:
-        raise ParameterError(f"{raw['tone_level'].origin}: {raw['tone_level'].value!r} is above full scale; "
-                             "accepted: a level <= 0 dBFS")
+        raise ParameterError(
+            f"{raw['tone_level'].origin}: {raw['tone_level'].value!r} is above full scale; accepted: a level <= 0 dBFS"
+        )
     targets = {TARGET_OPTION[k]: parsed[k] for k in TARGET_OPTION if k in parsed}
     if "ripple" in parsed and not 0 < parsed["ripple"] < 3:
-        raise ParameterError(f"{raw['ripple'].origin}: {raw['ripple'].value!r} is out of range; "
-                             "accepted: 0 < ripple < 3 dB")
+        raise ParameterError(
+            f"{raw['ripple'].origin}: {raw['ripple'].value!r} is out of range; accepted: 0 < ripple < 3 dB"
+        )
     if "stopband" in parsed and not 0 < parsed["stopband"] <= 200:
-        raise ParameterError(f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; "
-                             "accepted: 0 < stopband <= 200 dB")
+        raise ParameterError(
+            f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; accepted: 0 < stopband <= 200 dB"
+        )
     for key, what in (("min_alias_rejection", "an attenuation"), ("max_flatness", "a peak-to-peak gain")):
         if key in parsed and not parsed[key] >= 0:
-            raise ParameterError(f"{raw[key].origin}: {raw[key].value!r} is negative; accepted: {what} "
-                                 "of 0 dB or more")
+            raise ParameterError(f"{raw[key].origin}: {raw[key].value!r} is negative; accepted: {what} of 0 dB or more")
     if "min_alias_rejection" in parsed and chain.stage == "digital":
-        raise ParameterError(f"{raw['min_alias_rejection'].origin}: applies to the analog stage only (a digital "
-                             "filter acts after the converter, once the images have folded); accepted: "
-                             "--stage analog, or leave the target out")
+        raise ParameterError(
+            f"{raw['min_alias_rejection'].origin}: applies to the analog stage only (a digital "
+            "filter acts after the converter, once the images have folded); accepted: "
+            "--stage analog, or leave the target out"
+        )
     grid_values = {k: parsed[k] for k in GRID_KEYS if k in parsed}
     program = parsed.get("program", "music")
     if program == "audio":
         program = "music"
-    listening, default_targets = program_defaults(program, targets, parsed.get("playback_spl"),
-                                                  parsed.get("hearing_threshold"))
+    listening, default_targets = program_defaults(
+        program, targets, parsed.get("playback_spl"), parsed.get("hearing_threshold")
+    )
     if listening is None and ("min_sii" in targets or "max_nmr_db" in targets or "max_audible_frames_pct" in targets):
-        raise ParameterError("--max-nmr/--max-audible-frames/--min-sii: apply to music or speech programs; "
-                             "accepted: --program music or --program speech")
+        raise ParameterError(
+            "--max-nmr/--max-audible-frames/--min-sii: apply to music or speech programs; "
+            "accepted: --program music or --program speech"
+        )
     if "min_sii" in targets and program != "speech":
-        raise ParameterError(f"{raw['min_sii'].origin}: applies to speech programs only; "
-                             "accepted: add --program speech")
+        raise ParameterError(
+            f"{raw['min_sii'].origin}: applies to speech programs only; accepted: add --program speech"
+        )
     if "playback_spl" in parsed and not 0 < parsed["playback_spl"] <= 130:
-        raise ParameterError(f"{raw['playback_spl'].origin}: {raw['playback_spl'].value!r} is out of range; "
-                             "accepted: 0 < level <= 130 dB SPL")
+        raise ParameterError(
+            f"{raw['playback_spl'].origin}: {raw['playback_spl'].value!r} is out of range; "
+            "accepted: 0 < level <= 130 dB SPL"
+        )
     bit_rate = parsed.get("bit_rate")
     data_targets = [k for k in ("max_ber", "min_eye") if k in parsed]
     if program == "data" and bit_rate is None:
@@ -380,9 +433,18 @@ def build(raw: dict[str, Raw]) -> Settings:
         given = raw[data_targets[0]].origin if data_targets else raw["bit_rate"].origin
         raise ParameterError(f"{given}: applies to data programs only; accepted: add --program data")
     source_vrms = _source_vrms(parsed, raw)
-    return Settings(chain=chain, grid_values=grid_values, meter=meter, targets=targets,
-                    input_level=parsed.get("input_level"), program=program, bit_rate=bit_rate,
-                    source_vrms=source_vrms, listening=listening, default_targets=tuple(default_targets))
+    return Settings(
+        chain=chain,
+        grid_values=grid_values,
+        meter=meter,
+        targets=targets,
+        input_level=parsed.get("input_level"),
+        program=program,
+        bit_rate=bit_rate,
+        source_vrms=source_vrms,
+        listening=listening,
+        default_targets=tuple(default_targets),
+    )
 
 
 def program_defaults(program: str, targets: dict, playback_spl=None, audiogram=None):
@@ -412,17 +474,23 @@ def sanity_warnings(settings: Settings, raw_keys=()) -> list[str]:
     c, out = settings.chain, []
     if c.en_v_rthz > 1e-6:
         v = c.gain * c.en_v_rthz * math.sqrt(20000.0)
-        out.append(f"{'--en-table (its top row)' if c.en_table is not None else '--en'} {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
-                   "over 20 kHz); amplifiers are 0.5 to 50 nV/√Hz: was a prefix left off?")
+        out.append(
+            f"{'--en-table (its top row)' if c.en_table is not None else '--en'} {c.en_v_rthz:g} V/√Hz is {c.en_v_rthz * 1e9:.3g} nV/√Hz ({v:.3g} V rms at the converter "
+            "over 20 kHz); amplifiers are 0.5 to 50 nV/√Hz: was a prefix left off?"
+        )
     if c.in_a_rthz > 1e-9:
-        out.append(f"--in {c.in_a_rthz:g} A/√Hz is {c.in_a_rthz * 1e12:.3g} pA/√Hz; amplifiers are 0.01 to "
-                   "10 pA/√Hz: was a prefix left off (1.5p)?")
+        out.append(
+            f"--in {c.in_a_rthz:g} A/√Hz is {c.in_a_rthz * 1e12:.3g} pA/√Hz; amplifiers are 0.01 to "
+            "10 pA/√Hz: was a prefix left off (1.5p)?"
+        )
     if settings.source_vrms is not None:
         at_converter = settings.source_vrms * c.gain
         if at_converter > c.full_scale_vrms:
-            out.append(f"the source level ({vrms_to_dbu(settings.source_vrms):.1f} dBu) times the gain "
-                       f"({c.gain_db:g} dB) is {vrms_to_dbu(at_converter):.1f} dBu rms at the converter, above its "
-                       f"full scale ({vrms_to_dbu(c.full_scale_vrms):.1f} dBu): the converter clips; lower --gain")
+            out.append(
+                f"the source level ({vrms_to_dbu(settings.source_vrms):.1f} dBu) times the gain "
+                f"({c.gain_db:g} dB) is {vrms_to_dbu(at_converter):.1f} dBu rms at the converter, above its "
+                f"full scale ({vrms_to_dbu(c.full_scale_vrms):.1f} dBu): the converter clips; lower --gain"
+            )
     thermal = math.sqrt(4 * BOLTZMANN * c.temperature_k * c.source_ohms) if c.source_ohms > 0 else 0.0
     if c.source_ohms > 10e6:
         out.append(f"--source-ohms {c.source_ohms:g} Ω: its thermal noise alone is {thermal * 1e9:.3g} nV/√Hz")
@@ -431,10 +499,12 @@ def sanity_warnings(settings: Settings, raw_keys=()) -> list[str]:
 
 def default_chain_text(c) -> str:
     """The chain in one line, for when the user gave none."""
-    return (f"Rs {c.source_ohms:g} Ω at {c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {c.en_v_rthz * 1e9:g} nV/√Hz, "
-            f"i_n {c.in_a_rthz * 1e12:g} pA/√Hz, {c.bits} bits, full scale {c.full_scale_vrms:g} V rms, "
-            f"dither {c.dither}, {c.stage} filter stage, anti-alias {c.anti_alias}, the program taken as it is at "
-            "the converter")
+    return (
+        f"Rs {c.source_ohms:g} Ω at {c.temperature_k:g} K, gain {c.gain_db:g} dB, e_n {c.en_v_rthz * 1e9:g} nV/√Hz, "
+        f"i_n {c.in_a_rthz * 1e12:g} pA/√Hz, {c.bits} bits, full scale {c.full_scale_vrms:g} V rms, "
+        f"dither {c.dither}, {c.stage} filter stage, anti-alias {c.anti_alias}, the program taken as it is at "
+        "the converter"
+    )
 
 
 def _source_vrms(parsed: dict, raw: dict) -> float | None:
@@ -442,16 +512,21 @@ def _source_vrms(parsed: dict, raw: dict) -> float | None:
     has_spl, has_sens = "spl" in parsed, "mic_sensitivity" in parsed
     if has_spl != has_sens:
         given = raw["spl" if has_spl else "mic_sensitivity"].origin
-        raise ParameterError(f"{given}: needs {'--mic-sensitivity' if has_spl else '--spl'} as well; accepted: "
-                             "--spl 94 --mic-sensitivity 10mV/Pa")
+        raise ParameterError(
+            f"{given}: needs {'--mic-sensitivity' if has_spl else '--spl'} as well; accepted: "
+            "--spl 94 --mic-sensitivity 10mV/Pa"
+        )
     if "source_level" in parsed and has_spl:
-        raise ParameterError(f"{raw['source_level'].origin}: give the source level or --spl with "
-                             "--mic-sensitivity, not both")
+        raise ParameterError(
+            f"{raw['source_level'].origin}: give the source level or --spl with --mic-sensitivity, not both"
+        )
     if "source_level" in parsed:
         v = parsed["source_level"]
         if not v > 0:
-            raise ParameterError(f"{raw['source_level'].origin}: {raw['source_level'].value!r} is out of range; "
-                                 "accepted: a level > 0 V rms, e.g. -50dBu")
+            raise ParameterError(
+                f"{raw['source_level'].origin}: {raw['source_level'].value!r} is out of range; "
+                "accepted: a level > 0 V rms, e.g. -50dBu"
+            )
         given = raw["source_level"].origin
     elif has_spl:
         v = parsed["mic_sensitivity"] * P_REF_PA * 10 ** (parsed["spl"] / 20)
@@ -459,6 +534,8 @@ def _source_vrms(parsed: dict, raw: dict) -> float | None:
     else:
         return None
     if "input_level" in parsed:
-        raise ParameterError(f"{raw['input_level'].origin}: states the level at the converter, {given} the level "
-                             "at the source; give one of them")
+        raise ParameterError(
+            f"{raw['input_level'].origin}: states the level at the converter, {given} the level "
+            "at the source; give one of them"
+        )
     return v

@@ -85,8 +85,8 @@ REL_TOL = 1e-3
 ABS_TOL = 1e-6
 #: Rate factor for forming the amplifier's harmonics ahead of an analog filter (x³ reaches 1.5·fs).
 OVERSAMPLE = 3
-INTERP_ZEROS = 48      # sinc zero crossings each side of the interpolator
-INTERP_BETA = 8.0      # Kaiser window parameter (about 80 dB image rejection)
+INTERP_ZEROS = 48  # sinc zero crossings each side of the interpolator
+INTERP_BETA = 8.0  # Kaiser window parameter (about 80 dB image rejection)
 #: Designs reused across renders of the same filter (FIR taps, noise gain shapes); a few entries only.
 _CACHE: dict = {}
 _CACHE_SIZE = 16
@@ -124,8 +124,9 @@ def _grid(m: int, fs_hz: float) -> np.ndarray:
     return np.arange(m // 2 + 1) * fs_hz / m
 
 
-def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS, delay: int | None = None,
-               min_taps: int = MIN_TAPS) -> tuple[np.ndarray, int, float]:
+def analog_fir(
+    filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS, delay: int | None = None, min_taps: int = MIN_TAPS
+) -> tuple[np.ndarray, int, float]:
     """An FIR whose response matches the analog filter below fs/2.
 
     Parameters
@@ -167,9 +168,12 @@ def analog_fir(filt: Filter, fs_hz: float, *, max_taps: int = MAX_TAPS, delay: i
         worst = float(np.max(err / (np.abs(want) + 1e-3)))
         if ok or m >= max_taps:
             if not ok:
-                warnings.warn(f"analog filter {filt.spec.label()}: FIR of {m} taps misses the analog "
-                              f"response by up to {worst:.2g} (relative) below 0.45*fs",
-                              NumericalWarning, stacklevel=2)
+                warnings.warn(
+                    f"analog filter {filt.spec.label()}: FIR of {m} taps misses the analog "
+                    f"response by up to {worst:.2g} (relative) below 0.45*fs",
+                    NumericalWarning,
+                    stacklevel=2,
+                )
             return taps, delay, worst
         m *= 2
 
@@ -231,12 +235,13 @@ class OverlapSave:
         buf = np.concatenate([self.history, x]) if self.m > 1 else x
         y = fft.irfft(fft.rfft(buf, self.nfft, axis=0) * self.spectrum, self.nfft, axis=0)
         if self.m > 1:
-            self.history = buf[-(self.m - 1):]
-        return y[self.m - 1:self.m - 1 + x.shape[0]]
+            self.history = buf[-(self.m - 1) :]
+        return y[self.m - 1 : self.m - 1 + x.shape[0]]
 
 
-def quantise(x: np.ndarray, bits: int,
-             dither_rng: np.random.Generator | None) -> tuple[np.ndarray, np.ndarray, int | None]:
+def quantise(
+    x: np.ndarray, bits: int, dither_rng: np.random.Generator | None
+) -> tuple[np.ndarray, np.ndarray, int | None]:
     """Round to the converter's codes, optionally with TPDF dither; clip and count.
 
     Parameters
@@ -276,7 +281,7 @@ def quantise(x: np.ndarray, bits: int,
 class ClipReport:
     """Converter clipping seen during a run."""
 
-    samples: np.ndarray            # per channel
+    samples: np.ndarray  # per channel
     first_frame: int | None = None
 
     @property
@@ -323,7 +328,7 @@ class ChainSimulator:
         self.analog = self.filt.analog
         self.in_gain = 10 ** (c.input_gain_db / 20.0)
         self.a2, self.a3 = harmonic_coefficients(c)
-        units_v2 = 2.0 * c.full_scale_vrms ** 2  # (V per sample unit)²
+        units_v2 = 2.0 * c.full_scale_vrms**2  # (V per sample unit)²
         density = c.density_amplifier_v2_hz() / units_v2  # one-sided, units²/Hz
         noise_seq, dither_seq = np.random.SeedSequence(int(self.seed)).spawn(2)
         self.noise_rng = np.random.default_rng(noise_seq)
@@ -340,7 +345,8 @@ class ChainSimulator:
         if self.analog:
             taps, self.delay, worst = _cached(
                 ("fir", self.filt.spec, fs, self.fir_max_taps),
-                lambda: analog_fir(self.filt, fs, max_taps=self.fir_max_taps))
+                lambda: analog_fir(self.filt, fs, max_taps=self.fir_max_taps),
+            )
             if self.oversampled:
                 taps, taps_r, interp = self._oversampled_paths(taps)
             m = taps.size
@@ -363,8 +369,10 @@ class ChainSimulator:
         self.noise_sigma = math.sqrt(density * fs / 2.0)
         self.noise_conv = None
         if self.noise and density > 0:
-            gain = _cached(("noise", self.filt.spec, fs, m, self.chain.amp_bandwidth_hz, self.chain.anti_alias),
-                           lambda: self._noise_gain(m))
+            gain = _cached(
+                ("noise", self.filt.spec, fs, m, self.chain.amp_bandwidth_hz, self.chain.anti_alias),
+                lambda: self._noise_gain(m),
+            )
             if gain is not None:
                 self.noise_conv = OverlapSave(noise_shaper(gain, m), self.hop, self.channels)
                 self.noise_conv.process(self._white())  # pre-roll: stationary from sample 0
@@ -403,16 +411,22 @@ class ChainSimulator:
             delay_taps = np.zeros(common + 1)
             delay_taps[common] = 1.0
             return delay_taps, np.convolve(pre, aa), interp
-        taps_r, delay_r, _ = _cached(("fir", self.filt.spec, r * fs, self.fir_max_taps),
-                                     lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps))
+        taps_r, delay_r, _ = _cached(
+            ("fir", self.filt.spec, r * fs, self.fir_max_taps),
+            lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps),
+        )
         common = max(self.delay, -(-(half + delay_r) // r))
         if common != self.delay:
-            taps, _, _ = _cached(("fir", self.filt.spec, fs, self.fir_max_taps, common, taps.size),
-                                 lambda: analog_fir(self.filt, fs, max_taps=self.fir_max_taps, delay=common,
-                                                    min_taps=taps.size))
-        taps_r, _, _ = _cached(("fir", self.filt.spec, r * fs, self.fir_max_taps, r * common - half, taps_r.size),
-                               lambda: analog_fir(self.filt, r * fs, max_taps=self.fir_max_taps,
-                                                  delay=r * common - half, min_taps=taps_r.size))
+            taps, _, _ = _cached(
+                ("fir", self.filt.spec, fs, self.fir_max_taps, common, taps.size),
+                lambda: analog_fir(self.filt, fs, max_taps=self.fir_max_taps, delay=common, min_taps=taps.size),
+            )
+        taps_r, _, _ = _cached(
+            ("fir", self.filt.spec, r * fs, self.fir_max_taps, r * common - half, taps_r.size),
+            lambda: analog_fir(
+                self.filt, r * fs, max_taps=self.fir_max_taps, delay=r * common - half, min_taps=taps_r.size
+            ),
+        )
         self.delay = common
         self.info.update(harmonics_fir_taps=int(taps_r.size))
         return taps, np.convolve(taps_r, aa) if aa.size > 1 else taps_r, interp
@@ -468,7 +482,7 @@ class ChainSimulator:
             z = z[cut:]
             self._to_skip -= cut
         room = self._frames_in - self._frames_out if self._finished else z.shape[0]
-        z = z[:max(room, 0)]
+        z = z[: max(room, 0)]
         self._frames_out += z.shape[0]
         return z
 
@@ -484,8 +498,8 @@ class ChainSimulator:
         outs = []
         n_full = buf.shape[0] // self.hop
         for i in range(n_full):
-            outs.append(self._emit(self._process_hop(buf[i * self.hop:(i + 1) * self.hop])))
-        self._pending = buf[n_full * self.hop:]
+            outs.append(self._emit(self._process_hop(buf[i * self.hop : (i + 1) * self.hop])))
+        self._pending = buf[n_full * self.hop :]
         return np.concatenate(outs) if outs else np.zeros((0, self.channels))
 
     def finish(self) -> np.ndarray:
@@ -496,7 +510,7 @@ class ChainSimulator:
         pending = self._pending
         while need > 0:
             x = np.zeros((self.hop, self.channels))
-            x[:pending.shape[0]] = pending
+            x[: pending.shape[0]] = pending
             pending = np.zeros((0, self.channels))
             out = self._emit(self._process_hop(x))
             outs.append(out)

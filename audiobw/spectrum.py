@@ -66,7 +66,6 @@ FRAME_SECONDS = 0.043
 MAX_FRAMES = 1024
 
 
-
 def hann_periodic(m: int) -> np.ndarray:
     """Periodic Hann window, bit for bit scipy.signal.get_window('hann', m).
 
@@ -88,8 +87,11 @@ MIN_PEAK, MAX_PEAK = 1e-15, 1e6
 
 
 def _overflow_message(path, top: float) -> str:
-    return (f"{path}: peak {top:.3g} of full scale is above {MAX_PEAK:g} (+120 dBFS): the samples overflow "
-            "any converter; accepted: peaks up to +120 dBFS")
+    return (
+        f"{path}: peak {top:.3g} of full scale is above {MAX_PEAK:g} (+120 dBFS): the samples overflow "
+        "any converter; accepted: peaks up to +120 dBFS"
+    )
+
 
 def _pow2_at_least(x: float) -> int:
     return 1 << max(0, math.ceil(math.log2(max(x, 1.0))))
@@ -139,15 +141,15 @@ class Analysis:
     frames: int
     nperseg: int
     freqs_hz: np.ndarray
-    psd_channels: np.ndarray      # (channels, bins)
-    psd: np.ndarray               # (bins,) mean over channels
-    weights_hz: np.ndarray        # (bins,) trapezoid widths; sum = fs/2
-    peak: np.ndarray              # (channels,) max |x|
-    mean_square: np.ndarray       # (channels,)
-    dc: np.ndarray                # (channels,)
+    psd_channels: np.ndarray  # (channels, bins)
+    psd: np.ndarray  # (bins,) mean over channels
+    weights_hz: np.ndarray  # (bins,) trapezoid widths; sum = fs/2
+    peak: np.ndarray  # (channels,) max |x|
+    mean_square: np.ndarray  # (channels,)
+    dc: np.ndarray  # (channels,)
     full_scale_samples: int
-    band_edges_hz: np.ndarray     # (bands + 1,)
-    band_frames: np.ndarray       # (kept frames, bands) power per band, channel mean
+    band_edges_hz: np.ndarray  # (bands + 1,)
+    band_frames: np.ndarray  # (kept frames, bands) power per band, channel mean
     frame_len: int
     frame_stride: int
     meta: dict = field(default_factory=dict)
@@ -216,7 +218,7 @@ class Analysis:
         ks = np.arange(lo_k, hi_k + 1)
         around = cum[ks + CROSSOVER_HALF_BINS + 1] - cum[ks - CROSSOVER_HALF_BINS]
         k = int(ks[np.argmin(around)])
-        j_end = k * ratio - ratio // 2        # fine bin on the crossover (k − ½)·df
+        j_end = k * ratio - ratio // 2  # fine bin on the crossover (k − ½)·df
         if j_end >= self.fine_psd.size:
             self._scoring = (f, p, w, 0)
             self.meta["fine_vs_normal_db"] = None
@@ -226,11 +228,9 @@ class Analysis:
         fp = self.fine_psd[: j_end + 1]
         below = float(cum[k])  # normal bins 0 … k−1 cover [0, (k − ½)·df]
         fine_power = float(np.sum(fp * fw))
-        self.meta["fine_vs_normal_db"] = (10.0 * math.log10(fine_power / below)
-                                          if fine_power > 0 and below > 0 else None)
+        self.meta["fine_vs_normal_db"] = 10.0 * math.log10(fine_power / below) if fine_power > 0 and below > 0 else None
         self.meta["crossover_hz"] = float(ff[-1])
-        self._scoring = (np.concatenate([ff, f[k:]]), np.concatenate([fp, p[k:]]),
-                         np.concatenate([fw, w[k:]]), k)
+        self._scoring = (np.concatenate([ff, f[k:]]), np.concatenate([fp, p[k:]]), np.concatenate([fw, w[k:]]), k)
         return self._scoring
 
     def occupied_band_hz(self, fraction: float = 0.99) -> tuple[float, float]:
@@ -349,8 +349,7 @@ def _prefetched(blocks, depth: int = 2):
         thread.join(timeout=5.0)
 
 
-def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None,
-            cache=None) -> Analysis:
+def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None, cache=None) -> Analysis:
     """Run the single streaming pass over ``path``.
 
     Parameters
@@ -514,7 +513,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             np.multiply(v, v, out=v)
             acc += v.sum(axis=1)
             n_seg += segs.shape[1]
-            carry = buf[:, segs.shape[1] * hop:]
+            carry = buf[:, segs.shape[1] * hop :]
         else:
             carry = buf
 
@@ -523,7 +522,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             if buf_f.shape[1] >= nfine:
                 done = fine_segments(buf_f)
                 n_seg_f += done
-                carry_f = buf_f[:, done * hop_f:]
+                carry_f = buf_f[:, done * hop_f :]
             else:
                 carry_f = buf_f
 
@@ -547,7 +546,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
                             kept = kept[::2]
                             stride *= 2
             frame_index += nfr
-        carry_s = buf_s[:, nfr * nshort:]
+        carry_s = buf_s[:, nfr * nshort :]
         if progress is not None:
             progress(frames, max(info.frames, frames))
 
@@ -561,15 +560,18 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     if frames < nshort or n_seg == 0:
         raise AudioFileError(
             f"{info.path}: {frames} frames is shorter than one analysis frame "
-            f"({max(nshort, nper)} frames at {fs} Hz); accepted: at least {max(nshort, nper) / fs * 1000:.0f} ms of audio")
+            f"({max(nshort, nper)} frames at {fs} Hz); accepted: at least {max(nshort, nper) / fs * 1000:.0f} ms of audio"
+        )
     if not np.any(peak > 0):
         raise AudioFileError(f"{info.path}: digital silence (every sample is 0); no program to measure")
     top = float(np.max(peak))
     if top > MAX_PEAK or not np.all(np.isfinite(acc)) or not np.all(np.isfinite(sumsq)):
         raise AudioFileError(_overflow_message(info.path, top))
     if top < MIN_PEAK or not np.any(sumsq > 0):
-        raise AudioFileError(f"{info.path}: peak {top:.3g} of full scale is below {MIN_PEAK:g} (-300 dBFS): "
-                             "silence for every purpose; no program to measure")
+        raise AudioFileError(
+            f"{info.path}: peak {top:.3g} of full scale is below {MIN_PEAK:g} (-300 dBFS): "
+            "silence for every purpose; no program to measure"
+        )
 
     psd_ch = acc * scale_psd / n_seg
     psd_ch[:, 1:-1] *= 2.0  # one-sided
@@ -584,14 +586,27 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         nfine = n_keep = 0
     df = fs / nper
     a = Analysis(
-        path=str(info.path), sha256=_digest_unchanged(digest, path, before), sample_rate_hz=fs, channels=nch,
-        frames=frames, nperseg=nper, freqs_hz=freqs, psd_channels=psd_ch, psd=psd_ch.mean(axis=0),
-        weights_hz=trapezoid_weights(freqs.size, df), peak=peak, mean_square=sumsq / frames,
-        dc=sums / frames, full_scale_samples=at_full_scale, band_edges_hz=edges,
-        band_frames=np.asarray(kept), frame_len=nshort, frame_stride=stride,
-        meta={"format": info.format, "subtype": info.subtype, "welch_segments": n_seg,
-              "fine_welch_segments": n_seg_f},
-        fine_nperseg=nfine, fine_freqs_hz=np.arange(n_keep) * fs / nfine if nfine else np.zeros(0),
+        path=str(info.path),
+        sha256=_digest_unchanged(digest, path, before),
+        sample_rate_hz=fs,
+        channels=nch,
+        frames=frames,
+        nperseg=nper,
+        freqs_hz=freqs,
+        psd_channels=psd_ch,
+        psd=psd_ch.mean(axis=0),
+        weights_hz=trapezoid_weights(freqs.size, df),
+        peak=peak,
+        mean_square=sumsq / frames,
+        dc=sums / frames,
+        full_scale_samples=at_full_scale,
+        band_edges_hz=edges,
+        band_frames=np.asarray(kept),
+        frame_len=nshort,
+        frame_stride=stride,
+        meta={"format": info.format, "subtype": info.subtype, "welch_segments": n_seg, "fine_welch_segments": n_seg_f},
+        fine_nperseg=nfine,
+        fine_freqs_hz=np.arange(n_keep) * fs / nfine if nfine else np.zeros(0),
         fine_psd=fine_psd,
     )
     if declared and 0 < frames < declared:
@@ -606,16 +621,22 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
 def _warn_truncated(path, frames: int, declared) -> None:
     if declared and 0 < frames < declared:
         # a truncated file: the header promises more than could be read
-        audio.warn(f"{path}: the header promises {declared} frames but only {frames} could be read "
-                   "(truncated file?); the readable part is used")
+        audio.warn(
+            f"{path}: the header promises {declared} frames but only {frames} could be read "
+            "(truncated file?); the readable part is used"
+        )
 
 
 def _warn_about(a: Analysis) -> None:
     if a.full_scale_samples >= 4:
-        audio.warn(f"{a.path}: {a.full_scale_samples} samples at digital full scale; the program may be "
-                   "clipped and nothing above full scale can be measured")
+        audio.warn(
+            f"{a.path}: {a.full_scale_samples} samples at digital full scale; the program may be "
+            "clipped and nothing above full scale can be measured"
+        )
     ms = float(np.mean(a.mean_square))
     dc_power = float(np.mean(a.dc**2))
     if ms > 0 and dc_power > 1e-4 * ms and np.max(np.abs(a.dc)) > 1e-4:
-        audio.warn(f"{a.path}: DC offset of {np.max(np.abs(a.dc)):.2g} FS; it counts as program, so a "
-                   "highpass will report it as loss")
+        audio.warn(
+            f"{a.path}: DC offset of {np.max(np.abs(a.dc)):.2g} FS; it counts as program, so a "
+            "highpass will report it as loss"
+        )

@@ -36,8 +36,10 @@ def time_estimate(n_cases: int) -> str:
     """One line: the case count and the expected scoring time, for a large grid."""
     t = n_cases * SECONDS_PER_CASE
     span = f"{t:.0f} s" if t < 120 else f"{t / 60:.1f} min"
-    return (f"{n_cases:,} cases to score: about {span} at {SECONDS_PER_CASE * 1e3:g} ms per case "
-            "(measured on the benchmark machine; a busy or slower machine takes longer)")
+    return (
+        f"{n_cases:,} cases to score: about {span} at {SECONDS_PER_CASE * 1e3:g} ms per case "
+        "(measured on the benchmark machine; a busy or slower machine takes longer)"
+    )
 
 
 @dataclass(frozen=True)
@@ -83,8 +85,10 @@ class Grid:
         n = self.count()
         if n > MAX_CASES:
             opt = "--cutoffs" if self.response != "bandpass" else "--low-edges/--high-edges"
-            raise ParameterError(f"{opt} with --family and --order: the grid holds {n:,} cases; accepted: at most "
-                                 f"{MAX_CASES:,} (a coarser grid, or fewer families or orders)")
+            raise ParameterError(
+                f"{opt} with --family and --order: the grid holds {n:,} cases; accepted: at most "
+                f"{MAX_CASES:,} (a coarser grid, or fewer families or orders)"
+            )
         if self.response == "bandpass":
             if not self.low_edges_hz or not self.high_edges_hz:
                 raise ParameterError("--low-edges/--high-edges: a bandpass sweep needs both grids")
@@ -92,7 +96,8 @@ class Grid:
             if not pairs:
                 raise ParameterError(
                     "--low-edges/--high-edges: no pair has its low edge below its high edge; "
-                    "accepted: grids with some LOW < HIGH")
+                    "accepted: grids with some LOW < HIGH"
+                )
         else:
             if not self.cutoffs_hz:
                 raise ParameterError(f"--cutoffs: a {self.response} sweep needs a cutoff grid, e.g. 2k:20k:40")
@@ -101,8 +106,9 @@ class Grid:
         for family in self.families:
             for order in self.orders:
                 for lo, hi in pairs:
-                    spec = FilterSpec(self.response, family, int(order), lo, hi, self.ripple_db,
-                                      self.stopband_db, stage, fs_hz)
+                    spec = FilterSpec(
+                        self.response, family, int(order), lo, hi, self.ripple_db, self.stopband_db, stage, fs_hz
+                    )
                     opt = "--cutoffs" if self.response != "bandpass" else "--low-edges/--high-edges"
                     validate_spec(spec, fs_hz=fs_hz, name=opt)
                     out.append(spec)
@@ -110,10 +116,16 @@ class Grid:
 
     def to_json(self) -> dict:
         return {
-            "response": self.response, "families": list(self.families), "orders": list(self.orders),
-            "cutoffs_hz": list(self.cutoffs_hz), "low_edges_hz": list(self.low_edges_hz),
-            "high_edges_hz": list(self.high_edges_hz), "ripple_db": self.ripple_db,
-            "stopband_db": self.stopband_db, "rank": self.rank, "tie": self.tie,
+            "response": self.response,
+            "families": list(self.families),
+            "orders": list(self.orders),
+            "cutoffs_hz": list(self.cutoffs_hz),
+            "low_edges_hz": list(self.low_edges_hz),
+            "high_edges_hz": list(self.high_edges_hz),
+            "ripple_db": self.ripple_db,
+            "stopband_db": self.stopband_db,
+            "rank": self.rank,
+            "tie": self.tie,
         }
 
 
@@ -128,8 +140,12 @@ def _round(x, sig: int = 7):
 
 #: A case row's keys (sweep.json order): identity, figures, verdict, further figures; from audiobw.registry.
 DATA_CASE_KEYS = registry.keys(3)
-CASE_KEYS = ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz",
-             "design_high_hz") + registry.keys(1) + ("passes", "fails", "margins_db") + registry.keys(2)
+CASE_KEYS = (
+    ("id", "response", "family", "order", "poles", "low_hz", "high_hz", "design_low_hz", "design_high_hz")
+    + registry.keys(1)
+    + ("passes", "fails", "margins_db")
+    + registry.keys(2)
+)
 
 
 @dataclass
@@ -157,26 +173,47 @@ class SweepResult:
             "tool": "audiobw",
             "version": __version__,
             "input": {
-                "path": _recorded_path(a.path), "sha256": a.sha256, "sample_rate_hz": a.sample_rate_hz,
-                "channels": a.channels, "duration_s": _round(a.duration_s),
-                "frames": a.frames, "peak_dbfs": _round(a.peak_dbfs), "rms_dbfs": _round(a.rms_dbfs),
-                "occupied_bw_hz": _round(hi_occ - lo_occ), "occupied_low_hz": _round(lo_occ),
+                "path": _recorded_path(a.path),
+                "sha256": a.sha256,
+                "sample_rate_hz": a.sample_rate_hz,
+                "channels": a.channels,
+                "duration_s": _round(a.duration_s),
+                "frames": a.frames,
+                "peak_dbfs": _round(a.peak_dbfs),
+                "rms_dbfs": _round(a.rms_dbfs),
+                "occupied_bw_hz": _round(hi_occ - lo_occ),
+                "occupied_low_hz": _round(lo_occ),
                 "occupied_high_hz": _round(hi_occ),
                 "occupied_basis": "power summed over channels" if a.channels > 1 else "the one channel",
                 "occupied_channels": [
-                    {"channel": i + 1, "occupied_bw_hz": _round(h - lo), "occupied_low_hz": _round(lo),
-                     "occupied_high_hz": _round(h)}
-                    for i, (lo, h) in enumerate(a.occupied_band_channels_hz())],
+                    {
+                        "channel": i + 1,
+                        "occupied_bw_hz": _round(h - lo),
+                        "occupied_low_hz": _round(lo),
+                        "occupied_high_hz": _round(h),
+                    }
+                    for i, (lo, h) in enumerate(a.occupied_band_channels_hz())
+                ],
             },
             "chain": self.chain.to_json(),
             "grid": self.grid.to_json(),
-            "meter": {"mode": self.meter.mode, "low_hz": m_lo, "high_hz": m_hi,
-                      "weighting": "none (snr_a_db: IEC 61672-1 A)",
-                      "tone_hz": self.meter.tone_hz, "tone_level_dbfs": self.meter.tone_level_dbfs},
-            "analysis": {"psd_segment": a.nperseg, "psd_resolution_hz": a.sample_rate_hz / a.nperseg,
-                         "welch_segments": a.meta.get("welch_segments"), "frame_len": a.frame_len,
-                         "frames_kept": int(a.band_frames.shape[0]), "frame_stride": a.frame_stride,
-                         "bands": len(a.band_edges_hz) - 1},
+            "meter": {
+                "mode": self.meter.mode,
+                "low_hz": m_lo,
+                "high_hz": m_hi,
+                "weighting": "none (snr_a_db: IEC 61672-1 A)",
+                "tone_hz": self.meter.tone_hz,
+                "tone_level_dbfs": self.meter.tone_level_dbfs,
+            },
+            "analysis": {
+                "psd_segment": a.nperseg,
+                "psd_resolution_hz": a.sample_rate_hz / a.nperseg,
+                "welch_segments": a.meta.get("welch_segments"),
+                "frame_len": a.frame_len,
+                "frames_kept": int(a.band_frames.shape[0]),
+                "frame_stride": a.frame_stride,
+                "bands": len(a.band_edges_hz) - 1,
+            },
             "targets": {k: v for k, v in self.targets.items() if v is not None},
             "cases": [{k: _round_any(case.get(k)) for k in self._case_keys()} for case in self.cases],
             "choice": self.choice,
@@ -199,14 +236,20 @@ class SweepResult:
             if not scored:
                 return None
             c = max(scored, key=lambda c: (c["q"], -c["bandwidth_hz"], -c["id"]))
-            return {"case": c["id"], "bandwidth_hz": _round(c["bandwidth_hz"]), "q": _round(c["q"]),
-                    "ber": _round(c["ber"])}
+            return {
+                "case": c["id"],
+                "bandwidth_hz": _round(c["bandwidth_hz"]),
+                "q": _round(c["q"]),
+                "ber": _round(c["ber"]),
+            }
+
         doc["q_optimal"] = best(self.cases)
         groups = {}
         for c in self.cases:
             groups.setdefault((c["family"], c["order"]), []).append(c)
         doc["q_optimal_by_design"] = [
-            {"family": fam, "order": order, **(best(cs) or {})} for (fam, order), cs in groups.items()]
+            {"family": fam, "order": order, **(best(cs) or {})} for (fam, order), cs in groups.items()
+        ]
         return doc
 
     def case(self, case_id: int) -> dict:
@@ -221,8 +264,16 @@ def _round_any(v):
     return v
 
 
-def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targets: dict,
-                data=None, perceptual=None, refused: list | None = None) -> list[dict]:
+def score_cases(
+    analysis: Analysis,
+    chain: Chain,
+    grid: Grid,
+    meter: Meter,
+    targets: dict,
+    data=None,
+    perceptual=None,
+    refused: list | None = None,
+) -> list[dict]:
     """Design and score every case of ``grid`` against one analysis.
 
     With ``data`` (a :class:`audiobw.datalink.DataProgram`) each row also
@@ -260,9 +311,16 @@ def score_cases(analysis: Analysis, chain: Chain, grid: Grid, meter: Meter, targ
     rows = []
     for i, spec in enumerate(specs, start=1):
         filt = design(spec)
-        row = {"id": i, "response": spec.response, "family": spec.family, "order": spec.order,
-               "poles": spec.poles, "design_low_hz": spec.low_hz, "design_high_hz": spec.high_hz}
-        shared: dict = {}   # this case's response, noise and delay search, for the other scorers
+        row = {
+            "id": i,
+            "response": spec.response,
+            "family": spec.family,
+            "order": spec.order,
+            "poles": spec.poles,
+            "design_low_hz": spec.low_hz,
+            "design_high_hz": spec.high_hz,
+        }
+        shared: dict = {}  # this case's response, noise and delay search, for the other scorers
         row.update(scorer.score(filt, shared))
         row["bandwidth_hz"] = filt.bandwidth_3db(analysis.nyquist_hz)
         row["headroom_db"] = headroom
@@ -330,8 +388,14 @@ def grid_limits(case: dict, cases: list[dict]) -> list[dict]:
             ends = [("highest", max(values))]
         for end, at in ends:
             if value == at:
-                out.append({"edge": edge, "end": end, "design_hz": _round(value),
-                            "extend": "below" if end == "lowest" else "above"})
+                out.append(
+                    {
+                        "edge": edge,
+                        "end": end,
+                        "design_hz": _round(value),
+                        "extend": "below" if end == "lowest" else "above",
+                    }
+                )
     return out
 
 
@@ -347,15 +411,22 @@ def _worst_margin(c: dict) -> float:
 def _wide_ends(case: dict, cases: list[dict], response: str) -> list[dict]:
     """A lowpass or highpass case at the wide end of its grid (for a case that fails)."""
     key, end = {"lowpass": ("design_high_hz", "highest"), "highpass": ("design_low_hz", "lowest")}.get(
-        response, (None, None))
+        response, (None, None)
+    )
     if key is None or case.get(key) is None:
         return []
     values = [c[key] for c in cases if c.get(key) is not None]
     at = max(values) if end == "highest" else min(values)
     if case[key] != at or len(set(values)) == 1:
         return []
-    return [{"edge": "high" if key == "design_high_hz" else "low", "end": end, "design_hz": _round(at),
-             "extend": "above" if end == "highest" else "below"}]
+    return [
+        {
+            "edge": "high" if key == "design_high_hz" else "low",
+            "end": end,
+            "design_hz": _round(at),
+            "extend": "above" if end == "highest" else "below",
+        }
+    ]
 
 
 def choose(cases: list[dict], targets: dict, rank: str = "enbw", tie: float = 0.01) -> tuple[dict | None, dict]:
@@ -372,12 +443,26 @@ def choose(cases: list[dict], targets: dict, rank: str = "enbw", tie: float = 0.
         key = "enbw_hz" if rank == "enbw" else "bandwidth_hz"
         lowest = min(c[key] for c in passing)
         tied = [c for c in passing if c[key] <= lowest * (1.0 + tie)]
-        best = min(tied, key=lambda c: (c["order"], FAMILY_GENTLENESS.get(c["family"], 3), c[key],
-                                        c["bandwidth_hz"], c["enbw_hz"], c["id"]))
+        best = min(
+            tied,
+            key=lambda c: (
+                c["order"],
+                FAMILY_GENTLENESS.get(c["family"], 3),
+                c[key],
+                c["bandwidth_hz"],
+                c["enbw_hz"],
+                c["id"],
+            ),
+        )
         margins = {k: v for k, v in best["margins_db"].items() if v is not None}
         binding = min(margins, key=lambda k: (margins[k], TARGET_KEYS.index(k))) if margins else None
-        narrower = [c for c in cases if c["family"] == best["family"] and c["order"] == best["order"]
-                    and c["bandwidth_hz"] < best["bandwidth_hz"]]
+        narrower = [
+            c
+            for c in cases
+            if c["family"] == best["family"]
+            and c["order"] == best["order"]
+            and c["bandwidth_hz"] < best["bandwidth_hz"]
+        ]
         next_narrower = max(narrower, key=lambda c: c["bandwidth_hz"]) if narrower else None
         limits = grid_limits(best, cases)
         return {
@@ -449,8 +534,11 @@ def conflicts(cases: list[dict], targets: dict) -> list[dict]:
             break
     out = []
     for subset in found:
-        entry: dict = {"targets": list(subset), "edge": None,
-                       "needs": {k: {"bound": None, "edge_hz": None} for k in subset}}
+        entry: dict = {
+            "targets": list(subset),
+            "edge": None,
+            "needs": {k: {"bound": None, "edge_hz": None} for k in subset},
+        }
         if len(subset) == 2:
             a, b = subset
             for edge in CONFLICT_EDGES:
@@ -459,11 +547,15 @@ def conflicts(cases: list[dict], targets: dict) -> list[dict]:
                 if ra is None or rb is None:
                     continue
                 if ra[1] < rb[0]:
-                    needs = {a: {"bound": "max", "edge_hz": _round(ra[1])},
-                             b: {"bound": "min", "edge_hz": _round(rb[0])}}
+                    needs = {
+                        a: {"bound": "max", "edge_hz": _round(ra[1])},
+                        b: {"bound": "min", "edge_hz": _round(rb[0])},
+                    }
                 elif rb[1] < ra[0]:
-                    needs = {a: {"bound": "min", "edge_hz": _round(ra[0])},
-                             b: {"bound": "max", "edge_hz": _round(rb[1])}}
+                    needs = {
+                        a: {"bound": "min", "edge_hz": _round(ra[0])},
+                        b: {"bound": "max", "edge_hz": _round(rb[1])},
+                    }
                 else:
                     continue
                 entry.update(edge=edge, needs=needs)
@@ -480,8 +572,18 @@ def _edge_range(cases: list[dict], key: str, edge: str):
     return min(vals), max(vals)
 
 
-def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, targets: dict | None = None,
-              progress=None, analysis: Analysis | None = None, data=None, listening=None) -> SweepResult:
+def run_sweep(
+    path,
+    *,
+    chain: Chain,
+    grid: Grid,
+    meter: Meter | None = None,
+    targets: dict | None = None,
+    progress=None,
+    analysis: Analysis | None = None,
+    data=None,
+    listening=None,
+) -> SweepResult:
     """Analyse ``path`` once and score every case of ``grid``.
 
     Parameters
@@ -513,44 +615,67 @@ def run_sweep(path, *, chain: Chain, grid: Grid, meter: Meter | None = None, tar
     if not targets:
         raise ParameterError(
             "targets: none given; accepted: at least one of --min-snr, --min-snr-a, --max-thdn, "
-            "--max-loss, --max-lsd, --min-ser")
+            "--max-loss, --max-lsd, --min-ser"
+        )
     if analysis is None:
         analysis = analyse(path, progress=progress)
     if data is None and any(k in targets for k in ("max_ber", "min_eye")):
         raise ParameterError("--max-ber/--min-eye: apply to data programs only; accepted: add --program data")
     if "min_alias_rejection_db" in targets and chain.stage != "analog":
-        raise ParameterError("--min-alias-rejection: applies to the analog stage only (a digital filter acts "
-                             "after the converter, once the images have folded); accepted: --stage analog")
+        raise ParameterError(
+            "--min-alias-rejection: applies to the analog stage only (a digital filter acts "
+            "after the converter, once the images have folded); accepted: --stage analog"
+        )
     perceptual_keys = {"max_nmr_db", "max_audible_frames_pct", "min_sii"}
     if listening is None and perceptual_keys & set(targets):
-        raise ParameterError("--max-nmr/--max-audible-frames/--min-sii: need playback conditions; "
-                             "accepted: a music or speech program (--program music|speech)")
+        raise ParameterError(
+            "--max-nmr/--max-audible-frames/--min-sii: need playback conditions; "
+            "accepted: a music or speech program (--program music|speech)"
+        )
     if "min_sii" in targets and getattr(listening, "program", None) != "speech":
         raise ParameterError("--min-sii: applies to speech programs only; accepted: add --program speech")
     pscorer = None
     if listening is not None:
         from .perceptual.scoring import PerceptualScorer
+
         pscorer = PerceptualScorer(analysis, chain, listening)
     refused: list[str] = []
     cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer, refused=refused)
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
     if refused:
-        notes.append(f"{len(refused)} of {len(refused) + len(cases)} cases left out: their noise has no bound under "
-                     f"--anti-alias none ({refused[0]}); give --amp-bandwidth HZ (the amplifier's bandwidth) or "
-                     "--anti-alias ideal to score them")
+        notes.append(
+            f"{len(refused)} of {len(refused) + len(cases)} cases left out: their noise has no bound under "
+            f"--anti-alias none ({refused[0]}); give --amp-bandwidth HZ (the amplifier's bandwidth) or "
+            "--anti-alias ideal to score them"
+        )
     if choice is None and cases:
         closest = max(cases, key=lambda c: (_worst_margin(c), -c["id"]))
         for lim in grid_limits(closest, cases) + _wide_ends(closest, cases, grid.response):
-            notes.append(f"no case passes; the closest (case {closest['id']}) has its {lim['edge']} edge at the "
-                         f"grid's {lim['end']} ({lim['design_hz']:g} Hz): extend {grid_option(grid.response, lim['edge'])} "
-                         f"{lim['extend']} {lim['design_hz']:g} Hz to see whether a case passes there")
+            notes.append(
+                f"no case passes; the closest (case {closest['id']}) has its {lim['edge']} edge at the "
+                f"grid's {lim['end']} ({lim['design_hz']:g} Hz): extend {grid_option(grid.response, lim['edge'])} "
+                f"{lim['extend']} {lim['design_hz']:g} Hz to see whether a case passes there"
+            )
     if chain.stage == "analog" and grid.response == "highpass" and chain.anti_alias == "ideal":
-        notes.append("analog highpass with --anti-alias ideal: its noise is stopped at fs/2 by the converter's "
-                     "anti-alias filter (with --anti-alias none, --amp-bandwidth bounds it instead)")
-    return SweepResult(analysis, chain, grid, meter, targets, cases, choice, unmet, notes, data,
-                       limits=pscorer.limits() if pscorer is not None else {},
-                       conflicts=conflicts(cases, targets) if choice is None else [])
+        notes.append(
+            "analog highpass with --anti-alias ideal: its noise is stopped at fs/2 by the converter's "
+            "anti-alias filter (with --anti-alias none, --amp-bandwidth bounds it instead)"
+        )
+    return SweepResult(
+        analysis,
+        chain,
+        grid,
+        meter,
+        targets,
+        cases,
+        choice,
+        unmet,
+        notes,
+        data,
+        limits=pscorer.limits() if pscorer is not None else {},
+        conflicts=conflicts(cases, targets) if choice is None else [],
+    )
 
 
 def _recorded_path(path) -> str:

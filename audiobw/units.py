@@ -114,9 +114,7 @@ def _from_db(ref: float) -> Callable[[float], float]:
 
 def _thdn_from_db(x: float) -> float:
     if x > 0:
-        raise _Refuse(
-            "is a positive dB figure (THD+N in dB is below the signal, so negative)"
-        )
+        raise _Refuse("is a positive dB figure (THD+N in dB is below the signal, so negative)")
     return 100.0 * 10.0 ** (x / 20.0)
 
 
@@ -180,8 +178,9 @@ def _check_percent(v: float) -> str | None:
     return None
 
 
-def _units(*spellings: str, convert: Callable[[float], float] | None = None,
-           prefix: bool = True, case_sensitive: bool = False) -> tuple[_Unit, ...]:
+def _units(
+    *spellings: str, convert: Callable[[float], float] | None = None, prefix: bool = True, case_sensitive: bool = False
+) -> tuple[_Unit, ...]:
     conv = convert if convert is not None else _linear()
     return tuple(_Unit(s, conv, prefix, case_sensitive) for s in spellings)
 
@@ -203,8 +202,7 @@ _KINDS: dict[str, _Kind] = {
         units=(
             *_units("", prefix=False),
             *_units("K", prefix=False, case_sensitive=True),
-            *_units("C", "°C", "degC", "\u2103",
-                    convert=lambda x: x + ZERO_CELSIUS_K, prefix=False),
+            *_units("C", "°C", "degC", "\u2103", convert=lambda x: x + ZERO_CELSIUS_K, prefix=False),
         ),
         check=_check_kelvin,
         limits=(0.0, 1000.0),
@@ -321,7 +319,7 @@ def _match_unit(suffix: str, units: tuple[_Unit, ...]) -> tuple[_Unit, int] | No
         n = len(unit.spelling)
         if n > len(suffix):
             continue
-        head, tail = suffix[: len(suffix) - n], suffix[len(suffix) - n:]
+        head, tail = suffix[: len(suffix) - n], suffix[len(suffix) - n :]
         same = tail == unit.spelling if unit.case_sensitive else tail.lower() == unit.spelling.lower()
         if not same:
             continue
@@ -392,7 +390,7 @@ def parse_quantity(value: str | int | float, kind: str, *, name: str) -> float:
         number = float(m.group())
         if not math.isfinite(number):
             raise _fail(name, value, "is not a finite number", spec.accepted)
-        suffix = re.sub(r"\s+", "", text[m.end():])
+        suffix = re.sub(r"\s+", "", text[m.end() :])
         found = _match_unit(suffix, spec.units)
         if found is None:
             if suffix == "":
@@ -430,8 +428,9 @@ def check_range(result: float, limits: tuple[float, float], *, name: str, value:
     lo, hi = limits
     if not (math.isfinite(result) and lo <= result <= hi):
         span = f"{lo:g} to {hi:g}" + (f" {unit}" if unit else "")
-        raise ParameterError(f"{name}: {value!r} is outside the physical range; accepted: {span}"
-                             + _prefix_hint(result, limits, value))
+        raise ParameterError(
+            f"{name}: {value!r} is outside the physical range; accepted: {span}" + _prefix_hint(result, limits, value)
+        )
 
 
 def _prefix_hint(result: float, limits: tuple[float, float], value: object) -> str:
@@ -439,8 +438,11 @@ def _prefix_hint(result: float, limits: tuple[float, float], value: object) -> s
     text = str(value).strip()
     if not (math.isfinite(result) and result > limits[1] and re.fullmatch(r"[0-9.eE+-]+", text)):
         return ""
-    fits = [text + p for p, f in (("m", 1e-3), ("u", 1e-6), ("n", 1e-9), ("p", 1e-12))
-            if limits[0] <= result * f <= limits[1]]
+    fits = [
+        text + p
+        for p, f in (("m", 1e-3), ("u", 1e-6), ("n", 1e-9), ("p", 1e-12))
+        if limits[0] <= result * f <= limits[1]
+    ]
     return f" (was an SI prefix left off: {', '.join(fits)}?)" if fits else ""
 
 
@@ -514,7 +516,9 @@ def parse_band(text: str | Sequence[object], *, name: str) -> tuple[float | None
             edges.append(parse_quantity(part, "frequency", name=name))  # type: ignore[arg-type]
         except ParameterError:
             raise _fail(
-                name, text, f"has a {side} edge {part!r} that is not a frequency from 0.001 Hz to 1e+09 Hz",
+                name,
+                text,
+                f"has a {side} edge {part!r} that is not a frequency from 0.001 Hz to 1e+09 Hz",
                 _BAND_ACCEPTED,
             ) from None
     low, high = edges
@@ -564,12 +568,14 @@ def parse_grid(text: str | float | Sequence[object], *, name: str) -> list[float
     -----
     START == STOP gives the single value START whatever COUNT is.
     """
+
     def one(item: object) -> float:
         try:
             return parse_quantity(item, "frequency", name=name)  # type: ignore[arg-type]
         except ParameterError:
-            raise _fail(name, text, f"holds {item!r}, which is not a frequency from 0.001 Hz to 1e+09 Hz",
-                        _GRID_ACCEPTED) from None
+            raise _fail(
+                name, text, f"holds {item!r}, which is not a frequency from 0.001 Hz to 1e+09 Hz", _GRID_ACCEPTED
+            ) from None
 
     if _is_number(text):
         values = [one(text)]
@@ -584,19 +590,16 @@ def parse_grid(text: str | float | Sequence[object], *, name: str) -> list[float
             start, stop = one(parts[0]), one(parts[1])
             count_text = parts[2].strip()
             if not _INT_RE.fullmatch(count_text):
-                raise _fail(name, text, f"has COUNT {parts[2]!r}, which is not a whole number",
-                            _GRID_ACCEPTED)
+                raise _fail(name, text, f"has COUNT {parts[2]!r}, which is not a whole number", _GRID_ACCEPTED)
             count = int(count_text)
             if not 1 <= count <= MAX_GRID_COUNT:
-                raise _fail(name, text, f"has COUNT {count}, outside 1 to {MAX_GRID_COUNT}",
-                            _GRID_ACCEPTED)
+                raise _fail(name, text, f"has COUNT {count}, outside 1 to {MAX_GRID_COUNT}", _GRID_ACCEPTED)
             if start > stop:
                 raise _fail(name, text, "has START above STOP", _GRID_ACCEPTED)
             if start == stop:
                 values = [start]
             elif count == 1:
-                raise _fail(name, text, "has COUNT 1 for a range (START < STOP needs 2 or more)",
-                            _GRID_ACCEPTED)
+                raise _fail(name, text, "has COUNT 1 for a range (START < STOP needs 2 or more)", _GRID_ACCEPTED)
             else:
                 grid = np.geomspace(start, stop, count)
                 grid[0], grid[-1] = start, stop

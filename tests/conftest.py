@@ -57,6 +57,7 @@ def tones(freqs, amps, fs, seconds, *, phase=0.0):
 def write_audio(tmp_path):
     def _w(name, data, fs, subtype="FLOAT"):
         return write(tmp_path / name, data, fs, subtype)
+
     return _w
 
 

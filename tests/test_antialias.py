@@ -33,13 +33,25 @@ from audiobw.metrics import Meter, Scorer
 from audiobw.noise import budget
 from audiobw.spectrum import analyse
 
-from .test_render_agreement import (M0, M1, MEASURE_S, POST_S, PRE_S, TOL, power, render, sine_fit_residual,
-                                    single_tone, thdn_measured)
+from .test_render_agreement import (
+    M0,
+    M1,
+    MEASURE_S,
+    POST_S,
+    PRE_S,
+    TOL,
+    power,
+    render,
+    sine_fit_residual,
+    single_tone,
+    thdn_measured,
+)
 
 FS = 48000.0
 EN = 10e-9  # V/√Hz: the only noise (gain 0 dB, ideal source, no current noise)
-NOISE_ONLY = Chain(source_ohms=0.0, gain_db=0.0, en_v_rthz=EN, in_a_rthz=0.0, bits=32, dither="none",
-                   full_scale_vrms=1.0)
+NOISE_ONLY = Chain(
+    source_ohms=0.0, gain_db=0.0, en_v_rthz=EN, in_a_rthz=0.0, bits=32, dither="none", full_scale_vrms=1.0
+)
 MODES = ("none", "ideal")
 
 
@@ -54,6 +66,7 @@ def analog_power(btype, order, fc_hz, amp_bw_hz=None):
         _, h = signal.freqs_zpk(z, p, k, worN=2 * np.pi * f)
         pole = 1.0 if amp_bw_hz is None else 1.0 / (1.0 + (f / amp_bw_hz) ** 2)
         return np.abs(h) ** 2 * pole
+
     return h2
 
 
@@ -68,6 +81,7 @@ def digital_power(order, fc_hz):
     def h2(f):
         _, h = signal.sosfreqz(sos, worN=np.atleast_1d(np.asarray(f, float)), fs=FS)
         return np.abs(h) ** 2
+
     return h2
 
 
@@ -90,12 +104,24 @@ def images_integral(pre, post, lo_hz, hi_hz, mode, *, images=1500, far=2_000_000
 
 CASES = {
     # name: (candidate spec, chain changes, pre-sampler |H|², post-sampler |H|²)
-    "analog lowpass": (FilterSpec("lowpass", "butterworth", 2, None, 20000.0), {},
-                       analog_power("lowpass", 2, 20000.0), lambda f: np.ones_like(f)),
-    "analog highpass": (FilterSpec("highpass", "butterworth", 2, 100.0, None), {"amp_bandwidth_hz": 60e3},
-                        analog_power("highpass", 2, 100.0, 60e3), lambda f: np.ones_like(f)),
-    "digital lowpass": (FilterSpec("lowpass", "butterworth", 4, None, 15000.0, stage="digital", fs_hz=FS),
-                        {"amp_bandwidth_hz": 60e3, "stage": "digital"}, one_pole(60e3), digital_power(4, 15000.0)),
+    "analog lowpass": (
+        FilterSpec("lowpass", "butterworth", 2, None, 20000.0),
+        {},
+        analog_power("lowpass", 2, 20000.0),
+        lambda f: np.ones_like(f),
+    ),
+    "analog highpass": (
+        FilterSpec("highpass", "butterworth", 2, 100.0, None),
+        {"amp_bandwidth_hz": 60e3},
+        analog_power("highpass", 2, 100.0, 60e3),
+        lambda f: np.ones_like(f),
+    ),
+    "digital lowpass": (
+        FilterSpec("lowpass", "butterworth", 4, None, 15000.0, stage="digital", fs_hz=FS),
+        {"amp_bandwidth_hz": 60e3, "stage": "digital"},
+        one_pole(60e3),
+        digital_power(4, 15000.0),
+    ),
 }
 
 
@@ -117,26 +143,41 @@ def test_the_two_models_differ_and_fold_the_whole_integral(case):
     than 0.5 dB: a test that ignored the mode would fail."""
     spec, changes, pre, post = CASES[case]
     filt = design(spec)
-    total = {m: budget(replace(NOISE_ONLY, anti_alias=m, **changes), filt, FS)["components"]
-             ["amplifier_voltage"]["vrms"] ** 2 / EN**2 for m in MODES}
+    total = {
+        m: budget(replace(NOISE_ONLY, anti_alias=m, **changes), filt, FS)["components"]["amplifier_voltage"]["vrms"]
+        ** 2
+        / EN**2
+        for m in MODES
+    }
     assert 10 * math.log10(total["none"] / total["ideal"]) > 0.5
     if filt.analog:
+
         def q(a, b):
             return integrate.quad(lambda f: float(pre(f)[0]), a, b, limit=400)[0]
+
         assert total["ideal"] == pytest.approx(q(0.0, FS / 2), rel=1e-4)
         assert total["none"] == pytest.approx(q(0.0, FS / 2) + q(FS / 2, np.inf), rel=1e-4)
 
 
-@pytest.mark.parametrize("spec,changes,what", [
-    (FilterSpec("highpass", "butterworth", 2, 100.0, None), {}, "analog butterworth order 2 highpass"),
-    (FilterSpec("lowpass", "elliptic", 4, None, 15000.0), {}, "analog elliptic order 4 lowpass"),
-    (FilterSpec("lowpass", "butterworth", 4, None, 15000.0, stage="digital", fs_hz=FS), {"stage": "digital"},
-     "digital stage"),
-])
+@pytest.mark.parametrize(
+    "spec,changes,what",
+    [
+        (FilterSpec("highpass", "butterworth", 2, 100.0, None), {}, "analog butterworth order 2 highpass"),
+        (FilterSpec("lowpass", "elliptic", 4, None, 15000.0), {}, "analog elliptic order 4 lowpass"),
+        (
+            FilterSpec("lowpass", "butterworth", 4, None, 15000.0, stage="digital", fs_hz=FS),
+            {"stage": "digital"},
+            "digital stage",
+        ),
+    ],
+)
 def test_unbounded_noise_is_refused(spec, changes, what):
     chain = replace(NOISE_ONLY, **changes)
-    with pytest.raises(ParameterError, match=r"--anti-alias none: .*" + what + r".*--amp-bandwidth HZ.*"
-                                             r"--anti-alias ideal"):
+    with pytest.raises(
+        ParameterError,
+        match=r"--anti-alias none: .*" + what + r".*--amp-bandwidth HZ.*"
+        r"--anti-alias ideal",
+    ):
         budget(chain, design(spec), FS)
     # either remedy bounds it
     assert budget(replace(chain, anti_alias="ideal"), design(spec), FS)["total"]["vrms"] > 0
@@ -188,8 +229,17 @@ def any_program(tmp_path_factory):
 @pytest.mark.parametrize("mode", MODES)
 @pytest.mark.parametrize("stage", ["analog", "digital"])
 def test_thdn_folds_harmonics_per_the_model(any_program, stage, mode):
-    chain = Chain(source_ohms=0.0, en_v_rthz=0.0, in_a_rthz=0.0, bits=32, dither="none", h2_db=H2, h3_db=H3,
-                  stage=stage, anti_alias=mode)
+    chain = Chain(
+        source_ohms=0.0,
+        en_v_rthz=0.0,
+        in_a_rthz=0.0,
+        bits=32,
+        dither="none",
+        h2_db=H2,
+        h3_db=H3,
+        stage=stage,
+        anti_alias=mode,
+    )
     filt = design(FilterSpec("lowpass", "butterworth", 8, None, 20000.0, stage=stage, fs_hz=FS))
     got = Scorer(any_program, chain, Meter(tone_hz=TONE_HZ)).score(filt)["thdn_pct"]
     want = thdn_reference(stage, mode)
@@ -229,8 +279,14 @@ def test_render_noise_agrees_with_the_sweep(tmp_path, case, mode):
 @pytest.mark.parametrize("stage", ["analog", "digital"])
 def test_render_thdn_agrees_with_the_sweep_above_fs_over_2(tmp_path, stage, mode):
     spec = FilterSpec("lowpass", "butterworth", 8, None, 20000.0, 0.1, 60.0, stage, FS)
-    chain = replace(RENDER_CHAIN, h2_db=H2, h3_db=H3, stage=stage, anti_alias=mode,
-                    amp_bandwidth_hz=200e3 if stage == "digital" else None)
+    chain = replace(
+        RENDER_CHAIN,
+        h2_db=H2,
+        h3_db=H3,
+        stage=stage,
+        anti_alias=mode,
+        amp_bandwidth_hz=200e3 if stage == "digital" else None,
+    )
     x = single_tone(PRE_S + MEASURE_S + POST_S, TONE_HZ, -1.0)
     y = render(tmp_path, "t", x, spec, chain, 77)
     got = thdn_measured(y[:, 0], TONE_HZ)
@@ -247,11 +303,14 @@ def program_file(tmp_path_factory):
     return path
 
 
-@pytest.mark.parametrize("args,what", [
-    (["--response", "highpass", "--cutoffs", "100"], "analog butterworth order 4 highpass"),
-    (["--stage", "digital", "--cutoffs", "10k"], "digital stage"),
-    (["--family", "elliptic", "--order", "2", "--cutoffs", "10k"], "analog elliptic order 2 lowpass"),
-])
+@pytest.mark.parametrize(
+    "args,what",
+    [
+        (["--response", "highpass", "--cutoffs", "100"], "analog butterworth order 4 highpass"),
+        (["--stage", "digital", "--cutoffs", "10k"], "digital stage"),
+        (["--family", "elliptic", "--order", "2", "--cutoffs", "10k"], "analog elliptic order 2 lowpass"),
+    ],
+)
 def test_cli_refuses_unbounded_noise_in_one_line(program_file, tmp_path, capsys, args, what):
     code = main(["sweep", str(program_file), "--min-snr", "10", "--out", str(tmp_path / "o"), *args])
     err = capsys.readouterr().err
@@ -266,8 +325,22 @@ def test_a_mixed_grid_leaves_out_only_the_unbounded_cases(program_file, tmp_path
     # elliptic 2 (|H(∞)| = −60 dB) has no bound under --anti-alias none; elliptic 3 and the
     # Butterworths do: 2 of 8 cases are left out with a note, the other 6 are scored
     out = tmp_path / "o"
-    code = main(["sweep", str(program_file), "--family", "butterworth,elliptic", "--order", "2,3",
-                 "--cutoffs", "8k,16k", "--min-snr", "10", "--out", str(out)])
+    code = main(
+        [
+            "sweep",
+            str(program_file),
+            "--family",
+            "butterworth,elliptic",
+            "--order",
+            "2,3",
+            "--cutoffs",
+            "8k,16k",
+            "--min-snr",
+            "10",
+            "--out",
+            str(out),
+        ]
+    )
     text = capsys.readouterr().out
     assert code == 0
     doc = json.loads((out / "sweep.json").read_text())
@@ -280,8 +353,9 @@ def test_a_mixed_grid_leaves_out_only_the_unbounded_cases(program_file, tmp_path
 
 
 def test_cli_refuses_a_bad_anti_alias_value(program_file, tmp_path, capsys):
-    code = main(["sweep", str(program_file), "--min-snr", "10", "--anti-alias", "brickwall",
-                 "--out", str(tmp_path / "o")])
+    code = main(
+        ["sweep", str(program_file), "--min-snr", "10", "--anti-alias", "brickwall", "--out", str(tmp_path / "o")]
+    )
     err = capsys.readouterr().err
     assert code == 2 and "--anti-alias" in err and "'brickwall'" in err and "none, ideal" in err
     assert "Traceback" not in err
@@ -290,8 +364,18 @@ def test_cli_refuses_a_bad_anti_alias_value(program_file, tmp_path, capsys):
 @pytest.mark.parametrize("how", ["option", "toml", "amp_bandwidth"])
 def test_cli_records_the_model_in_sweep_json_and_the_verdict(program_file, tmp_path, capsys, how):
     out = tmp_path / "o"
-    args = ["sweep", str(program_file), "--response", "highpass", "--cutoffs", "50:200:3", "--min-snr", "10",
-            "--out", str(out)]
+    args = [
+        "sweep",
+        str(program_file),
+        "--response",
+        "highpass",
+        "--cutoffs",
+        "50:200:3",
+        "--min-snr",
+        "10",
+        "--out",
+        str(out),
+    ]
     if how == "option":
         args += ["--anti-alias", "ideal"]
     elif how == "toml":
@@ -313,8 +397,10 @@ def test_cli_records_the_model_in_sweep_json_and_the_verdict(program_file, tmp_p
 def test_the_default_keeps_folding_on_the_analog_stage(program_file, tmp_path, capsys):
     """The default is 'none': an analog lowpass candidate is the converter's only anti-alias filter."""
     out = tmp_path / "o"
-    assert main(["sweep", str(program_file), "--cutoffs", "20k", "--order", "2", "--min-snr", "10",
-                 "--out", str(out)]) == 0
+    assert (
+        main(["sweep", str(program_file), "--cutoffs", "20k", "--order", "2", "--min-snr", "10", "--out", str(out)])
+        == 0
+    )
     text = capsys.readouterr().out
     doc = json.loads((out / "sweep.json").read_text(encoding="utf-8"))
     assert doc["chain"]["anti_alias"] == "none"

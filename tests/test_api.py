@@ -25,8 +25,20 @@ def test_import_is_lazy():
 
 
 def test_public_names_resolve():
-    for name in ("Study", "Chain", "Grid", "Targets", "Meter", "Listening", "Program", "sweep", "render",
-                 "write_report", "run_batch", "SweepResult"):
+    for name in (
+        "Study",
+        "Chain",
+        "Grid",
+        "Targets",
+        "Meter",
+        "Listening",
+        "Program",
+        "sweep",
+        "render",
+        "write_report",
+        "run_batch",
+        "SweepResult",
+    ):
         assert getattr(audiobw, name) is not None
     with pytest.raises(AttributeError):
         audiobw.NoSuchThing  # noqa: B018
@@ -34,8 +46,10 @@ def test_public_names_resolve():
 
 def test_render_stays_callable_once_its_package_is_imported():
     # importing the package audiobw.render sets the attribute audiobw.render: it must still render
-    code = ("import audiobw, audiobw.render as pkg; from audiobw.render import render_file; "
-            "print(audiobw.render is pkg, callable(audiobw.render), callable(render_file))")
+    code = (
+        "import audiobw, audiobw.render as pkg; from audiobw.render import render_file; "
+        "print(audiobw.render is pkg, callable(audiobw.render), callable(render_file))"
+    )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=REPO)
     assert out.stdout.split() == ["True", "True", "True"]
 
@@ -95,15 +109,35 @@ def prog(write_audio, rng):
 
 def test_library_sweep_writes_what_the_cli_writes(prog, tmp_path, capsys):
     cli_out, lib_out = tmp_path / "cli", tmp_path / "lib"
-    code = main(["sweep", str(prog), "--out", str(cli_out), "--family", "butterworth,bessel", "--order", "2,4",
-                 "--cutoffs", "2k:20k:12", "--max-loss", "0.2", "--min-snr-a", "80", "--source-ohms", "600",
-                 "--gain", "20"])
+    code = main(
+        [
+            "sweep",
+            str(prog),
+            "--out",
+            str(cli_out),
+            "--family",
+            "butterworth,bessel",
+            "--order",
+            "2,4",
+            "--cutoffs",
+            "2k:20k:12",
+            "--max-loss",
+            "0.2",
+            "--min-snr-a",
+            "80",
+            "--source-ohms",
+            "600",
+            "--gain",
+            "20",
+        ]
+    )
     capsys.readouterr()
     assert code == 0
     study = audiobw.Study(
         chain=audiobw.Chain(source_ohms=600.0, gain_db=20.0),
         grid=audiobw.Grid.lowpass(2000, 20000, 12, families=("butterworth", "bessel"), orders=(2, 4)),
-        targets=audiobw.Targets(max_loss_db=0.2, min_snr_a_db=80))
+        targets=audiobw.Targets(max_loss_db=0.2, min_snr_a_db=80),
+    )
     result = audiobw.sweep(prog, study, out_dir=lib_out)
     for name in ("sweep.json", "sweep.csv"):
         assert (lib_out / name).read_bytes() == (cli_out / name).read_bytes(), name
@@ -125,8 +159,10 @@ def test_library_sweep_writes_what_the_cli_writes(prog, tmp_path, capsys):
 def test_render_renders_on_every_call(prog, tmp_path):
     # the first call imports the package audiobw.render, which replaces the package attribute:
     # the second call goes through the package and must render the same folders
-    study = audiobw.Study(grid=audiobw.Grid.lowpass(2000, 20000, 6, families=("butterworth",), orders=(4,)),
-                          targets=audiobw.Targets(max_loss_db=0.2))
+    study = audiobw.Study(
+        grid=audiobw.Grid.lowpass(2000, 20000, 6, families=("butterworth",), orders=(4,)),
+        targets=audiobw.Targets(max_loss_db=0.2),
+    )
     result = audiobw.sweep(prog, study)
     first = audiobw.render(result, prog, tmp_path / "a", study=study)
     second = audiobw.render(result, prog, tmp_path / "b", study=study)

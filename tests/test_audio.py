@@ -44,11 +44,20 @@ def test_sample_rates_8k_to_384k(tmp_path, fs):
     assert a.freqs_hz[np.argmax(a.psd)] == pytest.approx(f0, abs=fs / a.nperseg)
 
 
-@pytest.mark.parametrize("fmt,subtype,tol_db", [
-    ("WAV", "PCM_U8", 0.5), ("WAV", "PCM_16", 0.01), ("WAV", "PCM_24", 0.001), ("WAV", "PCM_32", 0.001),
-    ("WAV", "FLOAT", 0.001), ("WAV", "DOUBLE", 0.001), ("FLAC", "PCM_16", 0.01), ("FLAC", "PCM_24", 0.001),
-    ("OGG", "VORBIS", 0.2),
-])
+@pytest.mark.parametrize(
+    "fmt,subtype,tol_db",
+    [
+        ("WAV", "PCM_U8", 0.5),
+        ("WAV", "PCM_16", 0.01),
+        ("WAV", "PCM_24", 0.001),
+        ("WAV", "PCM_32", 0.001),
+        ("WAV", "FLOAT", 0.001),
+        ("WAV", "DOUBLE", 0.001),
+        ("FLAC", "PCM_16", 0.01),
+        ("FLAC", "PCM_24", 0.001),
+        ("OGG", "VORBIS", 0.2),
+    ],
+)
 def test_integer_and_float_subtypes(tmp_path, fmt, subtype, tol_db):
     fs = 48000
     x = tones([1000.0], [0.5], fs, 1.0)[:, None]
@@ -110,6 +119,7 @@ def test_disk_full_is_a_clear_error_and_leaves_no_file(tmp_path, monkeypatch):
 
     def full(*a, **k):
         raise OSError(errno.ENOSPC, "No space left on device")
+
     monkeypatch.setattr(audio_mod.os, "fsync", full)
     with pytest.raises(OutputError, match="x.txt: cannot write \\(No space left on device\\)"):
         write_text_atomic(tmp_path / "x.txt", "x" * 1000)
@@ -134,6 +144,6 @@ def test_integer_pcm_skips_the_finite_scan_float_keeps_it(tmp_path, monkeypatch)
     monkeypatch.setattr(np, "isfinite", lambda a, *k, **kw: calls.append(1) or real(a, *k, **kw))
     blocks = list(audio.iter_blocks(pcm))
     assert calls == [] and sum(len(b) for b in blocks) == 4000
-    assert np.max(np.abs(np.concatenate(blocks)[:, 0] - x)) < 2.0 ** -22  # 24-bit quantisation
+    assert np.max(np.abs(np.concatenate(blocks)[:, 0] - x)) < 2.0**-22  # 24-bit quantisation
     with pytest.raises(AudioFileError, match="frame 1234"):
         list(audio.iter_blocks(flt))

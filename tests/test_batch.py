@@ -58,6 +58,7 @@ def corpus3(tmp_path):
 
 # -- coverage arithmetic ------------------------------------------------------
 
+
 def test_coverage_known_by_construction(corpus3, tmp_path):
     lib, amps = corpus3
     res = batch.run_batch([lib], settings(), tmp_path / "c95", coverage=0.95, workers=0)
@@ -76,8 +77,9 @@ def test_coverage_known_by_construction(corpus3, tmp_path):
     assert [f["path"].rsplit("/", 1)[1] for f in doc85["failing"]] == ["take02.wav", "take01.wav", "take00.wav"]
     for f in doc85["failing"]:
         a, b = amps[int(f["path"][-6:-4])]
-        loss = 10 * math.log10((a * a + b * b) / (a * a * butter_power(500, 700, 8)
-                                                  + b * b * butter_power(1800, 700, 8)))
+        loss = 10 * math.log10(
+            (a * a + b * b) / (a * a * butter_power(500, 700, 8) + b * b * butter_power(1800, 700, 8))
+        )
         assert f["binding"] == "max_loss_db"
         assert f["margin_db"] == pytest.approx(0.5 - loss, abs=0.03)
 
@@ -111,6 +113,7 @@ def test_no_case_reaches_coverage(corpus3, tmp_path):
 
 # -- local pool and dask cluster ------------------------------------------------
 
+
 def mixed_corpus(root: Path) -> Path:
     """8 kHz and 16 kHz files in nested folders, and one that is not audio."""
     rng = np.random.default_rng(7)
@@ -118,8 +121,12 @@ def mixed_corpus(root: Path) -> Path:
     (lib / "deep").mkdir(parents=True)
     for i in range(4):
         fs = 16000 if i % 2 else 8000
-        write(lib / f"p{i}.flac" if i % 2 else lib / "deep" / f"p{i}.wav",
-              0.1 * rng.standard_normal(fs) + tones([400.0], [0.2], fs, 1.0), fs, "PCM_24")
+        write(
+            lib / f"p{i}.flac" if i % 2 else lib / "deep" / f"p{i}.wav",
+            0.1 * rng.standard_normal(fs) + tones([400.0], [0.2], fs, 1.0),
+            fs,
+            "PCM_24",
+        )
     (lib / "broken.wav").write_bytes(b"RIFF not really")
     return lib
 
@@ -132,8 +139,9 @@ def test_local_pool_and_dask_cluster_give_identical_corpus(tmp_path):
     s = settings(cutoffs="1000,2400,3000", min_snr="40")
     pool = batch.run_batch([lib], s, tmp_path / "pool", coverage=0.75, workers=2)
     # processes=False keeps the workers in this process (no __main__ guard needed), over real TCP
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False, host="127.0.0.1",
-                                  protocol="tcp", dashboard_address=None) as cluster:
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=False, host="127.0.0.1", protocol="tcp", dashboard_address=None
+    ) as cluster:
         assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
         dask_run = batch.run_batch([lib], s, tmp_path / "dask", coverage=0.75, cluster=cluster.scheduler_address)
     a = (tmp_path / "pool" / "corpus.json").read_bytes()
@@ -141,14 +149,20 @@ def test_local_pool_and_dask_cluster_give_identical_corpus(tmp_path):
     assert (tmp_path / "pool" / "corpus.csv").read_bytes() == (tmp_path / "dask" / "corpus.csv").read_bytes()
     doc = pool.doc
     assert doc == dask_run.doc
-    assert doc["counts"] == {"inputs": 5, "swept": 4, "failed": 1, "skipped": 0,
-                             "sample_rates_hz": {"8000": 2, "16000": 2}}
+    assert doc["counts"] == {
+        "inputs": 5,
+        "swept": 4,
+        "failed": 1,
+        "skipped": 0,
+        "sample_rates_hz": {"8000": 2, "16000": 2},
+    }
     assert [f["path"].rsplit("/", 1)[1] for f in doc["failed"]] == ["broken.wav"]
     assert "not a readable audio file" in doc["failed"][0]["reason"]
     # every per-file sweep.json is the one `sweep` writes, byte for byte
     for f in doc["files"]:
         ref, _ = jobs.sweep_file(os.path.abspath(f["path"]), s)
         from audiobw.report.sweepio import dumps
+
         assert (tmp_path / "pool" / f["sweep"]).read_text() == dumps(ref)
         assert (tmp_path / "dask" / f["sweep"]).read_text() == dumps(ref)
     schema = json.loads((REPO / "docs" / "corpus.schema.json").read_text())
@@ -162,8 +176,9 @@ def test_local_pool_and_dask_cluster_give_identical_corpus(tmp_path):
 def test_low_rate_file_fails_on_the_grid_not_the_run(tmp_path):
     write(tmp_path / "a.wav", tones([300.0], [0.3], 8000, 1.0), 8000)
     write(tmp_path / "b.wav", tones([300.0], [0.3], 16000, 1.0), 16000)
-    doc = batch.run_batch([tmp_path / "a.wav", tmp_path / "b.wav"], settings(cutoffs="1000,4500"),
-                          tmp_path / "out", workers=0).doc
+    doc = batch.run_batch(
+        [tmp_path / "a.wav", tmp_path / "b.wav"], settings(cutoffs="1000,4500"), tmp_path / "out", workers=0
+    ).doc
     assert [f["path"].rsplit("/", 1)[1] for f in doc["failed"]] == ["a.wav"]
     assert "--cutoffs" in doc["failed"][0]["reason"] and "4500" in doc["failed"][0]["reason"]
     # the file that cannot take the grid counts as not passing (issue 13): 1 of 2 files, so no case
@@ -174,13 +189,19 @@ def test_low_rate_file_fails_on_the_grid_not_the_run(tmp_path):
     # the failed line names the file, as the sweep's own refusal would, whatever the reason says
     (failed,) = [ln for ln in text.splitlines() if ln.startswith("Failed:")]
     assert failed.startswith("Failed: ") and "a.wav: --cutoffs:" in failed
-    half = batch.run_batch([tmp_path / "a.wav", tmp_path / "b.wav"], settings(cutoffs="1000,4500"),
-                           tmp_path / "out", workers=0, coverage=0.5).doc
+    half = batch.run_batch(
+        [tmp_path / "a.wav", tmp_path / "b.wav"],
+        settings(cutoffs="1000,4500"),
+        tmp_path / "out",
+        workers=0,
+        coverage=0.5,
+    ).doc
     assert half["choice"]["pass_share"] == 0.5
     assert any(f["path"].endswith("a.wav") and f["note"].startswith("could not be swept") for f in half["failing"])
 
 
 # -- interrupt and resume --------------------------------------------------------
+
 
 def test_interrupt_then_resume_recomputes_nothing_finished(corpus3, tmp_path, monkeypatch):
     lib, _ = corpus3
@@ -203,7 +224,9 @@ def test_interrupt_then_resume_recomputes_nothing_finished(corpus3, tmp_path, mo
     mtimes = {p: p.stat().st_mtime_ns for p in cached}
 
     calls.clear()
-    monkeypatch.setattr(jobs, "sweep_file", lambda path, settings, **kw: (calls.append(path), real(path, settings, **kw))[1])
+    monkeypatch.setattr(
+        jobs, "sweep_file", lambda path, settings, **kw: (calls.append(path), real(path, settings, **kw))[1]
+    )
     res = batch.run_batch([lib], s, out, coverage=0.9, workers=0)
     assert len(calls) == 15 and res.cached == 5 and res.computed == 15
     assert {p: p.stat().st_mtime_ns for p in cached} == mtimes
@@ -217,13 +240,31 @@ def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path, monkeypatch):
     rng = np.random.default_rng(11)
     for i in range(12):
         write(lib / f"n{i:02d}.wav", 0.05 * rng.standard_normal(32000), 16000)
-    args = [str(lib), "--anti-alias", "ideal", "--cutoffs", "1k:7k:12", "--family", "butterworth,chebyshev1,elliptic",
-            "--order", "4,8", "--max-loss", "0.5", "--coverage", "90%"]
+    args = [
+        str(lib),
+        "--anti-alias",
+        "ideal",
+        "--cutoffs",
+        "1k:7k:12",
+        "--family",
+        "butterworth,chebyshev1,elliptic",
+        "--order",
+        "4,8",
+        "--max-loss",
+        "0.5",
+        "--coverage",
+        "90%",
+    ]
     env = {**os.environ, "PYTHONPATH": str(REPO)}
     out = tmp_path / "run"
-    proc = subprocess.Popen([sys.executable, "-m", "audiobw", "batch", *args, "--out", str(out), "--workers", "1"],
-                            cwd=tmp_path, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                            start_new_session=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "audiobw", "batch", *args, "--out", str(out), "--workers", "1"],
+        cwd=tmp_path,
+        env=env,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+        start_new_session=True,
+    )
     deadline = time.monotonic() + 60
     while time.monotonic() < deadline and len(list((out / "cache").glob("*.json"))) < 3 and proc.poll() is None:
         time.sleep(0.005)
@@ -232,14 +273,27 @@ def test_killed_cli_run_resumes_to_the_same_corpus(tmp_path, monkeypatch):
     before = {p: p.stat().st_mtime_ns for p in (out / "cache").glob("*.json")}
     assert 3 <= len(before) < 12 and not (out / "corpus.json").exists()
 
-    r = subprocess.run([sys.executable, "-m", "audiobw", "batch", *args, "--out", str(out), "--workers", "1"],
-                       cwd=tmp_path, env=env, capture_output=True, text=True)
+    r = subprocess.run(
+        [sys.executable, "-m", "audiobw", "batch", *args, "--out", str(out), "--workers", "1"],
+        cwd=tmp_path,
+        env=env,
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     assert f"took {len(before)} from the cache" in r.stdout
     assert {p: p.stat().st_mtime_ns for p in before} == before
     assert len(list((out / "cache").glob("*.json"))) == 12
-    s = settings_from({"anti_alias": "ideal", "cutoffs": "1k:7k:12", "family": "butterworth,chebyshev1,elliptic",
-                       "order": "4,8", "max_loss": "0.5"}, None)
+    s = settings_from(
+        {
+            "anti_alias": "ideal",
+            "cutoffs": "1k:7k:12",
+            "family": "butterworth,chebyshev1,elliptic",
+            "order": "4,8",
+            "max_loss": "0.5",
+        },
+        None,
+    )
     monkeypatch.chdir(tmp_path)  # recorded paths are relative to the working folder (audio.canonical_path)
     batch.run_batch([str(lib)], s, tmp_path / "clean", coverage=0.9, workers=0)
     assert (out / "corpus.json").read_bytes() == (tmp_path / "clean" / "corpus.json").read_bytes()
@@ -260,6 +314,7 @@ def test_changed_file_is_swept_again(corpus3, tmp_path):
 
 # -- inputs --------------------------------------------------------------------------
 
+
 def test_inputs_folders_globs_links(tmp_path):
     root = tmp_path / "tree"
     (root / "a" / "b").mkdir(parents=True)
@@ -271,10 +326,10 @@ def test_inputs_folders_globs_links(tmp_path):
     outside = tmp_path / "elsewhere"
     outside.mkdir()
     write(outside / "far.wav", tones([300.0], [0.1], 8000, 0.2), 8000)
-    (root / "a" / "b" / "loop").symlink_to(root)                       # a loop back to the top
-    (root / "far").symlink_to(outside)                                 # a folder out of the tree
-    (root / "farfile.wav").symlink_to(outside / "far.wav")             # a file out of the tree
-    (root / "alias.wav").symlink_to(root / "a" / "one.wav")            # a file inside the tree
+    (root / "a" / "b" / "loop").symlink_to(root)  # a loop back to the top
+    (root / "far").symlink_to(outside)  # a folder out of the tree
+    (root / "farfile.wav").symlink_to(outside / "far.wav")  # a file out of the tree
+    (root / "alias.wav").symlink_to(root / "a" / "one.wav")  # a file inside the tree
 
     got = batch.collect_inputs([root])
     rel = [Path(i.path).relative_to(root).as_posix() for i in got.items]
@@ -303,6 +358,7 @@ def test_unreadable_file_is_listed_and_the_run_goes_on(tmp_path):
 
 # -- command line ----------------------------------------------------------------------
 
+
 def run_cli(argv, capsys):
     from audiobw.cli import main
 
@@ -313,23 +369,47 @@ def run_cli(argv, capsys):
 
 def test_cli_summary_and_outputs(corpus3, tmp_path, capsys):
     lib, _ = corpus3
-    code, out, err = run_cli(["batch", str(lib), "--out", str(tmp_path / "c"), "--workers", "0",
-                              "--coverage", "85%", "--cutoffs", "700,1000,1400,2400,3000", "--order", "8",
-                              "--max-loss", "0.5"], capsys)
+    code, out, err = run_cli(
+        [
+            "batch",
+            str(lib),
+            "--out",
+            str(tmp_path / "c"),
+            "--workers",
+            "0",
+            "--coverage",
+            "85%",
+            "--cutoffs",
+            "700,1000,1400,2400,3000",
+            "--order",
+            "8",
+            "--max-loss",
+            "0.5",
+        ],
+        capsys,
+    )
     assert code == 0, err
-    assert "passes on 85.0 %" in out and "take02.wav: program loss, margin" in out and "max_loss_db" not in out and "verify them by measurement" in out
+    assert (
+        "passes on 85.0 %" in out
+        and "take02.wav: program loss, margin" in out
+        and "max_loss_db" not in out
+        and "verify them by measurement" in out
+    )
     assert err == ""  # stderr is not a terminal: no progress line
     rows = (tmp_path / "c" / "corpus.csv").read_text().splitlines()
     assert rows[0].split(",")[:3] == ["id", "response", "family"] and len(rows) == 6
 
 
-@pytest.mark.parametrize("argv, needle", [
-    (["--coverage", "150%"], "--coverage: '150%'"),
-    (["--coverage", "95"], "--coverage: '95'"),
-    (["--workers", "-1"], "--workers: -1"),
-    (["--cluster", "tcp://127.0.0.1:9", "--workers", "2"], "--workers: not used with --cluster"),
-    (["--cluster", "nonsense://x"], "--cluster: 'nonsense://x' is not a scheduler address"),
-])
+@pytest.mark.parametrize(
+    "argv, needle",
+    [
+        (["--coverage", "150%"], "--coverage: '150%'"),
+        (["--coverage", "95"], "--coverage: '95'"),
+        (["--workers", "-1"], "--workers: -1"),
+        (["--cluster", "tcp://127.0.0.1:9", "--workers", "2"], "--workers: not used with --cluster"),
+        (["--cluster", "nonsense://x"], "--cluster: 'nonsense://x' is not a scheduler address"),
+    ],
+)
 def test_cli_bad_options(corpus3, tmp_path, capsys, argv, needle):
     lib, _ = corpus3
     code, out, err = run_cli(["batch", str(lib), "--out", str(tmp_path / "c"), "--max-loss", "0.5", *argv], capsys)
@@ -342,8 +422,19 @@ def test_cli_missing_input_and_missing_distributed(tmp_path, capsys, monkeypatch
     assert code == 2 and "nope" in err and "no such file or folder" in err
     write(tmp_path / "a.wav", tones([300.0], [0.3], FS, 1.0), FS)
     monkeypatch.setitem(sys.modules, "distributed", None)  # as if the extra were not installed
-    code, _, err = run_cli(["batch", str(tmp_path / "a.wav"), "--out", str(tmp_path / "c"), "--max-loss", "0.5",
-                            "--cluster", "tcp://127.0.0.1:9"], capsys)
+    code, _, err = run_cli(
+        [
+            "batch",
+            str(tmp_path / "a.wav"),
+            "--out",
+            str(tmp_path / "c"),
+            "--max-loss",
+            "0.5",
+            "--cluster",
+            "tcp://127.0.0.1:9",
+        ],
+        capsys,
+    )
     assert code == 2 and "audiobw[cluster]" in err
 
 
@@ -367,8 +458,22 @@ def test_data_programs_carry_their_metrics(tmp_path, capsys):
     lib = tmp_path / "links"
     lib.mkdir()
     for pattern in ("prbs7", "prbs9"):
-        code, _, err = run_cli(["bits", "--bit-rate", "2k", "--pattern", pattern, "--bits-count", "1024",
-                                "--rate", "16k", "--out", str(lib / f"{pattern}.wav")], capsys)
+        code, _, err = run_cli(
+            [
+                "bits",
+                "--bit-rate",
+                "2k",
+                "--pattern",
+                pattern,
+                "--bits-count",
+                "1024",
+                "--rate",
+                "16k",
+                "--out",
+                str(lib / f"{pattern}.wav"),
+            ],
+            capsys,
+        )
         assert code == 0, err
     s = settings_from({"program": "data", "bit_rate": "2k", "cutoffs": "1k:6k:6", "min_eye": "0.5"}, None)
     doc = batch.run_batch([lib], s, tmp_path / "c", coverage=1.0, workers=0).doc
@@ -377,8 +482,7 @@ def test_data_programs_carry_their_metrics(tmp_path, capsys):
     for case in doc["cases"]:
         own = [next(c for c in sw["cases"] if c["design_high_hz"] == case["design_high_hz"]) for sw in sweeps]
         # two files: the corpus value is their median, i.e. their mean (statistics.median)
-        assert case["eye_fraction"] == pytest.approx((own[0]["eye_fraction"] + own[1]["eye_fraction"]) / 2,
-                                                     rel=1e-6)
+        assert case["eye_fraction"] == pytest.approx((own[0]["eye_fraction"] + own[1]["eye_fraction"]) / 2, rel=1e-6)
         assert case["pass_share"] == sum(c["passes"] for c in own) / 2
     chosen = doc["cases"][doc["choice"]["case"] - 1]
     assert chosen["target_pass_share"]["min_eye"] == 1.0
@@ -415,8 +519,23 @@ def test_batch_run_hashes_each_file_once(corpus3, tmp_path, capsys, monkeypatch)
     calls = []
     real = audio.sha256_file
     monkeypatch.setattr(audio, "sha256_file", lambda p, **kw: calls.append(os.path.basename(str(p))) or real(p, **kw))
-    code, out, err = run_cli(["batch", str(lib), "--out", str(tmp_path / "c"), "--workers", "0",
-                              "--cutoffs", "1000,3000", "--order", "2", "--max-loss", "0.5"], capsys)
+    code, out, err = run_cli(
+        [
+            "batch",
+            str(lib),
+            "--out",
+            str(tmp_path / "c"),
+            "--workers",
+            "0",
+            "--cutoffs",
+            "1000,3000",
+            "--order",
+            "2",
+            "--max-loss",
+            "0.5",
+        ],
+        capsys,
+    )
     assert code in (0, 3), err
     files = sorted(p.name for p in Path(lib).iterdir() if p.suffix in (".wav", ".flac"))
     assert sorted(calls) == files  # one SHA-256 per file, not two

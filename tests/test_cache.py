@@ -62,16 +62,38 @@ def entries(folder: Path) -> list[Path]:
 
 
 def same_analysis(a, b) -> None:
-    for name in ("freqs_hz", "psd_channels", "psd", "weights_hz", "peak", "mean_square", "dc",
-                 "band_edges_hz", "band_frames", "fine_freqs_hz", "fine_psd"):
+    for name in (
+        "freqs_hz",
+        "psd_channels",
+        "psd",
+        "weights_hz",
+        "peak",
+        "mean_square",
+        "dc",
+        "band_edges_hz",
+        "band_frames",
+        "fine_freqs_hz",
+        "fine_psd",
+    ):
         x, y = getattr(a, name), getattr(b, name)
         assert x.dtype == y.dtype and x.shape == y.shape and x.tobytes() == y.tobytes(), name
-    for name in ("sha256", "sample_rate_hz", "channels", "frames", "nperseg", "full_scale_samples",
-                 "frame_len", "frame_stride", "meta", "fine_nperseg"):
+    for name in (
+        "sha256",
+        "sample_rate_hz",
+        "channels",
+        "frames",
+        "nperseg",
+        "full_scale_samples",
+        "frame_len",
+        "frame_stride",
+        "meta",
+        "fine_nperseg",
+    ):
         assert getattr(a, name) == getattr(b, name), name
 
 
 # -- hits ---------------------------------------------------------------------
+
 
 def test_second_sweep_hits_and_matches_no_cache_byte_for_byte(take, tmp_path, folder, capsys):
     first = sweep(take, tmp_path / "a", capsys=capsys)
@@ -146,6 +168,7 @@ def test_warnings_of_the_pass_are_given_again_on_a_hit(tmp_path):
 
 # -- damaged and foreign entries ------------------------------------------------
 
+
 def _rewrite(entry: Path, **changes) -> None:
     """Rewrite an entry with some arrays changed and a matching checksum (passes the checksum test)."""
     with np.load(entry, allow_pickle=False) as z:
@@ -201,9 +224,11 @@ def _pickled(entry: Path) -> None:
         np.savez(fh, **data)
 
 
-@pytest.mark.parametrize("damage", [_truncate, _random_bytes, _wrong_shape, _wrong_dtype, _not_finite,
-                                    _flipped_value, _pickled],
-                         ids=lambda f: f.__name__.strip("_"))
+@pytest.mark.parametrize(
+    "damage",
+    [_truncate, _random_bytes, _wrong_shape, _wrong_dtype, _not_finite, _flipped_value, _pickled],
+    ids=lambda f: f.__name__.strip("_"),
+)
 def test_damaged_entry_is_refused_and_rebuilt(take, tmp_path, folder, damage, capsys):
     first = sweep(take, tmp_path / "a", capsys=capsys)
     (entry,) = entries(folder)
@@ -278,6 +303,7 @@ def test_random_npz_of_the_right_names_never_hits(tmp_path):
 
 # -- a changed file, the bound, an unwritable folder ---------------------------
 
+
 def test_changed_file_with_the_same_name_misses(take, tmp_path, folder, capsys):
     sweep(take, tmp_path / "a", capsys=capsys)
     write(take, program(9), FS, "PCM_24")  # same name, other content
@@ -323,8 +349,7 @@ def test_cache_folder_that_is_a_file_costs_one_warning_line(take, tmp_path, monk
     err = capsys.readouterr().err
     assert code == 0 and cache.STATS["write_failures"] == 1
     assert err.count("analysis cache") == 1 and "Traceback" not in err
-    assert (tmp_path / "a" / "sweep.json").read_bytes() == sweep(take, tmp_path / "b", "--no-cache",
-                                                                 capsys=capsys)
+    assert (tmp_path / "a" / "sweep.json").read_bytes() == sweep(take, tmp_path / "b", "--no-cache", capsys=capsys)
 
 
 @pytest.mark.skipif(hasattr(os, "geteuid") and os.geteuid() == 0, reason="root writes into read-only folders")
@@ -341,6 +366,7 @@ def test_read_only_cache_folder_does_not_break_the_sweep(take, tmp_path, folder,
 
 # -- batch ----------------------------------------------------------------------
 
+
 def test_batch_reuses_the_analysis_across_option_changes(tmp_path, folder):
     from audiobw.batch import run_batch
     from audiobw.clikit import settings_from
@@ -355,8 +381,9 @@ def test_batch_reuses_the_analysis_across_option_changes(tmp_path, folder):
     # other targets: the batch's own result cache misses, the analysis cache hits every file
     second = run_batch([str(lib)], settings_from({**grid, "max_loss": "0.1"}, None), tmp_path / "c2", workers=0)
     assert cache.STATS["hits"] == 3 and cache.STATS["writes"] == 3 and second.computed == 3
-    plain = run_batch([str(lib)], settings_from({**grid, "max_loss": "0.1"}, None), tmp_path / "c3", workers=0,
-                      use_cache=False)
+    plain = run_batch(
+        [str(lib)], settings_from({**grid, "max_loss": "0.1"}, None), tmp_path / "c3", workers=0, use_cache=False
+    )
     assert cache.STATS["hits"] == 3
     strip = ("created", "elapsed_s", "out")
     a = {k: v for k, v in second.doc.items() if k not in strip}
@@ -365,6 +392,7 @@ def test_batch_reuses_the_analysis_across_option_changes(tmp_path, folder):
 
 
 # -- where the folder is ---------------------------------------------------------
+
 
 def test_cache_folder_follows_xdg_and_the_override(monkeypatch, tmp_path):
     monkeypatch.delenv("AUDIOBW_CACHE_DIR")
@@ -383,6 +411,7 @@ def test_the_suite_does_not_write_to_the_home_cache():
 
 
 # -- the path index: an unchanged file is not hashed again ------------------------
+
 
 def test_unchanged_file_is_found_without_hashing(take, tmp_path, folder, capsys, monkeypatch):
     first = sweep(take, tmp_path / "a", capsys=capsys)
@@ -406,12 +435,16 @@ def test_touched_file_is_hashed_again_and_still_hits(take, tmp_path, folder, cap
     assert cache.STATS["index_hits"] == 1  # the new time stamp was recorded
 
 
-@pytest.mark.parametrize("damage", [
-    lambda rec: "not json {",
-    lambda rec: rec.replace('"sha256": "', '"sha256": "zz'),
-    lambda rec: rec.replace('"fingerprint": [', '"fingerprint": [1, '),
-    lambda rec: rec.replace('"format": "', '"format": "other/'),
-], ids=["garbage", "bad-digest", "other-fingerprint", "other-format"])
+@pytest.mark.parametrize(
+    "damage",
+    [
+        lambda rec: "not json {",
+        lambda rec: rec.replace('"sha256": "', '"sha256": "zz'),
+        lambda rec: rec.replace('"fingerprint": [', '"fingerprint": [1, '),
+        lambda rec: rec.replace('"format": "', '"format": "other/'),
+    ],
+    ids=["garbage", "bad-digest", "other-fingerprint", "other-format"],
+)
 def test_damaged_index_record_is_ignored(take, tmp_path, folder, capsys, damage):
     first = sweep(take, tmp_path / "a", capsys=capsys)
     (rec,) = folder.glob("path-*.json")

@@ -18,8 +18,9 @@ CLIP = str(REPO / "clips" / "announcement-44k1-mono.flac")
 
 def _sweep(tmp_path, name, *extra):
     out = tmp_path / name
-    assert main(["sweep", CLIP, "--cutoffs", "4k,8k", "--order", "4", "--max-loss", "1", "--out", str(out),
-                 *extra]) == 0
+    assert (
+        main(["sweep", CLIP, "--cutoffs", "4k,8k", "--order", "4", "--max-loss", "1", "--out", str(out), *extra]) == 0
+    )
     return json.loads((out / "sweep.json").read_text())
 
 
@@ -30,16 +31,17 @@ def test_gain_scales_program_and_source_noise_together(tmp_path):
     lo = _sweep(tmp_path, "g20", "--source-level", "-50dBu", "--gain", "20", "--source-ohms", "150")
     hi = _sweep(tmp_path, "g60", "--source-level", "-50dBu", "--gain", "60", "--source-ohms", "150")
     a, b = lo["cases"][0], hi["cases"][0]
-    assert abs(b["snr_db"] - a["snr_db"]) < 0.5          # the source and amplifier noise set it at both gains
-    assert b["snr_db"] >= a["snr_db"] - 1e-6             # more gain never worsens it (converter noise shrinks)
+    assert abs(b["snr_db"] - a["snr_db"]) < 0.5  # the source and amplifier noise set it at both gains
+    assert b["snr_db"] >= a["snr_db"] - 1e-6  # more gain never worsens it (converter noise shrinks)
     assert a["headroom_db"] - b["headroom_db"] == pytest.approx(40.0, abs=1e-3)
     # headroom: full-scale peak over the program's peak at the converter, from the program's own levels
     inp = lo["input"]
     program_at_converter_dbu = -50 + 20
     fs_dbu = 20 * math.log10(lo["chain"]["full_scale_vrms"] / math.sqrt(0.6))
     crest = inp["peak_dbfs"] - inp["rms_dbfs"] + 20 * math.log10(math.sqrt(2))  # peak over rms, dB
-    assert a["headroom_db"] == pytest.approx(fs_dbu + 20 * math.log10(math.sqrt(2)) - program_at_converter_dbu
-                                             - crest, abs=0.01)
+    assert a["headroom_db"] == pytest.approx(
+        fs_dbu + 20 * math.log10(math.sqrt(2)) - program_at_converter_dbu - crest, abs=0.01
+    )
 
 
 def test_headroom_target_fails_a_clipping_gain(tmp_path, capsys):
@@ -57,21 +59,31 @@ def test_spl_and_sensitivity_give_the_source_level():
     assert s2.source_vrms == pytest.approx(s.source_vrms, rel=1e-9)
 
 
-@pytest.mark.parametrize("raw,words", [
-    ({"input_level": Raw("-18dBFS", "--input-level"), "source_level": Raw("-50dBu", "--source-level")},
-     "--input-level: states the level at the converter"),
-    ({"spl": Raw("94", "--spl")}, "--spl: needs --mic-sensitivity"),
-    ({"mic_sensitivity": Raw("1V", "--mic-sensitivity"), "spl": Raw("94", "--spl"),
-      "source_level": Raw("1mV", "--source-level")}, "not both"),
-])
+@pytest.mark.parametrize(
+    "raw,words",
+    [
+        (
+            {"input_level": Raw("-18dBFS", "--input-level"), "source_level": Raw("-50dBu", "--source-level")},
+            "--input-level: states the level at the converter",
+        ),
+        ({"spl": Raw("94", "--spl")}, "--spl: needs --mic-sensitivity"),
+        (
+            {
+                "mic_sensitivity": Raw("1V", "--mic-sensitivity"),
+                "spl": Raw("94", "--spl"),
+                "source_level": Raw("1mV", "--source-level"),
+            },
+            "not both",
+        ),
+    ],
+)
 def test_conflicting_levels_are_refused(raw, words):
     with pytest.raises(ParameterError, match=words):
         build(raw)
 
 
 def test_cli_refuses_both_levels_in_one_line(tmp_path, capsys):
-    code = main(["sweep", CLIP, "--input-level", "-18dBFS", "--source-level", "-50dBu", "--out",
-                 str(tmp_path / "x")])
+    code = main(["sweep", CLIP, "--input-level", "-18dBFS", "--source-level", "-50dBu", "--out", str(tmp_path / "x")])
     err = capsys.readouterr().err
     assert code == 2 and "Traceback" not in err and len(err.strip().splitlines()) == 1
 

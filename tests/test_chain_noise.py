@@ -19,13 +19,16 @@ def test_boltzmann_is_the_exact_si_value():
     assert BOLTZMANN == 1.380649e-23
 
 
-@pytest.mark.parametrize("r,t,b,expected", [
-    # hand values of sqrt(4kTRB):
-    (1000.0, 300.0, 1.0, 4.0704e-9),      # "1 kΩ ≈ 4 nV/√Hz at room temperature" (common practice)
-    (1000.0, 290.0, 20000.0, 5.6596e-7),  # 4kT(290 K) = 1.6015e-20 J; ×1 kΩ×20 kHz = 3.203e-13 V²
-    (50.0, 290.0, 1e6, 8.9487e-7),        # 50 Ω in 1 MHz: 0.895 µV (common practice, RF front ends)
-    (600.0, 290.0, 20000.0, 4.3840e-7),
-])
+@pytest.mark.parametrize(
+    "r,t,b,expected",
+    [
+        # hand values of sqrt(4kTRB):
+        (1000.0, 300.0, 1.0, 4.0704e-9),  # "1 kΩ ≈ 4 nV/√Hz at room temperature" (common practice)
+        (1000.0, 290.0, 20000.0, 5.6596e-7),  # 4kT(290 K) = 1.6015e-20 J; ×1 kΩ×20 kHz = 3.203e-13 V²
+        (50.0, 290.0, 1e6, 8.9487e-7),  # 50 Ω in 1 MHz: 0.895 µV (common practice, RF front ends)
+        (600.0, 290.0, 20000.0, 4.3840e-7),
+    ],
+)
 def test_johnson_noise_hand_values(r, t, b, expected):
     assert johnson_noise_vrms(r, t, b) == pytest.approx(expected, rel=2e-4)
 
@@ -33,7 +36,8 @@ def test_johnson_noise_hand_values(r, t, b, expected):
 def test_input_noise_adds_in_power():
     c = Chain(source_ohms=600.0, temperature_k=290.0, gain_db=0.0, en_v_rthz=3e-9, in_a_rthz=0.5e-12)
     assert c.density_amplifier_v2_hz() == pytest.approx(
-        4 * BOLTZMANN * 290.0 * 600.0 + (3e-9) ** 2 + (0.5e-12 * 600.0) ** 2, rel=1e-12)
+        4 * BOLTZMANN * 290.0 * 600.0 + (3e-9) ** 2 + (0.5e-12 * 600.0) ** 2, rel=1e-12
+    )
     g40 = Chain(source_ohms=600.0, temperature_k=290.0, gain_db=40.0, en_v_rthz=3e-9, in_a_rthz=0.5e-12)
     assert g40.density_amplifier_v2_hz() == pytest.approx(1e4 * c.density_amplifier_v2_hz(), rel=1e-12)
 
@@ -122,19 +126,22 @@ def test_budget_shares_add_up():
     total = math.sqrt(sum(e["vrms"] ** 2 for e in b["components"].values()))
     assert b["total"]["vrms"] == pytest.approx(total, rel=1e-12)
     # source thermal: G²·4kTRs·ENBW by hand
-    hand = math.sqrt(10 ** 3 * 4 * BOLTZMANN * 290 * 600 * filt.power_integral_hz())
+    hand = math.sqrt(10**3 * 4 * BOLTZMANN * 290 * 600 * filt.power_integral_hz())
     assert b["components"]["source_thermal"]["vrms"] == pytest.approx(hand, rel=1e-4)
 
 
-@pytest.mark.parametrize("kw,match", [
-    (dict(source_ohms=-1.0), r"--source-ohms: -1.0 is out of range; accepted: a resistance >= 0 ohm"),
-    (dict(temperature_k=0.0), "--temperature: 0.0 is out of range"),
-    (dict(temperature_k=-5.0), "--temperature"),
-    (dict(bits=0), "--bits: 0 is out of range; accepted: an integer 1 to 32"),
-    (dict(full_scale_vrms=0.0), "--full-scale"),
-    (dict(h2_db=3.0), "--h2"),
-    (dict(dither="rect"), "--dither"),
-])
+@pytest.mark.parametrize(
+    "kw,match",
+    [
+        (dict(source_ohms=-1.0), r"--source-ohms: -1.0 is out of range; accepted: a resistance >= 0 ohm"),
+        (dict(temperature_k=0.0), "--temperature: 0.0 is out of range"),
+        (dict(temperature_k=-5.0), "--temperature"),
+        (dict(bits=0), "--bits: 0 is out of range; accepted: an integer 1 to 32"),
+        (dict(full_scale_vrms=0.0), "--full-scale"),
+        (dict(h2_db=3.0), "--h2"),
+        (dict(dither="rect"), "--dither"),
+    ],
+)
 def test_chain_refuses_bad_values(kw, match):
     with pytest.raises(ParameterError, match=match):
         Chain(**kw)

@@ -24,7 +24,8 @@ def test_noise_figure_formula(rs, en, i_n):
     # F = 1 + (e_n² + (i_n·R_s)²)/(4·k·T0·R_s), T0 = 290 K (IEEE definition of noise factor)
     f = 1 + (en**2 + (i_n * rs) ** 2) / (4 * K * 290.0 * rs)
     assert noise_figure_db(Chain(source_ohms=rs, en_v_rthz=en, in_a_rthz=i_n)) == pytest.approx(
-        10 * math.log10(f), abs=1e-9)
+        10 * math.log10(f), abs=1e-9
+    )
 
 
 def test_noise_figure_is_undefined_for_an_ideal_source():

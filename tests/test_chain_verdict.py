@@ -22,14 +22,33 @@ def test_data_sweep_with_an_underflowing_ber_prints_a_verdict(clean_link, capsys
     d, stream = clean_link
     out = d / "s"
     capsys.readouterr()
-    code = main(["sweep", str(stream), "--program", "data", "--bit-rate", "1200", "--max-ber", "1e-9",
-                 "--response", "lowpass", "--family", "butterworth", "--order", "4", "--cutoffs", "2k:8k:3",
-                 "--out", str(out)])
+    code = main(
+        [
+            "sweep",
+            str(stream),
+            "--program",
+            "data",
+            "--bit-rate",
+            "1200",
+            "--max-ber",
+            "1e-9",
+            "--response",
+            "lowpass",
+            "--family",
+            "butterworth",
+            "--order",
+            "4",
+            "--cutoffs",
+            "2k:8k:3",
+            "--out",
+            str(out),
+        ]
+    )
     text = capsys.readouterr().out
     assert code == 0, text
     doc = json.loads((out / "sweep.json").read_text())
     chosen = next(c for c in doc["cases"] if c["id"] == doc["choice"]["case"])
-    assert chosen["ber"] < 1e-300          # the premise: the Gaussian tail underflows
+    assert chosen["ber"] < 1e-300  # the premise: the Gaussian tail underflows
     assert "BER < 1e-300" in text
     assert "0.00e+00" not in text
     assert "margin beyond the double range" in text
@@ -50,9 +69,31 @@ def test_eye_target_prints_as_a_percentage(tmp_path, capsys):
     stream = tmp_path / "b.flac"
     assert main(["bits", "--bit-rate", "1200", "--bits-count", "1024", "--out", str(stream)]) == 0
     out = tmp_path / "s"
-    assert main(["sweep", str(stream), "--program", "data", "--bit-rate", "1200", "--min-eye", "0.5",
-                 "--response", "lowpass", "--family", "bessel", "--order", "4", "--cutoffs", "1k:8k:3",
-                 "--out", str(out)]) == 0
+    assert (
+        main(
+            [
+                "sweep",
+                str(stream),
+                "--program",
+                "data",
+                "--bit-rate",
+                "1200",
+                "--min-eye",
+                "0.5",
+                "--response",
+                "lowpass",
+                "--family",
+                "bessel",
+                "--order",
+                "4",
+                "--cutoffs",
+                "1k:8k:3",
+                "--out",
+                str(out),
+            ]
+        )
+        == 0
+    )
     assert main(["report", str(out)]) == 0
     md = (out / "spec.md").read_text()
     targets = md.split("### Targets")[1].split("###")[0]
@@ -75,8 +116,7 @@ def test_occupied_band_per_channel(tmp_path, capsys):
     right = 0.003 * rng.standard_normal(left.size)
     path = write(tmp_path / "st.wav", np.column_stack([left, right]), fs)
     out = tmp_path / "o"
-    assert main(["sweep", str(path), "--cutoffs", "4k,12k", "--order", "2", "--max-loss", "1",
-                 "--out", str(out)]) == 0
+    assert main(["sweep", str(path), "--cutoffs", "4k,12k", "--order", "2", "--max-loss", "1", "--out", str(out)]) == 0
     text = capsys.readouterr().out
     inp = json.loads((out / "sweep.json").read_text())["input"]
     assert inp["occupied_basis"] == "power summed over channels"

@@ -14,17 +14,28 @@ from audiobw.sweep import choose, conflicts
 
 
 def row(id, bw, *, enbw=None, order=4, family="butterworth", passes=True, margins=None, fails=(), **metrics):
-    return {"id": id, "family": family, "order": order, "bandwidth_hz": bw,
-            "enbw_hz": bw * 1.03 if enbw is None else enbw, "passes": passes,
-            "fails": list(fails), "margins_db": dict(margins or {"max_loss_db": 0.05}), **metrics}
+    return {
+        "id": id,
+        "family": family,
+        "order": order,
+        "bandwidth_hz": bw,
+        "enbw_hz": bw * 1.03 if enbw is None else enbw,
+        "passes": passes,
+        "fails": list(fails),
+        "margins_db": dict(margins or {"max_loss_db": 0.05}),
+        **metrics,
+    }
 
 
 TARGETS = {"max_loss_db": 0.1}
 
 
 def test_narrowest_passing_case_wins():
-    cases = [row(1, 20000.0), row(2, 8000.0), row(3, 4000.0, passes=False, fails=["max_loss_db"],
-                                                          margins={"max_loss_db": -0.2})]
+    cases = [
+        row(1, 20000.0),
+        row(2, 8000.0),
+        row(3, 4000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.2}),
+    ]
     choice, unmet = choose(cases, TARGETS)
     assert choice["case"] == 2 and unmet == {}
 
@@ -46,17 +57,19 @@ def test_full_tie_goes_to_the_earlier_case():
 
 def test_binding_target_is_the_least_margin():
     margins = {"max_loss_db": 0.4, "min_snr_a_db": 0.02, "max_lsd_db": 1.5}
-    choice, _ = choose([row(1, 8000.0, margins=margins)], {"max_loss_db": 0.1, "min_snr_a_db": 80,
-                                                           "max_lsd_db": 3})
+    choice, _ = choose([row(1, 8000.0, margins=margins)], {"max_loss_db": 0.1, "min_snr_a_db": 80, "max_lsd_db": 3})
     assert choice["binding"] == "min_snr_a_db"
     assert choice["binding_margin_db"] == 0.02
 
 
 def test_next_narrower_is_the_widest_narrower_case_of_the_same_design():
-    cases = [row(1, 16000.0), row(2, 8000.0),
-             row(3, 6000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.1}),
-             row(4, 4000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.5}),
-             row(5, 7000.0, order=2, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.2})]
+    cases = [
+        row(1, 16000.0),
+        row(2, 8000.0),
+        row(3, 6000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.1}),
+        row(4, 4000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.5}),
+        row(5, 7000.0, order=2, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.2}),
+    ]
     choice, _ = choose(cases, TARGETS)
     assert choice["case"] == 2
     assert choice["next_narrower"] == 3 and choice["next_narrower_fails"] == ["max_loss_db"]
@@ -69,8 +82,10 @@ def test_narrowest_of_the_grid_is_grid_limited():
 
 
 def test_no_passing_case_is_unmet_with_the_best_value_reached():
-    cases = [row(1, 16000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.3}, loss_db=0.4),
-             row(2, 8000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.9}, loss_db=1.0)]
+    cases = [
+        row(1, 16000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.3}, loss_db=0.4),
+        row(2, 8000.0, passes=False, fails=["max_loss_db"], margins={"max_loss_db": -0.9}, loss_db=1.0),
+    ]
     choice, unmet = choose(cases, TARGETS)
     assert choice is None
     assert unmet == {"max_loss_db": 0.4}
@@ -78,10 +93,26 @@ def test_no_passing_case_is_unmet_with_the_best_value_reached():
 
 def test_unmet_names_only_targets_no_case_meets_alone_with_the_sense_of_each():
     # case 1 fails only SNR; case 2 fails both: loss holds in case 1, so only SNR is unmet
-    cases = [row(1, 16000.0, passes=False, fails=["min_snr_db"], margins={"min_snr_db": -6.0, "max_loss_db": 0.1},
-                 snr_db=74.0, loss_db=0.0),
-             row(2, 8000.0, passes=False, fails=["min_snr_db", "max_loss_db"],
-                 margins={"min_snr_db": -1.0, "max_loss_db": -0.5}, snr_db=79.0, loss_db=0.6)]
+    cases = [
+        row(
+            1,
+            16000.0,
+            passes=False,
+            fails=["min_snr_db"],
+            margins={"min_snr_db": -6.0, "max_loss_db": 0.1},
+            snr_db=74.0,
+            loss_db=0.0,
+        ),
+        row(
+            2,
+            8000.0,
+            passes=False,
+            fails=["min_snr_db", "max_loss_db"],
+            margins={"min_snr_db": -1.0, "max_loss_db": -0.5},
+            snr_db=79.0,
+            loss_db=0.6,
+        ),
+    ]
     targets = {"min_snr_db": 80, "max_loss_db": 0.1}
     choice, unmet = choose(cases, targets)
     assert choice is None
@@ -90,51 +121,76 @@ def test_unmet_names_only_targets_no_case_meets_alone_with_the_sense_of_each():
 
 
 def lowpass(id, high, *, fails, family="butterworth", order=4):
-    return {**row(id, high, family=family, order=order, passes=not fails, fails=fails,
-                  margins={k: (-1.0 if k in fails else 1.0) for k in ("min_snr_a_db", "max_lsd_db")}),
-            "low_hz": None, "high_hz": high}
+    return {
+        **row(
+            id,
+            high,
+            family=family,
+            order=order,
+            passes=not fails,
+            fails=fails,
+            margins={k: (-1.0 if k in fails else 1.0) for k in ("min_snr_a_db", "max_lsd_db")},
+        ),
+        "low_hz": None,
+        "high_hz": high,
+    }
 
 
 #: a lowpass sweep where SNR-A holds up to 3 kHz and LSD from 20 kHz: each holds, never both
-SPLIT = [lowpass(1, 2000.0, fails=["max_lsd_db"]), lowpass(2, 3000.0, fails=["max_lsd_db"]),
-         lowpass(3, 8000.0, fails=["min_snr_a_db", "max_lsd_db"]),
-         lowpass(4, 20000.0, fails=["min_snr_a_db"]), lowpass(5, 22000.0, fails=["min_snr_a_db"])]
+SPLIT = [
+    lowpass(1, 2000.0, fails=["max_lsd_db"]),
+    lowpass(2, 3000.0, fails=["max_lsd_db"]),
+    lowpass(3, 8000.0, fails=["min_snr_a_db", "max_lsd_db"]),
+    lowpass(4, 20000.0, fails=["min_snr_a_db"]),
+    lowpass(5, 22000.0, fails=["min_snr_a_db"]),
+]
 SPLIT_TARGETS = {"min_snr_a_db": 75.0, "max_lsd_db": 1.0}
 
 
 def test_targets_that_each_hold_but_never_together_are_a_conflict_not_unmet():
     choice, unmet = choose(SPLIT, SPLIT_TARGETS)
     assert choice is None and unmet == {}
-    assert conflicts(SPLIT, SPLIT_TARGETS) == [{
-        "targets": ["min_snr_a_db", "max_lsd_db"], "edge": "high_hz",
-        "needs": {"min_snr_a_db": {"bound": "max", "edge_hz": 3000.0},
-                  "max_lsd_db": {"bound": "min", "edge_hz": 20000.0}}}]
+    assert conflicts(SPLIT, SPLIT_TARGETS) == [
+        {
+            "targets": ["min_snr_a_db", "max_lsd_db"],
+            "edge": "high_hz",
+            "needs": {
+                "min_snr_a_db": {"bound": "max", "edge_hz": 3000.0},
+                "max_lsd_db": {"bound": "min", "edge_hz": 20000.0},
+            },
+        }
+    ]
 
 
 def test_conflict_reads_as_the_edge_where_each_target_flips():
     (c,) = conflicts(SPLIT, SPLIT_TARGETS)
     assert conflict_text(c, SPLIT_TARGETS) == (
         "Conflict: A-weighted SNR ≥ 75 dB needs an upper −3 dB edge ≤ 3 kHz; "
-        "log-spectral distance ≤ 1 dB needs ≥ 20 kHz (each holds in some case, never both in one).")
+        "log-spectral distance ≤ 1 dB needs ≥ 20 kHz (each holds in some case, never both in one)."
+    )
 
 
 def test_highpass_conflict_parts_on_the_lower_edge_with_the_bounds_swapped():
     def hp(id, low, fails):
         return {**lowpass(id, 24000.0 - low, fails=fails), "low_hz": low, "high_hz": None}
-    cases = [hp(1, 20.0, ["min_snr_a_db"]), hp(2, 200.0, ["min_snr_a_db", "max_lsd_db"]),
-             hp(3, 400.0, ["max_lsd_db"])]
+
+    cases = [hp(1, 20.0, ["min_snr_a_db"]), hp(2, 200.0, ["min_snr_a_db", "max_lsd_db"]), hp(3, 400.0, ["max_lsd_db"])]
     (c,) = conflicts(cases, SPLIT_TARGETS)
     assert c["edge"] == "low_hz"
-    assert c["needs"] == {"min_snr_a_db": {"bound": "min", "edge_hz": 400.0},
-                          "max_lsd_db": {"bound": "max", "edge_hz": 20.0}}
+    assert c["needs"] == {
+        "min_snr_a_db": {"bound": "min", "edge_hz": 400.0},
+        "max_lsd_db": {"bound": "max", "edge_hz": 20.0},
+    }
 
 
 def test_a_conflict_with_overlapping_edges_parts_on_design_and_says_so():
     # SNR-A holds only in the Bessel sweep, LSD only in the elliptic one, at overlapping edges
-    cases = [lowpass(1, 4000.0, fails=["max_lsd_db"], family="bessel"),
-             lowpass(2, 9000.0, fails=["max_lsd_db"], family="bessel"),
-             lowpass(3, 5000.0, fails=["min_snr_a_db"], family="elliptic"),
-             lowpass(4, 8000.0, fails=["min_snr_a_db"], family="elliptic")]
+    cases = [
+        lowpass(1, 4000.0, fails=["max_lsd_db"], family="bessel"),
+        lowpass(2, 9000.0, fails=["max_lsd_db"], family="bessel"),
+        lowpass(3, 5000.0, fails=["min_snr_a_db"], family="elliptic"),
+        lowpass(4, 8000.0, fails=["min_snr_a_db"], family="elliptic"),
+    ]
     (c,) = conflicts(cases, SPLIT_TARGETS)
     assert c["edge"] is None and c["needs"]["max_lsd_db"] == {"bound": None, "edge_hz": None}
     assert "no single edge parts them" in conflict_text(c, SPLIT_TARGETS)
@@ -144,8 +200,19 @@ def test_unmet_and_conflict_together_and_a_met_pair_is_no_conflict():
     keys = ("min_snr_db", "max_loss_db", "max_lsd_db")
 
     def r(id, high, fails):
-        return {**row(id, high, passes=False, fails=fails, margins={k: (-1.0 if k in fails else 1.0) for k in keys},
-                      snr_db=70.0 + id), "low_hz": None, "high_hz": high}
+        return {
+            **row(
+                id,
+                high,
+                passes=False,
+                fails=fails,
+                margins={k: (-1.0 if k in fails else 1.0) for k in keys},
+                snr_db=70.0 + id,
+            ),
+            "low_hz": None,
+            "high_hz": high,
+        }
+
     # SNR never holds; loss and LSD hold together in case 2: unmet SNR only, no conflict
     cases = [r(1, 4000.0, ["min_snr_db", "max_loss_db"]), r(2, 16000.0, ["min_snr_db"])]
     targets = {"min_snr_db": 80.0, "max_loss_db": 0.1, "max_lsd_db": 1.0}
@@ -156,17 +223,22 @@ def test_unmet_and_conflict_together_and_a_met_pair_is_no_conflict():
     assert choose(cases, targets)[1] == {"min_snr_db": 72.0}
     (c,) = conflicts(cases, targets)
     assert c["targets"] == ["max_loss_db", "max_lsd_db"] and c["edge"] == "high_hz"
-    assert c["needs"] == {"max_loss_db": {"bound": "min", "edge_hz": 16000.0},
-                          "max_lsd_db": {"bound": "max", "edge_hz": 4000.0}}
+    assert c["needs"] == {
+        "max_loss_db": {"bound": "min", "edge_hz": 16000.0},
+        "max_lsd_db": {"bound": "max", "edge_hz": 4000.0},
+    }
 
 
 def test_three_targets_that_meet_in_pairs_but_never_all_three_are_one_conflict():
     keys = ("min_snr_db", "max_loss_db", "max_lsd_db")
 
     def r(id, fails):
-        return {**row(id, 1000.0 * id, passes=False, fails=fails,
-                      margins={k: (-1.0 if k in fails else 1.0) for k in keys}), "low_hz": None,
-                "high_hz": 1000.0 * id}
+        return {
+            **row(id, 1000.0 * id, passes=False, fails=fails, margins={k: (-1.0 if k in fails else 1.0) for k in keys}),
+            "low_hz": None,
+            "high_hz": 1000.0 * id,
+        }
+
     cases = [r(1, ["min_snr_db"]), r(2, ["max_loss_db"]), r(3, ["max_lsd_db"])]
     targets = dict.fromkeys(keys, 1.0)
     assert choose(cases, targets) == (None, {})
@@ -191,21 +263,42 @@ def test_end_to_end_sweep_of_a_bundled_clip_prints_the_conflict_not_cannot_be_me
     from .conftest import REPO
 
     out_dir = tmp_path / "run"
-    code = main(["sweep", str(REPO / "clips" / "ensemble-48k-stereo.flac"), "--cutoffs", "2k:22k:8",
-                 "--min-snr-a", "74", "--max-lsd", "1", "--out", str(out_dir)])
+    code = main(
+        [
+            "sweep",
+            str(REPO / "clips" / "ensemble-48k-stereo.flac"),
+            "--cutoffs",
+            "2k:22k:8",
+            "--min-snr-a",
+            "74",
+            "--max-lsd",
+            "1",
+            "--out",
+            str(out_dir),
+        ]
+    )
     out = capsys.readouterr().out
     assert code == 0  # a finished sweep, even with no passing case
     doc = json.loads((out_dir / "sweep.json").read_text(encoding="utf-8"))
-    jsonschema.Draft202012Validator(json.loads((REPO / "docs" / "sweep.schema.json").read_text(
-        encoding="utf-8"))).validate(doc)
+    jsonschema.Draft202012Validator(
+        json.loads((REPO / "docs" / "sweep.schema.json").read_text(encoding="utf-8"))
+    ).validate(doc)
     # each target holds alone somewhere (read from the metric values, not from the fails lists) ...
     snr_ok = [c["high_hz"] for c in doc["cases"] if c["snr_a_db"] >= 74]
     lsd_ok = [c["high_hz"] for c in doc["cases"] if c["lsd_db"] <= 1]
     assert snr_ok and lsd_ok and max(snr_ok) < min(lsd_ok)
     # ... so nothing is unmet, and the conflict names the edge where each flips
     assert doc["choice"] is None and doc["unmet"] == {}
-    assert doc["conflicts"] == [{"targets": ["min_snr_a_db", "max_lsd_db"], "edge": "high_hz", "needs": {
-        "min_snr_a_db": {"bound": "max", "edge_hz": max(snr_ok)}, "max_lsd_db": {"bound": "min", "edge_hz": min(lsd_ok)}}}]
+    assert doc["conflicts"] == [
+        {
+            "targets": ["min_snr_a_db", "max_lsd_db"],
+            "edge": "high_hz",
+            "needs": {
+                "min_snr_a_db": {"bound": "max", "edge_hz": max(snr_ok)},
+                "max_lsd_db": {"bound": "min", "edge_hz": min(lsd_ok)},
+            },
+        }
+    ]
     assert "Cannot be met" not in out
     (line,) = [ln for ln in out.splitlines() if ln.startswith("Conflict:")]
     assert line.startswith("Conflict: A-weighted SNR ≥ 74 dB needs an upper −3 dB edge ≤ 2.8")
@@ -216,8 +309,9 @@ def test_end_to_end_sweep_of_a_bundled_clip_prints_the_conflict_not_cannot_be_me
     capsys.readouterr()
     assert line.removeprefix("Conflict: ") in (out_dir / "spec.md").read_text(encoding="utf-8")
     spec = json.loads((out_dir / "spec.json").read_text(encoding="utf-8"))
-    jsonschema.Draft202012Validator(json.loads((REPO / "docs" / "spec.schema.json").read_text(
-        encoding="utf-8"))).validate(spec)
+    jsonschema.Draft202012Validator(
+        json.loads((REPO / "docs" / "spec.schema.json").read_text(encoding="utf-8"))
+    ).validate(spec)
     assert spec["unmet"] == [] and spec["conflicts"][0]["edge"] == "high_hz"
     # read back, a hand-edited conflict is refused with its JSON pointer (audiobw.report.validate)
     import pytest
@@ -247,16 +341,28 @@ def test_property_unmet_and_conflicts_explain_every_failed_sweep():
     keys = ("min_snr_db", "min_snr_a_db", "max_loss_db", "max_lsd_db")
 
     @settings(max_examples=200, deadline=None)
-    @given(st.lists(st.tuples(st.sets(st.sampled_from(keys)), st.integers(1, 40)), min_size=1, max_size=12),
-           st.integers(2, 4))
+    @given(
+        st.lists(st.tuples(st.sets(st.sampled_from(keys)), st.integers(1, 40)), min_size=1, max_size=12),
+        st.integers(2, 4),
+    )
     def check(table, n_targets):
         targets = dict.fromkeys(keys[:n_targets], 1.0)
         cases = []
         for i, (held, step) in enumerate(table, start=1):
             fails = [k for k in targets if k not in held]
-            cases.append({**row(i, 500.0 * step, passes=not fails, fails=fails,
-                                margins={k: (-1.0 if k in fails else 1.0) for k in targets}),
-                          "low_hz": None, "high_hz": 500.0 * step})
+            cases.append(
+                {
+                    **row(
+                        i,
+                        500.0 * step,
+                        passes=not fails,
+                        fails=fails,
+                        margins={k: (-1.0 if k in fails else 1.0) for k in targets},
+                    ),
+                    "low_hz": None,
+                    "high_hz": 500.0 * step,
+                }
+            )
         choice, unmet = choose(cases, targets)
         found = conflicts(cases, targets)
         if choice is not None:

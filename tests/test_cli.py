@@ -80,8 +80,23 @@ def test_no_target_met_reports_best_value(prog, tmp_path, capsys):
 
 
 def test_bandpass_grid(prog, tmp_path, capsys):
-    code, _, err = run(["sweep", prog, "--out", tmp_path / "bp", "--response", "bandpass", "--low-edges",
-                        "20:200:4", "--high-edges", "4k:20k:5", "--max-loss", "0.5"], capsys)
+    code, _, err = run(
+        [
+            "sweep",
+            prog,
+            "--out",
+            tmp_path / "bp",
+            "--response",
+            "bandpass",
+            "--low-edges",
+            "20:200:4",
+            "--high-edges",
+            "4k:20k:5",
+            "--max-loss",
+            "0.5",
+        ],
+        capsys,
+    )
     assert code == 0, err
     doc = json.loads((tmp_path / "bp" / "sweep.json").read_text())
     validate(doc)
@@ -91,9 +106,11 @@ def test_bandpass_grid(prog, tmp_path, capsys):
 
 def test_chain_file_and_override(prog, tmp_path, capsys):
     toml = tmp_path / "chain.toml"
-    toml.write_text('[source]\nsource_ohms = "2.2k"\ntemperature = "27C"\n[amplifier]\ngain = 30\n'
-                    'en = "3n"\n[converter]\nbits = 16\nfull_scale = "+4dBu"\n[grid]\nfamily = "bessel"\n'
-                    'order = [2, 4]\ncutoffs = "3k:18k:6"\n[targets]\nmax_loss = 0.3\n')
+    toml.write_text(
+        '[source]\nsource_ohms = "2.2k"\ntemperature = "27C"\n[amplifier]\ngain = 30\n'
+        'en = "3n"\n[converter]\nbits = 16\nfull_scale = "+4dBu"\n[grid]\nfamily = "bessel"\n'
+        'order = [2, 4]\ncutoffs = "3k:18k:6"\n[targets]\nmax_loss = 0.3\n'
+    )
     code, _, err = run(["sweep", prog, "--out", tmp_path / "c", "--chain", toml, "--gain", "20dB"], capsys)
     assert code == 0, err
     doc = json.loads((tmp_path / "c" / "sweep.json").read_text())
@@ -113,12 +130,43 @@ def test_input_level_rescales_the_program(prog, tmp_path, capsys):
 
 
 def test_noise_command_prints_the_budget(capsys):
-    code, out, err = run(["noise", "--source-ohms", "600", "--gain", "30", "--en", "3n", "--in", "0.5p",
-                          "--bits", "16", "--full-scale", "1.228", "--band", "20:20k", "--family",
-                          "butterworth", "--order", "4"], capsys)
+    code, out, err = run(
+        [
+            "noise",
+            "--source-ohms",
+            "600",
+            "--gain",
+            "30",
+            "--en",
+            "3n",
+            "--in",
+            "0.5p",
+            "--bits",
+            "16",
+            "--full-scale",
+            "1.228",
+            "--band",
+            "20:20k",
+            "--family",
+            "butterworth",
+            "--order",
+            "4",
+        ],
+        capsys,
+    )
     assert code == 0, err
-    for word in ("source thermal", "amplifier voltage", "amplifier current", "quantisation", "dither",
-                 "total", "ENBW", "Dynamic range", "dBu", "dBFS"):
+    for word in (
+        "source thermal",
+        "amplifier voltage",
+        "amplifier current",
+        "quantisation",
+        "dither",
+        "total",
+        "ENBW",
+        "Dynamic range",
+        "dBu",
+        "dBFS",
+    ):
         assert word in out
 
 
@@ -147,28 +195,31 @@ def test_noise_json_with_a_zero_contributor(capsys, zero):
     assert "none" in out and "−∞" not in out
 
 
-@pytest.mark.parametrize("args,needle", [
-    (["--gain", "40V"], "--gain"),
-    (["--source-ohms", "-5"], "--source-ohms"),
-    (["--temperature", "0K"], "--temperature"),
-    (["--bits", "0"], "--bits"),
-    (["--bits", "24.5"], "--bits"),
-    (["--full-scale", "-2V"], "--full-scale"),
-    (["--en", "fast"], "--en"),
-    (["--in", "1.5pV"], "--in"),
-    (["--max-thdn", "12"], "--max-thdn"),
-    (["--order", "0"], "--order"),
-    (["--order", "20"], "--order"),
-    (["--family", "gauss"], "--family"),
-    (["--response", "notch"], "--response"),
-    (["--cutoffs", "30k:40k:3"], "--cutoffs"),
-    (["--cutoffs", "20k:2k:5"], "--cutoffs"),
-    (["--dither", "rect"], "--dither"),
-    (["--stage", "middle"], "--stage"),
-    (["--meter", "wide"], "--meter"),
-    (["--ripple", "5"], "--ripple"),
-    (["--tone", "30k"], None),
-])
+@pytest.mark.parametrize(
+    "args,needle",
+    [
+        (["--gain", "40V"], "--gain"),
+        (["--source-ohms", "-5"], "--source-ohms"),
+        (["--temperature", "0K"], "--temperature"),
+        (["--bits", "0"], "--bits"),
+        (["--bits", "24.5"], "--bits"),
+        (["--full-scale", "-2V"], "--full-scale"),
+        (["--en", "fast"], "--en"),
+        (["--in", "1.5pV"], "--in"),
+        (["--max-thdn", "12"], "--max-thdn"),
+        (["--order", "0"], "--order"),
+        (["--order", "20"], "--order"),
+        (["--family", "gauss"], "--family"),
+        (["--response", "notch"], "--response"),
+        (["--cutoffs", "30k:40k:3"], "--cutoffs"),
+        (["--cutoffs", "20k:2k:5"], "--cutoffs"),
+        (["--dither", "rect"], "--dither"),
+        (["--stage", "middle"], "--stage"),
+        (["--meter", "wide"], "--meter"),
+        (["--ripple", "5"], "--ripple"),
+        (["--tone", "30k"], None),
+    ],
+)
 def test_bad_values_are_refused_in_one_line(prog, tmp_path, capsys, args, needle):
     base = ["sweep", prog, "--out", tmp_path / "x", "--max-loss", "0.2"]
     code, out, err = run(base + args, capsys)
@@ -187,8 +238,7 @@ def test_no_target_is_refused(prog, capsys):
 
 
 def test_music_without_fidelity_target_defaults_to_no_audible_error(prog, capsys, tmp_path):
-    code, out, err = run(["sweep", prog, "--cutoffs", "2k:20k:4", "--min-snr", "20", "--out", tmp_path / "o"],
-                         capsys)
+    code, out, err = run(["sweep", prog, "--cutoffs", "2k:20k:4", "--min-snr", "20", "--out", tmp_path / "o"], capsys)
     assert code == 0, err
     doc = json.loads((tmp_path / "o" / "sweep.json").read_text())
     assert doc["targets"]["max_audible_frames_pct"] == 1.0 and doc["targets"]["min_snr_db"] == 20.0
@@ -231,17 +281,23 @@ def test_input_is_never_overwritten(prog, tmp_path, capsys):
 
 def test_help_is_quick_and_no_heavy_imports():
     # `audiobw --help` must not import scipy, numpy's heavy users, librosa or matplotlib
-    code = ("import sys; from audiobw.cli import main; main(['--help']); "
-            "bad = [m for m in ('scipy', 'librosa', 'matplotlib', 'soundfile', 'dask') if m in sys.modules]; "
-            "print('HEAVY', bad)")
+    code = (
+        "import sys; from audiobw.cli import main; main(['--help']); "
+        "bad = [m for m in ('scipy', 'librosa', 'matplotlib', 'soundfile', 'dask') if m in sys.modules]; "
+        "print('HEAVY', bad)"
+    )
     r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=REPO)
     assert "HEAVY []" in r.stdout, r.stdout + r.stderr
     assert "sweep" in r.stdout and "noise" in r.stdout
 
 
 def test_no_traceback_from_the_console_script(tmp_path):
-    r = subprocess.run([sys.executable, "-m", "audiobw", "sweep", str(tmp_path / "x.wav"), "--gain", "loud"],
-                       capture_output=True, text=True, cwd=REPO)
+    r = subprocess.run(
+        [sys.executable, "-m", "audiobw", "sweep", str(tmp_path / "x.wav"), "--gain", "loud"],
+        capture_output=True,
+        text=True,
+        cwd=REPO,
+    )
     assert r.returncode == 2 and "Traceback" not in r.stderr and "--gain" in r.stderr
 
 

@@ -14,8 +14,9 @@ from audiobw.sweep import CASE_KEYS, DATA_CASE_KEYS
 from .conftest import REPO
 
 SCHEMA = json.loads((REPO / "docs" / "sweep.schema.json").read_text(encoding="utf-8"))
-DOCS = (REPO / "docs" / "metrics.md").read_text(encoding="utf-8") + (
-    REPO / "docs" / "sweep-json.md").read_text(encoding="utf-8")
+DOCS = (REPO / "docs" / "metrics.md").read_text(encoding="utf-8") + (REPO / "docs" / "sweep-json.md").read_text(
+    encoding="utf-8"
+)
 
 
 def test_every_target_option_maps_to_a_target_key():

@@ -9,8 +9,16 @@ from scipy import signal
 
 from audiobw.chain import Chain
 from audiobw.cli import main
-from audiobw.datalink import (DataProgram, ber_from_q, crossing_jitter_ui, eye_from_pulse, nrz_stream, prbs,
-                              pulse_response, recover_bit_rate)
+from audiobw.datalink import (
+    DataProgram,
+    ber_from_q,
+    crossing_jitter_ui,
+    eye_from_pulse,
+    nrz_stream,
+    prbs,
+    pulse_response,
+    recover_bit_rate,
+)
 from audiobw.errors import AudioFileError
 from audiobw.filters import FilterSpec, butterworth_enbw_ratio, design
 from audiobw.sweep import Grid, run_sweep
@@ -76,8 +84,10 @@ def _lsim_eye(filt, bit_rate, oversample=64, reps=3):
     return best
 
 
-@pytest.mark.parametrize("family,order,fc", [("butterworth", 4, 1200.0), ("bessel", 4, 900.0),
-                                             ("butterworth", 2, 1500.0), ("bessel", 6, 1400.0)])
+@pytest.mark.parametrize(
+    "family,order,fc",
+    [("butterworth", 4, 1200.0), ("bessel", 4, 900.0), ("butterworth", 2, 1500.0), ("bessel", 6, 1400.0)],
+)
 def test_eye_matches_a_time_domain_simulation(family, order, fc):
     filt = lowpass(fc, family, order)
     ours, _, _ = eye_from_pulse(pulse_response(filt, R))
@@ -104,10 +114,16 @@ def test_q_optimal_bandwidth_matches_brute_force(write_audio):
     fs = 48000
     x = nrz_stream(prbs("prbs7", 1024), R, fs, 1.0 / (math.sqrt(2) * 1.0))  # ±1 V with FS = 1 V rms
     path = write_audio("nrz.wav", x[:, None], fs)
-    chain = Chain(source_ohms=0.0, gain_db=0.0, en_v_rthz=40e-9, in_a_rthz=0.0, bits=32, dither="none",
-                  full_scale_vrms=1.0)
-    doc = run_sweep(path, chain=chain, grid=Grid("lowpass", ("butterworth",), (4,), tuple(cutoffs)),
-                    targets={"max_ber": 1e-9}, data=DataProgram(R, 1.0)).to_json()
+    chain = Chain(
+        source_ohms=0.0, gain_db=0.0, en_v_rthz=40e-9, in_a_rthz=0.0, bits=32, dither="none", full_scale_vrms=1.0
+    )
+    doc = run_sweep(
+        path,
+        chain=chain,
+        grid=Grid("lowpass", ("butterworth",), (4,), tuple(cutoffs)),
+        targets={"max_ber": 1e-9},
+        data=DataProgram(R, 1.0),
+    ).to_json()
     q_fast = [c["q"] for c in doc["cases"]]
     assert abs(int(np.argmax(q_fast)) - k_bf) <= 1
     assert doc["data"]["q_optimal"]["case"] == int(np.argmax(q_fast)) + 1
@@ -153,13 +169,59 @@ def test_bit_rate_recovery_refuses_noise(write_audio, rng):
 
 def test_cli_bits_and_data_sweep(tmp_path, capsys):
     link = tmp_path / "link.wav"
-    assert main(["bits", "--bit-rate", "2k", "--pattern", "prbs7", "--bits-count", "2048", "--amplitude",
-                 "10mV", "--full-scale", "50m", "--out", str(link)]) == 0
+    assert (
+        main(
+            [
+                "bits",
+                "--bit-rate",
+                "2k",
+                "--pattern",
+                "prbs7",
+                "--bits-count",
+                "2048",
+                "--amplitude",
+                "10mV",
+                "--full-scale",
+                "50m",
+                "--out",
+                str(link),
+            ]
+        )
+        == 0
+    )
     out = tmp_path / "o"
-    code = main(["sweep", str(link), "--program", "data", "--bit-rate", "auto", "--response", "lowpass",
-                 "--family", "bessel,butterworth", "--order", "2,4", "--cutoffs", "500:8k:10",
-                 "--source-ohms", "47k", "--gain", "20", "--en", "5n", "--full-scale", "50m",
-                 "--max-ber", "1e-9", "--min-eye", "0.6", "--out", str(out)])
+    code = main(
+        [
+            "sweep",
+            str(link),
+            "--program",
+            "data",
+            "--bit-rate",
+            "auto",
+            "--response",
+            "lowpass",
+            "--family",
+            "bessel,butterworth",
+            "--order",
+            "2,4",
+            "--cutoffs",
+            "500:8k:10",
+            "--source-ohms",
+            "47k",
+            "--gain",
+            "20",
+            "--en",
+            "5n",
+            "--full-scale",
+            "50m",
+            "--max-ber",
+            "1e-9",
+            "--min-eye",
+            "0.6",
+            "--out",
+            str(out),
+        ]
+    )
     text = capsys.readouterr().out
     assert code == 0, text
     doc = json.loads((out / "sweep.json").read_text())
@@ -208,16 +270,74 @@ def test_eye_diagram_png(tmp_path, write_audio):
 
 def test_render_of_a_data_case_writes_an_eye_diagram(tmp_path, capsys):
     link = tmp_path / "link.wav"
-    assert main(["bits", "--bit-rate", "2k", "--bits-count", "1024", "--amplitude", "10mV", "--full-scale",
-                 "50m", "--out", str(link)]) == 0
+    assert (
+        main(
+            [
+                "bits",
+                "--bit-rate",
+                "2k",
+                "--bits-count",
+                "1024",
+                "--amplitude",
+                "10mV",
+                "--full-scale",
+                "50m",
+                "--out",
+                str(link),
+            ]
+        )
+        == 0
+    )
     out = tmp_path / "sw"
-    code = main(["sweep", str(link), "--program", "data", "--bit-rate", "2k", "--family", "bessel", "--order",
-                 "2", "--cutoffs", "600:3k:4", "--full-scale", "50m", "--gain", "60", "--en", "30n",
-                 "--source-ohms", "10k", "--max-ber", "1e-9", "--render", "--out", str(out)])
+    code = main(
+        [
+            "sweep",
+            str(link),
+            "--program",
+            "data",
+            "--bit-rate",
+            "2k",
+            "--family",
+            "bessel",
+            "--order",
+            "2",
+            "--cutoffs",
+            "600:3k:4",
+            "--full-scale",
+            "50m",
+            "--gain",
+            "60",
+            "--en",
+            "30n",
+            "--source-ohms",
+            "10k",
+            "--max-ber",
+            "1e-9",
+            "--render",
+            "--out",
+            str(out),
+        ]
+    )
     assert code == 0, capsys.readouterr()
     assert (out / "render-chosen" / "eye.png").read_bytes()[:4] == b"\x89PNG"
-    code = main(["render", str(link), "--band", ":1k", "--family", "bessel", "--order", "4", "--full-scale",
-                 "50m", "--bit-rate", "auto", "--out", str(tmp_path / "r")])
+    code = main(
+        [
+            "render",
+            str(link),
+            "--band",
+            ":1k",
+            "--family",
+            "bessel",
+            "--order",
+            "4",
+            "--full-scale",
+            "50m",
+            "--bit-rate",
+            "auto",
+            "--out",
+            str(tmp_path / "r"),
+        ]
+    )
     assert code == 0 and (tmp_path / "r" / "eye.png").is_file()
 
 
@@ -242,8 +362,15 @@ def _lsim_average_ber(filt, bit_rate, sigma, oversample=64, reps=4):
     return best
 
 
-@pytest.mark.parametrize("family,order,fc,sigma", [("butterworth", 1, 300.0, 0.12), ("butterworth", 1, 500.0, 0.2),
-                                                   ("bessel", 4, 900.0, 0.15), ("butterworth", 4, 1200.0, 0.2)])
+@pytest.mark.parametrize(
+    "family,order,fc,sigma",
+    [
+        ("butterworth", 1, 300.0, 0.12),
+        ("butterworth", 1, 500.0, 0.2),
+        ("bessel", 4, 900.0, 0.15),
+        ("butterworth", 4, 1200.0, 0.2),
+    ],
+)
 def test_average_ber_matches_a_time_domain_simulation(family, order, fc, sigma):
     """`ber` is the error rate averaged over PRBS-7 at the best instant; `ber_worst` the
     peak-distortion bound.  Before, `ber` was the bound (an RC channel well below the bit

@@ -35,18 +35,19 @@ from scipy.special import erfc
 
 from audiobw.chain import Chain
 from audiobw.cli import main
-from audiobw.datalink import (DataProgram, data_program_for, nrz_stream, prbs, recorded_stream, score_data)
+from audiobw.datalink import DataProgram, data_program_for, nrz_stream, prbs, recorded_stream, score_data
 from audiobw.errors import AudioFileError
 from audiobw.filters import FilterSpec, design
 from audiobw.spectrum import analyse
 
 FS = 48000
 R = 1200.0
-SPB = int(FS / R)          # 40 samples per bit
-A = 0.25                   # NRZ amplitude, full-scale units
+SPB = int(FS / R)  # 40 samples per bit
+A = 0.25  # NRZ amplitude, full-scale units
 #: a chain whose sample unit is 1 V (full scale 1 V peak) and whose own noise is known below
-CHAIN = Chain(source_ohms=0.0, gain_db=0.0, en_v_rthz=0.0, in_a_rthz=0.0, bits=32, dither="none",
-              full_scale_vrms=1 / math.sqrt(2))
+CHAIN = Chain(
+    source_ohms=0.0, gain_db=0.0, en_v_rthz=0.0, in_a_rthz=0.0, bits=32, dither="none", full_scale_vrms=1 / math.sqrt(2)
+)
 N_BITS = 2000
 
 
@@ -90,8 +91,9 @@ def _reference(filt, bits, clean, noise, chain_sigma, amplitude):
     return best
 
 
-@pytest.mark.parametrize("family,order,fc", [("butterworth", 4, 1500.0), ("bessel", 4, 900.0),
-                                             ("butterworth", 2, 2500.0)])
+@pytest.mark.parametrize(
+    "family,order,fc", [("butterworth", 4, 1500.0), ("bessel", 4, 900.0), ("butterworth", 2, 2500.0)]
+)
 def test_prefiltered_noisy_stream_matches_a_time_domain_measurement(tmp_path, family, order, fc):
     sigma_w = 0.14  # white, over 0…24 kHz: the stream's own noise
     bits, clean, noise = _stream(sigma_w)
@@ -139,7 +141,7 @@ def test_negligible_isi_q_equals_the_two_levels_statistics(tmp_path):
     judged = np.arange(30, N_BITS - 10)
     ones = bits[judged] > 0
     best = 0.0
-    for lag in range(SPB // 2, SPB + SPB // 2):    # the bit centre after the filter's delay
+    for lag in range(SPB // 2, SPB + SPB // 2):  # the bit centre after the filter's delay
         s = y[judged * SPB + lag]
         s1 = math.hypot(float(np.std(s[ones])), chain_sigma)
         s0 = math.hypot(float(np.std(s[~ones])), chain_sigma)
@@ -147,16 +149,17 @@ def test_negligible_isi_q_equals_the_two_levels_statistics(tmp_path):
     assert row["q"] == pytest.approx(best, rel=0.03)
 
 
-@pytest.mark.parametrize("family,order,fc", [("butterworth", 4, 800.0), ("bessel", 2, 600.0),
-                                             ("butterworth", 4, 3000.0)])
+@pytest.mark.parametrize(
+    "family,order,fc", [("butterworth", 4, 800.0), ("bessel", 2, 600.0), ("butterworth", 4, 3000.0)]
+)
 def test_a_clean_stream_gives_the_ideal_figures(tmp_path, family, order, fc):
     bits, clean, _ = _stream(0.0, prefilter=False)
     prog, _ = _program(tmp_path, clean)
     assert prog.amplitude_v == pytest.approx(A, rel=1e-6)
     filt = design(FilterSpec("lowpass", family, order, None, fc))
-    chain_sigma = 0.04   # Q of a few: the error rates are in the double range and mean something
+    chain_sigma = 0.04  # Q of a few: the error rates are in the double range and mean something
     row = score_data(filt, prog, chain_sigma)
-    ideal = score_data(filt, DataProgram(R, A), chain_sigma)   # no stream: the ideal pulse alone
+    ideal = score_data(filt, DataProgram(R, A), chain_sigma)  # no stream: the ideal pulse alone
     assert ideal["eye_fraction"] == ideal["eye_ideal"]
     assert row["eye_ideal"] == ideal["eye_ideal"]
     # PRBS-9 holds every 9-bit pattern: the measured worst case is the peak-distortion bound
@@ -191,8 +194,10 @@ def test_render_and_sweep_eye_agree(tmp_path, capsys):
     gain = 10 ** (quiet.gain_db / 20)
     judged = np.arange(30, N_BITS - 10)
     ones = bits[judged] > 0
-    eye = max((y[judged * SPB + lag][ones].min() - y[judged * SPB + lag][~ones].max()) / (2 * A * gain)
-              for lag in range(4 * SPB))
+    eye = max(
+        (y[judged * SPB + lag][ones].min() - y[judged * SPB + lag][~ones].max()) / (2 * A * gain)
+        for lag in range(4 * SPB)
+    )
     print(f"render eye {eye:.4f}, sweep eye {row['eye_fraction']:.4f}, ideal {row['eye_ideal']:.4f}")
     assert row["eye_fraction"] == pytest.approx(eye, abs=0.02)
     assert row["eye_fraction"] < row["eye_ideal"] - 0.05
@@ -205,9 +210,28 @@ def test_sweep_json_carries_measured_and_ideal(tmp_path, capsys):
     path = tmp_path / "s.wav"
     sf.write(str(path), clean + noise, FS, subtype="FLOAT")
     out = tmp_path / "o"
-    code = main(["sweep", str(path), "--program", "data", "--bit-rate", "1200", "--response", "lowpass",
-                 "--family", "butterworth", "--order", "4", "--cutoffs", "600:4k:6", "--min-eye", "0.5",
-                 "--out", str(out)])
+    code = main(
+        [
+            "sweep",
+            str(path),
+            "--program",
+            "data",
+            "--bit-rate",
+            "1200",
+            "--response",
+            "lowpass",
+            "--family",
+            "butterworth",
+            "--order",
+            "4",
+            "--cutoffs",
+            "600:4k:6",
+            "--min-eye",
+            "0.5",
+            "--out",
+            str(out),
+        ]
+    )
     assert code in (0, 1), capsys.readouterr()
     doc = json.loads((out / "sweep.json").read_text())
     assert doc["data"]["eye_basis"] == "recording" and doc["data"]["bits_measured"] == N_BITS
@@ -243,14 +267,28 @@ def test_music_with_a_recovered_rate_is_refused_in_one_line(tmp_path, capsys, rn
     # a phrase with a strong 1.435 Hz pulse: the transition spectrum offers a "clock" of a few bit/s
     fs = 44100
     t = np.arange(20 * fs) / fs
-    x = sum(0.1 * np.sin(2 * np.pi * f0 * t) * (0.5 + 0.5 * np.sin(2 * np.pi * 1.435 * t) ** 8)
-            for f0 in (220.0, 277.2, 329.6, 440.0))
+    x = sum(
+        0.1 * np.sin(2 * np.pi * f0 * t) * (0.5 + 0.5 * np.sin(2 * np.pi * 1.435 * t) ** 8)
+        for f0 in (220.0, 277.2, 329.6, 440.0)
+    )
     x = x + 0.3 * np.sign(np.sin(2 * np.pi * 1.435 * t)) * np.exp(-((t * 1.435) % 1) * 8) * np.sin(2 * np.pi * 80 * t)
     x = x + rng.normal(0, 0.003, t.size)
     path = tmp_path / "piece.wav"
     sf.write(str(path), x, fs, subtype="FLOAT")
-    code = main(["sweep", str(path), "--program", "data", "--bit-rate", "auto", "--max-ber", "1e-6",
-                 "--out", str(tmp_path / "o")])
+    code = main(
+        [
+            "sweep",
+            str(path),
+            "--program",
+            "data",
+            "--bit-rate",
+            "auto",
+            "--max-ber",
+            "1e-6",
+            "--out",
+            str(tmp_path / "o"),
+        ]
+    )
     err = capsys.readouterr().err
     lines = [ln for ln in err.splitlines() if ln.strip()]
     assert code != 0 and len(lines) == 1, err

@@ -23,13 +23,35 @@ def test_a_choice_below_the_nyquist_minimum_is_explained(narrow_choice, capsys):
     d, stream = narrow_choice
     capsys.readouterr()
     out = d / "s"
-    assert main(["sweep", str(stream), "--program", "data", "--bit-rate", "1200", "--min-eye", "0.5",
-                 "--response", "lowpass", "--family", "bessel", "--order", "4", "--cutoffs", "300:8k:8",
-                 "--out", str(out)]) == 0
+    assert (
+        main(
+            [
+                "sweep",
+                str(stream),
+                "--program",
+                "data",
+                "--bit-rate",
+                "1200",
+                "--min-eye",
+                "0.5",
+                "--response",
+                "lowpass",
+                "--family",
+                "bessel",
+                "--order",
+                "4",
+                "--cutoffs",
+                "300:8k:8",
+                "--out",
+                str(out),
+            ]
+        )
+        == 0
+    )
     text = capsys.readouterr().out
     doc = json.loads((out / "sweep.json").read_text())
     chosen = next(c for c in doc["cases"] if c["id"] == doc["choice"]["case"])
-    assert chosen["bandwidth_hz"] < doc["data"]["nyquist_min_hz"]          # the premise
+    assert chosen["bandwidth_hz"] < doc["data"]["nyquist_min_hz"]  # the premise
     line = next(ln for ln in text.splitlines() if "narrower than 1/(2T)" in ln)
     assert "a shaped pulse can pass below the Nyquist minimum at a cost in eye" in line
     assert f"{100 * chosen['eye_fraction']:.1f} % of the unfiltered opening" in line
@@ -39,9 +61,31 @@ def test_a_choice_below_the_nyquist_minimum_is_explained(narrow_choice, capsys):
 def test_a_choice_above_the_nyquist_minimum_needs_no_explanation(narrow_choice, capsys):
     d, stream = narrow_choice
     capsys.readouterr()
-    assert main(["sweep", str(stream), "--program", "data", "--bit-rate", "1200", "--min-eye", "0.5",
-                 "--response", "lowpass", "--family", "bessel", "--order", "4", "--cutoffs", "1k:8k:3",
-                 "--out", str(d / "w")]) == 0
+    assert (
+        main(
+            [
+                "sweep",
+                str(stream),
+                "--program",
+                "data",
+                "--bit-rate",
+                "1200",
+                "--min-eye",
+                "0.5",
+                "--response",
+                "lowpass",
+                "--family",
+                "bessel",
+                "--order",
+                "4",
+                "--cutoffs",
+                "1k:8k:3",
+                "--out",
+                str(d / "w"),
+            ]
+        )
+        == 0
+    )
     assert "narrower than 1/(2T)" not in capsys.readouterr().out
 
 

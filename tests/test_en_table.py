@@ -48,11 +48,19 @@ def write_csv(path, rows, header="frequency_Hz,e_n_V_per_rtHz"):
 
 # -- the model ----------------------------------------------------------------------------
 
-@pytest.mark.parametrize("stage,anti_alias,amp_bw", [("analog", "none", None), ("analog", "ideal", 30e3),
-                                                     ("digital", "none", 40e3), ("digital", "ideal", None)])
+
+@pytest.mark.parametrize(
+    "stage,anti_alias,amp_bw",
+    [("analog", "none", None), ("analog", "ideal", 30e3), ("digital", "none", 40e3), ("digital", "ideal", None)],
+)
 def test_a_flat_table_is_plain_en_exactly(stage, anti_alias, amp_bw):
-    flat = Chain(en_table=((10.0, EN), (1e3, EN), (1e5, EN)), anti_alias=anti_alias, amp_bandwidth_hz=amp_bw,
-                 stage=stage, in_corner_hz=200.0)
+    flat = Chain(
+        en_table=((10.0, EN), (1e3, EN), (1e5, EN)),
+        anti_alias=anti_alias,
+        amp_bandwidth_hz=amp_bw,
+        stage=stage,
+        in_corner_hz=200.0,
+    )
     plain = Chain(en_v_rthz=EN, anti_alias=anti_alias, amp_bandwidth_hz=amp_bw, stage=stage, in_corner_hz=200.0)
     assert flat.en_v_rthz == EN
     filt = design(FilterSpec("bandpass", "bessel", 3, 40.0, 12000.0, stage=stage, fs_hz=FS))
@@ -92,10 +100,13 @@ def test_a_dense_corner_table_is_the_corner_model(corner, band):
     scipy.integrate.quad of the interpolated density (reference: scipy.integrate.quad) within 1e-9."""
     table = corner_table(corner)
     as_table = Chain(source_ohms=0.0, in_a_rthz=0.0, gain_db=0.0, en_table=table, anti_alias="ideal")
-    as_corner = Chain(source_ohms=0.0, in_a_rthz=0.0, gain_db=0.0, en_v_rthz=EN, en_corner_hz=corner,
-                      anti_alias="ideal")
+    as_corner = Chain(
+        source_ohms=0.0, in_a_rthz=0.0, gain_db=0.0, en_v_rthz=EN, en_corner_hz=corner, anti_alias="ideal"
+    )
     got = budget(as_table, flat_digital(), FS, meter=band, n_bins=24000)["components"]["amplifier_voltage"]["vrms"] ** 2
-    ref = budget(as_corner, flat_digital(), FS, meter=band, n_bins=24000)["components"]["amplifier_voltage"]["vrms"] ** 2
+    ref = (
+        budget(as_corner, flat_digital(), FS, meter=band, n_bins=24000)["components"]["amplifier_voltage"]["vrms"] ** 2
+    )
     assert got == pytest.approx(ref, rel=1e-3, abs=0)
     assert got == pytest.approx(_quad_band(table, *band), rel=1e-9, abs=0)
 
@@ -119,18 +130,27 @@ def test_bins_sum_to_the_exact_integral_from_the_floor():
     w = trapezoid_weights(f.size, 1.0)
     got = float(np.sum(excess_per_hz(table, f, w, FLICKER_FROM_HZ) * w))
     e1, e2 = (100e-9) ** 2, (1e-9) ** 2
-    below = (e1 - e2) * (1.0 - FLICKER_FROM_HZ)                   # flat at the first row below 1 Hz
-    between = e1 * (1.0 - 1.0 / 100.0) - e2 * 99.0                  # ∫₁¹⁰⁰ e1/f² df − e2·99
+    below = (e1 - e2) * (1.0 - FLICKER_FROM_HZ)  # flat at the first row below 1 Hz
+    between = e1 * (1.0 - 1.0 / 100.0) - e2 * 99.0  # ∫₁¹⁰⁰ e1/f² df − e2·99
     assert got == pytest.approx(below + between, rel=1e-12, abs=0)
 
 
 @settings(max_examples=40, deadline=None)
-@given(freqs=st.lists(st.floats(0.2, 60e3), min_size=2, max_size=7, unique=True),
-       values=st.lists(st.floats(0.5, 100.0), min_size=7, max_size=7),
-       row=st.integers(0, 6), factor=st.floats(1.0, 20.0),
-       case=st.sampled_from([("lowpass", "analog", "none"), ("lowpass", "analog", "ideal"),
-                             ("highpass", "analog", "ideal"), ("bandpass", "digital", "ideal"),
-                             ("bandpass", "analog", "none")]))
+@given(
+    freqs=st.lists(st.floats(0.2, 60e3), min_size=2, max_size=7, unique=True),
+    values=st.lists(st.floats(0.5, 100.0), min_size=7, max_size=7),
+    row=st.integers(0, 6),
+    factor=st.floats(1.0, 20.0),
+    case=st.sampled_from(
+        [
+            ("lowpass", "analog", "none"),
+            ("lowpass", "analog", "ideal"),
+            ("highpass", "analog", "ideal"),
+            ("bandpass", "digital", "ideal"),
+            ("bandpass", "analog", "none"),
+        ]
+    ),
+)
 def test_raising_any_row_never_lowers_the_noise(freqs, values, row, factor, case):
     freqs = sorted(freqs)
     if min(np.diff(freqs)) <= 1e-9 * max(freqs):
@@ -157,8 +177,24 @@ def test_the_excess_reaches_the_wiener_bound(write_audio, rng, tmp_path, capsys)
     docs = []
     for extra, name in ((["--en", "5n"], "white"), (["--en-table", str(csv_path)], "table")):
         out = tmp_path / name
-        assert main(["sweep", str(prog), "--cutoffs", "5k:20k:3", "--max-loss", "1", "--gain", "60",
-                     "--out", str(out), *extra]) == 0
+        assert (
+            main(
+                [
+                    "sweep",
+                    str(prog),
+                    "--cutoffs",
+                    "5k:20k:3",
+                    "--max-loss",
+                    "1",
+                    "--gain",
+                    "60",
+                    "--out",
+                    str(out),
+                    *extra,
+                ]
+            )
+            == 0
+        )
         docs.append(json.loads((out / "sweep.json").read_text()))
     white, table = docs
     assert table["limits"]["wiener_ser_db"] < white["limits"]["wiener_ser_db"] - 1.0
@@ -200,20 +236,33 @@ def test_a_bad_table_is_refused_in_one_line(tmp_path, capsys, kind):
     text, where, what = BAD_TABLES[kind]
     path = tmp_path / f"{kind}.csv"
     path.write_text(text)
-    _one_line_refusal(capsys, ["noise", "--band", ":20k", "--en-table", str(path)],
-                      "--en-table", f"{kind}.csv", where, what, "accepted:")
+    _one_line_refusal(
+        capsys,
+        ["noise", "--band", ":20k", "--en-table", str(path)],
+        "--en-table",
+        f"{kind}.csv",
+        where,
+        what,
+        "accepted:",
+    )
 
 
 def test_a_missing_table_is_refused_in_one_line(tmp_path, capsys):
-    _one_line_refusal(capsys, ["noise", "--band", ":20k", "--en-table", str(tmp_path / "nope.csv")],
-                      "--en-table", "nope.csv", "no such file")
+    _one_line_refusal(
+        capsys,
+        ["noise", "--band", ":20k", "--en-table", str(tmp_path / "nope.csv")],
+        "--en-table",
+        "nope.csv",
+        "no such file",
+    )
 
 
 @pytest.mark.parametrize("other", [["--en", "3n"], ["--en-corner", "100"]])
 def test_a_table_with_en_or_its_corner_conflicts(tmp_path, capsys, other):
     path = write_csv(tmp_path / "en.csv", [(10.0, 4e-9), (1e4, 3e-9)])
-    _one_line_refusal(capsys, ["noise", "--band", ":20k", "--en-table", str(path), *other],
-                      "--en-table", "conflicts with " + other[0])
+    _one_line_refusal(
+        capsys, ["noise", "--band", ":20k", "--en-table", str(path), *other], "--en-table", "conflicts with " + other[0]
+    )
 
 
 def test_the_toml_path_is_relative_to_the_toml_file(tmp_path, capsys):
@@ -226,8 +275,12 @@ def test_the_toml_path_is_relative_to_the_toml_file(tmp_path, capsys):
     assert out["chain"]["en_table"] == [[1.0, 20e-9], [100.0, 4e-9], [1e4, 3e-9]]
     assert out["chain"]["en_table_file"] == "amp.csv" and out["chain"]["en_v_rthz"] == 3e-9
     (sub / "clash.toml").write_text('[amplifier]\nen_table = "amp.csv"\nen = "2n"\n')
-    _one_line_refusal(capsys, ["noise", "--band", ":20k", "--chain", str(sub / "clash.toml")],
-                      "[amplifier] en_table", "conflicts with")
+    _one_line_refusal(
+        capsys,
+        ["noise", "--band", ":20k", "--chain", str(sub / "clash.toml")],
+        "[amplifier] en_table",
+        "conflicts with",
+    )
 
 
 def test_the_noise_header_names_the_table(tmp_path, capsys):
@@ -245,8 +298,12 @@ def test_a_sweep_records_the_table_and_the_report_reads_it(write_audio, rng, tmp
     rows = [(1.0, 30e-9), (10.0, 9e-9), (100.0, 4e-9), (1e3, 3.1e-9), (1e5, 3e-9)]
     path = write_csv(tmp_path / "measured.csv", rows)
     out = tmp_path / "o"
-    assert main(["sweep", str(prog), "--cutoffs", "2k:20k:4", "--max-loss", "1", "--en-table", str(path),
-                 "--out", str(out)]) == 0
+    assert (
+        main(
+            ["sweep", str(prog), "--cutoffs", "2k:20k:4", "--max-loss", "1", "--en-table", str(path), "--out", str(out)]
+        )
+        == 0
+    )
     doc = json.loads((out / "sweep.json").read_text())
     assert doc["chain"]["en_table"] == [list(r) for r in rows]
     assert doc["chain"]["en_table_file"] == "measured.csv" and doc["chain"]["en_v_rthz"] == 3e-9

@@ -26,12 +26,16 @@ def _filter(response, family, order, low, high, *, stage="analog", fs=48000.0, r
 
 # -- group delay -------------------------------------------------------------------------
 
-@pytest.mark.parametrize("response,family,order,edges", [
-    ("lowpass", "butterworth", 4, (None, 5000.0)),
-    ("lowpass", "chebyshev1", 5, (None, 9000.0)),
-    ("highpass", "bessel", 3, (200.0, None)),
-    ("bandpass", "elliptic", 2, (300.0, 3400.0)),
-])
+
+@pytest.mark.parametrize(
+    "response,family,order,edges",
+    [
+        ("lowpass", "butterworth", 4, (None, 5000.0)),
+        ("lowpass", "chebyshev1", 5, (None, 9000.0)),
+        ("highpass", "bessel", 3, (200.0, None)),
+        ("bandpass", "elliptic", 2, (300.0, 3400.0)),
+    ],
+)
 def test_digital_group_delay_matches_scipy_group_delay(response, family, order, edges):
     fs = 48000.0
     filt = _filter(response, family, order, *edges, stage="digital", fs=fs)
@@ -39,19 +43,23 @@ def test_digital_group_delay_matches_scipy_group_delay(response, family, order, 
     # scipy.signal.zpk2sos (the delay of a cascade is the sum of its sections'; one ba
     # polynomial of the whole filter loses digits near z = 1, scipy PR#11404), in samples
     f = np.linspace(50.0, 20000.0, 397)
-    ref_samples = sum(signal.group_delay((sec[:3], sec[3:]), w=f, fs=fs)[1]
-                      for sec in signal.zpk2sos(filt.z, filt.p, filt.k))
+    ref_samples = sum(
+        signal.group_delay((sec[:3], sec[3:]), w=f, fs=fs)[1] for sec in signal.zpk2sos(filt.z, filt.p, filt.k)
+    )
     ours = filt.group_delay_s(f)
     good = np.abs(filt.response(f)) > 1e-4  # scipy warns and is inaccurate at deep stopband nulls
     np.testing.assert_allclose(ours[good], ref_samples[good] / fs, rtol=1e-6, atol=1e-9)
 
 
-@pytest.mark.parametrize("response,family,order,edges", [
-    ("lowpass", "butterworth", 6, (None, 8000.0)),
-    ("lowpass", "elliptic", 4, (None, 8000.0)),
-    ("bandpass", "bessel", 3, (100.0, 6000.0)),
-    ("highpass", "chebyshev1", 4, (80.0, None)),
-])
+@pytest.mark.parametrize(
+    "response,family,order,edges",
+    [
+        ("lowpass", "butterworth", 6, (None, 8000.0)),
+        ("lowpass", "elliptic", 4, (None, 8000.0)),
+        ("bandpass", "bessel", 3, (100.0, 6000.0)),
+        ("highpass", "chebyshev1", 4, (80.0, None)),
+    ],
+)
 def test_analog_group_delay_is_minus_the_phase_derivative_of_freqs_zpk(response, family, order, edges):
     filt = _filter(response, family, order, *edges)
     z, p, k = filt.zpk()
@@ -63,8 +71,9 @@ def test_analog_group_delay_is_minus_the_phase_derivative_of_freqs_zpk(response,
     ours = filt.group_delay_s(f)
     inner = slice(5, -5)
     good = (np.abs(h) > 1e-3)[inner]  # away from the stopband zeros, where the phase jumps by π
-    np.testing.assert_allclose(ours[inner][good], tau_ref[inner][good], rtol=2e-3,
-                               atol=1e-3 * float(np.max(np.abs(ours))))
+    np.testing.assert_allclose(
+        ours[inner][good], tau_ref[inner][good], rtol=2e-3, atol=1e-3 * float(np.max(np.abs(ours)))
+    )
 
 
 @pytest.mark.parametrize("order", [2, 3, 4])
@@ -74,8 +83,13 @@ def test_bessel_delay_is_maximally_flat(order):
     delay of 1/ω₀ at 0 Hz, and its first 2n − 1 derivatives vanish there, so the
     deviation 1 − ω₀τ(ω) grows as ω^(2n): doubling ω multiplies it by 2^(2n)."""
     z, p, k = signal.bessel(order, 1.0, analog=True, norm="delay", output="zpk")
-    filt = Filter(FilterSpec("lowpass", "bessel", order, None, 1.0 / (2 * np.pi)),
-                  np.asarray(z, complex), np.asarray(p, complex), float(k), 1.0)
+    filt = Filter(
+        FilterSpec("lowpass", "bessel", order, None, 1.0 / (2 * np.pi)),
+        np.asarray(z, complex),
+        np.asarray(p, complex),
+        float(k),
+        1.0,
+    )
     to_hz = 1.0 / (2 * np.pi)
     tau = filt.group_delay_s(np.array([0.0, 0.1, 0.2]) * to_hz)
     assert tau[0] == pytest.approx(1.0, rel=1e-12)
@@ -86,8 +100,10 @@ def test_bessel_spreads_its_delay_least():
     """Same order and −3 dB edge: Bessel < Butterworth < Chebyshev I over the passband
     (the Bessel's maximally flat delay; common practice)."""
     grid = band_grid(0.0, 10000.0, floor_hz=1.0)
-    spread = {fam: delay_spread_s(_filter("lowpass", fam, 4, None, 10000.0), grid)
-              for fam in ("bessel", "butterworth", "chebyshev1")}
+    spread = {
+        fam: delay_spread_s(_filter("lowpass", fam, 4, None, 10000.0), grid)
+        for fam in ("bessel", "butterworth", "chebyshev1")
+    }
     assert spread["bessel"] < 0.2 * spread["butterworth"] < 0.2 * spread["chebyshev1"]
 
 
@@ -103,8 +119,8 @@ def test_digital_group_delay_against_a_time_domain_measurement():
     for f0 in (1000.0, 4000.0, 5500.0):
         phases = []
         for f in (f0 - 5.0, f0 + 5.0):
-            y = signal.sosfilt(sos, np.sin(2 * np.pi * f * t))[n // 2:]
-            basis = np.stack([np.sin(2 * np.pi * f * t[n // 2:]), np.cos(2 * np.pi * f * t[n // 2:])], axis=1)
+            y = signal.sosfilt(sos, np.sin(2 * np.pi * f * t))[n // 2 :]
+            basis = np.stack([np.sin(2 * np.pi * f * t[n // 2 :]), np.cos(2 * np.pi * f * t[n // 2 :])], axis=1)
             (a, b), *_ = np.linalg.lstsq(basis, y, rcond=None)
             phases.append(math.atan2(b, a))
         dphi = (phases[1] - phases[0] + math.pi) % (2 * math.pi) - math.pi
@@ -113,6 +129,7 @@ def test_digital_group_delay_against_a_time_domain_measurement():
 
 
 # -- alias rejection -------------------------------------------------------------------------
+
 
 @pytest.mark.parametrize("order", [2, 4, 6, 8])
 @pytest.mark.parametrize("fc", [8000.0, 20000.0])
@@ -161,8 +178,12 @@ def test_alias_rejection_is_undefined_for_the_digital_stage_and_nil_for_a_highpa
 
 
 @settings(max_examples=40, deadline=None)
-@given(order=st.integers(1, 8), f1=st.floats(500.0, 22000.0), f2=st.floats(500.0, 22000.0),
-       family=st.sampled_from(["butterworth", "bessel", "chebyshev1"]))
+@given(
+    order=st.integers(1, 8),
+    f1=st.floats(500.0, 22000.0),
+    f2=st.floats(500.0, 22000.0),
+    family=st.sampled_from(["butterworth", "bessel", "chebyshev1"]),
+)
 def test_a_wider_lowpass_never_rejects_more(order, f1, f2, family):
     fs = 48000.0
     lo_f, hi_f = sorted((f1, f2))
@@ -173,6 +194,7 @@ def test_a_wider_lowpass_never_rejects_more(order, f1, f2, family):
 
 
 # -- flatness ----------------------------------------------------------------------------------
+
 
 @pytest.mark.parametrize("order", [2, 3, 5, 8])
 @pytest.mark.parametrize("ripple", [0.1, 0.5, 1.0])
@@ -204,8 +226,9 @@ def test_flatness_and_spread_never_shrink_when_the_band_widens(order, fc, top):
 
 def test_delay_spread_margin_is_20_lg_of_the_ratio():
     row = {"delay_spread_s": 1e-4, "flatness_db": 0.3, "alias_rejection_db": 45.0}
-    passes, fails, margins = check_targets(row, {"max_delay_spread_s": 2e-4, "max_flatness_db": 0.2,
-                                                 "min_alias_rejection_db": 40.0})
+    passes, fails, margins = check_targets(
+        row, {"max_delay_spread_s": 2e-4, "max_flatness_db": 0.2, "min_alias_rejection_db": 40.0}
+    )
     assert margins["max_delay_spread_s"] == pytest.approx(20 * math.log10(2))
     assert margins["max_flatness_db"] == pytest.approx(-0.1)
     assert margins["min_alias_rejection_db"] == pytest.approx(5.0)
@@ -213,6 +236,7 @@ def test_delay_spread_margin_is_20_lg_of_the_ratio():
 
 
 # -- through the command line ---------------------------------------------------------------------
+
 
 @pytest.fixture
 def music(write_audio, rng):
@@ -235,8 +259,11 @@ def _sweep(args, tmp_path, capsys, name="o"):
 
 
 def test_targets_pass_and_fail_in_a_sweep(music, tmp_path, capsys):
-    code, stdout, _, doc = _sweep([music, *GRID, "--min-alias-rejection", "20", "--max-flatness", "0.5",
-                                   "--max-delay-spread", "300us"], tmp_path, capsys)
+    code, stdout, _, doc = _sweep(
+        [music, *GRID, "--min-alias-rejection", "20", "--max-flatness", "0.5", "--max-delay-spread", "300us"],
+        tmp_path,
+        capsys,
+    )
     assert code == 0
     occ = (doc["input"]["occupied_low_hz"], doc["input"]["occupied_high_hz"])
     fs = doc["input"]["sample_rate_hz"]
@@ -251,9 +278,11 @@ def test_targets_pass_and_fail_in_a_sweep(music, tmp_path, capsys):
         _, hi_img = signal.freqs_zpk(z, p, k, worN=[2 * np.pi * (fs - c["high_hz"])])
         if c["family"] == "butterworth":
             assert c["alias_rejection_db"] == pytest.approx(-20 * np.log10(abs(hi_img[0])), abs=1e-4)
-        for key, metric, sense, limit in (("min_alias_rejection_db", "alias_rejection_db", +1, 20.0),
-                                          ("max_flatness_db", "flatness_db", -1, 0.5),
-                                          ("max_delay_spread_s", "delay_spread_s", -1, 300e-6)):
+        for key, metric, sense, limit in (
+            ("min_alias_rejection_db", "alias_rejection_db", +1, 20.0),
+            ("max_flatness_db", "flatness_db", -1, 0.5),
+            ("max_delay_spread_s", "delay_spread_s", -1, 300e-6),
+        ):
             meets = (c[metric] - limit) * sense >= 0
             assert (key not in c["fails"]) == meets, (c["id"], key, c[metric])
         if c["family"] == "elliptic" and c["order"] == 2:
@@ -264,8 +293,9 @@ def test_targets_pass_and_fail_in_a_sweep(music, tmp_path, capsys):
 
 
 def test_a_poor_anti_alias_choice_is_called_poor(music, tmp_path, capsys):
-    code, stdout, _, doc = _sweep([music, "--family", "elliptic", "--order", "2", "--cutoffs", "20k",
-                                   "--max-loss", "1"], tmp_path, capsys)
+    code, stdout, _, doc = _sweep(
+        [music, "--family", "elliptic", "--order", "2", "--cutoffs", "20k", "--max-loss", "1"], tmp_path, capsys
+    )
     assert code == 0 and doc["choice"] is not None
     assert doc["cases"][0]["alias_rejection_db"] < 1.0
     assert "a poor anti-alias filter" in stdout
@@ -273,18 +303,19 @@ def test_a_poor_anti_alias_choice_is_called_poor(music, tmp_path, capsys):
 
 def test_targets_from_the_chain_file(music, tmp_path, capsys):
     chain = tmp_path / "chain.toml"
-    chain.write_text('[targets]\nmin_alias_rejection = 20\nmax_flatness = "0.5dB"\nmax_delay_spread = "300us"\n'
-                     "max_loss = 0.5\n")
-    code, _, err, doc = _sweep([music, "--chain", chain, "--family", "butterworth", "--order", "6",
-                                "--cutoffs", "9k:21k:5"], tmp_path, capsys)
+    chain.write_text(
+        '[targets]\nmin_alias_rejection = 20\nmax_flatness = "0.5dB"\nmax_delay_spread = "300us"\nmax_loss = 0.5\n'
+    )
+    code, _, err, doc = _sweep(
+        [music, "--chain", chain, "--family", "butterworth", "--order", "6", "--cutoffs", "9k:21k:5"], tmp_path, capsys
+    )
     assert code == 0, err
     assert doc["targets"]["min_alias_rejection_db"] == 20.0
     assert doc["targets"]["max_delay_spread_s"] == pytest.approx(300e-6)
 
 
 def test_alias_target_on_the_digital_stage_is_refused(music, tmp_path, capsys):
-    code, _, err, _ = _sweep([music, *GRID, "--stage", "digital", "--min-alias-rejection", "40"],
-                             tmp_path, capsys)
+    code, _, err, _ = _sweep([music, *GRID, "--stage", "digital", "--min-alias-rejection", "40"], tmp_path, capsys)
     assert code == 2
     line = err.strip().splitlines()[-1]
     assert "--min-alias-rejection" in line and "analog" in line and "Traceback" not in err
@@ -296,8 +327,9 @@ def test_digital_stage_reports_no_alias_rejection(music, tmp_path, capsys):
     assert all(c["alias_rejection_db"] is None and c["flatness_db"] is not None for c in doc["cases"])
 
 
-@pytest.mark.parametrize("opt,value", [("--max-delay-spread", "-1ms"), ("--max-flatness", "-0.5"),
-                                       ("--max-delay-spread", "fast")])
+@pytest.mark.parametrize(
+    "opt,value", [("--max-delay-spread", "-1ms"), ("--max-flatness", "-0.5"), ("--max-delay-spread", "fast")]
+)
 def test_bad_values_get_one_line(music, tmp_path, capsys, opt, value):
     code, _, err, _ = _sweep([music, *GRID, opt, value], tmp_path, capsys)
     assert code == 2 and opt in err and "Traceback" not in err

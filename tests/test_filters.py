@@ -58,8 +58,9 @@ def test_wide_bandpass_integral_survives_an_ill_conditioned_state_space(family, 
 
 
 @pytest.mark.parametrize("family", FAMILIES)
-@pytest.mark.parametrize("response,lo,hi", [("lowpass", None, 3000.0), ("bandpass", 80.0, 9000.0),
-                                            ("highpass", 200.0, None)])
+@pytest.mark.parametrize(
+    "response,lo,hi", [("lowpass", None, 3000.0), ("bandpass", 80.0, 9000.0), ("highpass", 200.0, None)]
+)
 @pytest.mark.parametrize("order", [1, 2, 5, 8])
 @pytest.mark.filterwarnings("ignore::scipy.integrate.IntegrationWarning")  # quad's tail warnings; checked by value
 def test_gramian_integral_matches_numerical_integration(family, response, lo, hi, order):
@@ -73,9 +74,12 @@ def test_gramian_integral_matches_numerical_integration(family, response, lo, hi
     def h2(x):
         _, h = signal.freqs_zpk(z, p, k, worN=[2 * np.pi * x])
         return abs(h[0]) ** 2 - floor
+
     e = hi or lo
-    num = sum(integrate.quad(h2, a, b, limit=800, epsabs=1e-9 * e)[0]
-              for a, b in [(0, 0.5 * e), (0.5 * e, 2 * e), (2 * e, 50 * e), (50 * e, 1e3 * e)])
+    num = sum(
+        integrate.quad(h2, a, b, limit=800, epsabs=1e-9 * e)[0]
+        for a, b in [(0, 0.5 * e), (0.5 * e, 2 * e), (2 * e, 50 * e), (50 * e, 1e3 * e)]
+    )
     # the tail above 1000·edge by the substitution u = 1/f (tails fall as 1/f²)
     num += integrate.quad(lambda u: h2(1.0 / u) / u**2, 1e-12 / e, 1.0 / (1e3 * e), limit=800)[0]
     assert exact == pytest.approx(num, rel=1e-5, abs=1e-6 * e)
@@ -89,16 +93,18 @@ def test_floor_gains():
     # |H(inf)|²: 1 for a highpass; the stopband floor for an even-order elliptic
     # lowpass (scipy.signal.ellip: even orders keep |H(inf)| = 10^(-rs/20))
     assert design(spec("highpass", "butterworth", 3, 100.0, None)).floor_gain() == pytest.approx(1.0)
-    assert design(spec("lowpass", "elliptic", 4, None, 1000.0, stopband_db=60.0)).floor_gain() == \
-        pytest.approx(1e-6, rel=1e-6)
+    assert design(spec("lowpass", "elliptic", 4, None, 1000.0, stopband_db=60.0)).floor_gain() == pytest.approx(
+        1e-6, rel=1e-6
+    )
     assert design(spec("lowpass", "elliptic", 5, None, 1000.0)).floor_gain() == 0.0
 
 
 @pytest.mark.parametrize("family", ["butterworth", "bessel"])
 @pytest.mark.parametrize("order", [1, 2, 3, 4, 6, 8])
 @pytest.mark.parametrize("stage", ["analog", "digital"])
-@pytest.mark.parametrize("response,lo,hi", [("lowpass", None, 2500.0), ("highpass", 120.0, None),
-                                            ("bandpass", 120.0, 8000.0)])
+@pytest.mark.parametrize(
+    "response,lo,hi", [("lowpass", None, 2500.0), ("highpass", 120.0, None), ("bandpass", 120.0, 8000.0)]
+)
 def test_minus_3db_at_cutoff_independently(family, order, stage, response, lo, hi):
     f = design(spec(response, family, order, lo, hi, stage=stage))
     z, p, k = f.zpk()
@@ -148,30 +154,37 @@ def test_highpass_analog_integral_is_infinite_and_enbw_capped():
     assert f.enbw_hz(24000.0) == pytest.approx(24000.0 - 100.0 * butterworth_enbw_ratio(2), rel=2e-3)
 
 
-@pytest.mark.parametrize("kw,match", [
-    (dict(hi=24000.0), r"edge 24000 Hz must be 0 < edge < 0.98\*fs/2 \(fs=48000"),
-    (dict(hi=-5.0), "edge -5 Hz"),
-    (dict(order=0), "--order: 0 is out of range; accepted: integers 1 to 8"),
-    (dict(order=20), "--order: 20 is out of range"),
-    (dict(response="bandpass", lo=5000.0, hi=100.0), "low edge 5000 Hz is not below high edge 100 Hz"),
-    (dict(family="chebyshev1", ripple_db=3.5), "--ripple: 3.5 dB is out of range"),
-    (dict(family="elliptic", stopband_db=0.05), "--stopband"),
-    (dict(family="gauss"), "--family: 'gauss' is not known"),
-])
+@pytest.mark.parametrize(
+    "kw,match",
+    [
+        (dict(hi=24000.0), r"edge 24000 Hz must be 0 < edge < 0.98\*fs/2 \(fs=48000"),
+        (dict(hi=-5.0), "edge -5 Hz"),
+        (dict(order=0), "--order: 0 is out of range; accepted: integers 1 to 8"),
+        (dict(order=20), "--order: 20 is out of range"),
+        (dict(response="bandpass", lo=5000.0, hi=100.0), "low edge 5000 Hz is not below high edge 100 Hz"),
+        (dict(family="chebyshev1", ripple_db=3.5), "--ripple: 3.5 dB is out of range"),
+        (dict(family="elliptic", stopband_db=0.05), "--stopband"),
+        (dict(family="gauss"), "--family: 'gauss' is not known"),
+    ],
+)
 def test_invalid_specs_are_refused(kw, match):
     with pytest.raises(ParameterError, match=match):
         validate_spec(spec(**kw), fs_hz=FS)
 
 
-@pytest.mark.parametrize("family,make", [
-    ("butterworth", lambda n, w, bt: signal.butter(n, w, btype=bt, analog=True, output="zpk")),
-    ("bessel", lambda n, w, bt: signal.bessel(n, w, btype=bt, analog=True, norm="mag", output="zpk")),
-    ("chebyshev1", lambda n, w, bt: signal.cheby1(n, 0.1, w, btype=bt, analog=True, output="zpk")),
-    ("elliptic", lambda n, w, bt: signal.ellip(n, 0.1, 60.0, w, btype=bt, analog=True, output="zpk")),
-])
+@pytest.mark.parametrize(
+    "family,make",
+    [
+        ("butterworth", lambda n, w, bt: signal.butter(n, w, btype=bt, analog=True, output="zpk")),
+        ("bessel", lambda n, w, bt: signal.bessel(n, w, btype=bt, analog=True, norm="mag", output="zpk")),
+        ("chebyshev1", lambda n, w, bt: signal.cheby1(n, 0.1, w, btype=bt, analog=True, output="zpk")),
+        ("elliptic", lambda n, w, bt: signal.ellip(n, 0.1, 60.0, w, btype=bt, analog=True, output="zpk")),
+    ],
+)
 @pytest.mark.parametrize("order", [1, 3, 6])
-@pytest.mark.parametrize("response,lo,hi", [("lowpass", None, 5000.0), ("highpass", 60.0, None),
-                                            ("bandpass", 300.0, 3400.0)])
+@pytest.mark.parametrize(
+    "response,lo,hi", [("lowpass", None, 5000.0), ("highpass", 60.0, None), ("bandpass", 300.0, 3400.0)]
+)
 def test_analog_response_matches_a_direct_scipy_design(family, make, order, response, lo, hi):
     # Independent reference: scipy designs the same prototype directly at the
     # edge in rad/s (no normalisation), evaluated with scipy.signal.freqs_zpk.
@@ -189,14 +202,18 @@ def test_analog_response_matches_a_direct_scipy_design(family, make, order, resp
 def test_edges_of_a_very_wide_digital_bessel_bandpass():
     # regression (found by the hypothesis property test): the half-power search
     # must bracket the crossing whichever side of the design edge it lies on
-    f = design(FilterSpec("bandpass", "bessel", 4, 5.0, 21115.75, ripple_db=1.0, stopband_db=20.0,
-                          stage="digital", fs_hz=48000.0))
+    f = design(
+        FilterSpec(
+            "bandpass", "bessel", 4, 5.0, 21115.75, ripple_db=1.0, stopband_db=20.0, stage="digital", fs_hz=48000.0
+        )
+    )
     lo, hi = f.edges_3db
     assert f.response_db(lo) == pytest.approx(-3.0103, abs=1e-6)
     assert f.response_db(hi) == pytest.approx(-3.0103, abs=1e-6)
 
 
 # --- the shipped prototype table (audiobw/_prototypes.py) -------------------------------
+
 
 def _scipy_prototype(response, family, order, ripple):
     """Reference: scipy.signal.butter / bessel(norm='mag') / cheby1, analog, output='zpk', 1 rad/s."""
@@ -215,6 +232,7 @@ def _sorted(x):
 
 def test_prototype_table_matches_scipy_signal():
     from audiobw._prototypes import TABLE
+
     assert len(TABLE) == 2 * (2 + 3) * 8  # lp/hp x (butterworth, bessel, 3 chebyshev ripples) x orders
     for (response, family, order, ripple), (z, p, k, gram, (upward, ratio)) in TABLE.items():
         zr, pr, kr = _scipy_prototype(response, family, order, ripple)
@@ -257,6 +275,7 @@ def test_sweep_imports_no_heavy_scipy(tmp_path):
     import subprocess
     import sys
     from pathlib import Path
+
     clip = Path(__file__).resolve().parents[1] / "clips" / "ensemble-48k-stereo.flac"
     code = (
         "import sys\n"
@@ -266,8 +285,14 @@ def test_sweep_imports_no_heavy_scipy(tmp_path):
         "try:\n    rc = main(args)\nexcept SystemExit as e:\n    rc = e.code\n"
         "heavy = sorted(m for m in sys.modules if m.split('.')[:2] in\n"
         "    [['scipy', n] for n in ('signal', 'stats', 'optimize', 'interpolate')])\n"
-        "print(rc, heavy[:5])\n")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
-                         env={**__import__("os").environ, "AUDIOBW_NO_CACHE": "1"})
+        "print(rc, heavy[:5])\n"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code],
+        capture_output=True,
+        text=True,
+        check=True,
+        env={**__import__("os").environ, "AUDIOBW_NO_CACHE": "1"},
+    )
     assert out.stdout.strip().splitlines()[-1] == "0 []", out.stdout + out.stderr
     assert (tmp_path / "o" / "sweep.json").exists()

@@ -117,15 +117,18 @@ def test_extreme_sweep_values_are_refused_before_any_output(wav, tmp_path, capsy
     assert not out.exists()
 
 
-@pytest.mark.parametrize("extra,option", [
-    (["--band", ":1e-300"], "--band"),
-    (["--band", ":5k", "--excerpt-at", "1e308"], "--excerpt-at"),
-    (["--band", ":5k", "--excerpt", "1e308"], "--excerpt"),
-    (["--band", ":5k", "--seed", "-1"], "--seed"),
-    (["--band", ":5k", "--seed", "abc"], "--seed"),
-    (["--band", ":5k", "--loudness", "1e300"], "--loudness"),
-    (["--band", ":5k", "--ceiling", "1e300"], "--ceiling"),
-])
+@pytest.mark.parametrize(
+    "extra,option",
+    [
+        (["--band", ":1e-300"], "--band"),
+        (["--band", ":5k", "--excerpt-at", "1e308"], "--excerpt-at"),
+        (["--band", ":5k", "--excerpt", "1e308"], "--excerpt"),
+        (["--band", ":5k", "--seed", "-1"], "--seed"),
+        (["--band", ":5k", "--seed", "abc"], "--seed"),
+        (["--band", ":5k", "--loudness", "1e300"], "--loudness"),
+        (["--band", ":5k", "--ceiling", "1e300"], "--ceiling"),
+    ],
+)
 def test_extreme_render_values_are_refused(wav, tmp_path, capsys, extra, option):
     out = tmp_path / "r"
     got, io = run(["render", wav, *extra, "--out", out], capsys)
@@ -135,15 +138,30 @@ def test_extreme_render_values_are_refused(wav, tmp_path, capsys, extra, option)
 
 
 @FEW
-@given(exponent=st.integers(-330, 330), sign=st.sampled_from([1, -1]),
-       key=st.sampled_from(["source_ohms", "en", "in", "full_scale", "temperature", "gain", "amp_bandwidth",
-                            "tone", "input_level", "cutoffs"]))
+@given(
+    exponent=st.integers(-330, 330),
+    sign=st.sampled_from([1, -1]),
+    key=st.sampled_from(
+        [
+            "source_ohms",
+            "en",
+            "in",
+            "full_scale",
+            "temperature",
+            "gain",
+            "amp_bandwidth",
+            "tone",
+            "input_level",
+            "cutoffs",
+        ]
+    ),
+)
 def test_any_magnitude_gives_figures_or_one_line(wav, tmp_path_factory, capsys, exponent, sign, key):
     """Any power of ten, either sign, in any numeric key: a finite result or a one-line refusal."""
     from audiobw.options import OPTIONS
 
     section = OPTIONS[key][0]
-    value = sign * 10.0 ** exponent if exponent < 308 else sign * 1.7e308
+    value = sign * 10.0**exponent if exponent < 308 else sign * 1.7e308
     d = tmp_path_factory.mktemp("mag")
     cfg = d / "c.toml"
     cfg.write_text(f"[{section}]\n{key} = {value!r}\n", encoding="utf-8")
@@ -169,8 +187,10 @@ def _numbers(obj):
 
 # -- samples at the ends of float64 ---------------------------------------------------------------------
 
-@pytest.mark.parametrize("value,needle", [(5e-324, "silence"), (1.7e308, "overflow"), (1e-200, "silence"),
-                                          (1e200, "overflow")])
+
+@pytest.mark.parametrize(
+    "value,needle", [(5e-324, "silence"), (1.7e308, "overflow"), (1e-200, "silence"), (1e200, "overflow")]
+)
 def test_extreme_float64_samples_are_refused_before_any_output(tmp_path, capsys, value, needle):
     x = np.full(FS, value)
     x[::2] *= -1
@@ -186,9 +206,25 @@ def test_extreme_float64_samples_are_refused_before_any_output(tmp_path, capsys,
 
 # -- the grid: a stated cap and an estimate -----------------------------------------------------------------
 
+
 def test_a_grid_above_the_cap_is_refused_with_its_count(wav, tmp_path, capsys):
-    got, io = run(["sweep", wav, "--response", "bandpass", "--low-edges", "10:1k:10000",
-                   "--high-edges", "2k:20k:10000", "--max-loss", "1", "--out", tmp_path / "o"], capsys)
+    got, io = run(
+        [
+            "sweep",
+            wav,
+            "--response",
+            "bandpass",
+            "--low-edges",
+            "10:1k:10000",
+            "--high-edges",
+            "2k:20k:10000",
+            "--max-loss",
+            "1",
+            "--out",
+            tmp_path / "o",
+        ],
+        capsys,
+    )
     line = one_line(io.err)
     assert got == 2 and "100,000,000 cases" in line and "200,000" in line, io.err
 
@@ -196,8 +232,13 @@ def test_a_grid_above_the_cap_is_refused_with_its_count(wav, tmp_path, capsys):
 def test_grid_count_matches_the_cases_built():
     from audiobw.sweep import Grid
 
-    g = Grid(response="bandpass", families=("butterworth", "bessel"), orders=(2, 4),
-             low_edges_hz=(10.0, 100.0, 3000.0), high_edges_hz=(50.0, 2000.0, 20000.0))
+    g = Grid(
+        response="bandpass",
+        families=("butterworth", "bessel"),
+        orders=(2, 4),
+        low_edges_hz=(10.0, 100.0, 3000.0),
+        high_edges_hz=(50.0, 2000.0, 20000.0),
+    )
     assert g.count() == len(g.specs(stage="analog", fs_hz=48000.0)) == 2 * 2 * (3 + 2 + 1)
 
 
@@ -248,23 +289,27 @@ def test_hostile_configs_give_exit_2_and_one_line(wav, tmp_path, capsys, text, n
 
 # -- trials-score: keys and answer sheets ---------------------------------------------------------------
 
+
 def _key(tmp_path, trials):
     k = tmp_path / "trial-key.json"
     k.write_text(json.dumps({"format": "audiobw-trial-key/1", "trials": trials}), encoding="utf-8")
     return k
 
 
-@pytest.mark.parametrize("trials,answers,needle", [
-    ([{"trial": 5, "processed": "first"}], "1 first\n", "trial 1 is not in the key; accepted: 5"),
-    ([1, 2], "1 first\n", "trials[0]"),
-    ([{"trial": "abc", "processed": "first"}], "1 first\n", "trials[0]"),
-    ([{"trial": 1, "processed": "first"}, {"trial": 1, "processed": "second"}], "1 first\n", "trials[1]"),
-    ([{"trial": True, "processed": "first"}], "1 first\n", "trials[0]"),
-    ([{"trial": 1, "processed": "third"}], "1 first\n", "trials[0]"),
-    ([{"trial": 1, "processed": "first"}], "\u00b2 first\n", "line 1"),
-    ([{"trial": 1, "processed": "first"}], "\u0661 first\n", "line 1"),
-    ([{"trial": 1, "processed": "first"}], "9" * 5000 + " first\n", "line 1"),
-])
+@pytest.mark.parametrize(
+    "trials,answers,needle",
+    [
+        ([{"trial": 5, "processed": "first"}], "1 first\n", "trial 1 is not in the key; accepted: 5"),
+        ([1, 2], "1 first\n", "trials[0]"),
+        ([{"trial": "abc", "processed": "first"}], "1 first\n", "trials[0]"),
+        ([{"trial": 1, "processed": "first"}, {"trial": 1, "processed": "second"}], "1 first\n", "trials[1]"),
+        ([{"trial": True, "processed": "first"}], "1 first\n", "trials[0]"),
+        ([{"trial": 1, "processed": "third"}], "1 first\n", "trials[0]"),
+        ([{"trial": 1, "processed": "first"}], "\u00b2 first\n", "line 1"),
+        ([{"trial": 1, "processed": "first"}], "\u0661 first\n", "line 1"),
+        ([{"trial": 1, "processed": "first"}], "9" * 5000 + " first\n", "line 1"),
+    ],
+)
 def test_bad_trial_keys_and_answers_give_one_line(tmp_path, capsys, trials, answers, needle):
     from audiobw.render import KEY_FORMAT
 
@@ -278,6 +323,7 @@ def test_bad_trial_keys_and_answers_give_one_line(tmp_path, capsys, trials, answ
 
 
 # -- names: terminal, Markdown, CSV -----------------------------------------------------------------------
+
 
 @FEW
 @given(name=st.text(min_size=1, max_size=40))
@@ -375,8 +421,9 @@ ENTRY = [sys.executable, "-c", "import sys; from audiobw._start import entry; sy
 
 
 @pytest.mark.skipif(not Path("/dev/full").exists(), reason="needs /dev/full (Linux)")
-@pytest.mark.parametrize("args", [["noise", "--band", ":20k"], ["noise", "--band", ":20k", "--json"],
-                                  ["--help"], ["--version"]])
+@pytest.mark.parametrize(
+    "args", [["noise", "--band", ":20k"], ["noise", "--band", ":20k", "--json"], ["--help"], ["--version"]]
+)
 def test_stdout_on_a_full_device_gives_one_line_and_exit_1(tmp_path, args):
     with open("/dev/full", "w") as full:
         p = subprocess.run(ENTRY + args, stdout=full, stderr=subprocess.PIPE, text=True, cwd=tmp_path, timeout=120)
@@ -386,8 +433,9 @@ def test_stdout_on_a_full_device_gives_one_line_and_exit_1(tmp_path, args):
 
 
 def test_a_closed_pipe_ends_quietly(tmp_path):
-    p = subprocess.Popen(ENTRY + ["noise", "--band", ":20k", "--json"], stdout=subprocess.PIPE,
-                         stderr=subprocess.PIPE, cwd=tmp_path)
+    p = subprocess.Popen(
+        ENTRY + ["noise", "--band", ":20k", "--json"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, cwd=tmp_path
+    )
     p.stdout.read(10)
     p.stdout.close()
     err = p.stderr.read().decode()
@@ -423,6 +471,7 @@ def test_library_loggers_are_quiet_unless_debug(capsys, monkeypatch):
 
 # -- interrupts at random points, start-up included ---------------------------------------------------------
 
+
 @pytest.fixture(scope="module")
 def swept(tmp_path_factory, wav):
     d = tmp_path_factory.mktemp("swept")
@@ -430,14 +479,15 @@ def swept(tmp_path_factory, wav):
     return d / "s"
 
 
-@settings(max_examples=6, deadline=None, database=None,
-          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=6, deadline=None, database=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(delay=st.floats(0.0, 1.5), command=st.sampled_from(["report", "sweep", "noise"]))
 def test_an_interrupt_at_any_moment_exits_130_quietly(swept, wav, tmp_path_factory, delay, command):
     d = tmp_path_factory.mktemp("intr")
-    args = {"report": ["report", str(swept)],
-            "sweep": ["sweep", str(wav), "--max-loss", "1", "--report", "--out", str(d / "o")],
-            "noise": ["noise", "--band", ":20k"]}[command]
+    args = {
+        "report": ["report", str(swept)],
+        "sweep": ["sweep", str(wav), "--max-loss", "1", "--report", "--out", str(d / "o")],
+        "noise": ["noise", "--band", ":20k"],
+    }[command]
     before = {p.name: p.read_bytes() for p in swept.iterdir() if p.suffix in (".json", ".npz", ".csv")}
     p = subprocess.Popen(ENTRY + args, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, cwd=d)
     time.sleep(delay)
@@ -462,6 +512,7 @@ def test_an_interrupt_at_any_moment_exits_130_quietly(swept, wav, tmp_path_facto
 
 # -- file kinds: not regular, out of the tree, sparse, truncated, lying ----------------------------------------
 
+
 def _kinds(tmp_path, wav):
     data = wav.read_bytes()
     fifo = tmp_path / "pipe.wav"
@@ -484,9 +535,18 @@ def _kinds(tmp_path, wav):
     rate0.write_bytes(data[:24] + (0).to_bytes(4, "little") + data[28:])  # sample rate 0
     chans = tmp_path / "chans.wav"
     chans.write_bytes(data[:22] + (64).to_bytes(2, "little") + data[24:])  # 64 channels claimed
-    return {"fifo": (fifo, {1}), "device": (Path("/dev/zero"), {1}), "folder": (folder, {1}),
-            "symlink": (link, {0}), "dangling": (dangling, {1}), "sparse": (sparse, {0, 1}),
-            "half": (half, {1}), "liar": (liar, {0, 1}), "rate0": (rate0, {1}), "chans": (chans, {1})}
+    return {
+        "fifo": (fifo, {1}),
+        "device": (Path("/dev/zero"), {1}),
+        "folder": (folder, {1}),
+        "symlink": (link, {0}),
+        "dangling": (dangling, {1}),
+        "sparse": (sparse, {0, 1}),
+        "half": (half, {1}),
+        "liar": (liar, {0, 1}),
+        "rate0": (rate0, {1}),
+        "chans": (chans, {1}),
+    }
 
 
 KIND_NAMES = ["fifo", "device", "folder", "symlink", "dangling", "sparse", "half", "liar", "rate0", "chans"]

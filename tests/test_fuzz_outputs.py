@@ -43,6 +43,7 @@ def _one_line_error(capsys, code, expected_code=1):
 
 # -- output never lands on an input ------------------------------------------------------
 
+
 def test_report_from_another_folder_never_overwrites_an_input_named_like_an_output(tmp_path, monkeypatch, capsys):
     # the sweep's input is a WAV called spec.md inside DIR; the sweep ran inside DIR (relative path),
     # the report runs from elsewhere: the recorded path does not resolve from there
@@ -135,12 +136,14 @@ def test_render_chain_output_on_a_full_disk_is_one_line(program, tmp_path, monke
 
 def test_stdout_on_a_full_device_is_one_line():
     with open("/dev/full", "w") as full:
-        proc = subprocess.run([PY, "-m", "audiobw", "--help"], stdout=full, stderr=subprocess.PIPE, text=True,
-                              timeout=120)
+        proc = subprocess.run(
+            [PY, "-m", "audiobw", "--help"], stdout=full, stderr=subprocess.PIPE, text=True, timeout=120
+        )
     assert proc.returncode == 1, proc.stderr
     assert proc.stderr.strip().splitlines() == [
         "audiobw: error: cannot write to standard output (No space left on device); "
-        "accepted: a terminal, pipe or file with room"]
+        "accepted: a terminal, pipe or file with room"
+    ]
 
 
 def test_enospc_oserror_from_any_writer_is_one_line(tmp_path, monkeypatch):
@@ -154,6 +157,7 @@ def test_enospc_oserror_from_any_writer_is_one_line(tmp_path, monkeypatch):
 
 
 # -- stale parts of a killed run ------------------------------------------------------------
+
 
 def test_stale_part_from_a_killed_run_is_removed_and_a_live_one_is_kept(tmp_path):
     stale = tmp_path / ".chain-output.wav.abc123.part"
@@ -171,9 +175,11 @@ def test_stale_part_from_a_killed_run_is_removed_and_a_live_one_is_kept(tmp_path
 
 
 def test_part_left_by_sigkill_is_cleaned_by_the_next_run(tmp_path):
-    code = ("import os, sys, time\nfrom audiobw import audio\n"
-            "with audio.atomic_path(sys.argv[1]) as t:\n t.write_bytes(b'x' * 100000)\n print('ready', flush=True)\n"
-            " time.sleep(60)\n")
+    code = (
+        "import os, sys, time\nfrom audiobw import audio\n"
+        "with audio.atomic_path(sys.argv[1]) as t:\n t.write_bytes(b'x' * 100000)\n print('ready', flush=True)\n"
+        " time.sleep(60)\n"
+    )
     proc = subprocess.Popen([PY, "-c", code, str(tmp_path / "chain-output.wav")], stdout=subprocess.PIPE, text=True)
     assert proc.stdout.readline().strip() == "ready"
     proc.kill()
@@ -186,10 +192,13 @@ def test_part_left_by_sigkill_is_cleaned_by_the_next_run(tmp_path):
 
 # -- one run per output folder -----------------------------------------------------------
 
+
 def test_second_run_into_a_locked_folder_waits_then_refuses(tmp_path, monkeypatch, program, capsys):
     out = tmp_path / "o"
-    code = ("import sys, time\nfrom audiobw import audio\n"
-            "with audio.output_lock(sys.argv[1]):\n print('held', flush=True)\n time.sleep(60)\n")
+    code = (
+        "import sys, time\nfrom audiobw import audio\n"
+        "with audio.output_lock(sys.argv[1]):\n print('held', flush=True)\n time.sleep(60)\n"
+    )
     holder = subprocess.Popen([PY, "-c", code, str(out)], stdout=subprocess.PIPE, text=True)
     try:
         assert holder.stdout.readline().strip() == "held"
@@ -226,6 +235,7 @@ def test_lock_waits_for_a_short_holder(tmp_path):
 
 # -- determinism ----------------------------------------------------------------------
 
+
 def test_rerun_of_bits_and_render_gives_byte_identical_wavs(program, tmp_path):
     a, b = tmp_path / "a", tmp_path / "b"
     for out in (a, b):
@@ -241,6 +251,7 @@ def test_rerun_of_bits_and_render_gives_byte_identical_wavs(program, tmp_path):
 
 
 # -- a file changed while it is read ------------------------------------------------------
+
 
 def _rewrite_after_first_block(monkeypatch, path, how):
     real = audio.iter_blocks
@@ -280,8 +291,9 @@ def test_batch_refuses_and_caches_nothing_for_a_file_changed_while_read(tmp_path
     write(tmp_path / "calm.wav", 0.1 * tones([440], [1], 48000, 1.0), 48000)
     _rewrite_after_first_block(monkeypatch, src, how)
     s = settings_from({"cutoffs": "4k:16k:4", "family": "butterworth", "order": "2", "max_loss": "3"}, None)
-    r = batch.run_batch([str(tmp_path / "long.wav"), str(tmp_path / "calm.wav")], s, tmp_path / "b",
-                        coverage=0.5, workers=0)
+    r = batch.run_batch(
+        [str(tmp_path / "long.wav"), str(tmp_path / "calm.wav")], s, tmp_path / "b", coverage=0.5, workers=0
+    )
     failed = r.doc["failed"]
     assert len(failed) == 1 and "changed while it was read" in failed[0]["reason"]
     assert len(list((tmp_path / "b" / "cache").glob("*.json"))) == 1  # only calm.wav
@@ -289,24 +301,47 @@ def test_batch_refuses_and_caches_nothing_for_a_file_changed_while_read(tmp_path
 
 # -- batch opens only regular files ---------------------------------------------------
 
+
 def test_batch_refuses_a_fifo_and_dev_zero_without_opening_them(tmp_path, program, capsys):
     fifo = tmp_path / "pipe.wav"
     os.mkfifo(fifo)
     out = tmp_path / "b"
     # a reader that opened the FIFO would block for ever: run in a child with a deadline
-    proc = subprocess.run([PY, "-m", "audiobw", "batch", str(fifo), "/dev/zero", str(program), "--out", str(out),
-                           "--workers", "0", *SWEEP], capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [
+            PY,
+            "-m",
+            "audiobw",
+            "batch",
+            str(fifo),
+            "/dev/zero",
+            str(program),
+            "--out",
+            str(out),
+            "--workers",
+            "0",
+            *SWEEP,
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode == 0, proc.stderr
     corpus = json.loads((out / "corpus.json").read_text())
     reasons = {s["path"]: s["reason"] for s in corpus["skipped"]}
     assert "not a regular file" in reasons[str(fifo)] and "not a regular file" in reasons["/dev/zero"]
     assert corpus["counts"]["swept"] == 1
-    proc = subprocess.run([PY, "-m", "audiobw", "batch", str(fifo), "--out", str(out), "--workers", "0", *SWEEP],
-                          capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [PY, "-m", "audiobw", "batch", str(fifo), "--out", str(out), "--workers", "0", *SWEEP],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode == 2 and "not a regular file" in proc.stderr and "Traceback" not in proc.stderr
 
 
 # -- the same input named two ways gives the same bytes ------------------------------------
+
 
 def test_absolute_and_relative_names_give_identical_outputs(tmp_path, monkeypatch, program):
     monkeypatch.chdir(tmp_path)
@@ -314,13 +349,19 @@ def test_absolute_and_relative_names_give_identical_outputs(tmp_path, monkeypatc
         assert main(["sweep", name, "--out", out, "--report", *SWEEP]) == 0
         assert main(["batch", name, "--out", f"b-{out}", "--workers", "0", *SWEEP]) == 0
     for f in ("sweep.json", "sweep.csv", "spec.json", "spec.md", "report.html", "spectrum.npz"):
-        assert (tmp_path / "rel" / f).read_bytes() == (tmp_path / "abs" / f).read_bytes() \
-            == (tmp_path / "dot" / f).read_bytes(), f
+        assert (
+            (tmp_path / "rel" / f).read_bytes()
+            == (tmp_path / "abs" / f).read_bytes()
+            == (tmp_path / "dot" / f).read_bytes()
+        ), f
     assert json.loads((tmp_path / "rel" / "sweep.json").read_text())["input"]["path"] == "take.wav"
     for f in ("corpus.json", "corpus.csv"):
         assert (tmp_path / "b-rel" / f).read_bytes() == (tmp_path / "b-abs" / f).read_bytes(), f
-    assert sorted(os.listdir(tmp_path / "b-rel" / "files")) == sorted(os.listdir(tmp_path / "b-abs" / "files")) \
+    assert (
+        sorted(os.listdir(tmp_path / "b-rel" / "files"))
+        == sorted(os.listdir(tmp_path / "b-abs" / "files"))
         == ["take.wav"]
+    )
 
 
 def test_a_file_outside_the_working_folder_is_recorded_absolute(tmp_path, monkeypatch, program):
@@ -331,6 +372,7 @@ def test_a_file_outside_the_working_folder_is_recorded_absolute(tmp_path, monkey
 
 
 # -- report embeds only its own files ---------------------------------------------------
+
 
 @pytest.fixture
 def swept(tmp_path, program):
@@ -372,6 +414,7 @@ def test_report_never_embeds_or_links_a_planted_file(tmp_path, swept, plant):
 
 
 # -- hand-edited or corrupt sweep.json and spectrum.npz ---------------------------------
+
 
 def _leaves(x, parts=()):
     yield parts
@@ -430,14 +473,17 @@ def _one_line_error_text(err):
     return lines[0]
 
 
-@pytest.mark.parametrize("edit, pointer", [
-    (lambda d: d["choice"].update(case=9999), "/choice/case"),
-    (lambda d: d["choice"].update(next_narrower=424242), "/choice/next_narrower"),
-    (lambda d: d["cases"][0].update(snr_db="abc"), "/cases/0/snr_db"),
-    (lambda d: d["cases"][1].update(id=d["cases"][0]["id"]), "/cases/1/id"),
-    (lambda d: d["grid"].pop("ripple_db"), "/grid/ripple_db"),
-    (lambda d: d["input"].update(sample_rate_hz=0), "/input/sample_rate_hz"),
-])
+@pytest.mark.parametrize(
+    "edit, pointer",
+    [
+        (lambda d: d["choice"].update(case=9999), "/choice/case"),
+        (lambda d: d["choice"].update(next_narrower=424242), "/choice/next_narrower"),
+        (lambda d: d["cases"][0].update(snr_db="abc"), "/cases/0/snr_db"),
+        (lambda d: d["cases"][1].update(id=d["cases"][0]["id"]), "/cases/1/id"),
+        (lambda d: d["grid"].pop("ripple_db"), "/grid/ripple_db"),
+        (lambda d: d["input"].update(sample_rate_hz=0), "/input/sample_rate_hz"),
+    ],
+)
 def test_a_bad_value_is_named_by_its_json_pointer(swept, capsys, edit, pointer):
     doc = json.loads((swept / "sweep.json").read_text())
     edit(doc)
@@ -459,8 +505,9 @@ def _npz(path, **arrays):
         np.savez(fh, **arrays)
 
 
-@pytest.mark.parametrize("fault", ["truncated", "zero-bins", "pickle", "2-d", "nan", "falling", "other-rate",
-                                   "empty-file", "not-zip"])
+@pytest.mark.parametrize(
+    "fault", ["truncated", "zero-bins", "pickle", "2-d", "nan", "falling", "other-rate", "empty-file", "not-zip"]
+)
 def test_corrupt_spectrum_npz_is_one_line(swept, capsys, fault):
     npz = swept / "spectrum.npz"
     with np.load(npz) as z:
@@ -489,6 +536,7 @@ def test_corrupt_spectrum_npz_is_one_line(swept, capsys, fault):
 
 # -- batch cache entries are validated and bound to their inputs --------------------------
 
+
 def _cache_run(tmp_path, rng_seed=3):
     from audiobw import batch
     from audiobw.clikit import settings_from
@@ -502,10 +550,22 @@ def _cache_run(tmp_path, rng_seed=3):
     return lambda out: batch.run_batch([str(lib)], s, out, coverage=0.6, workers=0)
 
 
-@pytest.mark.parametrize("edit", [
-    "cases-oops", "no-margins", "choice-9999", "all-pass", "nan", "not-object", "truncated", "other-version",
-    "dup-id", "fails-not-list", "deep",
-])
+@pytest.mark.parametrize(
+    "edit",
+    [
+        "cases-oops",
+        "no-margins",
+        "choice-9999",
+        "all-pass",
+        "nan",
+        "not-object",
+        "truncated",
+        "other-version",
+        "dup-id",
+        "fails-not-list",
+        "deep",
+    ],
+)
 def test_edited_or_malformed_cache_entry_is_recomputed_not_trusted(tmp_path, edit):
     run = _cache_run(tmp_path)
     out = tmp_path / "b"
@@ -552,6 +612,7 @@ def test_edited_or_malformed_cache_entry_is_recomputed_not_trusted(tmp_path, edi
 
 # -- hangs: a cluster address that is not a scheduler; workers outliving a killed parent ----------
 
+
 def _silent_listener():
     import socket
 
@@ -585,9 +646,25 @@ def test_batch_cluster_that_is_not_a_scheduler_times_out_with_one_line(tmp_path,
     pytest.importorskip("distributed")
     srv, address = _silent_listener() if server == "silent" else _http_server()
     try:
-        proc = subprocess.run([PY, "-m", "audiobw", "batch", str(program), "--out", str(tmp_path / "b"),
-                               "--cluster", address, "--cluster-timeout", "1s", *SWEEP],
-                              capture_output=True, text=True, timeout=180)  # a hang fails here
+        proc = subprocess.run(
+            [
+                PY,
+                "-m",
+                "audiobw",
+                "batch",
+                str(program),
+                "--out",
+                str(tmp_path / "b"),
+                "--cluster",
+                address,
+                "--cluster-timeout",
+                "1s",
+                *SWEEP,
+            ],
+            capture_output=True,
+            text=True,
+            timeout=180,
+        )  # a hang fails here
     finally:
         if server == "silent":
             srv.close()
@@ -601,8 +678,19 @@ def test_batch_cluster_that_is_not_a_scheduler_times_out_with_one_line(tmp_path,
 
 @pytest.mark.parametrize("value", ["0", "-1s", "1e308", "abc"])
 def test_cluster_timeout_out_of_range_is_refused(tmp_path, program, value, capsys):
-    code = main(["batch", str(program), "--out", str(tmp_path / "b"), "--cluster", "tcp://127.0.0.1:1",
-                 "--cluster-timeout", value, *SWEEP])
+    code = main(
+        [
+            "batch",
+            str(program),
+            "--out",
+            str(tmp_path / "b"),
+            "--cluster",
+            "tcp://127.0.0.1:1",
+            "--cluster-timeout",
+            value,
+            *SWEEP,
+        ]
+    )
     assert "--cluster-timeout" in _one_line_error(capsys, code, expected_code=2)
 
 
@@ -636,9 +724,29 @@ def test_batch_workers_exit_when_the_parent_is_killed(tmp_path):
     rng = np.random.default_rng(5)
     for i in range(8):
         write(lib / f"n{i}.wav", 0.05 * rng.standard_normal(48000 * 4), 48000)
-    proc = subprocess.Popen([PY, "-m", "audiobw", "batch", str(lib), "--out", str(tmp_path / "b"), "--workers", "2",
-                             "--cutoffs", "1k:20k:40", "--family", "butterworth,elliptic", "--order", "2,4,8",
-                             "--max-loss", "0.5"], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    proc = subprocess.Popen(
+        [
+            PY,
+            "-m",
+            "audiobw",
+            "batch",
+            str(lib),
+            "--out",
+            str(tmp_path / "b"),
+            "--workers",
+            "2",
+            "--cutoffs",
+            "1k:20k:40",
+            "--family",
+            "butterworth,elliptic",
+            "--order",
+            "2,4,8",
+            "--max-loss",
+            "0.5",
+        ],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+    )
     deadline = time.monotonic() + 120
     kids = []
     while time.monotonic() < deadline and len(kids) < 3:  # two workers and the resource tracker

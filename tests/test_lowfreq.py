@@ -57,16 +57,17 @@ def _time_domain_loss_db(x: np.ndarray, sos: np.ndarray) -> float:
     y = signal.sosfilt(sos, x, axis=-1)
     start = 5 * FS
     n = (x.shape[-1] - start) // COMMON_PERIOD * COMMON_PERIOD
-    xin = x[..., start:start + n]
-    yout = y[..., start:start + n]
+    xin = x[..., start : start + n]
+    yout = y[..., start : start + n]
     return 10 * math.log10(float(np.mean(xin**2)) / float(np.mean(yout**2)))
 
 
 @pytest.mark.parametrize("fc", [20.0, 30.0, 40.0, 50.0])
 def test_butterworth8_highpass_loss_matches_time_domain_filtering(low_tones, fc):
     path, _, _, x = low_tones
-    r = run_sweep(path, chain=Chain(**QUIET), grid=Grid("highpass", ("butterworth",), (8,), (fc,)),
-                  targets={"max_loss_db": 1.0})
+    r = run_sweep(
+        path, chain=Chain(**QUIET), grid=Grid("highpass", ("butterworth",), (8,), (fc,)), targets={"max_loss_db": 1.0}
+    )
     row = r.cases[0]
     # reference: scipy.signal.butter(8, fc, 'highpass', fs=48000, output='sos') (bilinear; the
     # frequency warping at 50 Hz is tan(π·50/48000)/(π·50/48000) − 1 ≈ 4e-6) run by sosfilt
@@ -83,13 +84,28 @@ def test_butterworth8_highpass_loss_matches_time_domain_filtering(low_tones, fc)
 def test_loss_of_every_family_is_the_exact_response_at_the_tones(low_tones):
     path, freqs, amps, _ = low_tones
     fams = ("butterworth", "bessel", "chebyshev1", "elliptic")
-    r = run_sweep(path, chain=Chain(**QUIET), grid=Grid("highpass", fams, (2, 4, 8), (20.0, 32.0, 50.0)),
-                  targets={"max_loss_db": 1.0})
+    r = run_sweep(
+        path,
+        chain=Chain(**QUIET),
+        grid=Grid("highpass", fams, (2, 4, 8), (20.0, 32.0, 50.0)),
+        targets={"max_loss_db": 1.0},
+    )
     p_in = sum(a * a / 2 for a in amps)
     worst = 0.0
     for row in r.cases:
-        filt = design(FilterSpec("highpass", row["family"], row["order"], row["design_low_hz"], None,
-                                 r.grid.ripple_db, r.grid.stopband_db, "analog", FS))
+        filt = design(
+            FilterSpec(
+                "highpass",
+                row["family"],
+                row["order"],
+                row["design_low_hz"],
+                None,
+                r.grid.ripple_db,
+                r.grid.stopband_db,
+                "analog",
+                FS,
+            )
+        )
         # exact |H(f)|² at each steady tone: scipy.signal.freqs_zpk on the designed prototype
         w = 2 * np.pi * np.asarray(freqs) / filt.ref_rad_s
         g = np.abs(signal.freqs_zpk(filt.z, filt.p, filt.k, worN=w)[1]) ** 2
@@ -107,8 +123,10 @@ def test_normal_grid_alone_smears_the_40_hz_tone(tmp_path):
     a = analyse(path)
     filt = design(FilterSpec("highpass", "butterworth", 8, 50.0, None))
     exact = -10 * math.log10(float(filt.power_response(40.0)))
-    normal = 10 * math.log10(np.sum(a.psd * a.weights_hz) / np.sum(a.psd * a.weights_hz * filt.power_response(a.freqs_hz)))
-    assert exact - normal > 0.5              # 3 Hz grid: 14.82 dB against 15.63 dB
+    normal = 10 * math.log10(
+        np.sum(a.psd * a.weights_hz) / np.sum(a.psd * a.weights_hz * filt.power_response(a.freqs_hz))
+    )
+    assert exact - normal > 0.5  # 3 Hz grid: 14.82 dB against 15.63 dB
     f, p, w, _ = a.scoring_grid()
     fine = 10 * math.log10(np.sum(p * w) / np.sum(p * w * filt.power_response(f)))
     assert fine == pytest.approx(exact, abs=0.02)
@@ -124,7 +142,7 @@ def test_snr_follows_the_program_out(low_tones):
     r = run_sweep(path, chain=chain, grid=Grid("highpass", ("butterworth",), (8,), (fc,)), targets={"min_snr_db": 0})
     row = r.cases[0]
     sos = signal.butter(8, fc, "highpass", fs=FS, output="sos")
-    y = signal.sosfilt(sos, x, axis=-1)[:, 5 * FS:]
+    y = signal.sosfilt(sos, x, axis=-1)[:, 5 * FS :]
     y = y[:, : y.shape[1] // COMMON_PERIOD * COMMON_PERIOD]
     p_out_v2 = float(np.mean(y**2)) * chain.volts_per_unit**2
     ref = 10 * math.log10(p_out_v2 / row["noise_vrms"] ** 2)
@@ -142,7 +160,7 @@ def _a_weighting_db(f):
 def test_a_weighted_20_hz_tone(tmp_path):
     # snr_a − snr = 10·lg(A-weighted program out / program out) − (the same for the noise); the
     # noise term cancels between a 20 Hz and a 1 kHz tone scored through the same chain and filter
-    assert _a_weighting_db(20.0) == pytest.approx(-50.5, abs=0.15)   # IEC 61672-1 Table 3
+    assert _a_weighting_db(20.0) == pytest.approx(-50.5, abs=0.15)  # IEC 61672-1 Table 3
     assert _a_weighting_db(1000.0) == pytest.approx(0.0, abs=0.001)
     # a highpass's noise needs a bound: the ideal anti-alias filter (the default 'none' refuses it)
     chain = Chain(source_ohms=150.0, en_v_rthz=1e-9, bits=24, anti_alias="ideal")
@@ -168,7 +186,7 @@ def test_total_power_is_preserved(tmp_path):
     f, p, w, k = a.scoring_grid()
     assert k > 0 and a.fine_nperseg >= 8 * a.nperseg
     assert 250.0 <= a.meta["crossover_hz"] <= 500.0
-    assert abs(a.meta["crossover_hz"] - 330.0) > 20.0     # not on the tone
+    assert abs(a.meta["crossover_hz"] - 330.0) > 20.0  # not on the tone
     assert np.sum(w) == pytest.approx(FS / 2, rel=1e-12)
     assert np.all(np.diff(f) > 0)
     ms = float(np.mean(x**2))
@@ -178,24 +196,23 @@ def test_total_power_is_preserved(tmp_path):
     assert a.meta["fine_vs_normal_db"] == pytest.approx(0.0, abs=0.01)
     # and the sweep's full-band program power is that total (no case removes anything at 0 dB)
     sc = Scorer(a, Chain(**QUIET), Meter())
-    assert sc._pre["x_total"] == pytest.approx(float(np.sum(p * w)) * Chain(**QUIET).volts_per_unit**2, rel=1e-12)
+    assert sc._pre["x_total"] == pytest.approx(float(np.sum(p * w)) * Chain(**QUIET).volts_per_unit ** 2, rel=1e-12)
 
 
 def test_fine_psd_streams_like_one_block(tmp_path):
     x = _tones([33.0, 47.0], [0.3, 0.3], seconds=20.0) + 0.01 * np.random.default_rng(9).standard_normal(20 * FS)
-    x[4 * FS: 7 * FS] *= 0.1                                 # a level change: the time weights matter
+    x[4 * FS : 7 * FS] *= 0.1  # a level change: the time weights matter
     path = tmp_path / "s.wav"
     sf.write(str(path), x, FS, subtype="FLOAT")
     a = analyse(path, blocksize=1 << 17)
     b = analyse(path, blocksize=12345)
-    assert a.fine_nperseg == b.fine_nperseg == 32768         # 20 s: 16 segments of 0.68 s
+    assert a.fine_nperseg == b.fine_nperseg == 32768  # 20 s: 16 segments of 0.68 s
     np.testing.assert_allclose(a.fine_psd, b.fine_psd, rtol=1e-9)
     x = sf.read(str(path))[0]  # the samples as stored (32-bit float)
     # scipy.signal.welch at the same segment: Hann, 50 % overlap, no detrending, density;
     # the fine DC bin is doubled (for its half-width trapezoid weight)
     n = a.fine_nperseg
-    fw, pw = signal.welch(x, fs=FS, window="hann", nperseg=n, noverlap=n // 2, detrend=False,
-                          scaling="density")
+    fw, pw = signal.welch(x, fs=FS, window="hann", nperseg=n, noverlap=n // 2, detrend=False, scaling="density")
     m = a.fine_psd.size
     np.testing.assert_allclose(a.fine_psd[1:], pw[1:m], rtol=1e-9, atol=1e-20)
     assert a.fine_psd[0] == pytest.approx(2 * pw[0], rel=1e-9)

@@ -43,10 +43,13 @@ def test_choice_is_the_narrowest_cutoff_computable_by_hand(write_audio):
     cutoffs = tuple(np.geomspace(4000, 20000, 30))
     limit = 0.1
     # by hand: the lowest grid cutoff whose two-tone loss is at most 0.1 dB
-    hand = min(fc for fc in cutoffs
-               if 10 * math.log10(2 / (bw_gain(1000, fc, 4) + bw_gain(8000, fc, 4))) <= limit)
-    r = run_sweep(path, chain=Chain(**QUIET), grid=Grid("lowpass", ("butterworth",), (4,), cutoffs),
-                  targets={"max_loss_db": limit})
+    hand = min(fc for fc in cutoffs if 10 * math.log10(2 / (bw_gain(1000, fc, 4) + bw_gain(8000, fc, 4))) <= limit)
+    r = run_sweep(
+        path,
+        chain=Chain(**QUIET),
+        grid=Grid("lowpass", ("butterworth",), (4,), cutoffs),
+        targets={"max_loss_db": limit},
+    )
     doc = r.to_json()
     chosen = doc["cases"][doc["choice"]["case"] - 1]
     assert chosen["high_hz"] == pytest.approx(hand, rel=1e-6)  # sweep.json keeps 7 significant digits
@@ -57,8 +60,12 @@ def test_choice_is_the_narrowest_cutoff_computable_by_hand(write_audio):
 
 def test_unmet_target_names_the_best_value(write_audio):
     path = two_tone_file(write_audio)
-    r = run_sweep(path, chain=Chain(), grid=Grid("lowpass", ("butterworth",), (2,), (3000.0, 6000.0, 12000.0)),
-                  targets={"min_snr_db": 300.0})
+    r = run_sweep(
+        path,
+        chain=Chain(),
+        grid=Grid("lowpass", ("butterworth",), (2,), (3000.0, 6000.0, 12000.0)),
+        targets={"min_snr_db": 300.0},
+    )
     doc = r.to_json()
     assert doc["choice"] is None
     best = max(c["snr_db"] for c in doc["cases"])
@@ -71,8 +78,7 @@ def test_snr_of_a_tone_over_white_noise(write_audio):
     fs = 48000
     amp = 0.25
     path = write_audio("tone.wav", tones([1000.0], [amp], fs, 3.0)[:, None], fs)
-    c = Chain(source_ohms=0.0, gain_db=0.0, en_v_rthz=50e-9, in_a_rthz=0.0, bits=32, dither="none",
-              full_scale_vrms=1.0)
+    c = Chain(source_ohms=0.0, gain_db=0.0, en_v_rthz=50e-9, in_a_rthz=0.0, bits=32, dither="none", full_scale_vrms=1.0)
     row = Scorer(analyse(path), c, Meter()).score(design(FilterSpec("lowpass", "butterworth", 2, None, 5000.0)))
     p_sig = (amp * math.sqrt(2)) ** 2 / 2 * bw_gain(1000, 5000, 2)
     p_noise = (50e-9) ** 2 * 5000 * (math.pi / 4) / math.sin(math.pi / 4)
@@ -84,8 +90,18 @@ def _thdn_row(write_audio, hi, h2=-60.0, stage="analog", order=8):
     fs = 48000
     path = write_audio("p.wav", tones([1000.0], [0.3], fs, 2.0)[:, None], fs)
     # digital stage: the converter's own anti-alias filter confines the noise to fs/2 (the reference below)
-    c = Chain(source_ohms=0.0, gain_db=0.0, en_v_rthz=1e-9, in_a_rthz=0.0, bits=24, h2_db=h2, stage=stage,
-              full_scale_vrms=1.0, dither="none", anti_alias="ideal" if stage == "digital" else "none")
+    c = Chain(
+        source_ohms=0.0,
+        gain_db=0.0,
+        en_v_rthz=1e-9,
+        in_a_rthz=0.0,
+        bits=24,
+        h2_db=h2,
+        stage=stage,
+        full_scale_vrms=1.0,
+        dither="none",
+        anti_alias="ideal" if stage == "digital" else "none",
+    )
     f = design(FilterSpec("lowpass", "butterworth", order, None, hi, stage=stage, fs_hz=fs))
     return Scorer(analyse(path), c, Meter(tone_hz=997.0, tone_level_dbfs=-1.0)).score(f), f, c
 
@@ -155,8 +171,9 @@ def test_ser_peaks_between_too_narrow_and_too_wide(write_audio, rng):
     path = write_audio("pink.wav", x[:, None], fs)
     noisy = Chain(source_ohms=1e4, gain_db=60.0, en_v_rthz=20e-9, bits=16)
     cut = tuple(np.geomspace(300, 22000, 25))
-    doc = run_sweep(path, chain=noisy, grid=Grid("lowpass", ("butterworth",), (4,), cut),
-                    targets={"min_ser_db": 0.0}).to_json()
+    doc = run_sweep(
+        path, chain=noisy, grid=Grid("lowpass", ("butterworth",), (4,), cut), targets={"min_ser_db": 0.0}
+    ).to_json()
     ser = [c["ser_db"] for c in doc["cases"]]
     k = int(np.argmax(ser))
     assert 0 < k < len(ser) - 1
@@ -167,8 +184,12 @@ def test_lsd_grows_as_the_band_narrows(write_audio, rng):
     fs = 44100
     x = rng.standard_normal(fs * 3) * 0.05
     path = write_audio("w.wav", x[:, None], fs)
-    doc = run_sweep(path, chain=Chain(), grid=Grid("lowpass", ("bessel",), (4,), (1000.0, 4000.0, 16000.0)),
-                    targets={"max_lsd_db": 1.0}).to_json()
+    doc = run_sweep(
+        path,
+        chain=Chain(),
+        grid=Grid("lowpass", ("bessel",), (4,), (1000.0, 4000.0, 16000.0)),
+        targets={"max_lsd_db": 1.0},
+    ).to_json()
     lsd = [c["lsd_db"] for c in doc["cases"]]
     assert lsd[0] > lsd[1] > lsd[2] >= 0
     loss = [c["loss_db"] for c in doc["cases"]]
@@ -176,6 +197,7 @@ def test_lsd_grows_as_the_band_narrows(write_audio, rng):
 
 
 # --- signal-to-error against a time-domain reference (issue 12, item 1) -----
+
 
 def _band_limited(rng, fs, n, top_hz, rms=0.1):
     """A periodic random program with no energy above ``top_hz``."""
@@ -227,10 +249,11 @@ def test_ser_matches_the_time_domain_error_at_the_best_delay(write_audio, family
     f = np.fft.rfftfreq(n, 1 / fs)
     for order in range(2, 9):
         for fc in (15000.0, 3000.0):
-            filt = design(FilterSpec("lowpass", family, order, None, fc, stage=stage,
-                                     fs_hz=fs if stage == "digital" else None))
+            filt = design(
+                FilterSpec("lowpass", family, order, None, fc, stage=stage, fs_hz=fs if stage == "digital" else None)
+            )
             if stage == "digital":
-                y = signal.sosfilt(filt.sos(), np.tile(x, 3))[2 * n:]
+                y = signal.sosfilt(filt.sos(), np.tile(x, 3))[2 * n :]
             else:
                 z, p, k = filt.zpk()
                 _, h = signal.freqs_zpk(z, p, k, worN=2 * np.pi * f)
@@ -242,9 +265,11 @@ def test_ser_matches_the_time_domain_error_at_the_best_delay(write_audio, family
 
 # --- THD+N with the polynomial's DC and 3rd-order fundamental (issue 12, item 3) ---
 
+
 @pytest.mark.parametrize("stage", ["analog", "digital"])
-@pytest.mark.parametrize("response,edges", [("lowpass", (None, 10000.0)), ("lowpass", (None, 1400.0)),
-                                            ("highpass", (20.0, None))])
+@pytest.mark.parametrize(
+    "response,edges", [("lowpass", (None, 10000.0)), ("lowpass", (None, 1400.0)), ("highpass", (20.0, None))]
+)
 @pytest.mark.parametrize("meter", ["full", "aes17"])
 def test_thdn_of_the_polynomial_matches_the_time_domain(write_audio, stage, response, edges, meter):
     """y = x + a2·x² + a3·x³ on a −1 dBFS 997 Hz sine (h2 −40 dB, h3 −45 dB), filtered, THD+N
@@ -253,8 +278,18 @@ def test_thdn_of_the_polynomial_matches_the_time_domain(write_audio, stage, resp
     AES17-2020 §5.2.5).  Before the fix the model left out the DC (0.891 % vs 1.544 % with h2 alone)
     and the 3rd-order term's change of the fundamental."""
     fs, n = 48000, 48000  # 997 whole cycles: the tone and its products are periodic in n
-    c = Chain(source_ohms=0.0, gain_db=0.0, en_v_rthz=0.0, in_a_rthz=0.0, bits=32, h2_db=-40.0, h3_db=-45.0,
-              stage=stage, full_scale_vrms=1.0, dither="none")
+    c = Chain(
+        source_ohms=0.0,
+        gain_db=0.0,
+        en_v_rthz=0.0,
+        in_a_rthz=0.0,
+        bits=32,
+        h2_db=-40.0,
+        h3_db=-45.0,
+        stage=stage,
+        full_scale_vrms=1.0,
+        dither="none",
+    )
     filt = design(FilterSpec(response, "butterworth", 4, *edges, stage=stage, fs_hz=fs))
     path = write_audio("p.wav", tones([1000.0], [0.3], fs, 2.0)[:, None], fs)
     row = Scorer(analyse(path), c, Meter(mode=meter, tone_hz=997.0, tone_level_dbfs=-1.0)).score(filt)
@@ -266,7 +301,7 @@ def test_thdn_of_the_polynomial_matches_the_time_domain(write_audio, stage, resp
     x = r * np.sin(2 * np.pi * 997 * t)
     u = x + a2 * x**2 + a3 * x**3
     if stage == "digital":
-        y = signal.sosfilt(filt.sos(), np.tile(u, 3))[2 * n:]  # steady state
+        y = signal.sosfilt(filt.sos(), np.tile(u, 3))[2 * n :]  # steady state
     else:
         z, p, k = filt.zpk()
         _, h = signal.freqs_zpk(z, p, k, worN=2 * np.pi * np.fft.rfftfreq(n, 1 / fs))
@@ -328,8 +363,11 @@ def test_lsd_matches_the_time_domain_and_ignores_the_chain_noise(write_audio, fc
     a = analyse(path)
     filt = design(FilterSpec("lowpass", "butterworth", 8, None, fc, stage="digital", fs_hz=fs))
     y = signal.sosfilt(filt.sos(), x)
-    truth = _lsd_time_domain(x[fs // 2:], y[fs // 2:], fs)
-    rows = [Scorer(a, Chain(bits=bits, stage="digital", anti_alias="ideal"), Meter()).score(filt)["lsd_db"] for bits in (24, 14)]
+    truth = _lsd_time_domain(x[fs // 2 :], y[fs // 2 :], fs)
+    rows = [
+        Scorer(a, Chain(bits=bits, stage="digital", anti_alias="ideal"), Meter()).score(filt)["lsd_db"]
+        for bits in (24, 14)
+    ]
     assert rows[0] == pytest.approx(truth, abs=0.2)
     assert rows[1] == pytest.approx(rows[0], abs=1e-9)
 
@@ -355,8 +393,13 @@ def lsd_analysis(tmp_path_factory):
 
 
 @hsettings(max_examples=40, deadline=None)
-@given(bits=st.integers(8, 24), extra_bits=st.integers(1, 8), en=st.floats(0.0, 1e-7),
-       fc=st.floats(500.0, 20000.0), order=st.integers(1, 8))
+@given(
+    bits=st.integers(8, 24),
+    extra_bits=st.integers(1, 8),
+    en=st.floats(0.0, 1e-7),
+    fc=st.floats(500.0, 20000.0),
+    order=st.integers(1, 8),
+)
 def test_lsd_more_noise_never_improves_it(lsd_analysis, bits, extra_bits, en, fc, order):
     filt = design(FilterSpec("lowpass", "butterworth", order, None, fc))
     quiet = Scorer(lsd_analysis, Chain(bits=bits + extra_bits, en_v_rthz=en), Meter()).score(filt)["lsd_db"]
@@ -365,8 +408,12 @@ def test_lsd_more_noise_never_improves_it(lsd_analysis, bits, extra_bits, en, fc
 
 
 @hsettings(max_examples=40, deadline=None)
-@given(family=st.sampled_from(["butterworth", "bessel"]), order=st.integers(1, 8),
-       fc=st.floats(300.0, 15000.0), wider=st.floats(1.0, 3.0))
+@given(
+    family=st.sampled_from(["butterworth", "bessel"]),
+    order=st.integers(1, 8),
+    fc=st.floats(300.0, 15000.0),
+    wider=st.floats(1.0, 3.0),
+)
 def test_lsd_a_wider_lowpass_never_worsens_it(lsd_analysis, family, order, fc, wider):
     """Butterworth and Bessel lowpass gains rise with the cutoff at every frequency (no ripple)."""
     sc = Scorer(lsd_analysis, Chain(), Meter())

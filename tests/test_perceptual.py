@@ -15,11 +15,72 @@ from audiobw.metrics import best_delay
 # ISO 226:2003 Table 1, column T_f (dB SPL), every listed frequency.  Typed from memory,
 # then compared with public transcriptions of the table in open ISO 226 code (several
 # independent repositories carry the same 29 values).
-ISO226_SPOTS = dict(zip(
-    (20, 25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250,
-     1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000, 10000, 12500),
-    (78.5, 68.7, 59.5, 51.1, 44.0, 37.5, 31.5, 26.5, 22.1, 17.9, 14.4, 11.4, 8.6, 6.2, 4.4, 3.0,
-     2.2, 2.4, 3.5, 1.7, -1.3, -4.2, -6.0, -5.4, -1.5, 6.0, 12.6, 13.9, 12.3)))
+ISO226_SPOTS = dict(
+    zip(
+        (
+            20,
+            25,
+            31.5,
+            40,
+            50,
+            63,
+            80,
+            100,
+            125,
+            160,
+            200,
+            250,
+            315,
+            400,
+            500,
+            630,
+            800,
+            1000,
+            1250,
+            1600,
+            2000,
+            2500,
+            3150,
+            4000,
+            5000,
+            6300,
+            8000,
+            10000,
+            12500,
+        ),
+        (
+            78.5,
+            68.7,
+            59.5,
+            51.1,
+            44.0,
+            37.5,
+            31.5,
+            26.5,
+            22.1,
+            17.9,
+            14.4,
+            11.4,
+            8.6,
+            6.2,
+            4.4,
+            3.0,
+            2.2,
+            2.4,
+            3.5,
+            1.7,
+            -1.3,
+            -4.2,
+            -6.0,
+            -5.4,
+            -1.5,
+            6.0,
+            12.6,
+            13.9,
+            12.3,
+        ),
+    )
+)
 
 
 @pytest.mark.parametrize("f,tf", sorted(ISO226_SPOTS.items()))
@@ -40,7 +101,7 @@ def test_threshold_agrees_with_terhardt_approximation():
     # comparison stops there.
     f = np.geomspace(100.0, 5000.0, 40)
     k = f / 1000.0
-    terhardt = 3.64 * k ** -0.8 - 6.5 * np.exp(-0.6 * (k - 3.3) ** 2) + 1e-3 * k ** 4
+    terhardt = 3.64 * k**-0.8 - 6.5 * np.exp(-0.6 * (k - 3.3) ** 2) + 1e-3 * k**4
     assert np.max(np.abs(threshold.threshold_in_quiet_db(f) - terhardt)) < 4.0
 
 
@@ -59,14 +120,16 @@ def test_audiogram_adds_hearing_level():
     assert t1 - t0 == pytest.approx([20.0, 30.0, 40.0], abs=1e-9)
 
 
-@pytest.mark.parametrize("bad,match", [("1000", "FREQ_HZ:DB_HL"), ("50:10", "100-16000"),
-                                       ("1000:200", "-20..120"), ("", "empty")])
+@pytest.mark.parametrize(
+    "bad,match", [("1000", "FREQ_HZ:DB_HL"), ("50:10", "100-16000"), ("1000:200", "-20..120"), ("", "empty")]
+)
 def test_audiogram_errors(bad, match):
     with pytest.raises(ValueError, match=match):
         threshold.parse_audiogram(bad)
 
 
 # ---------------------------------------------------------------- masking
+
 
 def test_spreading_function_shape():
     # Schroeder, Atal & Hall (1979): 0 dB at the masker, maximum there,
@@ -96,17 +159,25 @@ def test_bark_scale_spot_values():
 def _program_bands(spl_db, fs=48000.0):
     """A broadband music-like program (pink, −3 dB/octave) at ``spl_db``."""
     from audiobw.weighting import critical_band_edges
+
     edges = critical_band_edges(fs / 2)
     centres = np.sqrt(np.maximum(edges[:-1], 20.0) * edges[1:])
     width = np.diff(edges)
-    power = width / centres            # pink: equal power per octave
+    power = width / centres  # pink: equal power per octave
     power *= 10 ** (spl_db / 10) / power.sum()
     return edges, centres, power
 
 
 def _mask(centres, edges, power, alpha=0.0):
-    quiet = 10 ** (np.array([threshold.threshold_in_quiet_db(np.geomspace(max(lo, 20.0), hi, 16)).min()
-                             for lo, hi in zip(edges[:-1], edges[1:])]) / 10)
+    quiet = 10 ** (
+        np.array(
+            [
+                threshold.threshold_in_quiet_db(np.geomspace(max(lo, 20.0), hi, 16)).min()
+                for lo, hi in zip(edges[:-1], edges[1:])
+            ]
+        )
+        / 10
+    )
     return masking.masked_threshold(power[None, :], masking.bark(centres), np.array([alpha]), quiet)
 
 
@@ -122,23 +193,22 @@ def test_content_70db_below_program_at_14khz_is_inaudible():
 def test_content_at_70db_spl_far_from_masker_is_audible():
     edges, centres, _ = _program_bands(80.0)
     power = np.full(len(centres), 1e-6)
-    power[1] = 10 ** 8.0              # the only masker: 80 dB SPL near 150 Hz
+    power[1] = 10**8.0  # the only masker: 80 dB SPL near 150 Hz
     m = _mask(centres, edges, power, alpha=1.0)
     err = np.zeros_like(power)[None, :]
     b = int(np.searchsorted(edges, 10000.0)) - 1
-    err[0, b] = 10 ** 7.0
+    err[0, b] = 10**7.0
     assert masking.audible_frames_pct(err, m) == 100.0
     assert masking.nmr_db(err, m) > 10.0
 
 
 @settings(max_examples=40, deadline=None)
-@given(extra=st.floats(1e-6, 1e6), seed=st.integers(0, 2 ** 16))
+@given(extra=st.floats(1e-6, 1e6), seed=st.integers(0, 2**16))
 def test_more_error_never_improves_nmr_or_audible_frames(extra, seed):
     rng = np.random.default_rng(seed)
     edges, centres, _ = _program_bands(80.0)
     power = 10 ** rng.uniform(2, 8, (12, len(centres)))
-    m = masking.masked_threshold(power, masking.bark(centres), rng.uniform(0, 1, 12),
-                                 np.ones(len(centres)))
+    m = masking.masked_threshold(power, masking.bark(centres), rng.uniform(0, 1, 12), np.ones(len(centres)))
     err = 10 ** rng.uniform(-2, 6, power.shape)
     noisier = err + extra * rng.uniform(0, 1, power.shape)
     assert masking.nmr_db(noisier, m) >= masking.nmr_db(err, m)
@@ -214,8 +284,9 @@ def test_sii_reference_c_program_case():
     assert sii.sii(ssl, nsl, thresh) == pytest.approx(0.445, abs=1e-3)
 
 
-@pytest.mark.parametrize("distance_m, expected", [
-    (0.5, 1.0000), (1.0, 0.9969), (2.0, 0.9920), (5.0, 0.9775), (10.0, 0.9583), (20.0, 0.8627)])
+@pytest.mark.parametrize(
+    "distance_m, expected", [(0.5, 1.0000), (1.0, 0.9969), (2.0, 0.9920), (5.0, 0.9775), (10.0, 0.9583), (20.0, 0.8627)]
+)
 def test_sii_talker_at_a_distance_in_quiet(distance_m, expected):
     # ANSI S3.5-1997 clause 5.1: normal-effort speech in a free field falls 20 lg(d/1 m) (eq. 16);
     # binaural listening lowers the hearing threshold by 1.7 dB (5.1.5); no noise (−50 dB).
@@ -239,7 +310,7 @@ def test_sii_speech_15db_above_and_below_noise():
 
 
 @settings(max_examples=60, deadline=None)
-@given(seed=st.integers(0, 2 ** 20), extra=st.floats(0, 40))
+@given(seed=st.integers(0, 2**20), extra=st.floats(0, 40))
 def test_sii_monotone_in_snr(seed, extra):
     # More noise (lower SNR at fixed speech level) never raises the SII.  Speech
     # level itself is held: above U + 10 dB the standard's level distortion
@@ -265,6 +336,7 @@ def test_band_spectrum_levels_of_white_noise():
 
 # ---------------------------------------------------------------- Wiener bound
 
+
 @pytest.mark.parametrize("lam", [0.1, 1.0, 10.0, 1000.0])
 def test_wiener_bound_one_pole_closed_form(lam):
     # Van Trees, DEMT I §6.2: S(ω) = 2kP/(ω² + k²) in white noise N0/2,
@@ -274,7 +346,7 @@ def test_wiener_bound_one_pole_closed_form(lam):
     n0 = 4 * P / (k * lam)
     df = 0.25
     f = np.arange(0.0, 2.0e6, df)
-    s1 = 2 * 2 * k * P / ((2 * np.pi * f) ** 2 + k ** 2)
+    s1 = 2 * 2 * k * P / ((2 * np.pi * f) ** 2 + k**2)
     w = np.full(f.size, df)
     w[0] = df / 2
     mse = wiener.wiener_mse(s1, np.full(f.size, n0), 0.0, w)
@@ -290,7 +362,7 @@ def test_wiener_bound_adds_post_noise():
 
 
 @settings(max_examples=60, deadline=None)
-@given(seed=st.integers(0, 2 ** 20), tau=st.floats(0, 0.01))
+@given(seed=st.integers(0, 2**20), tau=st.floats(0, 0.01))
 def test_no_filter_beats_the_wiener_bound(seed, tau):
     rng = np.random.default_rng(seed)
     f = np.arange(0, 2000.0, 10.0)
@@ -332,6 +404,7 @@ def test_best_delay_in_a_causal_window_stays_in_it():
 def test_removed_part_never_grows_with_a_wider_butterworth():
     # A wider lowpass removes less of a pink-ish program, phase included, at its best delay.
     from scipy.signal import butter, sosfreqz
+
     fs = 48000.0
     f = np.arange(0, fs / 2, 5.0)
     w = np.full(f.size, 5.0)

@@ -28,13 +28,14 @@ def _speechlike(rng, seconds=3.0):
     env = 0.55 + 0.45 * np.sin(2 * np.pi * 4.0 * np.arange(n) / FS)
     y = y * env
     y -= y.mean()
-    return 0.1 * y / np.sqrt(np.mean(y ** 2))
+    return 0.1 * y / np.sqrt(np.mean(y**2))
 
 
 @pytest.fixture(scope="module")
 def speech_analysis(tmp_path_factory):
     rng = np.random.default_rng(11)
     import soundfile as sf
+
     path = tmp_path_factory.mktemp("p") / "speechlike.wav"
     sf.write(str(path), _speechlike(rng), FS, subtype="FLOAT")
     return path, analyse(path)
@@ -47,8 +48,14 @@ def _lp(fc, order=4, family="butterworth", stage="analog"):
 def test_sii_grows_with_bandwidth_and_target_picks_narrowest(speech_analysis):
     path, a = speech_analysis
     cutoffs = (300.0, 600.0, 1000.0, 2000.0, 3000.0, 4500.0, 7000.0, 10000.0)
-    r = run_sweep(path, chain=Chain(), grid=Grid("lowpass", ("butterworth",), (8,), cutoffs),
-                  targets={"min_sii": 0.75}, analysis=a, listening=Listening("speech"))
+    r = run_sweep(
+        path,
+        chain=Chain(),
+        grid=Grid("lowpass", ("butterworth",), (8,), cutoffs),
+        targets={"min_sii": 0.75},
+        analysis=a,
+        listening=Listening("speech"),
+    )
     siis = [c["sii"] for c in r.cases]
     assert np.all(np.diff(siis) >= -1e-9)
     assert siis[0] < 0.75 < siis[-1]
@@ -77,8 +84,12 @@ def test_more_chain_noise_never_lowers_nmr_or_audible_frames(speech_analysis, en
 
 
 @settings(max_examples=20, deadline=None)
-@given(fc=st.floats(1000, 15000), ratio=st.floats(1.05, 1.5), order=st.integers(1, 8),
-       family=st.sampled_from(["butterworth", "bessel"]))
+@given(
+    fc=st.floats(1000, 15000),
+    ratio=st.floats(1.05, 1.5),
+    order=st.integers(1, 8),
+    family=st.sampled_from(["butterworth", "bessel"]),
+)
 def test_wider_lowpass_never_removes_more(speech_analysis, fc, ratio, order, family):
     _, a = speech_analysis
     f, w = a.freqs_hz, a.weights_hz
@@ -91,8 +102,12 @@ def test_wider_lowpass_never_removes_more(speech_analysis, fc, ratio, order, fam
 
 
 @settings(max_examples=15, deadline=None)
-@given(fc=st.floats(800, 20000), order=st.integers(1, 8), en=st.floats(1e-10, 1e-6),
-       stage=st.sampled_from(["analog", "digital"]))
+@given(
+    fc=st.floats(800, 20000),
+    order=st.integers(1, 8),
+    en=st.floats(1e-10, 1e-6),
+    stage=st.sampled_from(["analog", "digital"]),
+)
 def test_no_case_beats_the_wiener_bound(speech_analysis, fc, order, en, stage):
     _, a = speech_analysis
     c = Chain(en_v_rthz=en, stage=stage, anti_alias="ideal" if stage == "digital" else "none")
@@ -109,8 +124,12 @@ def test_complex_response_matches_scipy():
     _, hd = signal.freqz_zpk(dig.z, dig.p, dig.k, worN=f, fs=FS)
     assert np.allclose(complex_response(dig, f), hd, rtol=1e-8, atol=1e-12)
     ana = _lp(5000, 5, "chebyshev1", "analog")
-    _, ha = signal.freqs_zpk(ana.z * ana.ref_rad_s, ana.p * ana.ref_rad_s,
-                             ana.k * ana.ref_rad_s ** (len(ana.p) - len(ana.z)), worN=2 * np.pi * f)
+    _, ha = signal.freqs_zpk(
+        ana.z * ana.ref_rad_s,
+        ana.p * ana.ref_rad_s,
+        ana.k * ana.ref_rad_s ** (len(ana.p) - len(ana.z)),
+        worN=2 * np.pi * f,
+    )
     assert np.allclose(complex_response(ana, f), ha, rtol=1e-6)
 
 
@@ -119,6 +138,7 @@ def test_removed_part_matches_time_domain(speech_analysis, rng):
     # align by the best delay (rounded to a sample), and measure the error power.
     path, a = speech_analysis
     import soundfile as sf
+
     x, _ = sf.read(str(path))
     filt = _lp(3000.0, 4, "butterworth", "digital")
     f, w = a.freqs_hz, a.weights_hz
@@ -127,16 +147,19 @@ def test_removed_part_matches_time_domain(speech_analysis, rng):
     spectral = float(np.sum(w * wiener.removed_psd(h, a.psd, f, round(tau * FS) / FS)))
     y = signal.sosfilt(filt.sos(), x)
     d = int(round(tau * FS))
-    e = x[2000:-2000] - y[2000 + d:len(y) - 2000 + d]
-    assert 10 * np.log10(np.mean(e ** 2) / spectral) == pytest.approx(0.0, abs=0.5)
+    e = x[2000:-2000] - y[2000 + d : len(y) - 2000 + d]
+    assert 10 * np.log10(np.mean(e**2) / spectral) == pytest.approx(0.0, abs=0.5)
 
 
-@pytest.mark.parametrize("args,match", [
-    (["--hearing-threshold", "1000"], "--hearing-threshold"),
-    (["--max-audible-frames", "150"], "0 to 100"),
-    (["--min-sii", "0.8"], "speech programs only"),
-    (["--playback-spl", "200"], "0 < level <= 130"),
-])
+@pytest.mark.parametrize(
+    "args,match",
+    [
+        (["--hearing-threshold", "1000"], "--hearing-threshold"),
+        (["--max-audible-frames", "150"], "0 to 100"),
+        (["--min-sii", "0.8"], "speech programs only"),
+        (["--playback-spl", "200"], "0 < level <= 130"),
+    ],
+)
 def test_bad_listening_options_are_one_line_errors(speech_analysis, capsys, args, match):
     from audiobw.cli import main
 

@@ -126,12 +126,21 @@ def test_designed_stages_hit_f0_and_q_on_e96(topology, q, kind):
 CIRCUITS = {
     ("sallen-key", "lp2"): ([("R1", "i", "a"), ("R2", "a", "b"), ("C1", "a", "o"), ("C2", "b", "0")], "b", "o"),
     ("sallen-key", "hp2"): ([("C1", "i", "a"), ("C2", "a", "b"), ("R1", "a", "o"), ("R2", "b", "0")], "b", "o"),
-    ("mfb", "lp2"): ([("R1", "i", "a"), ("R2", "a", "o"), ("R3", "a", "m"), ("C1", "a", "0"), ("C2", "m", "o")],
-                     "0", "m"),
-    ("mfb", "hp2"): ([("C1", "i", "a"), ("C2", "a", "o"), ("C3", "a", "m"), ("R1", "a", "0"), ("R2", "m", "o")],
-                     "0", "m"),
-    ("mfb", "bp2"): ([("R1", "i", "a"), ("R2", "a", "0"), ("C1", "a", "m"), ("C2", "a", "o"), ("R3", "m", "o")],
-                     "0", "m"),
+    ("mfb", "lp2"): (
+        [("R1", "i", "a"), ("R2", "a", "o"), ("R3", "a", "m"), ("C1", "a", "0"), ("C2", "m", "o")],
+        "0",
+        "m",
+    ),
+    ("mfb", "hp2"): (
+        [("C1", "i", "a"), ("C2", "a", "o"), ("C3", "a", "m"), ("R1", "a", "0"), ("R2", "m", "o")],
+        "0",
+        "m",
+    ),
+    ("mfb", "bp2"): (
+        [("R1", "i", "a"), ("R2", "a", "0"), ("C1", "a", "m"), ("C2", "a", "o"), ("R3", "m", "o")],
+        "0",
+        "m",
+    ),
     ("rc", "lp1"): ([("R1", "i", "a"), ("C1", "a", "0")], "a", "o"),
 }
 
@@ -252,12 +261,15 @@ def test_command_writes_schema_valid_json(tmp_path):
         jsonschema.validate(bad, schema)
 
 
-@pytest.mark.parametrize("args, needle", [
-    (["--band", "20:15k", "--family", "elliptic", "--out", "X"], "notches"),
-    (["--band", "20:15k"], "--out"),
-    (["--band", "20:15k", "--impedance", "5", "--out", "X"], "--impedance"),
-    (["--band", "20:15k", "--tolerance-r", "150%", "--out", "X"], "--tolerance-r"),
-])
+@pytest.mark.parametrize(
+    "args, needle",
+    [
+        (["--band", "20:15k", "--family", "elliptic", "--out", "X"], "notches"),
+        (["--band", "20:15k"], "--out"),
+        (["--band", "20:15k", "--impedance", "5", "--out", "X"], "--impedance"),
+        (["--band", "20:15k", "--tolerance-r", "150%", "--out", "X"], "--tolerance-r"),
+    ],
+)
 def test_command_refusals_are_one_line_exit_2(tmp_path, args, needle):
     args = [str(tmp_path) if a == "X" else a for a in args]
     from audiobw.cli import main
@@ -282,8 +294,27 @@ def test_realise_a_sweep_folder_second_pass(write_audio, rng, tmp_path):
     x = tones([220.0, 1500.0, 6000.0], [0.2, 0.1, 0.03], fs, 2.0) + rng.normal(0, 1e-3, fs * 2)
     prog = write_audio("take.wav", x, fs)
     out = tmp_path / "sw"
-    assert main(["sweep", str(prog), "--out", str(out), "--family", "butterworth", "--order", "4",
-                 "--cutoffs", "8k:20k:4", "--max-loss", "0.5", "--min-snr-a", "40"]) == 0
+    assert (
+        main(
+            [
+                "sweep",
+                str(prog),
+                "--out",
+                str(out),
+                "--family",
+                "butterworth",
+                "--order",
+                "4",
+                "--cutoffs",
+                "8k:20k:4",
+                "--max-loss",
+                "0.5",
+                "--min-snr-a",
+                "40",
+            ]
+        )
+        == 0
+    )
     before = (out / "sweep.json").read_bytes()
     res = _run(["realise", str(out), "--draws", "60"])
     assert res.exit_code == 0, res.output

@@ -34,16 +34,27 @@ def test_entries_are_whole():
 
 def test_one_entry_adds_a_metric_everywhere(monkeypatch):
     # the throwaway metric of the registry's promise: one entry, and every derived list has it
-    extra = Metric("hum_db", "mains hum", "dB", 2,
-                   Target("max_hum_db", "max_hum", -1, "db_any", "target: maximum mains hum, dB", 99, True),
-                   Column("hum", "dB", "{:>6.1f}", audio=99), csv=True)
+    extra = Metric(
+        "hum_db",
+        "mains hum",
+        "dB",
+        2,
+        Target("max_hum_db", "max_hum", -1, "db_any", "target: maximum mains hum, dB", 99, True),
+        Column("hum", "dB", "{:>6.1f}", audio=99),
+        csv=True,
+    )
     monkeypatch.setattr(registry, "METRICS", registry.METRICS + (extra,))
     assert registry.keys(2)[-1] == "hum_db" and "hum_db" in registry.keys(2, "csv")
     assert registry.columns("audio")[-1] == ("hum", "dB", "hum_db", "{:>6.1f}", "max_hum_db")
     assert "hum_db" not in registry.keys(2, "median")
 
 
-@pytest.mark.parametrize("key,words", [("max_loss_db", ("program loss", "loss_db", "dB", "≤")),
-                                       ("min_sii", ("speech intelligibility index", "sii", "", "≥"))])
+@pytest.mark.parametrize(
+    "key,words",
+    [
+        ("max_loss_db", ("program loss", "loss_db", "dB", "≤")),
+        ("min_sii", ("speech intelligibility index", "sii", "", "≥")),
+    ],
+)
 def test_verdict_words(key, words):
     assert registry.TARGET_LABEL[key] == words

@@ -13,8 +13,16 @@ import soundfile as sf
 from audiobw.chain import Chain
 from audiobw.cli import main
 from audiobw.filters import FilterSpec, design
-from audiobw.render import (K_WEIGHTING_48K_SOS, RenderOptions, integrated_loudness, k_weighting_sos,
-                            render_file, render_sweep, score_trials, true_peak)
+from audiobw.render import (
+    K_WEIGHTING_48K_SOS,
+    RenderOptions,
+    integrated_loudness,
+    k_weighting_sos,
+    render_file,
+    render_sweep,
+    score_trials,
+    true_peak,
+)
 from audiobw.simulate import ChainSimulator, analog_response, quantise
 
 from .conftest import REPO, tones
@@ -29,12 +37,16 @@ def spec(response="lowpass", family="butterworth", order=4, lo=None, hi=9500.0, 
 
 # -- the simulation ----------------------------------------------------------------------
 
+
 @pytest.mark.parametrize("family", ["butterworth", "bessel", "chebyshev1", "elliptic"])
-@pytest.mark.parametrize("response,lo,hi,order", [
-    ("lowpass", None, 20000.0, 8),   # edge near fs/2: where a bilinear form would warp
-    ("highpass", 20.0, None, 8),     # long impulse response
-    ("bandpass", 300.0, 3400.0, 2),
-])
+@pytest.mark.parametrize(
+    "response,lo,hi,order",
+    [
+        ("lowpass", None, 20000.0, 8),  # edge near fs/2: where a bilinear form would warp
+        ("highpass", 20.0, None, 8),  # long impulse response
+        ("bandpass", 300.0, 3400.0, 2),
+    ],
+)
 def test_simulated_analog_magnitude_matches_the_analog_response(family, response, lo, hi, order):
     """The impulse response of the simulated analog stage, transformed on a grid that is not the
     FIR's own, matches |H(f)| of the analog prototype within 0.1 dB up to 0.45·fs wherever the
@@ -59,8 +71,7 @@ def test_simulated_analog_magnitude_matches_the_analog_response(family, response
 def test_analog_response_helper_agrees_with_the_filter_module():
     filt = design(spec("bandpass", "elliptic", 8, 300.0, 3400.0))
     f = np.geomspace(10, 23000, 500)
-    np.testing.assert_allclose(np.abs(analog_response(filt, f)) ** 2, filt.power_response(f), rtol=1e-9,
-                               atol=1e-15)
+    np.testing.assert_allclose(np.abs(analog_response(filt, f)) ** 2, filt.power_response(f), rtol=1e-9, atol=1e-15)
 
 
 @pytest.mark.parametrize("stage", ["analog", "digital"])
@@ -74,7 +85,7 @@ def test_streaming_equals_one_shot(stage, rng):
     sim = ChainSimulator(chain, filt, FS, 2, seed=7)
     parts, i = [], 0
     for size in [1, 999, 4096, 17, 12000] * 10:
-        parts.append(sim.push(x[i:i + size]))
+        parts.append(sim.push(x[i : i + size]))
         i += size
         if i >= x.shape[0]:
             break
@@ -141,6 +152,7 @@ def test_amplifier_polynomial_sets_the_harmonic_levels():
 
 # -- loudness and peaks --------------------------------------------------------------------------
 
+
 def test_k_weighting_at_48k_is_the_published_table_and_the_rederivation_agrees():
     """BS.1770-4 Annex 1 Tables 1 and 2 (48 kHz); the re-derivation used at other rates reproduces them."""
     sos, how = k_weighting_sos(48000)
@@ -195,8 +207,13 @@ def test_our_meter_agrees_with_pyloudnorm_with_exact_coefficients():
 def test_ab_clips_are_loudness_matched_and_under_the_ceiling(tmp_path):
     """The pair differs by at most 0.5 LU (pyloudnorm.Meter.integrated_loudness with the exact
     BS.1770-4 coefficients) and no sample exceeds the ceiling."""
-    res = render_file(CLIP, spec("bandpass", "butterworth", 4, 300.0, 3000.0), Chain(bits=16), tmp_path / "ab",
-                      RenderOptions(excerpt_s=4.0, trials=3))
+    res = render_file(
+        CLIP,
+        spec("bandpass", "butterworth", 4, 300.0, 3000.0),
+        Chain(bits=16),
+        tmp_path / "ab",
+        RenderOptions(excerpt_s=4.0, trials=3),
+    )
     meter = pyloudnorm_exact_meter()
     ref, _ = sf.read(str(tmp_path / "ab" / "ab-reference.wav"), always_2d=True)
     proc, _ = sf.read(str(tmp_path / "ab" / "ab-processed.wav"), always_2d=True)
@@ -217,11 +234,19 @@ def test_clips_never_exceed_the_ceiling_even_when_the_target_is_loud(tmp_path, w
     x[FS::4000] = 0.95  # clicks: high crest factor
     src = write_audio("peaky.wav", x, FS)
     ceiling = -6.0
-    res = render_file(src, spec(), Chain(), tmp_path / "o",
-                      RenderOptions(loudness_lufs=-10.0, ceiling_dbfs=ceiling, excerpt_s=2.0, trials=2))
+    res = render_file(
+        src,
+        spec(),
+        Chain(),
+        tmp_path / "o",
+        RenderOptions(loudness_lufs=-10.0, ceiling_dbfs=ceiling, excerpt_s=2.0, trials=2),
+    )
     assert res.facts["loudness"]["ceiling_reduction_db"] > 0
-    files = [tmp_path / "o" / "ab-reference.wav", tmp_path / "o" / "ab-processed.wav",
-             *sorted((tmp_path / "o" / "blind").glob("*.wav"))]
+    files = [
+        tmp_path / "o" / "ab-reference.wav",
+        tmp_path / "o" / "ab-processed.wav",
+        *sorted((tmp_path / "o" / "blind").glob("*.wav")),
+    ]
     assert len(files) == 6
     for p in files:
         y, _ = sf.read(str(p), always_2d=True)
@@ -247,12 +272,15 @@ def test_short_file_is_refused_with_the_reason(tmp_path, write_audio, capsys):
     assert rc == 1 and "0.4 s" in err and "Traceback" not in err
 
 
-@pytest.mark.parametrize("args,needle", [
-    (["--loudness", "-3LUFS"], "--loudness"),
-    (["--ceiling", "loud"], "--ceiling"),
-    (["--excerpt-at", "100"], "--excerpt-at"),
-    (["--band", "30k:"], "--band"),
-])
+@pytest.mark.parametrize(
+    "args,needle",
+    [
+        (["--loudness", "-3LUFS"], "--loudness"),
+        (["--ceiling", "loud"], "--ceiling"),
+        (["--excerpt-at", "100"], "--excerpt-at"),
+        (["--band", "30k:"], "--band"),
+    ],
+)
 def test_bad_render_options_exit_2_with_one_line(tmp_path, args, needle, capsys):
     argv = ["render", str(CLIP), "--band", ":9k", "--out", str(tmp_path / "o"), *args]
     rc = main(argv)
@@ -262,10 +290,27 @@ def test_bad_render_options_exit_2_with_one_line(tmp_path, args, needle, capsys)
 
 # -- blind trials ---------------------------------------------------------------------------------
 
+
 def test_trials_are_the_clips_in_the_keyed_order_and_score(tmp_path, capsys):
     out = tmp_path / "t"
-    rc = main(["render", str(CLIP), "--band", ":4k", "--order", "8", "--excerpt", "1.5", "--trials", "10",
-               "--seed", "11", "--out", str(out)])
+    rc = main(
+        [
+            "render",
+            str(CLIP),
+            "--band",
+            ":4k",
+            "--order",
+            "8",
+            "--excerpt",
+            "1.5",
+            "--trials",
+            "10",
+            "--seed",
+            "11",
+            "--out",
+            str(out),
+        ]
+    )
     stdout = capsys.readouterr().out
     assert rc == 0 and stdout.count("Listening caution") >= 1
     key = json.loads((out / "trial-key.json").read_text())
@@ -286,8 +331,9 @@ def test_trials_are_the_clips_in_the_keyed_order_and_score(tmp_path, capsys):
     assert "more often than chance" in s["reading"]
     # half right: P(X >= 5 | n = 10, p = 1/2) = 638/1024
     flip = {"first": "second", "second": "first"}
-    answers.write_text("".join(f"{t['trial']} {t['processed'] if t['trial'] % 2 else flip[t['processed']]}\n"
-                               for t in key["trials"]))
+    answers.write_text(
+        "".join(f"{t['trial']} {t['processed'] if t['trial'] % 2 else flip[t['processed']]}\n" for t in key["trials"])
+    )
     s = score_trials(out / "trial-key.json", answers)
     assert s["correct"] == 5 and math.isclose(s["p_value"], 638 / 1024, rel_tol=1e-12)
     assert "does not show the two sound the same" in s["reading"]
@@ -297,8 +343,14 @@ def test_trials_are_the_clips_in_the_keyed_order_and_score(tmp_path, capsys):
 
 def test_trials_score_refuses_a_bad_answer_line(tmp_path, capsys):
     key = tmp_path / "k.json"
-    key.write_text(json.dumps({"format": "audiobw trial key 1", "trials": [
-        {"trial": 1, "processed": "first"}, {"trial": 2, "processed": "second"}]}))
+    key.write_text(
+        json.dumps(
+            {
+                "format": "audiobw trial key 1",
+                "trials": [{"trial": 1, "processed": "first"}, {"trial": 2, "processed": "second"}],
+            }
+        )
+    )
     bad = tmp_path / "a.txt"
     bad.write_text("1 first\n3 second\n")
     rc = main(["trials-score", str(key), str(bad)])
@@ -308,19 +360,21 @@ def test_trials_score_refuses_a_bad_answer_line(tmp_path, capsys):
 
 # -- sweep --render ----------------------------------------------------------------------------------
 
+
 def test_render_sweep_renders_the_chosen_and_the_next_narrower_case(tmp_path, write_audio):
     from audiobw.jobs import sweep_file
     from audiobw.settings import Raw, build
 
     x = tones([300.0, 3000.0, 12000.0], [0.2, 0.1, 0.01], FS, 2.0)
     src = write_audio("prog.wav", np.column_stack([x, x]), FS)
-    settings = build({"cutoffs": Raw("2k:18k:6", "test"), "max_loss": Raw(0.1, "test"),
-                      "order": Raw("4", "test")})
+    settings = build({"cutoffs": Raw("2k:18k:6", "test"), "max_loss": Raw(0.1, "test"), "order": Raw("4", "test")})
     doc, _ = sweep_file(src, settings)
     assert doc["choice"] and doc["choice"]["next_narrower"]
     paths = render_sweep(doc, src, settings, tmp_path / "r", RenderOptions(excerpt_s=1.0))
-    for folder, case_id in (("render-chosen", doc["choice"]["case"]),
-                            ("render-narrower", doc["choice"]["next_narrower"])):
+    for folder, case_id in (
+        ("render-chosen", doc["choice"]["case"]),
+        ("render-narrower", doc["choice"]["next_narrower"]),
+    ):
         facts = json.loads((tmp_path / "r" / folder / "render.json").read_text())
         case = doc["cases"][case_id - 1]
         assert facts["filter"]["design_high_hz"] == case["design_high_hz"]
@@ -342,13 +396,17 @@ def test_noise_the_analog_filter_passes_above_fs_over_2_aliases_into_the_output(
     model = budget(chain, filt, FS)["total"]["vrms"]
     assert abs(measured / model - 1) < 0.02
     f = np.linspace(0, FS / 2, 200001)
-    unfolded = math.sqrt(chain.density_amplifier_v2_hz() * np.trapezoid(filt.power_response(f), f)
-                         + chain.quantisation_power_v2() + chain.dither_power_v2())
+    unfolded = math.sqrt(
+        chain.density_amplifier_v2_hz() * np.trapezoid(filt.power_response(f), f)
+        + chain.quantisation_power_v2()
+        + chain.dither_power_v2()
+    )
     if response == "lowpass":
         assert measured / unfolded > 1.05  # the folded noise is there (the model: 8.2 % more here)
 
 
 # -- the render's own noise and SNR beside the sweep's estimate (issue 13) --------------------------
+
 
 def test_render_prints_its_measured_noise_and_snr_beside_the_estimate_and_the_caution_once(tmp_path, capsys):
     """A 997 Hz tone at -40 dBFS through a 16-bit chain (quantisation and amplifier noise both count).

@@ -68,17 +68,24 @@ QUIET = Chain(bits=24, gain_db=10.0)
 #: Tones on the bins of the 2048-sample LSD frame (k·fs/2048), one near the middle of each of seven
 #: critical bands, so a frame's Hann spectrum of each stays inside its band.
 TONE_BINS = (6, 19, 53, 124, 226, 367, 576)
-TOL = {"noise_vrms": 0.02, "snr_db": 0.2, "snr_a_db": 0.2, "loss_db": 0.05, "thdn_pct": 0.05, "lsd_db": 0.2,
-       "thdn_pct_aes17": 0.05}
+TOL = {
+    "noise_vrms": 0.02,
+    "snr_db": 0.2,
+    "snr_a_db": 0.2,
+    "loss_db": 0.05,
+    "thdn_pct": 0.05,
+    "lsd_db": 0.2,
+    "thdn_pct_aes17": 0.05,
+}
 RELATIVE = ("noise_vrms", "thdn_pct", "thdn_pct_aes17")
 
 ABOVE = "thdn_pct, 3rd harmonic above fs/2"
-CASES = [(fam, order, resp, stage) for fam in FAMILIES for order in ORDERS for resp in RESPONSES
-         for stage in STAGES]
+CASES = [(fam, order, resp, stage) for fam in FAMILIES for order in ORDERS for resp in RESPONSES for stage in STAGES]
 WORST: dict = {}
 
 
 # -- independent measuring routines -------------------------------------------------
+
 
 def a_weighting_power(f):
     """IEC 61672-1:2013 Annex E, eq. E.6 with the constants of E.1–E.4 (f1 = 20.598997 Hz,
@@ -145,6 +152,7 @@ def lsd_measured(x_in, y_out):
 
 
 # -- programs and renders -----------------------------------------------------------
+
 
 def noise_program(rng, seconds, channels=2):
     """Gaussian noise with a gentle −3 dB/octave tilt above 200 Hz, −20 dBFS rms (circularly shaped,
@@ -235,8 +243,11 @@ def measure_case(tmp, family, order, response, stage, seed):
     want_aes17 = fast_path(tmp, "tone", single_tone(total, 997.0, -1.0), spec, distorting, Meter(mode="aes17"))
 
     # SNR, A-weighted SNR and loss on a stationary program (noise-like or tones, alternately)
-    kind = "noise" if (FAMILIES.index(family) + ORDERS.index(order) + list(RESPONSES).index(response)) % 2 == 0 \
+    kind = (
+        "noise"
+        if (FAMILIES.index(family) + ORDERS.index(order) + list(RESPONSES).index(response)) % 2 == 0
         else "tones"
+    )
     x = noise_program(rng, total) if kind == "noise" else tone_program(total)
     y = render(tmp, "program", x, spec, chain, seed + 3)
     xm = x[M0:M1]
@@ -252,9 +263,15 @@ def measure_case(tmp, family, order, response, stage, seed):
     got["lsd_db"] = lsd_measured(xt[M0:M1], yt)
     row_lsd = fast_path(tmp, "lsd", xt, spec, quiet)
 
-    want = {"noise_vrms": row["noise_vrms"], "snr_db": row["snr_db"], "snr_a_db": row["snr_a_db"],
-            "loss_db": row["loss_db"], "thdn_pct": want_tone["thdn_pct"], "lsd_db": row_lsd["lsd_db"],
-            "thdn_pct_aes17": want_aes17["thdn_pct"]}
+    want = {
+        "noise_vrms": row["noise_vrms"],
+        "snr_db": row["snr_db"],
+        "snr_a_db": row["snr_a_db"],
+        "loss_db": row["loss_db"],
+        "thdn_pct": want_tone["thdn_pct"],
+        "lsd_db": row_lsd["lsd_db"],
+        "thdn_pct_aes17": want_aes17["thdn_pct"],
+    }
     return got, want, kind
 
 
@@ -284,8 +301,14 @@ def test_thdn_agrees_when_the_harmonics_lie_above_fs_over_2(tmp_path, stage):
     render must do the same (an 8th-order Butterworth lowpass at 20 kHz: 20.9 dB apart).  Anti-alias
     'none' (the harmonic folds); on the digital stage the amplifier's bandwidth then bounds the noise."""
     spec = FilterSpec("lowpass", "butterworth", 8, None, 20000.0, 0.1, 60.0, stage, FS)
-    chain = Chain(bits=24, gain_db=20.0, h2_db=-80.0, h3_db=-50.0, stage=stage,
-                  amp_bandwidth_hz=200e3 if stage == "digital" else None)
+    chain = Chain(
+        bits=24,
+        gain_db=20.0,
+        h2_db=-80.0,
+        h3_db=-50.0,
+        stage=stage,
+        amp_bandwidth_hz=200e3 if stage == "digital" else None,
+    )
     x = single_tone(PRE_S + MEASURE_S + POST_S, 9000.0, -1.0)
     y = render(tmp_path, "tone9k", x, spec, chain, 77)
     got = thdn_measured(y[:, 0], 9000.0)
@@ -305,8 +328,11 @@ def test_the_matrix_covers_every_factor_for_every_metric():
     assert {c[1] for c in CASES} == set(ORDERS)
     assert {c[2] for c in CASES} == {"lowpass", "highpass", "bandpass"}
     assert {c[3] for c in CASES} == set(STAGES)
-    kinds = {(c[0], c[1], c[2]) for c in CASES if
-             (FAMILIES.index(c[0]) + ORDERS.index(c[1]) + list(RESPONSES).index(c[2])) % 2 == 0}
+    kinds = {
+        (c[0], c[1], c[2])
+        for c in CASES
+        if (FAMILIES.index(c[0]) + ORDERS.index(c[1]) + list(RESPONSES).index(c[2])) % 2 == 0
+    }
     assert kinds and len(kinds) < len(CASES) // 2 + 1  # both program kinds are used
 
 

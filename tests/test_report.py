@@ -49,8 +49,7 @@ def make_sweep(folder: Path, values: dict, *, fs: int = 48000, name: str = "take
     src = folder / name
     src.parent.mkdir(parents=True, exist_ok=True)
     sf.write(str(src), _program(fs, 2.0, seed), fs, subtype="FLOAT")
-    base = {"source_ohms": "150", "gain": "40dB", "en": "1.3n", "in": "1.2p", "bits": "16",
-            "full_scale": "+4dBu"}
+    base = {"source_ohms": "150", "gain": "40dB", "en": "1.3n", "in": "1.2p", "bits": "16", "full_scale": "+4dBu"}
     settings = build({k: Raw(v, f"test {k}") for k, v in {**base, **values}.items()})
     out = folder / "out"
     sweep_file(src, settings, out_dir=out)
@@ -70,32 +69,63 @@ def add_render(out: Path) -> None:
 def lowpass_run(tmp_path_factory):
     """Analog lowpass sweep of a program whose path reads <script>alert(1)</script>.wav, with render output."""
     root = tmp_path_factory.mktemp("lp")
-    out = make_sweep(root, {"response": "lowpass", "family": "butterworth,chebyshev1", "order": "2,4",
-                            "cutoffs": "2k:20k:8", "ripple": "0.5", "min_snr_a": "60dB", "max_loss": "0.2dB"},
-                     name="<script>alert(1)</" + "script>.wav")
+    out = make_sweep(
+        root,
+        {
+            "response": "lowpass",
+            "family": "butterworth,chebyshev1",
+            "order": "2,4",
+            "cutoffs": "2k:20k:8",
+            "ripple": "0.5",
+            "min_snr_a": "60dB",
+            "max_loss": "0.2dB",
+        },
+        name="<script>alert(1)</" + "script>.wav",
+    )
     add_render(out)
     before = (out / "sweep.json").read_bytes()
     paths = write_report(out)
-    return {"out": out, "paths": paths, "sweep_before": before,
-            "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
-            "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
-            "html": paths["html"].read_text(encoding="utf-8")}
+    return {
+        "out": out,
+        "paths": paths,
+        "sweep_before": before,
+        "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
+        "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
+        "html": paths["html"].read_text(encoding="utf-8"),
+    }
 
 
 @pytest.fixture(scope="module")
 def failing_run(tmp_path_factory):
     """Digital-stage bandpass sweep with an SNR target no case can meet."""
     root = tmp_path_factory.mktemp("bp")
-    out = make_sweep(root, {"response": "bandpass", "family": "bessel,elliptic", "order": "2",
-                            "low_edges": "20:200:3", "high_edges": "4k:16k:4", "stage": "digital",
-                            "anti_alias": "ideal", "min_snr": "150dB", "max_loss": "1dB"}, fs=44100)
+    out = make_sweep(
+        root,
+        {
+            "response": "bandpass",
+            "family": "bessel,elliptic",
+            "order": "2",
+            "low_edges": "20:200:3",
+            "high_edges": "4k:16k:4",
+            "stage": "digital",
+            "anti_alias": "ideal",
+            "min_snr": "150dB",
+            "max_loss": "1dB",
+        },
+        fs=44100,
+    )
     paths = write_report(out)
-    return {"out": out, "paths": paths, "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
-            "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
-            "html": paths["html"].read_text(encoding="utf-8")}
+    return {
+        "out": out,
+        "paths": paths,
+        "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
+        "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
+        "html": paths["html"].read_text(encoding="utf-8"),
+    }
 
 
 # -- spec.json ----------------------------------------------------------------------
+
 
 @pytest.mark.parametrize("run", ["lowpass_run", "failing_run"])
 def test_spec_json_validates_against_its_schema(run, request):
@@ -171,13 +201,27 @@ def test_no_passing_case_block(failing_run):
 
 def test_markdown_holds_the_block_and_the_caution(lowpass_run):
     md = lowpass_run["paths"]["spec_md"].read_text(encoding="utf-8")
-    for text in ("−3 dB upper edge", "ENBW", "attenuation at 2 × f_high", "fs − f_high", "group delay at 1 kHz",
-                 "dBu", "A-weighted", "dynamic range", "THD+N at 997 Hz", "Chain assumptions", "next narrower",
-                 "next wider", ESTIMATE_CAUTION, LISTENING_CAUTION):
+    for text in (
+        "−3 dB upper edge",
+        "ENBW",
+        "attenuation at 2 × f_high",
+        "fs − f_high",
+        "group delay at 1 kHz",
+        "dBu",
+        "A-weighted",
+        "dynamic range",
+        "THD+N at 997 Hz",
+        "Chain assumptions",
+        "next narrower",
+        "next wider",
+        ESTIMATE_CAUTION,
+        LISTENING_CAUTION,
+    ):
         assert text in md, text
 
 
 # -- figures computed for the sheet ---------------------------------------------------------
+
 
 def test_group_delay_of_second_order_butterworth_at_dc():
     # H(s) = ω²/(s² + √2 ω s + ω²): τ(0) = 2ζ/ω = √2/ω (standard second-order result, common practice)
@@ -238,15 +282,28 @@ def test_log_average_keeps_power_and_thins_the_trace():
 
 # -- plots -------------------------------------------------------------------------------------------
 
+
 def test_plots_are_written_and_decode(lowpass_run, failing_run):
     from PIL import Image  # Pillow, installed with matplotlib
 
     # music is the default program kind: its sweeps carry the audibility plots (tests/test_report_perceptual.py)
-    for run, expect in ((lowpass_run, {"metrics-upper-edge", "spectrum", "filter", "noise-budget", "ser", "masking",
-                                       "wiener"}),
-                        (failing_run, {"metrics-upper-edge", "metrics-lower-edge", "spectrum", "filter",
-                                       "noise-budget", "ser", "masking", "wiener"})):
-        names = {k[len("plot_"):-len("_png")] for k in run["paths"] if k.startswith("plot_") and k.endswith("_png")}
+    for run, expect in (
+        (lowpass_run, {"metrics-upper-edge", "spectrum", "filter", "noise-budget", "ser", "masking", "wiener"}),
+        (
+            failing_run,
+            {
+                "metrics-upper-edge",
+                "metrics-lower-edge",
+                "spectrum",
+                "filter",
+                "noise-budget",
+                "ser",
+                "masking",
+                "wiener",
+            },
+        ),
+    ):
+        names = {k[len("plot_") : -len("_png")] for k in run["paths"] if k.startswith("plot_") and k.endswith("_png")}
         assert names == expect
         for key, path in run["paths"].items():
             if key.endswith("_png"):
@@ -267,6 +324,7 @@ def test_svg_files_stay_small(lowpass_run, failing_run):
 
 
 # -- the HTML page -------------------------------------------------------------------------------------
+
 
 def test_html_escapes_every_file_derived_string(lowpass_run):
     page = lowpass_run["html"]
@@ -294,8 +352,8 @@ def test_html_audio_players_and_listening_caution(lowpass_run):
 
     for s in srcs:
         assert (out / unquote(unescape(s))).is_file()
-    listen = page[page.index('<section id="listen">'):]
-    listen = listen[:listen.index("</section>")]
+    listen = page[page.index('<section id="listen">') :]
+    listen = listen[: listen.index("</section>")]
     assert "start playback at a low volume" in listen and listen.count("<audio") == 3
     assert "chain-output.wav" in listen and "linked rather than offered as a player" in listen
 
@@ -305,8 +363,9 @@ _PREFIX = {"p": 1e-12, "n": 1e-9, "µ": 1e-6, "m": 1e-3, "": 1.0, "k": 1e3, "M":
 
 def shown_number(text: str) -> float:
     """The first number in a shown value, with its SI prefix applied."""
-    m = re.match(r"\s*([+-−]?\d+(?:\.\d+)?(?:e[+-]?\d+)?)\s*([pnµmkM]?)(?:Hz|V|s|dB|%|Ω|A|K|bit|\b|$)",
-                 text.replace("−", "-"))
+    m = re.match(
+        r"\s*([+-−]?\d+(?:\.\d+)?(?:e[+-]?\d+)?)\s*([pnµmkM]?)(?:Hz|V|s|dB|%|Ω|A|K|bit|\b|$)", text.replace("−", "-")
+    )
     assert m, text
     return float(m.group(1)) * _PREFIX[m.group(2)]
 
@@ -325,21 +384,24 @@ def check_shown_values(items, spec) -> int:
 
 
 def test_html_values_equal_spec_json(lowpass_run):
-    items = [(unescape(k), unescape(v), unescape(t)) for k, v, t in
-             re.findall(r'data-spec="([^"]+)" data-value="([^"]*)">([^<]*)<', lowpass_run["html"])]
+    items = [
+        (unescape(k), unescape(v), unescape(t))
+        for k, v, t in re.findall(r'data-spec="([^"]+)" data-value="([^"]*)">([^<]*)<', lowpass_run["html"])
+    ]
     assert len(items) >= 30
     assert check_shown_values(items, lowpass_run["spec"]) >= 25
 
 
 def test_case_table_lists_every_case(lowpass_run):
     page, doc = lowpass_run["html"], lowpass_run["doc"]
-    body = page[page.index('<table id="case-table">'):]
-    body = body[:body.index("</table>")]
+    body = page[page.index('<table id="case-table">') :]
+    body = body[: body.index("</table>")]
     assert body.count("<tr") == len(doc["cases"]) + 1
     assert body.count('class="subject"') == 1
 
 
 # -- the command ---------------------------------------------------------------------------------------
+
 
 def test_report_leaves_inputs_alone_and_is_deterministic(lowpass_run):
     out = lowpass_run["out"]
@@ -370,8 +432,14 @@ def test_cli_report_refuses_bad_folders(tmp_path, capsys, lowpass_run):
     other = tmp_path / "mixed"
     other.mkdir()
     (other / "sweep.json").write_bytes((lowpass_run["out"] / "sweep.json").read_bytes())
-    np.savez(other / "spectrum.npz", freqs_hz=np.zeros(3), psd=np.zeros(3), weights_hz=np.zeros(3),
-             sample_rate_hz=np.int64(48000), sha256=np.str_("0" * 64))
+    np.savez(
+        other / "spectrum.npz",
+        freqs_hz=np.zeros(3),
+        psd=np.zeros(3),
+        weights_hz=np.zeros(3),
+        sample_rate_hz=np.int64(48000),
+        sha256=np.str_("0" * 64),
+    )
     assert main(["report", str(other)]) == 1
     assert "is not the one in sweep.json" in capsys.readouterr().err
 
@@ -379,8 +447,17 @@ def test_cli_report_refuses_bad_folders(tmp_path, capsys, lowpass_run):
 def test_highpass_without_spectrum_file(tmp_path):
     """A highpass sweep (lower edge only) whose folder has no spectrum.npz: the sheet and the page still come,
     with the spectrum plot left out and the half-lower-edge stopband point given."""
-    out = make_sweep(tmp_path, {"response": "highpass", "family": "butterworth", "order": "2,3",
-                                "cutoffs": "20:200:4", "max_loss": "0.5dB", "anti_alias": "ideal"})
+    out = make_sweep(
+        tmp_path,
+        {
+            "response": "highpass",
+            "family": "butterworth",
+            "order": "2,3",
+            "cutoffs": "20:200:4",
+            "max_loss": "0.5dB",
+            "anti_alias": "ideal",
+        },
+    )
     (out / "spectrum.npz").unlink()
     paths = write_report(out)
     spec = json.loads(paths["spec_json"].read_text(encoding="utf-8"))

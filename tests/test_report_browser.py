@@ -18,18 +18,29 @@ from audiobw.report.browser import find_chromium, screenshot, selftest
 
 from .test_report import CLIP_NAME, add_render, check_shown_values, make_sweep
 
-pytestmark = pytest.mark.skipif(find_chromium() is None,
-                                reason="no Chromium on PATH: the browser test of report.html needs headless "
-                                       "Chromium (apt-get install chromium; .ci/run installs it)")
+pytestmark = pytest.mark.skipif(
+    find_chromium() is None,
+    reason="no Chromium on PATH: the browser test of report.html needs headless "
+    "Chromium (apt-get install chromium; .ci/run installs it)",
+)
 
 
 @pytest.fixture(scope="module")
 def page(tmp_path_factory):
     root = tmp_path_factory.mktemp("browser")
-    out = make_sweep(root, {"response": "bandpass", "family": "butterworth,bessel", "order": "2,4",
-                            "low_edges": "20:120:3", "high_edges": "4k:18k:5", "min_snr_a": "60dB",
-                            "max_loss": "0.2dB"},
-                     name="<script>alert(1)</" + "script>.wav")
+    out = make_sweep(
+        root,
+        {
+            "response": "bandpass",
+            "family": "butterworth,bessel",
+            "order": "2,4",
+            "low_edges": "20:120:3",
+            "high_edges": "4k:18k:5",
+            "min_snr_a": "60dB",
+            "max_loss": "0.2dB",
+        },
+        name="<script>alert(1)</" + "script>.wav",
+    )
     add_render(out)
     paths = write_report(out)
     spec = json.loads(paths["spec_json"].read_text(encoding="utf-8"))

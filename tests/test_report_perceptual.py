@@ -37,10 +37,13 @@ def run(request, tmp_path_factory):
     root = tmp_path_factory.mktemp(request.param)
     out = make_sweep(root, {"response": "lowpass", "family": "butterworth", "order": "4", **RUNS[request.param]})
     paths = write_report(out)
-    return {"out": out, "paths": paths,
-            "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
-            "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
-            "html": paths["html"].read_text(encoding="utf-8")}
+    return {
+        "out": out,
+        "paths": paths,
+        "doc": json.loads((out / "sweep.json").read_text(encoding="utf-8")),
+        "spec": json.loads(paths["spec_json"].read_text(encoding="utf-8")),
+        "html": paths["html"].read_text(encoding="utf-8"),
+    }
 
 
 def _rebuilt(run):
@@ -140,10 +143,13 @@ def test_no_perceptual_plots_without_the_frames(run):
     assert "masking" not in names and "wiener" not in names and "spectrum" in names
 
 
-@pytest.mark.parametrize("frames, match", [
-    (np.ones((4, 3)), r"band_frames has shape \(4, 3\)"),
-    (-np.ones((4, 1)), "negative"),
-])
+@pytest.mark.parametrize(
+    "frames, match",
+    [
+        (np.ones((4, 3)), r"band_frames has shape \(4, 3\)"),
+        (-np.ones((4, 1)), "negative"),
+    ],
+)
 def test_bad_band_frames_are_refused_in_one_line(run, tmp_path, frames, match):
     from audiobw.errors import AudioFileError
     from audiobw.report.validate import load_spectrum

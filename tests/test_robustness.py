@@ -46,12 +46,19 @@ def program(tmp_path_factory):
 
 chains = st.builds(
     Chain,
-    source_ohms=st.floats(0, 1e6), temperature_k=st.floats(1, 1000), gain_db=st.floats(-20, 80),
-    en_v_rthz=st.floats(0, 1e-7), in_a_rthz=st.floats(0, 1e-10), bits=st.integers(8, 32),
-    full_scale_vrms=st.floats(0.01, 10), dither=st.sampled_from(["tpdf", "none"]),
+    source_ohms=st.floats(0, 1e6),
+    temperature_k=st.floats(1, 1000),
+    gain_db=st.floats(-20, 80),
+    en_v_rthz=st.floats(0, 1e-7),
+    in_a_rthz=st.floats(0, 1e-10),
+    bits=st.integers(8, 32),
+    full_scale_vrms=st.floats(0.01, 10),
+    dither=st.sampled_from(["tpdf", "none"]),
     stage=st.sampled_from(["analog", "digital"]),
-    h2_db=st.one_of(st.none(), st.floats(-160, -20)), h3_db=st.one_of(st.none(), st.floats(-160, -20)),
-    anti_alias=st.sampled_from(["none", "ideal"]), amp_bandwidth_hz=st.one_of(st.none(), st.floats(1e3, 1e7)),
+    h2_db=st.one_of(st.none(), st.floats(-160, -20)),
+    h3_db=st.one_of(st.none(), st.floats(-160, -20)),
+    anti_alias=st.sampled_from(["none", "ideal"]),
+    amp_bandwidth_hz=st.one_of(st.none(), st.floats(1e3, 1e7)),
 )
 
 
@@ -70,9 +77,17 @@ def specs(draw, stage):
     e2 = draw(st.floats(5.0, 0.5 * FS))
     lo, hi = sorted((e1, e2))
     lo, hi = {"lowpass": (None, hi), "highpass": (lo, None), "bandpass": (lo, hi)}[response]
-    return FilterSpec(response, draw(st.sampled_from(FAMILIES)), draw(st.integers(1, 8)), lo, hi,
-                      ripple_db=draw(st.floats(0.01, 2.9)), stopband_db=draw(st.floats(20, 120)),
-                      stage=stage, fs_hz=FS)
+    return FilterSpec(
+        response,
+        draw(st.sampled_from(FAMILIES)),
+        draw(st.integers(1, 8)),
+        lo,
+        hi,
+        ripple_db=draw(st.floats(0.01, 2.9)),
+        stopband_db=draw(st.floats(20, 120)),
+        stage=stage,
+        fs_hz=FS,
+    )
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
@@ -100,16 +115,25 @@ def test_random_chains_and_grids_give_finite_metrics_or_a_clear_refusal(program,
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(family=st.sampled_from(FAMILIES), order=st.integers(1, 8), stage=st.sampled_from(["analog", "digital"]),
-       f1=st.floats(100, 20000), ratio=st.floats(1.001, 2.0), meter=st.sampled_from(["full", "aes17"]),
-       aa=st.sampled_from(["none", "ideal"]))
+@given(
+    family=st.sampled_from(FAMILIES),
+    order=st.integers(1, 8),
+    stage=st.sampled_from(["analog", "digital"]),
+    f1=st.floats(100, 20000),
+    ratio=st.floats(1.001, 2.0),
+    meter=st.sampled_from(["full", "aes17"]),
+    aa=st.sampled_from(["none", "ideal"]),
+)
 def test_noise_never_falls_as_a_lowpass_widens(program, family, order, stage, f1, ratio, meter, aa):
     f2 = min(f1 * ratio, 0.97 * FS / 2)
-    chain = bounded(Chain(stage=stage, anti_alias=aa), FilterSpec("lowpass", family, order, None, f1, stage=stage,
-                                                                  fs_hz=FS))
+    chain = bounded(
+        Chain(stage=stage, anti_alias=aa), FilterSpec("lowpass", family, order, None, f1, stage=stage, fs_hz=FS)
+    )
     sc = Scorer(program, chain, Meter(mode=meter))
-    n1, n2 = (sc.score(design(FilterSpec("lowpass", family, order, None, f, stage=stage, fs_hz=FS)))["noise_vrms"]
-              for f in (f1, f2))
+    n1, n2 = (
+        sc.score(design(FilterSpec("lowpass", family, order, None, f, stage=stage, fs_hz=FS)))["noise_vrms"]
+        for f in (f1, f2)
+    )
     # relative slack 1e-5: the folded alias images are interpolated on the
     # analysis grid (audiobw.noise.IMAGE_STRIDE); measured up to 6e-6 from the exact fold.
     # Ripple families (0.1 dB ripple here) may lose up to their ripple in a band-limited
@@ -121,12 +145,18 @@ def test_noise_never_falls_as_a_lowpass_widens(program, family, order, stage, f1
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(family=st.sampled_from(FAMILIES), order=st.integers(1, 8), f1=st.floats(30, 2000), ratio=st.floats(1.001, 3),
-       aa=st.sampled_from(["none", "ideal"]))
+@given(
+    family=st.sampled_from(FAMILIES),
+    order=st.integers(1, 8),
+    f1=st.floats(30, 2000),
+    ratio=st.floats(1.001, 3),
+    aa=st.sampled_from(["none", "ideal"]),
+)
 def test_noise_never_falls_as_a_highpass_widens(program, family, order, f1, ratio, aa):
     sc = Scorer(program, bounded(Chain(anti_alias=aa), FilterSpec("highpass", family, order, f1, None)), Meter())
-    wide, narrow = (sc.score(design(FilterSpec("highpass", family, order, f, None)))["noise_vrms"]
-                    for f in (f1, f1 * ratio))
+    wide, narrow = (
+        sc.score(design(FilterSpec("highpass", family, order, f, None)))["noise_vrms"] for f in (f1, f1 * ratio)
+    )
     assert wide >= narrow * (1 - 1e-9)
 
 
@@ -135,14 +165,17 @@ def test_noise_never_falls_as_a_highpass_widens(program, family, order, f1, rati
 def test_loss_never_rises_as_a_lowpass_cutoff_moves_up(program, family, order, f1, ratio):
     # the loss does not depend on the anti-alias model; 'ideal' keeps an even-order elliptic's noise bounded
     sc = Scorer(program, Chain(anti_alias="ideal"), Meter())
-    l1, l2 = (sc.score(design(FilterSpec("lowpass", family, order, None, f, ripple_db=0.1)))["loss_db"]
-              for f in (f1, f1 * ratio))
+    l1, l2 = (
+        sc.score(design(FilterSpec("lowpass", family, order, None, f, ripple_db=0.1)))["loss_db"]
+        for f in (f1, f1 * ratio)
+    )
     # monotonic families: never rises; ripple families: within their passband ripple
     slack = 1e-9 if family in ("butterworth", "bessel") else 0.1
     assert l2 <= l1 + slack
 
 
 # -- interrupts ---------------------------------------------------------------
+
 
 @pytest.fixture(scope="module")
 def long_file(tmp_path_factory):
@@ -175,10 +208,31 @@ def test_interrupt_leaves_no_partial_output_and_input_untouched(long_file, tmp_p
     before = long_file.read_bytes()
     out = tmp_path / "o"
     env = dict(os.environ, PYTHONPATH=str(REPO), AUDIOBW_PROGRESS="lines")
-    proc = subprocess.Popen([sys.executable, "-m", "audiobw", "sweep", str(long_file), "--out", str(out),
-                             "--cutoffs", "2k:20k:24", "--family", "butterworth,bessel,chebyshev1,elliptic",
-                             "--order", "2,4,8", "--max-loss", "1", "--anti-alias", "ideal"],
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env, cwd=tmp_path)
+    proc = subprocess.Popen(
+        [
+            sys.executable,
+            "-m",
+            "audiobw",
+            "sweep",
+            str(long_file),
+            "--out",
+            str(out),
+            "--cutoffs",
+            "2k:20k:24",
+            "--family",
+            "butterworth,bessel,chebyshev1,elliptic",
+            "--order",
+            "2,4,8",
+            "--max-loss",
+            "1",
+            "--anti-alias",
+            "ideal",
+        ],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        env=env,
+        cwd=tmp_path,
+    )
     _wait_for_progress(proc)
     proc.send_signal(sig)
     _, err = proc.communicate(timeout=120)
@@ -197,15 +251,45 @@ def test_interrupted_render_or_report_leaves_no_partial_file(long_file, tmp_path
     env = dict(os.environ, PYTHONPATH=str(REPO), AUDIOBW_PROGRESS="lines")
     out = tmp_path / "o"
     if command == "render":
-        args = ["render", str(long_file), "--band", "40:9k", "--family", "elliptic", "--order", "8",
-                "--anti-alias", "ideal", "--out", str(out)]
+        args = [
+            "render",
+            str(long_file),
+            "--band",
+            "40:9k",
+            "--family",
+            "elliptic",
+            "--order",
+            "8",
+            "--anti-alias",
+            "ideal",
+            "--out",
+            str(out),
+        ]
     else:  # a finished sweep folder, then the report on it
-        assert main(["sweep", str(long_file), "--out", str(out), "--cutoffs", "2k:20k:24", "--family",
-                     "butterworth,bessel", "--order", "2,4", "--max-loss", "1"]) == 0
+        assert (
+            main(
+                [
+                    "sweep",
+                    str(long_file),
+                    "--out",
+                    str(out),
+                    "--cutoffs",
+                    "2k:20k:24",
+                    "--family",
+                    "butterworth,bessel",
+                    "--order",
+                    "2,4",
+                    "--max-loss",
+                    "1",
+                ]
+            )
+            == 0
+        )
         args = ["report", str(out)]
     snapshot = {p: p.read_bytes() for p in out.rglob("*") if p.is_file()} if out.exists() else {}
-    proc = subprocess.Popen([sys.executable, "-m", "audiobw", *args], stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, env=env, cwd=tmp_path)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "audiobw", *args], stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env, cwd=tmp_path
+    )
     if command == "render":  # render reports progress: interrupt it inside its long pass
         _wait_for_progress(proc)
     else:  # report has no progress to wait for: either outcome must leave whole files
@@ -223,19 +307,23 @@ def test_interrupted_render_or_report_leaves_no_partial_file(long_file, tmp_path
 
 # -- hostile configuration ------------------------------------------------------
 
-@pytest.mark.parametrize("text,needle", [
-    ("[source]\nsource_ohms = '../../etc/passwd'\n", "[source] source_ohms"),
-    ("[source]\nsource_ohms = 1e400\n", "source_ohms"),
-    ("[grid]\ncutoffs = '1:2:99999999'\n", "cutoffs"),
-    ("[grid.extra]\nx = 1\n", "unknown key 'extra' in [grid]"),
-    ("[grid]\nfamily = [[1, 2]]\n", "must be a number, a string or a flat list"),
-    ("[[targets]]\nmax_loss = 1\n", "must be a table"),
-    ("[targets]\nmax_loss = true\n", "is a boolean"),
-    ("[targets]\n__import__ = 'os'\n", "unknown key '__import__' in [targets]"),
-    ("[output]\npath = '/etc'\n", "unknown section [output]"),
-    ("[source]\nsource_ohms = " + "9" * 5000 + "\n", "not valid TOML"),
-    ("\x00\x01\x02", "not valid TOML"),
-])
+
+@pytest.mark.parametrize(
+    "text,needle",
+    [
+        ("[source]\nsource_ohms = '../../etc/passwd'\n", "[source] source_ohms"),
+        ("[source]\nsource_ohms = 1e400\n", "source_ohms"),
+        ("[grid]\ncutoffs = '1:2:99999999'\n", "cutoffs"),
+        ("[grid.extra]\nx = 1\n", "unknown key 'extra' in [grid]"),
+        ("[grid]\nfamily = [[1, 2]]\n", "must be a number, a string or a flat list"),
+        ("[[targets]]\nmax_loss = 1\n", "must be a table"),
+        ("[targets]\nmax_loss = true\n", "is a boolean"),
+        ("[targets]\n__import__ = 'os'\n", "unknown key '__import__' in [targets]"),
+        ("[output]\npath = '/etc'\n", "unknown section [output]"),
+        ("[source]\nsource_ohms = " + "9" * 5000 + "\n", "not valid TOML"),
+        ("\x00\x01\x02", "not valid TOML"),
+    ],
+)
 def test_hostile_toml_is_refused_with_the_key_named(tmp_path, capsys, text, needle):
     p = tmp_path / "c.toml"
     p.write_bytes(text.encode("utf-8", "surrogatepass"))
@@ -248,8 +336,17 @@ def test_hostile_toml_is_refused_with_the_key_named(tmp_path, capsys, text, need
 
 def test_no_code_runs_from_data():
     # No eval/exec, no pickle of user data anywhere in the package (static check)
-    bad = ("eval(", "exec(", "import pickle", "pickle.load", "allow_pickle=True", "yaml.load(", "__import__(",
-           "import marshal", "shell=True")
+    bad = (
+        "eval(",
+        "exec(",
+        "import pickle",
+        "pickle.load",
+        "allow_pickle=True",
+        "yaml.load(",
+        "__import__(",
+        "import marshal",
+        "shell=True",
+    )
     for path in (REPO / "audiobw").rglob("*.py"):
         text = path.read_text(encoding="utf-8")
         for word in bad:
@@ -257,6 +354,7 @@ def test_no_code_runs_from_data():
 
 
 # -- input files ------------------------------------------------------------------
+
 
 def _run(args, capsys):
     code = main([str(a) for a in args])
@@ -292,9 +390,11 @@ def test_unreadable_file_is_refused(tmp_path, capsys, monkeypatch):
     p = tmp_path / "locked.wav"
     sf.write(str(p), np.full((FS, 1), 0.1), FS, subtype="PCM_16")
     import audiobw.audio as audio_mod
+
     real = audio_mod.os.access
-    monkeypatch.setattr(audio_mod.os, "access",
-                        lambda path, mode, **kw: False if str(path) == str(p) else real(path, mode, **kw))
+    monkeypatch.setattr(
+        audio_mod.os, "access", lambda path, mode, **kw: False if str(path) == str(p) else real(path, mode, **kw)
+    )
     code, io = _run(["sweep", p, "--max-loss", "1", "--out", tmp_path / "o"], capsys)
     assert code == 1 and "not readable (permission denied)" in io.err, io.err
 
@@ -326,6 +426,10 @@ def test_dc_offset_warns(tmp_path, capsys):
 
 
 def test_debug_shows_the_traceback(tmp_path):
-    r = subprocess.run([sys.executable, "-m", "audiobw", "--debug", "sweep", str(tmp_path / "missing.wav"),
-                        "--max-loss", "1"], capture_output=True, text=True, cwd=REPO)
+    r = subprocess.run(
+        [sys.executable, "-m", "audiobw", "--debug", "sweep", str(tmp_path / "missing.wav"), "--max-loss", "1"],
+        capture_output=True,
+        text=True,
+        cwd=REPO,
+    )
     assert r.returncode != 0 and "Traceback" in r.stderr

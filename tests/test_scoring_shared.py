@@ -39,14 +39,24 @@ def _grid(n=4097, fs=48000.0):
     return f, np.full(n, f[1] - f[0])
 
 
-@pytest.mark.parametrize("family,order,response", [
-    ("butterworth", 2, "highpass"), ("chebyshev1", 4, "highpass"), ("bessel", 8, "highpass"),
-    ("butterworth", 3, "lowpass"), ("elliptic", 6, "lowpass")])
+@pytest.mark.parametrize(
+    "family,order,response",
+    [
+        ("butterworth", 2, "highpass"),
+        ("chebyshev1", 4, "highpass"),
+        ("bessel", 8, "highpass"),
+        ("butterworth", 3, "lowpass"),
+        ("elliptic", 6, "lowpass"),
+    ],
+)
 def test_group_delay_matches_unwrap_gradient_and_the_zpk(family, order, response):
     f, _ = _grid()
     cut = 300.0 if response == "highpass" else 5000.0
-    filt = design(FilterSpec(response, family, order, cut if response == "highpass" else None,
-                             cut if response == "lowpass" else None))
+    filt = design(
+        FilterSpec(
+            response, family, order, cut if response == "highpass" else None, cut if response == "lowpass" else None
+        )
+    )
     h = filt.response(f)
     new = wiener.group_delay_s(h, f)
     old = -np.gradient(np.unwrap(np.angle(h)), 2 * np.pi * f)
@@ -94,8 +104,11 @@ def test_shared_delay_search_gives_the_separate_searches(write_audio):
     sc = Scorer(a, chain, Meter())
     ps = PerceptualScorer(a, chain, Listening(program="speech"))
     f, w = a.freqs_hz, a.weights_hz
-    for spec in (FilterSpec("lowpass", "elliptic", 8, None, 4000.0), FilterSpec("highpass", "bessel", 4, 120.0, None),
-                 FilterSpec("lowpass", "chebyshev1", 6, None, 12000.0)):
+    for spec in (
+        FilterSpec("lowpass", "elliptic", 8, None, 4000.0),
+        FilterSpec("highpass", "bessel", 4, 120.0, None),
+        FilterSpec("lowpass", "chebyshev1", 6, None, 12000.0),
+    ):
         filt = design(spec)
         shared: dict = {}
         row = sc.score(filt, shared)

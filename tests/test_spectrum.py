@@ -41,10 +41,12 @@ def test_psd_matches_scipy_welch(write_audio, rng):
     path = write_audio("band.wav", x[:, None], fs)
     a = analyse(path)
     import soundfile as sf
+
     x = sf.read(str(path))[0]  # the float32 samples actually stored
     # scipy.signal.welch with the same segment, Hann window, 50 % overlap, no detrending
-    f, p = signal.welch(x, fs=fs, window="hann", nperseg=a.nperseg, noverlap=a.nperseg // 2,
-                        detrend=False, scaling="density")
+    f, p = signal.welch(
+        x, fs=fs, window="hann", nperseg=a.nperseg, noverlap=a.nperseg // 2, detrend=False, scaling="density"
+    )
     np.testing.assert_allclose(a.freqs_hz, f)
     np.testing.assert_allclose(a.psd, p, rtol=1e-6, atol=1e-12 * p.max())
 
@@ -129,6 +131,7 @@ def test_nan_is_refused(write_audio):
 
 def test_frame_buffer_stays_bounded(write_audio, monkeypatch, rng):
     import audiobw.spectrum as sp
+
     monkeypatch.setattr(sp, "MAX_FRAMES", 16)
     fs = 8000
     a = analyse(write_audio("long.wav", rng.standard_normal((fs * 20, 1)) * 0.1, fs))
@@ -139,5 +142,6 @@ def test_frame_buffer_stays_bounded(write_audio, monkeypatch, rng):
 @pytest.mark.parametrize("m", [1, 2, 3, 255, 256, 2048, 16384])
 def test_hann_window_is_scipy_bit_for_bit(m):
     from audiobw.spectrum import hann_periodic
+
     # reference: scipy.signal.get_window('hann', m) (periodic, fftbins=True)
     assert np.array_equal(hann_periodic(m), signal.get_window("hann", m))

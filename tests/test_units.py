@@ -58,14 +58,14 @@ GOOD = [
     ("resistance", "2.2k", 2200.0),
     ("resistance", "150ohm", 150.0),
     ("resistance", "150 ohms", 150.0),
-    ("resistance", "150Ω", 150.0),          # U+03A9 Greek capital omega
-    ("resistance", "150\u2126", 150.0),     # U+2126 ohm sign
+    ("resistance", "150Ω", 150.0),  # U+03A9 Greek capital omega
+    ("resistance", "150\u2126", 150.0),  # U+2126 ohm sign
     ("resistance", "1kohm", 1000.0),
     ("resistance", "1kOhm", 1000.0),
     ("resistance", "1MΩ", 1e6),
     ("resistance", "  47 k ", 47e3),
-    ("resistance", "0", 0.0),               # ideal source
-    ("resistance", "100m", 0.1),            # m is milli
+    ("resistance", "0", 0.0),  # ideal source
+    ("resistance", "100m", 0.1),  # m is milli
     ("resistance", 600, 600.0),
     ("resistance", 0, 0.0),
     # temperature, kelvin; T/K = t/°C + 273.15 (SI brochure, 9th ed.)
@@ -95,8 +95,8 @@ GOOD = [
     ("voltage_density", "1.2nV/sqrt(Hz)", 1.2e-9),
     ("voltage_density", "1.2 nV / √Hz", 1.2e-9),
     ("voltage_density", "1.2e-9", 1.2e-9),
-    ("voltage_density", "4µV/rtHz", 4e-6),   # U+00B5 micro sign
-    ("voltage_density", "4μV/rtHz", 4e-6),   # U+03BC Greek mu
+    ("voltage_density", "4µV/rtHz", 4e-6),  # U+00B5 micro sign
+    ("voltage_density", "4μV/rtHz", 4e-6),  # U+03BC Greek mu
     ("voltage_density", "4uV/rtHz", 4e-6),
     ("voltage_density", "0", 0.0),
     ("voltage_density", 3e-9, 3e-9),
@@ -123,9 +123,9 @@ GOOD = [
     ("voltage", "2 V rms", 2.0),
     ("voltage", "775m", 0.775),
     ("voltage", "775mV", 0.775),
-    ("voltage", "0dBu", math.sqrt(0.6)),                       # common practice
-    ("voltage", "+4dBu", math.sqrt(0.6) * 10 ** (4 / 20)),     # ≈ 1.228 V
-    ("voltage", "-10dBV", 10 ** (-10 / 20)),                   # 0 dBV = 1 V (common practice)
+    ("voltage", "0dBu", math.sqrt(0.6)),  # common practice
+    ("voltage", "+4dBu", math.sqrt(0.6) * 10 ** (4 / 20)),  # ≈ 1.228 V
+    ("voltage", "-10dBV", 10 ** (-10 / 20)),  # 0 dBV = 1 V (common practice)
     ("voltage", "0dBV", 1.0),
     ("voltage", 1.5, 1.5),
     # frequency, Hz
@@ -147,7 +147,7 @@ GOOD = [
     ("thdn", "0.05%", 0.05),
     ("thdn", "1 %", 1.0),
     ("thdn", "100%", 100.0),
-    ("thdn", "-66dB", 100 * 10 ** (-66 / 20)),   # ≈ 0.0501 %
+    ("thdn", "-66dB", 100 * 10 ** (-66 / 20)),  # ≈ 0.0501 %
     ("thdn", "-40dB", 1.0),
     ("thdn", "-100 dB", 1e-3),
     ("thdn", "0dB", 100.0),
@@ -224,7 +224,7 @@ BAD = [
     ("temperature", "-273.15C", "absolute zero"),
     ("temperature", "-300C", "absolute zero"),
     ("temperature", 0, "absolute zero"),
-    ("temperature", "300k", "is not a temperature"),   # kelvin is a capital K only
+    ("temperature", "300k", "is not a temperature"),  # kelvin is a capital K only
     ("temperature", "300mK", "is not a temperature"),  # no prefixes on temperature
     ("temperature", "80F", "is not a temperature"),
     ("gain_db", "40V", "is not a gain"),
@@ -292,9 +292,7 @@ def test_every_kind_has_bad_examples():
 def test_gain_message_matches_project_wording():
     with pytest.raises(ParameterError) as info:
         parse_quantity("4x", "gain_db", name="--gain")
-    assert str(info.value) == (
-        "--gain: '4x' is not a gain; accepted: a number in dB such as 40 or 40dB"
-    )
+    assert str(info.value) == ("--gain: '4x' is not a gain; accepted: a number in dB such as 40 or 40dB")
 
 
 def test_thdn_bare_number_message_says_give_percent_or_db():
@@ -487,8 +485,7 @@ def test_parse_int_list_refuses(text, value, reason):
 # parse_name_list
 
 FAMILIES = ("butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic")
-ALIASES = {"butter": "butterworth", "cheby1": "chebyshev1", "cheby2": "chebyshev2",
-           "ellip": "elliptic"}
+ALIASES = {"butter": "butterworth", "cheby1": "chebyshev1", "cheby2": "chebyshev2", "ellip": "elliptic"}
 
 
 @pytest.mark.parametrize(
@@ -553,10 +550,10 @@ def test_parse_name_list_bad_alias_is_a_caller_error():
         ((1e-15,), {}, "1 f"),
         ((123456.0, "Hz"), {}, "123.5 kHz"),
         ((123456.0, "Hz"), {"digits": 2}, "120 kHz"),
-        ((999.96, "Hz"), {}, "1 kHz"),       # rounding carries into the next prefix
+        ((999.96, "Hz"), {}, "1 kHz"),  # rounding carries into the next prefix
         ((0.9999996,), {"compact": True}, "1"),
         ((-2200, "Ω"), {}, "-2.2 kΩ"),
-        ((-66.0, "dB"), {}, "-66 dB"),       # no prefix on logarithmic units
+        ((-66.0, "dB"), {}, "-66 dB"),  # no prefix on logarithmic units
         ((1234.5678, "dB"), {}, "1235 dB"),
         ((0.05, "%"), {"compact": True}, "0.05%"),
         ((1.2e-18,), {}, "1.2e-18"),

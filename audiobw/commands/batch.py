@@ -31,8 +31,9 @@ class BatchProgress:
             eta = _duration(s["elapsed_s"] / computed * left)
         elif not left:
             eta = "0 s"
-        self.stream.write(f"\raudiobw batch: {s['done']}/{s['total']} done, {s['failed']} failed, "
-                          f"{left} left, about {eta} to go   ")
+        self.stream.write(
+            f"\raudiobw batch: {s['done']}/{s['total']} done, {s['failed']} failed, {left} left, about {eta} to go   "
+        )
         self.stream.flush()
         self.shown = True
 
@@ -53,25 +54,54 @@ def _duration(seconds: float) -> str:
 
 @click.command("batch", context_settings=CONTEXT)
 @click.argument("inputs", nargs=-1, required=True, metavar="INPUT...")
-@click.option("--out", type=click.Path(path_type=Path), default=Path("audiobw-out/corpus"), show_default=True,
-              help="Output folder: corpus.json, corpus.csv, files/<name>/sweep.json, cache/.")
-@click.option("--coverage", default="95%", show_default=True, metavar="SHARE",
-              help="Share of the files the chosen case must pass on: 95% or 0.95.")
-@click.option("--workers", type=int, default=None, metavar="N",
-              help="Local worker processes [default: the CPU count]; 0 sweeps in this process.")
-@click.option("--cluster", default=None, metavar="ADDRESS",
-              help="Run on an existing dask.distributed scheduler, e.g. tcp://scheduler:8786 "
-                   "(needs audiobw[cluster]).")
-@click.option("--cluster-timeout", default="10s", show_default=True, metavar="SECONDS",
-              help="Give up on --cluster if connecting and the scheduler's handshake take longer, e.g. 10s.")
-@click.option("--follow-links", is_flag=True,
-              help="Follow symbolic links to folders and links that lead out of a folder given.")
+@click.option(
+    "--out",
+    type=click.Path(path_type=Path),
+    default=Path("audiobw-out/corpus"),
+    show_default=True,
+    help="Output folder: corpus.json, corpus.csv, files/<name>/sweep.json, cache/.",
+)
+@click.option(
+    "--coverage",
+    default="95%",
+    show_default=True,
+    metavar="SHARE",
+    help="Share of the files the chosen case must pass on: 95% or 0.95.",
+)
+@click.option(
+    "--workers",
+    type=int,
+    default=None,
+    metavar="N",
+    help="Local worker processes [default: the CPU count]; 0 sweeps in this process.",
+)
+@click.option(
+    "--cluster",
+    default=None,
+    metavar="ADDRESS",
+    help="Run on an existing dask.distributed scheduler, e.g. tcp://scheduler:8786 (needs audiobw[cluster]).",
+)
+@click.option(
+    "--cluster-timeout",
+    default="10s",
+    show_default=True,
+    metavar="SECONDS",
+    help="Give up on --cluster if connecting and the scheduler's handshake take longer, e.g. 10s.",
+)
+@click.option(
+    "--follow-links", is_flag=True, help="Follow symbolic links to folders and links that lead out of a folder given."
+)
 @click.option("--json", "as_json", is_flag=True, help="Print corpus.json to stdout instead of the summary.")
-@click.option("--no-cache", "no_cache", is_flag=True,
-              help="Neither read nor write the analysis cache (~/.cache/audiobw); OUT/cache/ still resumes.")
+@click.option(
+    "--no-cache",
+    "no_cache",
+    is_flag=True,
+    help="Neither read nor write the analysis cache (~/.cache/audiobw); OUT/cache/ still resumes.",
+)
 @sweep_options
-def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_links, as_json, no_cache, chain_file,
-            **kwargs):
+def command(
+    inputs, out, coverage, workers, cluster, cluster_timeout, follow_links, as_json, no_cache, chain_file, **kwargs
+):
     """Sweep every file of a library and choose the narrowest case that passes on
     at least the --coverage share of them.
 
@@ -101,13 +131,23 @@ def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_lin
         raise ParameterError(f"--cluster-timeout: {cluster_timeout!r} is out of range; accepted: 0.1 s to 3600 s")
     progress = BatchProgress()
     try:
-        result = run_batch(list(inputs), settings, out, coverage=share, workers=workers, cluster=cluster,
-                           follow_links=follow_links, progress=progress, cluster_timeout_s=timeout_s,
-                           use_cache=not no_cache)
+        result = run_batch(
+            list(inputs),
+            settings,
+            out,
+            coverage=share,
+            workers=workers,
+            cluster=cluster,
+            follow_links=follow_links,
+            progress=progress,
+            cluster_timeout_s=timeout_s,
+            use_cache=not no_cache,
+        )
     except KeyboardInterrupt:
         progress.close()
-        click.echo(f"audiobw: finished files are kept in {out / 'cache'}; run the same command again to resume",
-                   err=True)
+        click.echo(
+            f"audiobw: finished files are kept in {out / 'cache'}; run the same command again to resume", err=True
+        )
         raise
     finally:
         progress.close()
@@ -119,8 +159,9 @@ def command(inputs, out, coverage, workers, cluster, cluster_timeout, follow_lin
     else:
         for line in summary_lines(doc):
             click.echo(line)
-        click.echo(f"Swept {result.computed} file(s), took {result.cached} from the cache, "
-                   f"in {result.elapsed_s:.1f} s.")
+        click.echo(
+            f"Swept {result.computed} file(s), took {result.cached} from the cache, in {result.elapsed_s:.1f} s."
+        )
         click.echo(f"Wrote {result.paths['json']} and {result.paths['csv']}.")
         click.echo(ESTIMATE_CAUTION)
     if doc["counts"]["swept"] == 0:

@@ -13,14 +13,28 @@ MAX_SAMPLES = 200_000_000  # 800 MB of float32; about 70 minutes at 48 kHz
 
 @click.command("bits", context_settings=CONTEXT)
 @click.option("--bit-rate", required=True, metavar="RATE", help="Bit rate, bit/s (e.g. 2k, 9600).")
-@click.option("--pattern", default="prbs7", show_default=True,
-              type=click.Choice(["prbs7", "prbs9", "prbs15", "alternating", "random"]),
-              help="Bit pattern: ITU-T O.150 PRBS, 1010..., or seeded random bits.")
+@click.option(
+    "--pattern",
+    default="prbs7",
+    show_default=True,
+    type=click.Choice(["prbs7", "prbs9", "prbs15", "alternating", "random"]),
+    help="Bit pattern: ITU-T O.150 PRBS, 1010..., or seeded random bits.",
+)
 @click.option("--bits-count", default="4096", show_default=True, metavar="N", help="Number of bits.")
-@click.option("--amplitude", default="1V", show_default=True, metavar="V",
-              help="NRZ amplitude ±A at the converter input, V (or dBu).")
-@click.option("--full-scale", default="1.228", show_default=True, metavar="VRMS",
-              help="rms of a full-scale sine at the converter input (sets the sample scale).")
+@click.option(
+    "--amplitude",
+    default="1V",
+    show_default=True,
+    metavar="V",
+    help="NRZ amplitude ±A at the converter input, V (or dBu).",
+)
+@click.option(
+    "--full-scale",
+    default="1.228",
+    show_default=True,
+    metavar="VRMS",
+    help="rms of a full-scale sine at the converter input (sets the sample scale).",
+)
 @click.option("--rate", default="48k", show_default=True, metavar="HZ", help="Sample rate, Hz.")
 @click.option("--seed", default="1", show_default=True, metavar="S", help="Seed for --pattern random (0 to 2^32-1).")
 @click.option("--out", required=True, type=click.Path(path_type=Path), help="Output WAV or FLAC file.")
@@ -53,17 +67,23 @@ def command(bit_rate, pattern, bits_count, amplitude, full_scale, rate, seed, ou
     seed = units.parse_int(seed, name="--seed", low=0, high=2**32 - 1)
     samples = n[0] * fs / r
     if samples > MAX_SAMPLES:
-        raise ParameterError(f"--bit-rate: {bit_rate!r} with --bits-count {n[0]} at {fs:g} Hz makes {samples:.3g} "
-                             f"samples; accepted: at most {MAX_SAMPLES:,} samples (raise the bit rate or lower the count)")
+        raise ParameterError(
+            f"--bit-rate: {bit_rate!r} with --bits-count {n[0]} at {fs:g} Hz makes {samples:.3g} "
+            f"samples; accepted: at most {MAX_SAMPLES:,} samples (raise the bit rate or lower the count)"
+        )
     peak = amp_v / (math.sqrt(2.0) * fs_v)  # samples: a full-scale sine has peak 1.0
     if peak > 1.0:
-        raise ParameterError(f"--amplitude: {amplitude!r} exceeds full scale ({math.sqrt(2) * fs_v:.4g} V peak); "
-                             "accepted: at most the full-scale peak")
+        raise ParameterError(
+            f"--amplitude: {amplitude!r} exceeds full scale ({math.sqrt(2) * fs_v:.4g} V peak); "
+            "accepted: at most the full-scale peak"
+        )
     bits = prbs(pattern, n[0], seed=seed)
     x = nrz_stream(bits, r, fs, peak)
     suffix = out.suffix.lower()
     subtype = "PCM_24" if suffix == ".flac" else "FLOAT"
     write_audio_atomic(out, x[:, None], int(fs), subtype=subtype)
-    click.echo(f"Wrote {out}: {n[0]} bits of {pattern} at {units.format_quantity(r, 'bit/s')}, ±{amp_v:g} V "
-               f"({20 * math.log10(peak):.2f} dBFS peak), {x.size} samples at {int(fs)} Hz "
-               f"({x.size / fs:.3f} s). Nyquist minimum bandwidth 1/(2T): {units.format_quantity(r / 2, 'Hz')}.")
+    click.echo(
+        f"Wrote {out}: {n[0]} bits of {pattern} at {units.format_quantity(r, 'bit/s')}, ±{amp_v:g} V "
+        f"({20 * math.log10(peak):.2f} dBFS peak), {x.size} samples at {int(fs)} Hz "
+        f"({x.size / fs:.3f} s). Nyquist minimum bandwidth 1/(2T): {units.format_quantity(r / 2, 'Hz')}."
+    )

@@ -30,8 +30,10 @@ def command(key, answers, as_json):
 
         click.echo(json.dumps(s, indent=2))
         return
-    click.echo(f"Answered {s['answered']} of {s['trials']} trials; {s['correct']} right; "
-               f"one-sided binomial p = {s['p_value']:.4g}")
+    click.echo(
+        f"Answered {s['answered']} of {s['trials']} trials; {s['correct']} right; "
+        f"one-sided binomial p = {s['p_value']:.4g}"
+    )
     if s["unanswered"]:
         click.echo(f"Not answered: {', '.join(str(t) for t in s['unanswered'])}")
     click.echo(s["reading"])

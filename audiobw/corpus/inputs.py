@@ -74,8 +74,9 @@ def _walk(root: str, follow_links: bool, found: list, skipped: list) -> None:
                     continue
                 if not follow_links and not _inside(real, root_real):
                     if os.path.isdir(real) or _is_audio(entry.name):
-                        skipped.append((full, "symbolic link out of the folder given; not followed "
-                                              "(--follow-links follows it)"))
+                        skipped.append(
+                            (full, "symbolic link out of the folder given; not followed (--follow-links follows it)")
+                        )
                     continue
                 if not follow_links and os.path.isdir(real):
                     continue  # a folder inside the tree: walked under its own name
@@ -160,8 +161,13 @@ def collect_inputs(args, *, follow_links: bool = False) -> Inputs:
     regular = []
     for display in found:
         if not is_regular_file(display):
-            kind = ("broken symbolic link" if not os.path.exists(display) else "a folder" if os.path.isdir(display)
-                    else "not a regular file (FIFO, device or socket)")
+            kind = (
+                "broken symbolic link"
+                if not os.path.exists(display)
+                else "a folder"
+                if os.path.isdir(display)
+                else "not a regular file (FIFO, device or socket)"
+            )
             skipped.append((canonical_path(display), f"{kind}; not opened; accepted: regular audio files"))
         else:
             regular.append(display)
@@ -196,6 +202,8 @@ def parse_coverage(value) -> float:
     except ValueError:
         x = math.nan
     if not (0.0 < x <= 1.0) or (not text.endswith("%") and x > 1.0):
-        raise ParameterError(f"--coverage: {value!r} is not accepted; accepted: a percentage such as 95% "
-                             "or a fraction such as 0.95 (above 0, at most 100 %)")
+        raise ParameterError(
+            f"--coverage: {value!r} is not accepted; accepted: a percentage such as 95% "
+            "or a fraction such as 0.95 (above 0, at most 100 %)"
+        )
     return x

@@ -43,8 +43,9 @@ def settings_from_plain(data: dict):
 
         ls = data["listening"]
         ag = ls.get("audiogram_hl")
-        kw["listening"] = Listening(ls["program"], ls.get("playback_spl_db"),
-                                    {float(k): float(v) for k, v in ag.items()} if ag else None)
+        kw["listening"] = Listening(
+            ls["program"], ls.get("playback_spl_db"), {float(k): float(v) for k, v in ag.items()} if ag else None
+        )
     if "default_targets" in data:
         kw["default_targets"] = tuple(data["default_targets"])
     known = {f.name for f in fields(Settings)}

@@ -23,8 +23,18 @@ class BatchResult:
     elapsed_s: float
 
 
-def run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
-              cluster: str | None = None, follow_links: bool = False, progress=None, **kw) -> BatchResult:
+def run_batch(
+    args,
+    settings,
+    out_dir,
+    *,
+    coverage: float = 0.95,
+    workers: int | None = None,
+    cluster: str | None = None,
+    follow_links: bool = False,
+    progress=None,
+    **kw,
+) -> BatchResult:
     """Run a batch into ``out_dir`` while holding its output lock (see :func:`_run_batch`)."""
     from ..audio import output_lock
 
@@ -32,13 +42,32 @@ def run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int |
     if out.exists() and not out.is_dir():
         raise OutputError(f"--out: {str(out)!r} exists and is not a folder")
     with output_lock(out):
-        return _run_batch(args, settings, out_dir, coverage=coverage, workers=workers, cluster=cluster,
-                          follow_links=follow_links, progress=progress, **kw)
+        return _run_batch(
+            args,
+            settings,
+            out_dir,
+            coverage=coverage,
+            workers=workers,
+            cluster=cluster,
+            follow_links=follow_links,
+            progress=progress,
+            **kw,
+        )
 
 
-def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int | None = None,
-              cluster: str | None = None, follow_links: bool = False, progress=None,
-              cluster_timeout_s: float = 10.0, use_cache: bool = True) -> BatchResult:
+def _run_batch(
+    args,
+    settings,
+    out_dir,
+    *,
+    coverage: float = 0.95,
+    workers: int | None = None,
+    cluster: str | None = None,
+    follow_links: bool = False,
+    progress=None,
+    cluster_timeout_s: float = 10.0,
+    use_cache: bool = True,
+) -> BatchResult:
     """Sweep every input file and write corpus.json and corpus.csv into ``out_dir``.
 
     Parameters
@@ -69,7 +98,8 @@ def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int 
     if not settings.targets:
         raise ParameterError(
             "targets: none given; accepted: at least one of --min-snr, --min-snr-a, --max-thdn, "
-            "--max-loss, --max-lsd, --min-ser")
+            "--max-loss, --max-lsd, --min-ser"
+        )
     if workers is not None and workers < 0:
         raise ParameterError(f"--workers: {workers!r}; accepted: 0 (sweep in this process) or more")
     out = Path(out_dir)
@@ -79,9 +109,17 @@ def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int 
     plain = settings_to_plain(settings)
     opt = options_hash(plain)
     out_abs = Path(os.path.abspath(out))
-    tasks = [{"path": os.path.abspath(it.path), "out_dir": str(out_abs / "files" / it.name),
-              "cache_dir": str(out_abs / "cache"), "settings": plain, "options": opt, "use_cache": use_cache}
-             for it in inputs.items]
+    tasks = [
+        {
+            "path": os.path.abspath(it.path),
+            "out_dir": str(out_abs / "files" / it.name),
+            "cache_dir": str(out_abs / "cache"),
+            "settings": plain,
+            "options": opt,
+            "use_cache": use_cache,
+        }
+        for it in inputs.items
+    ]
     results: list = [None] * len(tasks)
     stats = {"done": 0, "failed": 0, "cached": 0, "total": len(tasks), "elapsed_s": 0.0}
     start = time.monotonic()
@@ -109,7 +147,14 @@ def _run_batch(args, settings, out_dir, *, coverage: float = 0.95, workers: int 
         else:
             failed.append((item.path, result["reason"].replace(task["path"], item.path)))
     doc = summarise(files, failed, inputs.skipped, settings=settings, coverage=coverage, opt_hash=opt)
-    paths = {"json": write_text_atomic(out / "corpus.json", dumps(doc)),
-             "csv": write_text_atomic(out / "corpus.csv", csv_text(doc))}
-    return BatchResult(doc, paths, computed=stats["done"] - stats["cached"] - stats["failed"],
-                       cached=stats["cached"], elapsed_s=time.monotonic() - start)
+    paths = {
+        "json": write_text_atomic(out / "corpus.json", dumps(doc)),
+        "csv": write_text_atomic(out / "corpus.csv", csv_text(doc)),
+    }
+    return BatchResult(
+        doc,
+        paths,
+        computed=stats["done"] - stats["cached"] - stats["failed"],
+        cached=stats["cached"],
+        elapsed_s=time.monotonic() - start,
+    )

@@ -34,9 +34,12 @@ def _run_pool(tasks, workers: int, on_result):
     from concurrent.futures import ProcessPoolExecutor, as_completed
     from concurrent.futures.process import BrokenProcessPool
 
-    pool = ProcessPoolExecutor(max_workers=max(1, min(workers, len(tasks))),
-                               mp_context=multiprocessing.get_context("spawn"), initializer=worker_init,
-                               initargs=(os.getpid(),))
+    pool = ProcessPoolExecutor(
+        max_workers=max(1, min(workers, len(tasks))),
+        mp_context=multiprocessing.get_context("spawn"),
+        initializer=worker_init,
+        initargs=(os.getpid(),),
+    )
     futures: dict = {}
 
     def stop():
@@ -53,8 +56,10 @@ def _run_pool(tasks, workers: int, on_result):
             on_result(futures[fut], fut.result())
     except BrokenProcessPool as exc:
         stop()
-        raise BatchInterrupted(f"--workers: a worker process died ({exc}); finished files are kept in the "
-                               "cache: run the same command again to resume") from None
+        raise BatchInterrupted(
+            f"--workers: a worker process died ({exc}); finished files are kept in the "
+            "cache: run the same command again to resume"
+        ) from None
     except BaseException:
         stop()
         raise
@@ -80,9 +85,11 @@ def _connect(Client, address: str, timeout_s: float):
     t.start()
     t.join(timeout_s + 2.0)
     if t.is_alive():
-        raise BatchInterrupted(f"--cluster: {address!r}: no dask scheduler answered within {timeout_s:g} s "
-                               "(is it a scheduler's address?); accepted: e.g. tcp://host:8786; "
-                               "--cluster-timeout sets the wait")
+        raise BatchInterrupted(
+            f"--cluster: {address!r}: no dask scheduler answered within {timeout_s:g} s "
+            "(is it a scheduler's address?); accepted: e.g. tcp://host:8786; "
+            "--cluster-timeout sets the wait"
+        )
     if "error" in box:
         raise box["error"]
     return box["client"]
@@ -93,15 +100,19 @@ def _run_cluster(tasks, address, on_result, opt_hash: str, *, timeout_s: float =
         from distributed import Client, as_completed
         from distributed.client import FutureCancelledError  # noqa: F401
     except ImportError:
-        raise ParameterError(f"--cluster: {address!r} needs the optional package 'distributed'; "
-                             "install it with: pip install 'audiobw[cluster]'") from None
+        raise ParameterError(
+            f"--cluster: {address!r} needs the optional package 'distributed'; "
+            "install it with: pip install 'audiobw[cluster]'"
+        ) from None
     from distributed import KilledWorker
 
     try:
         client = _connect(Client, address, timeout_s)
     except ValueError as exc:
-        raise ParameterError(f"--cluster: {address!r} is not a scheduler address ({exc}); "
-                             "accepted: e.g. tcp://host:8786 or tls://host:8786") from None
+        raise ParameterError(
+            f"--cluster: {address!r} is not a scheduler address ({exc}); "
+            "accepted: e.g. tcp://host:8786 or tls://host:8786"
+        ) from None
     except (OSError, TimeoutError) as exc:
         raise BatchInterrupted(f"--cluster: cannot reach a dask scheduler at {address!r} ({exc})") from None
     try:
@@ -115,11 +126,16 @@ def _run_cluster(tasks, address, on_result, opt_hash: str, *, timeout_s: float =
             try:
                 result = fut.result()
             except KilledWorker as exc:
-                result = {"status": "failed", "cached": False,
-                          "reason": f"{tasks[i]['path']}: its task killed the cluster's workers ({exc})"}
+                result = {
+                    "status": "failed",
+                    "cached": False,
+                    "reason": f"{tasks[i]['path']}: its task killed the cluster's workers ({exc})",
+                }
             except Exception as exc:
-                raise BatchInterrupted(f"--cluster: {address}: lost ({type(exc).__name__}: {exc}); finished "
-                                       "files are kept in the cache: run the same command again to resume") from None
+                raise BatchInterrupted(
+                    f"--cluster: {address}: lost ({type(exc).__name__}: {exc}); finished "
+                    "files are kept in the cache: run the same command again to resume"
+                ) from None
             on_result(i, result)
     finally:
         try:

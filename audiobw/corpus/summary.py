@@ -13,8 +13,23 @@ from .cache import DATA_KEYS, IDENTITY_KEYS, MEDIAN_KEYS
 from .plain import settings_to_plain
 
 PERCENTILES = (5, 25, 50, 75, 95)
-CSV_KEYS = ("id", "response", "family", "order", "poles", "design_low_hz", "design_high_hz", "low_hz",
-            "high_hz", "bandwidth_hz", "enbw_hz", "files_evaluated", "pass_share", "passes", "fails")
+CSV_KEYS = (
+    "id",
+    "response",
+    "family",
+    "order",
+    "poles",
+    "design_low_hz",
+    "design_high_hz",
+    "low_hz",
+    "high_hz",
+    "bandwidth_hz",
+    "enbw_hz",
+    "files_evaluated",
+    "pass_share",
+    "passes",
+    "fails",
+)
 
 
 def _round(x):
@@ -84,8 +99,13 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
 
     def order_key(ident):
         _, fam, order, lo, hi = ident
-        return (families.index(fam) if fam in families else len(families), fam, order,
-                -1.0 if lo is None else lo, math.inf if hi is None else hi)
+        return (
+            families.index(fam) if fam in families else len(families),
+            fam,
+            order,
+            -1.0 if lo is None else lo,
+            math.inf if hi is None else hi,
+        )
 
     targets = [k for k in TARGET_KEYS if settings.targets.get(k) is not None]
     cases = []
@@ -104,13 +124,25 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
         for t in targets:
             share_t[t] = _round(sum(1 for r in rows.values() if t not in r["fails"]) / n) if n else 0.0
             # margin reached by at least `coverage` of the files (missing case or unevaluable: -inf)
-            ms = sorted(((-math.inf if rows.get(f) is None or rows[f]["margins_db"].get(t) is None
-                          else rows[f]["margins_db"][t]) for f in range(n)), reverse=True)
+            ms = sorted(
+                (
+                    (
+                        -math.inf
+                        if rows.get(f) is None or rows[f]["margins_db"].get(t) is None
+                        else rows[f]["margins_db"][t]
+                    )
+                    for f in range(n)
+                ),
+                reverse=True,
+            )
             q = ms[need - 1] if n and need >= 1 else None
             margin_q[t] = _round(q) if q is not None and math.isfinite(q) else None
         case["passes"] = n > 0 and passing >= need
-        case["fails"] = [] if case["passes"] else [
-            t for t in targets if sum(1 for r in rows.values() if t not in r["fails"]) < need]
+        case["fails"] = (
+            []
+            if case["passes"]
+            else [t for t in targets if sum(1 for r in rows.values() if t not in r["fails"]) < need]
+        )
         case["margins_db"] = margin_q
         case["pass_share"] = _round(passing / n) if n else 0.0
         case["files_evaluated"] = len(rows)
@@ -119,8 +151,12 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
 
     choice, best, failing = None, None, []
     if cases:
-        picked, _ = choose(cases, settings.targets, rank=settings.grid_values.get("rank", "enbw"),
-                           tie=settings.grid_values.get("tie", 0.01))
+        picked, _ = choose(
+            cases,
+            settings.targets,
+            rank=settings.grid_values.get("rank", "enbw"),
+            tie=settings.grid_values.get("tie", 0.01),
+        )
         if picked is not None:
             chosen = cases[picked["case"] - 1]
             choice = {"case": chosen["id"], "pass_share": chosen["pass_share"]}
@@ -131,21 +167,48 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
                 if row is not None and row["passes"]:
                     continue
                 if row is None:
-                    failing.append({"path": item.path, "sweep": f"files/{item.name}/sweep.json", "binding": None,
-                                    "margin_db": None, "fails": [],
-                                    "note": f"case not in this file's grid ({entry['input']['sample_rate_hz']} Hz)"})
+                    failing.append(
+                        {
+                            "path": item.path,
+                            "sweep": f"files/{item.name}/sweep.json",
+                            "binding": None,
+                            "margin_db": None,
+                            "fails": [],
+                            "note": f"case not in this file's grid ({entry['input']['sample_rate_hz']} Hz)",
+                        }
+                    )
                     continue
                 key, margin = _worst(row["margins_db"])
-                failing.append({"path": item.path, "sweep": f"files/{item.name}/sweep.json", "binding": key,
-                                "margin_db": _round(margin), "fails": list(row["fails"]), "note": None})
+                failing.append(
+                    {
+                        "path": item.path,
+                        "sweep": f"files/{item.name}/sweep.json",
+                        "binding": key,
+                        "margin_db": _round(margin),
+                        "fails": list(row["fails"]),
+                        "note": None,
+                    }
+                )
             for path, reason in failed:
-                failing.append({"path": path, "sweep": None, "binding": None, "margin_db": None, "fails": [],
-                                "note": f"could not be swept ({reason})"})
-            failing.sort(key=lambda f: (f["margin_db"] is not None,
-                                        f["margin_db"] if f["margin_db"] is not None else 0.0, f["path"]))
+                failing.append(
+                    {
+                        "path": path,
+                        "sweep": None,
+                        "binding": None,
+                        "margin_db": None,
+                        "fails": [],
+                        "note": f"could not be swept ({reason})",
+                    }
+                )
+            failing.sort(
+                key=lambda f: (
+                    f["margin_db"] is not None,
+                    f["margin_db"] if f["margin_db"] is not None else 0.0,
+                    f["path"],
+                )
+            )
         else:
-            top = max(cases, key=lambda c: (c["pass_share"], -c["bandwidth_hz"], -c["enbw_hz"], -c["order"],
-                                            -c["id"]))
+            top = max(cases, key=lambda c: (c["pass_share"], -c["bandwidth_hz"], -c["enbw_hz"], -c["order"], -c["id"]))
             best = {"case": top["id"], "pass_share": top["pass_share"]}
 
     per_file, lows, highs, without = [], [], [], 0
@@ -156,15 +219,30 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
         own = None
         if entry["choice"] is not None:
             c = next(c for c in entry["cases"] if c["id"] == entry["choice"]["case"])
-            own = {"response": c["response"], "family": c["family"], "order": c["order"],
-                   "low_hz": c["low_hz"], "high_hz": c["high_hz"], "binding": entry["choice"].get("binding")}
+            own = {
+                "response": c["response"],
+                "family": c["family"],
+                "order": c["order"],
+                "low_hz": c["low_hz"],
+                "high_hz": c["high_hz"],
+                "binding": entry["choice"].get("binding"),
+            }
             lows.append(c["low_hz"])
             highs.append(c["high_hz"])
         else:
             without += 1
-        per_file.append({"path": item.path, "sweep": f"files/{item.name}/sweep.json", "sha256": entry["sha256"],
-                         "sample_rate_hz": inp["sample_rate_hz"], "channels": inp["channels"],
-                         "duration_s": inp["duration_s"], "choice": own, "warnings": list(entry["warnings"])})
+        per_file.append(
+            {
+                "path": item.path,
+                "sweep": f"files/{item.name}/sweep.json",
+                "sha256": entry["sha256"],
+                "sample_rate_hz": inp["sample_rate_hz"],
+                "channels": inp["channels"],
+                "duration_s": inp["duration_s"],
+                "choice": own,
+                "warnings": list(entry["warnings"]),
+            }
+        )
     chain = settings.chain.to_json()
     plain = settings_to_plain(settings)
     return {
@@ -173,18 +251,30 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
         "kind": "corpus",
         "coverage": _round(coverage),
         "options_sha256": opt_hash,
-        "settings": {"chain": chain, "grid": plain["grid_values"], "meter": plain["meter"],
-                     **{k: v for k, v in plain.items() if k not in ("chain", "grid_values", "meter", "targets")}},
+        "settings": {
+            "chain": chain,
+            "grid": plain["grid_values"],
+            "meter": plain["meter"],
+            **{k: v for k, v in plain.items() if k not in ("chain", "grid_values", "meter", "targets")},
+        },
         "targets": {k: v for k, v in settings.targets.items() if v is not None},
-        "counts": {"inputs": len(files) + len(failed), "swept": len(files), "failed": len(failed),
-                   "skipped": len(skipped),
-                   "sample_rates_hz": dict(sorted(rates.items(), key=lambda kv: int(kv[0])))},
+        "counts": {
+            "inputs": len(files) + len(failed),
+            "swept": len(files),
+            "failed": len(failed),
+            "skipped": len(skipped),
+            "sample_rates_hz": dict(sorted(rates.items(), key=lambda kv: int(kv[0]))),
+        },
         "cases": cases,
         "choice": choice,
         "best": best,
         "failing": failing,
-        "passbands": {"files_with_choice": len(files) - without, "files_without_choice": without,
-                      "low_hz": _percentiles(lows), "high_hz": _percentiles(highs)},
+        "passbands": {
+            "files_with_choice": len(files) - without,
+            "files_without_choice": without,
+            "low_hz": _percentiles(lows),
+            "high_hz": _percentiles(highs),
+        },
         "files": per_file,
         "failed": [{"path": p, "reason": r} for p, r in failed],
         "skipped": [{"path": p, "reason": r} for p, r in skipped],

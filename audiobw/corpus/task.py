@@ -16,7 +16,16 @@ import warnings
 from pathlib import Path
 
 from ..errors import AudiobwError, OutputError
-from .cache import CACHE_FORMAT, DATA_KEYS, IDENTITY_KEYS, MEDIAN_KEYS, _cache_file, _sweep_present, entry_checksum, read_cache
+from .cache import (
+    CACHE_FORMAT,
+    DATA_KEYS,
+    IDENTITY_KEYS,
+    MEDIAN_KEYS,
+    _cache_file,
+    _sweep_present,
+    entry_checksum,
+    read_cache,
+)
 from .plain import settings_from_plain
 
 _local = threading.local()
@@ -108,8 +117,11 @@ def sweep_task(task: dict) -> dict:
     from ..audio import check_unchanged, fingerprint, is_regular_file
 
     if not is_regular_file(path):
-        return {"status": "failed", "cached": False,
-                "reason": f"{path}: not a regular file; not opened; accepted: regular audio files"}
+        return {
+            "status": "failed",
+            "cached": False,
+            "reason": f"{path}: not a regular file; not opened; accepted: regular audio files",
+        }
     try:
         before = fingerprint(path)
         sha = sha256_file(path)
@@ -125,8 +137,7 @@ def sweep_task(task: dict) -> dict:
         # the digest just taken is reused by the analysis (one hash per file);
         # a change while the file is read shows in its fingerprint (check_unchanged)
         # the analysis cache is keyed by that digest too: options changed since, the file is not decoded
-        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir, sha256=sha,
-                                 use_cache=task.get("use_cache", True))
+        doc, _ = jobs.sweep_file(path, settings, out_dir=out_dir, sha256=sha, use_cache=task.get("use_cache", True))
     except AudiobwError as exc:
         return {"status": "failed", "cached": False, "reason": str(exc)}
     except Exception as exc:  # a bug or exhausted memory: list the file and go on
@@ -143,9 +154,16 @@ def sweep_task(task: dict) -> dict:
     cases = [{k: c.get(k) for k in keys + tuple(k for k in DATA_KEYS if k in c)} for c in doc["cases"]]
     from .. import __version__
 
-    entry = {"format": CACHE_FORMAT, "sha256": sha, "options": opt, "tool_version": __version__,
-             "input": {k: v for k, v in doc["input"].items() if k != "path"},
-             "choice": doc["choice"], "cases": cases, "warnings": caught}
+    entry = {
+        "format": CACHE_FORMAT,
+        "sha256": sha,
+        "options": opt,
+        "tool_version": __version__,
+        "input": {k: v for k, v in doc["input"].items() if k != "path"},
+        "choice": doc["choice"],
+        "cases": cases,
+        "warnings": caught,
+    }
     entry["checksum"] = entry_checksum(entry)
     text = json.dumps(entry, sort_keys=True, allow_nan=False, ensure_ascii=False)
     try:

@@ -84,7 +84,7 @@ class PerceptualScorer:
         self.analysis, self.chain, self.listening = a, chain, listening
         f = a.freqs_hz
         w = a.weights_hz
-        v2 = chain.volts_per_unit ** 2
+        v2 = chain.volts_per_unit**2
         self.S = a.psd * v2
         self.sw = self.S * w
         p_total = float(np.sum(self.sw))
@@ -111,7 +111,7 @@ class PerceptualScorer:
         self.quiet = 10.0 ** (quiet_db / 10.0)
         centres = np.sqrt(lo * hi)
         self.centres_hz = centres
-        frames = a.band_frames * v2 * self.k_ac                   # (frames, bands), re (20 µPa)²
+        frames = a.band_frames * v2 * self.k_ac  # (frames, bands), re (20 µPa)²
         self.frames = frames
         width = np.diff(edges)
         alpha = masking.tonality(masking.spectral_flatness_db(frames / width + 1e-30, axis=1))
@@ -128,6 +128,7 @@ class PerceptualScorer:
         amp = chain.density_amplifier_v2_hz()
         if chain.has_flicker:  # 1/f corners and an e_n table's excess, as in audiobw.noise
             from ..noise import amplifier_excess
+
             en_x, in_x = amplifier_excess(chain, f, w)
             amp = amp + en_x + in_x
         analog = chain.stage == "analog"
@@ -186,13 +187,12 @@ class PerceptualScorer:
         (the best overall delay) is used where a band's own delay is undefined.
         """
         sw = self.sw
-        gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau),
-                         where=self.band_s > 0)
+        gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau), where=self.band_s > 0)
         if f.size > 1:
             he = h * self._band_phasor(gd_b)
         else:
             he = h * np.exp(2j * np.pi * f * gd_b[self._band_of_bin])
-        power = self._band_sum((1.0 + (he.real ** 2 + he.imag ** 2)) * sw)
+        power = self._band_sum((1.0 + (he.real**2 + he.imag**2)) * sw)
         cross = np.abs(self._band_sum(he.real * sw) + 1j * self._band_sum(he.imag * sw))
         err = np.maximum(power - 2.0 * cross, 0.0)
         return np.divide(err, self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
@@ -200,9 +200,12 @@ class PerceptualScorer:
     def limits(self) -> dict:
         """Top-level figures of the program and chain (no filter), and the playback conditions."""
         hl = self.listening.audiogram_hl
-        return {"wiener_ser_db": _db(self.p_total / self.mse_min) if self.mse_min > 0 else None,
-                "playback_spl_db": self.listening.spl_db, "program": self.listening.program,
-                "hearing_threshold_hl": [[float(k), float(hl[k])] for k in sorted(hl)] if hl else None}
+        return {
+            "wiener_ser_db": _db(self.p_total / self.mse_min) if self.mse_min > 0 else None,
+            "playback_spl_db": self.listening.spl_db,
+            "program": self.listening.program,
+            "hearing_threshold_hl": [[float(k), float(hl[k])] for k in sorted(hl)] if hl else None,
+        }
 
     def band_errors(self, filt, noise_psd):
         """(error, delay) of one filter: error power per kept frame and critical band, re (20 µPa)².
@@ -236,7 +239,7 @@ class PerceptualScorer:
         shared = shared or {}
         h = shared["H"] if "H" in shared else complex_response(filt, f)
         err, tau, removed_gain = self._errors(h, noise_psd, shared.get("cross"))
-        rw = removed_gain * self.S * w   # wiener.removed_psd(h, S, f, tau), already evaluated
+        rw = removed_gain * self.S * w  # wiener.removed_psd(h, S, f, tau), already evaluated
         ratio = err / self.mask
         over = ratio > 1.0
         audible = np.any(over, axis=1)
@@ -244,7 +247,8 @@ class PerceptualScorer:
             "nmr_db": _db(float(np.mean(ratio))),
             "audible_frames_pct": 100.0 * float(np.mean(audible)),
             "wiener_gap_db": _db((float(np.sum(rw)) + float(np.sum(noise_psd * w))) / self.mse_min)
-            if self.mse_min > 0 else None,
+            if self.mse_min > 0
+            else None,
             "delay_s": tau,
         }
         # where the error is heard: the band over its threshold in the most frames
@@ -256,7 +260,7 @@ class PerceptualScorer:
             row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
         if self.listening.program == "speech":
             k = self.k_ac
-            m = self._sii_bins    # the bins up to the top SII band edge: the same band sums
+            m = self._sii_bins  # the bins up to the top SII band edge: the same band sums
             hm = h[:m]
             g2 = hm.real * hm.real + hm.imag * hm.imag
             e18 = sii.band_spectrum_levels(f[:m], self.S[:m] * g2 * k, w[:m])

@@ -25,14 +25,73 @@ import numpy as np
 
 # ISO 226:2003 Table 1: frequencies (Hz) and T_f (dB SPL).  Values from memory;
 # cross-checked against the public transcription used in common ISO 226 code.
-ISO226_FREQS_HZ = np.array([
-    20, 25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630,
-    800, 1000, 1250, 1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000, 10000,
-    12500], dtype=float)
-ISO226_TF_DB = np.array([
-    78.5, 68.7, 59.5, 51.1, 44.0, 37.5, 31.5, 26.5, 22.1, 17.9, 14.4, 11.4,
-    8.6, 6.2, 4.4, 3.0, 2.2, 2.4, 3.5, 1.7, -1.3, -4.2, -6.0, -5.4, -1.5, 6.0,
-    12.6, 13.9, 12.3])
+ISO226_FREQS_HZ = np.array(
+    [
+        20,
+        25,
+        31.5,
+        40,
+        50,
+        63,
+        80,
+        100,
+        125,
+        160,
+        200,
+        250,
+        315,
+        400,
+        500,
+        630,
+        800,
+        1000,
+        1250,
+        1600,
+        2000,
+        2500,
+        3150,
+        4000,
+        5000,
+        6300,
+        8000,
+        10000,
+        12500,
+    ],
+    dtype=float,
+)
+ISO226_TF_DB = np.array(
+    [
+        78.5,
+        68.7,
+        59.5,
+        51.1,
+        44.0,
+        37.5,
+        31.5,
+        26.5,
+        22.1,
+        17.9,
+        14.4,
+        11.4,
+        8.6,
+        6.2,
+        4.4,
+        3.0,
+        2.2,
+        2.4,
+        3.5,
+        1.7,
+        -1.3,
+        -4.2,
+        -6.0,
+        -5.4,
+        -1.5,
+        6.0,
+        12.6,
+        13.9,
+        12.3,
+    ]
+)
 
 # ISO 389-7:2005 Table 1 free-field reference thresholds above ISO 226's range
 # (dB SPL).  From memory: verify against the standard before relying on them
@@ -45,8 +104,7 @@ ISO389_7_HIGH_DB = np.array([18.4, 40.2])
 CEILING_DB = 120.0
 
 #: Standard audiometric frequencies (Hz), ISO 8253-1 / ISO 389-7 (common practice).
-AUDIOMETRIC_FREQS_HZ = (125.0, 250.0, 500.0, 750.0, 1000.0, 1500.0, 2000.0,
-                        3000.0, 4000.0, 6000.0, 8000.0)
+AUDIOMETRIC_FREQS_HZ = (125.0, 250.0, 500.0, 750.0, 1000.0, 1500.0, 2000.0, 3000.0, 4000.0, 6000.0, 8000.0)
 
 _F = np.concatenate([ISO226_FREQS_HZ, ISO389_7_HIGH_FREQS_HZ])
 _T = np.concatenate([ISO226_TF_DB, ISO389_7_HIGH_DB])
@@ -108,8 +166,7 @@ def parse_audiogram(text: str) -> dict[float, float]:
             f_s, l_s = item.split(":")
             f, level = float(f_s), float(l_s)
         except ValueError:
-            raise ValueError(
-                f"audiogram item {item!r} is not FREQ_HZ:DB_HL (e.g. 1000:20)") from None
+            raise ValueError(f"audiogram item {item!r} is not FREQ_HZ:DB_HL (e.g. 1000:20)") from None
         if not (100.0 <= f <= 16000.0):
             raise ValueError(f"audiogram frequency {f:g} Hz outside 100-16000 Hz")
         if not (-20.0 <= level <= 120.0):

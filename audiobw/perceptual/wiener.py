@@ -77,7 +77,7 @@ def group_delay_s(h, freqs_hz) -> np.ndarray:
             d[0] = d[1]
         if h[-1] == 0:
             d[-1] = d[-2]
-    wrap = np.abs(d) >= np.pi          # numpy.unwrap: steps of at least π are taken mod 2π
+    wrap = np.abs(d) >= np.pi  # numpy.unwrap: steps of at least π are taken mod 2π
     if np.any(wrap):
         dw = d[wrap]
         dm = np.mod(dw + np.pi, 2 * np.pi) - np.pi

@@ -35,13 +35,28 @@ def build_stages(spec: FilterSpec, *, topology: str, r_series: str, c_series: st
     filt = design(spec)
     z, p, _ = filt.zpk()
     sections = pair_sections(z, p, spec.response, spec.family)
-    return [design_stage(s, topology, r_level=r_level, r_series=r_series, c_series=c_series)
-            for s in sections], filt
+    return [design_stage(s, topology, r_level=r_level, r_series=r_series, c_series=c_series) for s in sections], filt
 
 
-def realise(spec: FilterSpec, *, topology="sallen-key", r_series="E96", c_series="E12", r_level=10e3,
-            en_v_hz=4e-9, in_a_hz=0.5e-12, temperature_k=290.0, tol_r=0.01, tol_c=0.05, draws=1000,
-            seed=1, meter_hz=(20.0, 20000.0), edge_tol=0.05, flat_margin_db=0.5, second=None) -> dict:
+def realise(
+    spec: FilterSpec,
+    *,
+    topology="sallen-key",
+    r_series="E96",
+    c_series="E12",
+    r_level=10e3,
+    en_v_hz=4e-9,
+    in_a_hz=0.5e-12,
+    temperature_k=290.0,
+    tol_r=0.01,
+    tol_c=0.05,
+    draws=1000,
+    seed=1,
+    meter_hz=(20.0, 20000.0),
+    edge_tol=0.05,
+    flat_margin_db=0.5,
+    second=None,
+) -> dict:
     """Realise ``spec``; ``second`` is an optional callable(filter_noise_density(f) -> dict) giving
     the re-scored chain figures for a noise density on the chain's own grid (see :mod:`.secondpass`)."""
     stages, filt = build_stages(spec, topology=topology, r_series=r_series, c_series=c_series, r_level=r_level)
@@ -63,8 +78,7 @@ def realise(spec: FilterSpec, *, topology="sallen-key", r_series="E96", c_series
     gain_db = 20 * np.log10(abs(np.prod([st.gain() for st in stages])))
     cascade_offset_db = float(np.max(np.abs(20 * np.log10(np.abs(h_cascade_nominal) / np.abs(h_ideal)))))
 
-    density, per_stage = cascade_noise_density(stages, f, en_v_hz=en_v_hz, in_a_hz=in_a_hz,
-                                               temperature_k=temperature_k)
+    density, per_stage = cascade_noise_density(stages, f, en_v_hz=en_v_hz, in_a_hz=in_a_hz, temperature_k=temperature_k)
     noise_v2 = float(np.sum(density * w))
     contrib = []
     for i, parts in enumerate(per_stage):
@@ -74,11 +88,20 @@ def realise(spec: FilterSpec, *, topology="sallen-key", r_series="E96", c_series
     rows = []
     for i, st in enumerate(stages):
         f0, q = st.f0_q()
-        rows.append({"stage": i + 1, "topology": st.topology, "kind": st.kind,
-                     "parts": {n: float(v) for n, v in sorted(st.parts.items())},
-                     "f0_hz": f0, "q": q, "f0_ideal_hz": float(st.target.f0_hz),
-                     "q_ideal": None if st.target.q is None else float(st.target.q),
-                     "gain": st.gain(), "notes": list(st.notes)})
+        rows.append(
+            {
+                "stage": i + 1,
+                "topology": st.topology,
+                "kind": st.kind,
+                "parts": {n: float(v) for n, v in sorted(st.parts.items())},
+                "f0_hz": f0,
+                "q": q,
+                "f0_ideal_hz": float(st.target.f0_hz),
+                "q_ideal": None if st.target.q is None else float(st.target.q),
+                "gain": st.gain(),
+                "notes": list(st.notes),
+            }
+        )
 
     # Monte Carlo
     drawn = yield_.draw_parts(stages, tol_r=tol_r, tol_c=tol_c, draws=draws, seed=seed)
@@ -86,7 +109,7 @@ def realise(spec: FilterSpec, *, topology="sallen-key", r_series="E96", c_series
     ref = float(np.max(np.abs(h_ideal) ** 2))
     lo_d, hi_d = yield_.edges(f, h2, ref, spec.response)
     # flatness over the ideal's inner passband: where it is within 1 dB of its peak
-    inner = f[np.abs(h_ideal) ** 2 >= ref * 10 ** -0.1]
+    inner = f[np.abs(h_ideal) ** 2 >= ref * 10**-0.1]
     fl_lo = float(inner[0]) if lo_id else None
     fl_hi = float(inner[-1]) if hi_id else None
     flat = yield_.flatness_db(f, h2, fl_lo, fl_hi)
@@ -104,28 +127,58 @@ def realise(spec: FilterSpec, *, topology="sallen-key", r_series="E96", c_series
         if second_pass.get("targets"):
             ok &= _noise_ok(second_pass, noise_d, noise_v2)
     doc = {
-        "tool": "audiobw", "schema": SCHEMA_VERSION, "caution": CAUTION,
-        "filter": {"response": spec.response, "family": spec.family, "order": spec.order,
-                   "low_hz": spec.low_hz, "high_hz": spec.high_hz, "ripple_db": spec.ripple_db},
-        "options": {"topology": topology, "resistor_series": r_series, "capacitor_series": c_series,
-                    "impedance_ohms": r_level, "opamp_en_v_rthz": en_v_hz, "opamp_in_a_rthz": in_a_hz,
-                    "temperature_k": temperature_k, "tolerance_r": tol_r, "tolerance_c": tol_c,
-                    "draws": draws, "seed": seed, "meter_low_hz": m_lo, "meter_high_hz": m_hi,
-                    "edge_tolerance": edge_tol, "flatness_margin_db": flat_margin_db},
+        "tool": "audiobw",
+        "schema": SCHEMA_VERSION,
+        "caution": CAUTION,
+        "filter": {
+            "response": spec.response,
+            "family": spec.family,
+            "order": spec.order,
+            "low_hz": spec.low_hz,
+            "high_hz": spec.high_hz,
+            "ripple_db": spec.ripple_db,
+        },
+        "options": {
+            "topology": topology,
+            "resistor_series": r_series,
+            "capacitor_series": c_series,
+            "impedance_ohms": r_level,
+            "opamp_en_v_rthz": en_v_hz,
+            "opamp_in_a_rthz": in_a_hz,
+            "temperature_k": temperature_k,
+            "tolerance_r": tol_r,
+            "tolerance_c": tol_c,
+            "draws": draws,
+            "seed": seed,
+            "meter_low_hz": m_lo,
+            "meter_high_hz": m_hi,
+            "edge_tolerance": edge_tol,
+            "flatness_margin_db": flat_margin_db,
+        },
         "stages": rows,
-        "response": {"passband_gain_db": gain_db, "cascade_vs_prototype_db": cascade_offset_db,
-                     "deviation_max_db": float(np.max(np.abs(dev_db))) if dev_db.size else 0.0,
-                     "deviation_min_db": float(np.min(dev_db)) if dev_db.size else 0.0,
-                     "deviation_peak_db": float(np.max(dev_db)) if dev_db.size else 0.0,
-                     "ideal_low_hz": lo_id, "ideal_high_hz": hi_id, "ideal_flatness_db": flat_ideal,
-                     "flatness_low_hz": fl_lo, "flatness_high_hz": fl_hi},
+        "response": {
+            "passband_gain_db": gain_db,
+            "cascade_vs_prototype_db": cascade_offset_db,
+            "deviation_max_db": float(np.max(np.abs(dev_db))) if dev_db.size else 0.0,
+            "deviation_min_db": float(np.min(dev_db)) if dev_db.size else 0.0,
+            "deviation_peak_db": float(np.max(dev_db)) if dev_db.size else 0.0,
+            "ideal_low_hz": lo_id,
+            "ideal_high_hz": hi_id,
+            "ideal_flatness_db": flat_ideal,
+            "flatness_low_hz": fl_lo,
+            "flatness_high_hz": fl_hi,
+        },
         "noise": {"noise_vrms": math.sqrt(noise_v2), "contributors": contrib},
         "second_pass": second_pass,
-        "yield": {"fraction": float(np.mean(ok)), "draws": draws,
-                  "low_edge_hz": _spread(lo_d), "high_edge_hz": _spread(hi_d),
-                  "flatness_db": _spread(flat), "noise_vrms": _spread(noise_d),
-                  "sensitivity": yield_.sensitivity(stages, f, ideal_h2=np.abs(h_ideal) ** 2, lo_hz=lo_id,
-                                                    hi_hz=hi_id)},
+        "yield": {
+            "fraction": float(np.mean(ok)),
+            "draws": draws,
+            "low_edge_hz": _spread(lo_d),
+            "high_edge_hz": _spread(hi_d),
+            "flatness_db": _spread(flat),
+            "noise_vrms": _spread(noise_d),
+            "sensitivity": yield_.sensitivity(stages, f, ideal_h2=np.abs(h_ideal) ** 2, lo_hz=lo_id, hi_hz=hi_id),
+        },
     }
     doc["_band"] = {"freq_hz": f, "h2": h2, "ideal_h2": np.abs(h_ideal) ** 2}  # for the plot; not written
     return doc
@@ -136,7 +189,7 @@ def _noise_ok(second_pass, noise_d, noise_v2):
     ok = np.ones(noise_d.size, bool)
     for key, t in second_pass["targets"].items():
         chain_v2 = second_pass["chain_noise_v2"][key]
-        filt_v2 = second_pass["filter_noise_v2"][key] * (noise_d ** 2 / noise_v2)
+        filt_v2 = second_pass["filter_noise_v2"][key] * (noise_d**2 / noise_v2)
         sig_v2 = second_pass["signal_v2"][key]
         ok &= 10 * np.log10(sig_v2 / (chain_v2 + filt_v2)) >= t
     return ok

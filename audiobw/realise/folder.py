@@ -27,9 +27,16 @@ def spec_of_case(doc: dict, path: Path, case_id: int | None):
         raise ParameterError(f"--case: {case_id} is not in {path}; accepted: ids 1 to {len(cases)}")
     c = cases[case_id]
     grid = doc.get("grid", {})
-    spec = FilterSpec(c["response"], c["family"], int(c["order"]), c.get("design_low_hz"),
-                      c.get("design_high_hz"), float(grid.get("ripple_db", 0.1)),
-                      float(grid.get("stopband_db", 60.0)), doc["chain"].get("stage", "analog"))
+    spec = FilterSpec(
+        c["response"],
+        c["family"],
+        int(c["order"]),
+        c.get("design_low_hz"),
+        c.get("design_high_hz"),
+        float(grid.get("ripple_db", 0.1)),
+        float(grid.get("stopband_db", 60.0)),
+        doc["chain"].get("stage", "analog"),
+    )
     return c, spec
 
 

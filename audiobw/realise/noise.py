@@ -58,8 +58,8 @@ def stage_noise_density(stage, freq_hz, *, en_v_hz: float, in_a_hz: float, tempe
     for name, p, q in elems:
         if name[0] == "R":
             out[name] = 4 * BOLTZMANN * temperature_k / stage.parts[name] * np.abs(at(p) - at(q)) ** 2
-    out["op-amp e_n"] = en_v_hz ** 2 * np.abs(x[:, opr]) ** 2
-    out["op-amp i_n"] = in_a_hz ** 2 * (np.abs(at(plus)) ** 2 + np.abs(at(minus)) ** 2)
+    out["op-amp e_n"] = en_v_hz**2 * np.abs(x[:, opr]) ** 2
+    out["op-amp i_n"] = in_a_hz**2 * (np.abs(at(plus)) ** 2 + np.abs(at(minus)) ** 2)
     return out
 
 
@@ -70,7 +70,7 @@ def cascade_noise_density(stages, freq_hz, *, en_v_hz, in_a_hz, temperature_k=29
     per_stage = []
     for i, st in enumerate(stages):
         after = np.ones(f.size)
-        for later in stages[i + 1:]:
+        for later in stages[i + 1 :]:
             after = after * np.abs(later.response(f)) ** 2
         parts = stage_noise_density(st, f, en_v_hz=en_v_hz, in_a_hz=in_a_hz, temperature_k=temperature_k)
         d = sum(parts.values()) * after

@@ -27,8 +27,11 @@ def write_band_plot(doc: dict, target) -> None:
     ax.set_ylim(max(float(np.min(lo)), -30.0), max(1.0, float(np.max(hi)) + 0.5))
     ax.grid(True, which="both", alpha=0.3)
     o = doc["options"]
-    ax.set_title(f"Monte Carlo response band: {o['draws']} builds, R ±{100 * o['tolerance_r']:g} %, "
-                 f"C ±{100 * o['tolerance_c']:g} % (an engineering estimate; verify on the bench)", fontsize=9)
+    ax.set_title(
+        f"Monte Carlo response band: {o['draws']} builds, R ±{100 * o['tolerance_r']:g} %, "
+        f"C ±{100 * o['tolerance_c']:g} % (an engineering estimate; verify on the bench)",
+        fontsize=9,
+    )
     ax.legend(loc="lower center", fontsize=8)
     with atomic_path(target) as tmp:
         fig.savefig(tmp, format="png", dpi=110)

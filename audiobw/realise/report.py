@@ -43,13 +43,20 @@ def html_section(folder) -> str:
     if doc is None:
         return ""
     if "unreadable" in doc:
-        return (f'<section id="realise"><h2>Realised stages</h2><p>{html.escape(doc["unreadable"])} could not '
-                "be read; rerun <code>audiobw realise</code>.</p></section>")
+        return (
+            f'<section id="realise"><h2>Realised stages</h2><p>{html.escape(doc["unreadable"])} could not '
+            "be read; rerun <code>audiobw realise</code>.</p></section>"
+        )
     body = html.escape("\n".join(stage_lines(doc)))
     items = "".join(f"<li>{html.escape(line)}</li>" for line in summary_lines(doc)[:-1])
-    img = ('<figure><img src="realise-band.png" alt="Monte Carlo response band of the realised filter">'
-           "<figcaption>Monte Carlo response band of the realised stages.</figcaption></figure>"
-           if (Path(folder) / "realise-band.png").is_file() else "")
-    return (f'<section id="realise"><h2>Realised stages: parts and yield</h2><p class="meta">'
-            f"{html.escape(doc['source'])}</p><pre>{body}</pre><ul>{items}</ul>{img}"
-            f"<p><strong>{html.escape(CAUTION)}</strong></p></section>")
+    img = (
+        '<figure><img src="realise-band.png" alt="Monte Carlo response band of the realised filter">'
+        "<figcaption>Monte Carlo response band of the realised stages.</figcaption></figure>"
+        if (Path(folder) / "realise-band.png").is_file()
+        else ""
+    )
+    return (
+        f'<section id="realise"><h2>Realised stages: parts and yield</h2><p class="meta">'
+        f"{html.escape(doc['source'])}</p><pre>{body}</pre><ul>{items}</ul>{img}"
+        f"<p><strong>{html.escape(CAUTION)}</strong></p></section>"
+    )

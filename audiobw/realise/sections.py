@@ -48,9 +48,11 @@ def pair_sections(z, p, response: str, family: str) -> list[Section]:
     p = np.asarray(p, complex)
     finite = z[np.abs(z) > 1e-9 * max(1.0, float(np.max(np.abs(p))))]
     if finite.size:
-        raise ParameterError(f"realise: the {family} prototype has {finite.size} finite transmission zeros "
-                             "(notches) that the Sallen-Key and MFB sections cannot make; accepted families: "
-                             "butterworth, bessel, chebyshev1")
+        raise ParameterError(
+            f"realise: the {family} prototype has {finite.size} finite transmission zeros "
+            "(notches) that the Sallen-Key and MFB sections cannot make; accepted families: "
+            "butterworth, bessel, chebyshev1"
+        )
     pairs, reals = [], []
     for root in p:
         if abs(root.imag) <= 1e-9 * abs(root):

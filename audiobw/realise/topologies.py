@@ -35,24 +35,42 @@ TOPOLOGIES = ("sallen-key", "mfb")
 
 #: (part, node, node) per (topology, kind); op-amp inputs (+, −) and output ``out``.
 NETLISTS = {
-    ("sallen-key", "lp2"): ([("R1", "in", "a"), ("R2", "a", "b"), ("C1", "a", "out"), ("C2", "b", "gnd")],
-                            ("b", "out")),
-    ("sallen-key", "hp2"): ([("C1", "in", "a"), ("C2", "a", "b"), ("R1", "a", "out"), ("R2", "b", "gnd")],
-                            ("b", "out")),
-    ("mfb", "lp2"): ([("R1", "in", "a"), ("R2", "a", "out"), ("R3", "a", "m"), ("C1", "a", "gnd"),
-                      ("C2", "m", "out")], ("gnd", "m")),
-    ("mfb", "hp2"): ([("C1", "in", "a"), ("C2", "a", "out"), ("C3", "a", "m"), ("R1", "a", "gnd"),
-                      ("R2", "m", "out")], ("gnd", "m")),
-    ("mfb", "bp2"): ([("R1", "in", "a"), ("R2", "a", "gnd"), ("C1", "a", "m"), ("C2", "a", "out"),
-                      ("R3", "m", "out")], ("gnd", "m")),
+    ("sallen-key", "lp2"): (
+        [("R1", "in", "a"), ("R2", "a", "b"), ("C1", "a", "out"), ("C2", "b", "gnd")],
+        ("b", "out"),
+    ),
+    ("sallen-key", "hp2"): (
+        [("C1", "in", "a"), ("C2", "a", "b"), ("R1", "a", "out"), ("R2", "b", "gnd")],
+        ("b", "out"),
+    ),
+    ("mfb", "lp2"): (
+        [("R1", "in", "a"), ("R2", "a", "out"), ("R3", "a", "m"), ("C1", "a", "gnd"), ("C2", "m", "out")],
+        ("gnd", "m"),
+    ),
+    ("mfb", "hp2"): (
+        [("C1", "in", "a"), ("C2", "a", "out"), ("C3", "a", "m"), ("R1", "a", "gnd"), ("R2", "m", "out")],
+        ("gnd", "m"),
+    ),
+    ("mfb", "bp2"): (
+        [("R1", "in", "a"), ("R2", "a", "gnd"), ("C1", "a", "m"), ("C2", "a", "out"), ("R3", "m", "out")],
+        ("gnd", "m"),
+    ),
     ("rc", "lp1"): ([("R1", "in", "a"), ("C1", "a", "gnd")], ("a", "out")),
     ("rc", "hp1"): ([("C1", "in", "a"), ("R1", "a", "gnd")], ("a", "out")),
 }
 
-TOPOLOGY_LABEL = {"sallen-key": "unity-gain Sallen-Key", "mfb": "multiple feedback (inverting)",
-                  "rc": "RC with voltage follower"}
-KIND_LABEL = {"lp1": "lowpass, 1st order", "hp1": "highpass, 1st order", "lp2": "lowpass, 2nd order",
-              "hp2": "highpass, 2nd order", "bp2": "bandpass, 2nd order"}
+TOPOLOGY_LABEL = {
+    "sallen-key": "unity-gain Sallen-Key",
+    "mfb": "multiple feedback (inverting)",
+    "rc": "RC with voltage follower",
+}
+KIND_LABEL = {
+    "lp1": "lowpass, 1st order",
+    "hp1": "highpass, 1st order",
+    "lp2": "lowpass, 2nd order",
+    "hp2": "highpass, 2nd order",
+    "bp2": "bandpass, 2nd order",
+}
 
 
 @dataclass
@@ -90,8 +108,11 @@ class Stage:
             return (lambda s: k + 0 * s), a1, g("R2") * g("R3") * g("C1") * g("C2")
         if key == ("mfb", "hp2"):
             b2 = g("C1") * g("C3") * g("R1") * g("R2")
-            return ((lambda s: -b2 * s * s), g("R1") * (g("C1") + g("C2") + g("C3")),
-                    g("R1") * g("R2") * g("C2") * g("C3"))
+            return (
+                (lambda s: -b2 * s * s),
+                g("R1") * (g("C1") + g("C2") + g("C3")),
+                g("R1") * g("R2") * g("C2") * g("C3"),
+            )
         if key == ("mfb", "bp2"):
             rp = g("R1") * g("R2") / (g("R1") + g("R2"))
             b1 = g("C1") * g("R3") * rp / g("R1")

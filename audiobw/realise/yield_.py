@@ -75,8 +75,9 @@ def sensitivity(stages, freq_hz, *, ideal_h2, lo_hz, hi_hz, step: float = 0.01):
     rows = []
     base = [{k: np.array([v]) for k, v in st.parts.items()} for st in stages]
     h0 = responses(stages, freq_hz, base)
-    lo0, hi0 = edges(freq_hz, h0, np.max(ideal_h2), "bandpass" if lo_hz and hi_hz else
-                     ("lowpass" if hi_hz else "highpass"))
+    lo0, hi0 = edges(
+        freq_hz, h0, np.max(ideal_h2), "bandpass" if lo_hz and hi_hz else ("lowpass" if hi_hz else "highpass")
+    )
     f = np.asarray(freq_hz, float)
     sel = (f >= (lo_hz or 0.0)) & (f <= (hi_hz or np.inf))
     for i, st in enumerate(stages):
@@ -85,13 +86,19 @@ def sensitivity(stages, freq_hz, *, ideal_h2, lo_hz, hi_hz, step: float = 0.01):
             drawn[i] = dict(base[i])
             drawn[i][name] = base[i][name] * (1 + step)
             h = responses(stages, freq_hz, drawn)
-            lo, hi = edges(freq_hz, h, np.max(ideal_h2), "bandpass" if lo_hz and hi_hz else
-                           ("lowpass" if hi_hz else "highpass"))
+            lo, hi = edges(
+                freq_hz, h, np.max(ideal_h2), "bandpass" if lo_hz and hi_hz else ("lowpass" if hi_hz else "highpass")
+            )
             dev = np.max(np.abs(10 * np.log10(h[0, sel] / h0[0, sel])))
-            rows.append({"stage": i + 1, "part": name,
-                         "low_edge_pct_per_pct": _pct(lo[0], lo0[0], step),
-                         "high_edge_pct_per_pct": _pct(hi[0], hi0[0], step),
-                         "passband_db_per_pct": float(dev / (100 * step))})
+            rows.append(
+                {
+                    "stage": i + 1,
+                    "part": name,
+                    "low_edge_pct_per_pct": _pct(lo[0], lo0[0], step),
+                    "high_edge_pct_per_pct": _pct(hi[0], hi0[0], step),
+                    "passband_db_per_pct": float(dev / (100 * step)),
+                }
+            )
     return rows
 
 

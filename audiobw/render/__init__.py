@@ -29,16 +29,43 @@ import sys
 from .. import _CallableRender
 from .chosen import render_sweep
 from .clips import render_file
-from .loudness import (GATE_BLOCK_S, K_WEIGHTING_48K_SOS, channel_weights, integrated_loudness, k_weighting_derived_sos,
-                       k_weighting_sos, true_peak)
+from .loudness import (
+    GATE_BLOCK_S,
+    K_WEIGHTING_48K_SOS,
+    channel_weights,
+    integrated_loudness,
+    k_weighting_derived_sos,
+    k_weighting_sos,
+    true_peak,
+)
 from .notes import WHITE_ONLY, noise_check, noise_check_lines, notes_text
 from .options import DEFAULT_SEED, MIN_CLIP_S, RenderOptions, RenderResult
 from .trials import CHOICES, KEY_FORMAT, read_answers, read_key, score_trials
 
-__all__ = ["CHOICES", "DEFAULT_SEED", "GATE_BLOCK_S", "K_WEIGHTING_48K_SOS", "KEY_FORMAT", "MIN_CLIP_S", "RenderOptions",
-           "RenderResult", "channel_weights", "integrated_loudness", "k_weighting_derived_sos", "k_weighting_sos",
-           "noise_check", "noise_check_lines", "notes_text", "WHITE_ONLY", "read_answers", "read_key", "render_file", "render_sweep",
-           "score_trials", "true_peak"]
+__all__ = [
+    "CHOICES",
+    "DEFAULT_SEED",
+    "GATE_BLOCK_S",
+    "K_WEIGHTING_48K_SOS",
+    "KEY_FORMAT",
+    "MIN_CLIP_S",
+    "RenderOptions",
+    "RenderResult",
+    "channel_weights",
+    "integrated_loudness",
+    "k_weighting_derived_sos",
+    "k_weighting_sos",
+    "noise_check",
+    "noise_check_lines",
+    "notes_text",
+    "WHITE_ONLY",
+    "read_answers",
+    "read_key",
+    "render_file",
+    "render_sweep",
+    "score_trials",
+    "true_peak",
+]
 
 # ``audiobw.render`` is also the public function (audiobw.api.render): make this
 # package callable so that the package attribute, which importing it sets, still

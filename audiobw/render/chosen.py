@@ -14,8 +14,10 @@ from .clips import render_file
 
 # -- sweep --render -------------------------------------------------------------------
 
-def render_sweep(doc: dict, input_path, settings, out_dir, options: RenderOptions | None = None, *,
-                 progress=None) -> list[Path]:
+
+def render_sweep(
+    doc: dict, input_path, settings, out_dir, options: RenderOptions | None = None, *, progress=None
+) -> list[Path]:
     """Render a sweep's chosen case and the next-narrower one (which fails a target).
 
     Parameters
@@ -37,8 +39,10 @@ def render_sweep(doc: dict, input_path, settings, out_dir, options: RenderOption
     """
     choice = doc.get("choice")
     if not choice:
-        raise ParameterError("--render: no case meets the targets, so there is no chosen case to render; "
-                             "accepted: a sweep with a passing case")
+        raise ParameterError(
+            "--render: no case meets the targets, so there is no chosen case to render; "
+            "accepted: a sweep with a passing case"
+        )
     fs = int(doc["input"]["sample_rate_hz"])
     chain = Chain(**{k: v for k, v in doc["chain"].items() if k in Chain.field_names()})
     by_id = {c["id"]: c for c in doc["cases"]}
@@ -48,16 +52,30 @@ def render_sweep(doc: dict, input_path, settings, out_dir, options: RenderOption
         if case_id is None:
             continue
         case = by_id[case_id]
-        spec = FilterSpec(case["response"], case["family"], int(case["order"]), case["design_low_hz"],
-                          case["design_high_hz"], doc["grid"]["ripple_db"], doc["grid"]["stopband_db"],
-                          chain.stage, fs)
+        spec = FilterSpec(
+            case["response"],
+            case["family"],
+            int(case["order"]),
+            case["design_low_hz"],
+            case["design_high_hz"],
+            doc["grid"]["ripple_db"],
+            doc["grid"]["stopband_db"],
+            chain.stage,
+            fs,
+        )
         result = render_file(input_path, spec, chain, out_dir / folder, options, progress=progress)
         paths.extend(result.paths)
         if "data" in doc:  # a data program: the eye diagram of the simulated output
             from ..report.eye import eye_diagram
 
-            paths.append(eye_diagram(out_dir / folder / "chain-output.wav", doc["data"]["bit_rate_hz"],
-                                     out_dir / folder / "eye.png", sample_delay_ui=_instant(doc, case)))
+            paths.append(
+                eye_diagram(
+                    out_dir / folder / "chain-output.wav",
+                    doc["data"]["bit_rate_hz"],
+                    out_dir / folder / "eye.png",
+                    sample_delay_ui=_instant(doc, case),
+                )
+            )
     return paths
 
 

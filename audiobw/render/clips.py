@@ -22,6 +22,7 @@ from .trials import _write_trials
 
 # -- the render -------------------------------------------------------------------
 
+
 class _ProgramLevel:
     """The little an :meth:`audiobw.settings.Settings.chain_for` needs: the program's rms."""
 
@@ -30,8 +31,9 @@ class _ProgramLevel:
         self.rms_dbfs = 10 * math.log10(2 * ms) if ms > 0 else -math.inf
 
 
-def render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOptions | None = None, *,
-                progress=None) -> RenderResult:
+def render_file(
+    input_path, spec: FilterSpec, chain, out_dir, options: RenderOptions | None = None, *, progress=None
+) -> RenderResult:
     """Render into ``out_dir`` while holding its output lock (see :func:`_render_file`)."""
     from ..audio import output_lock
 
@@ -40,8 +42,9 @@ def render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOpt
         return _render_file(input_path, spec, chain, out_dir, options, progress=progress)
 
 
-def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOptions | None = None, *,
-                 progress=None) -> RenderResult:
+def _render_file(
+    input_path, spec: FilterSpec, chain, out_dir, options: RenderOptions | None = None, *, progress=None
+) -> RenderResult:
     """Simulate the chain on ``input_path`` and write the render folder.
 
     Parameters
@@ -74,11 +77,14 @@ def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOp
 
     # progress runs over both passes: the excerpt search, then the simulation
     expected = 2 * max(info.frames, 1)
-    profile, frames, mean_square, frame_len = removed_band_profile(input_path, filt, fs, progress=progress,
-                                                                   expected=expected)
+    profile, frames, mean_square, frame_len = removed_band_profile(
+        input_path, filt, fs, progress=progress, expected=expected
+    )
     if frames < MIN_CLIP_S * fs:
-        raise AudioFileError(f"{input_path}: {frames / fs:.3f} s of audio is shorter than the 0.4 s BS.1770 "
-                             "gating block needed to loudness-match clips; accepted: at least 0.4 s")
+        raise AudioFileError(
+            f"{input_path}: {frames / fs:.3f} s of audio is shorter than the 0.4 s BS.1770 "
+            "gating block needed to loudness-match clips; accepted: at least 0.4 s"
+        )
     if mean_square is None or not np.any(mean_square > 0):
         raise AudioFileError(f"{input_path}: digital silence (every sample is 0); nothing to render")
     chain = chain.chain_for(_ProgramLevel(mean_square)) if not isinstance(chain, Chain) else chain
@@ -89,14 +95,19 @@ def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOp
     if options.excerpt_start_s is not None:
         start = int(round(options.excerpt_start_s * fs))
         if start + int(MIN_CLIP_S * fs) > frames:
-            raise ParameterError(f"--excerpt-at: {options.excerpt_start_s:g} s leaves less than 0.4 s of the "
-                                 f"{frames / fs:.3f} s file; accepted: 0 to {max(frames / fs - MIN_CLIP_S, 0):.3f} s")
+            raise ParameterError(
+                f"--excerpt-at: {options.excerpt_start_s:g} s leaves less than 0.4 s of the "
+                f"{frames / fs:.3f} s file; accepted: 0 to {max(frames / fs - MIN_CLIP_S, 0):.3f} s"
+            )
         length = min(length, frames - start)
         why = "given with --excerpt-at"
     else:
         start = choose_excerpt(profile, frame_len, frames, length)
-        why = ("the whole file" if length >= frames else
-               "the stretch with the most input power in the band the filter removes")
+        why = (
+            "the whole file"
+            if length >= frames
+            else "the stretch with the most input power in the band the filter removes"
+        )
     stop = start + length
 
     from ..simulate import ChainSimulator
@@ -145,15 +156,19 @@ def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOp
     loud_ref, loud_proc = integrated_loudness(ref, fs), integrated_loudness(proc, fs)
     for name, value in (("reference", loud_ref), ("processed", loud_proc)):
         if not math.isfinite(value):
-            raise AudioFileError(f"{input_path}: the {name} excerpt {start / fs:.2f}-{stop / fs:.2f} s is silent "
-                                 "(below the -70 LKFS gate); choose another with --excerpt-at")
+            raise AudioFileError(
+                f"{input_path}: the {name} excerpt {start / fs:.2f}-{stop / fs:.2f} s is silent "
+                "(below the -70 LKFS gate); choose another with --excerpt-at"
+            )
     g_ref = 10 ** ((options.loudness_lufs - loud_ref) / 20)
     g_proc = 10 ** ((options.loudness_lufs - loud_proc) / 20)
     ceiling = 10 ** ((options.ceiling_dbfs - PEAK_MARGIN_DB) / 20)
     tp = max(true_peak(ref * g_ref), true_peak(proc * g_proc))
     reduction = min(1.0, ceiling / tp) if tp > 0 else 1.0
-    clips = {"reference": (ref * g_ref * reduction).astype(np.float32),
-             "processed": (proc * g_proc * reduction).astype(np.float32)}
+    clips = {
+        "reference": (ref * g_ref * reduction).astype(np.float32),
+        "processed": (proc * g_proc * reduction).astype(np.float32),
+    }
     limit = np.float32(10 ** (options.ceiling_dbfs / 20))
     clip_facts = {}
     for name, data in clips.items():
@@ -164,7 +179,8 @@ def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOp
         write_audio_atomic(target, data, fs, subtype="FLOAT", inputs=[input_path])
         paths.append(target)
         clip_facts[name] = {
-            "file": target.name, "loudness_lufs": integrated_loudness(data.astype(float), fs),
+            "file": target.name,
+            "loudness_lufs": integrated_loudness(data.astype(float), fs),
             "true_peak_dbfs": _db(true_peak(data.astype(float))),
             "sample_peak_dbfs": _db(float(np.max(np.abs(data)))),
         }
@@ -172,26 +188,52 @@ def _render_file(input_path, spec: FilterSpec, chain, out_dir, options: RenderOp
     _, kw_method = k_weighting_sos(fs)
     lo3, hi3 = filt.edges_3db
     facts = {
-        "tool": "audiobw", "version": __version__,
+        "tool": "audiobw",
+        "version": __version__,
         "input": {"path": str(input_path), "sample_rate_hz": fs, "channels": nch, "frames": frames},
-        "filter": {"label": spec.label(), "response": spec.response, "family": spec.family, "order": spec.order,
-                   "design_low_hz": spec.low_hz, "design_high_hz": spec.high_hz, "low_hz": lo3, "high_hz": hi3,
-                   "ripple_db": spec.ripple_db, "stopband_db": spec.stopband_db, "stage": spec.stage},
+        "filter": {
+            "label": spec.label(),
+            "response": spec.response,
+            "family": spec.family,
+            "order": spec.order,
+            "design_low_hz": spec.low_hz,
+            "design_high_hz": spec.high_hz,
+            "low_hz": lo3,
+            "high_hz": hi3,
+            "ripple_db": spec.ripple_db,
+            "stopband_db": spec.stopband_db,
+            "stage": spec.stage,
+        },
         "chain": chain.to_json(),
         "seed": options.seed,
         "simulation": dict(sim.info),
-        "clipping": {"samples": sim.clipping.total, "per_channel": [int(v) for v in sim.clipping.samples],
-                     "first_s": None if sim.clipping.first_frame is None else sim.clipping.first_frame / fs},
-        "chain_output": {"file": out_path.name, "subtype": "FLOAT", "peak_dbfs": _db(out_peak),
-                         "rms_dbfs": 10 * math.log10(2 * out_sumsq / max(written * nch, 1)) if out_sumsq > 0
-                         else None},
+        "clipping": {
+            "samples": sim.clipping.total,
+            "per_channel": [int(v) for v in sim.clipping.samples],
+            "first_s": None if sim.clipping.first_frame is None else sim.clipping.first_frame / fs,
+        },
+        "chain_output": {
+            "file": out_path.name,
+            "subtype": "FLOAT",
+            "peak_dbfs": _db(out_peak),
+            "rms_dbfs": 10 * math.log10(2 * out_sumsq / max(written * nch, 1)) if out_sumsq > 0 else None,
+        },
         "excerpt": {"start_s": start / fs, "stop_s": stop / fs, "why": why, "fade_s": FADE_S},
-        "loudness": {"target_lufs": options.loudness_lufs, "method": f"ITU-R BS.1770-4 integrated, {kw_method}",
-                     "ceiling_dbfs": options.ceiling_dbfs, "ceiling_kind": "true peak (4x oversampled)",
-                     "ceiling_reduction_db": -_db(reduction) if reduction < 1 else 0.0},
+        "loudness": {
+            "target_lufs": options.loudness_lufs,
+            "method": f"ITU-R BS.1770-4 integrated, {kw_method}",
+            "ceiling_dbfs": options.ceiling_dbfs,
+            "ceiling_kind": "true peak (4x oversampled)",
+            "ceiling_reduction_db": -_db(reduction) if reduction < 1 else 0.0,
+        },
         "clips": clip_facts,
-        "noise_check": noise_check(input_path, filt, chain, noise_ms=noise_sumsq / max(written * nch, 1),
-                                   program_ms=program_sumsq / max(written * nch, 1)),
+        "noise_check": noise_check(
+            input_path,
+            filt,
+            chain,
+            noise_ms=noise_sumsq / max(written * nch, 1),
+            program_ms=program_sumsq / max(written * nch, 1),
+        ),
         "trials": None,
         "caution": None,
     }

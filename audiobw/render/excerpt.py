@@ -11,6 +11,7 @@ from .options import FADE_S
 
 # -- the excerpt ------------------------------------------------------------------
 
+
 def removed_band_profile(path, filt, fs_hz: float, *, frame_s: float = 0.1, progress=None, expected: int = 0):
     """Per-frame input power in the band the filter removes, and the program's levels.
 
@@ -28,10 +29,10 @@ def removed_band_profile(path, filt, fs_hz: float, *, frame_s: float = 0.1, prog
         buf = block if carry is None else np.concatenate([carry, block])
         k = buf.shape[0] // n
         if k:
-            seg = buf[:k * n].reshape(k, n, -1) * win[None, :, None]
+            seg = buf[: k * n].reshape(k, n, -1) * win[None, :, None]
             spec = np.fft.rfft(seg, axis=1)
             profile.extend(np.einsum("kfc,f->k", spec.real**2 + spec.imag**2, removed))
-        carry = buf[k * n:]
+        carry = buf[k * n :]
         if progress is not None:
             progress(frames, max(expected, frames))
     return np.asarray(profile), frames, (sumsq / max(frames, 1)) if sumsq is not None else None, n

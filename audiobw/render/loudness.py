@@ -27,10 +27,12 @@ from ..errors import ParameterError
 
 
 #: BS.1770-4 Annex 1, Table 1 (pre-filter, shelving) and Table 2 (RLB highpass), fs = 48 kHz.
-K_WEIGHTING_48K_SOS = np.array([
-    [1.53512485958697, -2.69169618940638, 1.19839281085285, 1.0, -1.69065929318241, 0.73248077421585],
-    [1.0, -2.0, 1.0, 1.0, -1.99004745483398, 0.99007225036621],
-])
+K_WEIGHTING_48K_SOS = np.array(
+    [
+        [1.53512485958697, -2.69169618940638, 1.19839281085285, 1.0, -1.69065929318241, 0.73248077421585],
+        [1.0, -2.0, 1.0, 1.0, -1.99004745483398, 0.99007225036621],
+    ]
+)
 #: Parameters that reproduce the 48 kHz table when re-derived at 48 kHz (see module notes).
 _SHELF = dict(gain_db=3.99984385397, q=0.7071752369554193, fc_hz=1681.9744509555319)
 _HIGHPASS = dict(q=0.5003270373253953, fc_hz=38.13547087613982)
@@ -38,6 +40,7 @@ GATE_BLOCK_S = 0.4
 
 
 # -- loudness and peaks -------------------------------------------------------
+
 
 def k_weighting_sos(fs_hz: float) -> tuple[np.ndarray, str]:
     """The K-weighting as second-order sections for ``fs_hz``, and how it was obtained."""
@@ -51,11 +54,17 @@ def k_weighting_derived_sos(fs_hz: float) -> np.ndarray:
     highpass parameters that reproduce the published 48 kHz table."""
     k = math.tan(math.pi * _SHELF["fc_hz"] / fs_hz)
     vh = 10 ** (_SHELF["gain_db"] / 20.0)
-    vb = vh ** 0.499666774155
+    vb = vh**0.499666774155
     q = _SHELF["q"]
     a0 = 1.0 + k / q + k * k
-    shelf = [(vh + vb * k / q + k * k) / a0, 2.0 * (k * k - vh) / a0, (vh - vb * k / q + k * k) / a0,
-             1.0, 2.0 * (k * k - 1.0) / a0, (1.0 - k / q + k * k) / a0]
+    shelf = [
+        (vh + vb * k / q + k * k) / a0,
+        2.0 * (k * k - vh) / a0,
+        (vh - vb * k / q + k * k) / a0,
+        1.0,
+        2.0 * (k * k - 1.0) / a0,
+        (1.0 - k / q + k * k) / a0,
+    ]
     k = math.tan(math.pi * _HIGHPASS["fc_hz"] / fs_hz)
     q = _HIGHPASS["q"]
     a0 = 1.0 + k / q + k * k
@@ -86,24 +95,26 @@ def integrated_loudness(x: np.ndarray, fs_hz: float) -> float:
         x = x[:, None]
     n_block = int(round(GATE_BLOCK_S * fs_hz))
     if x.shape[0] < n_block:
-        raise ParameterError(f"loudness: {x.shape[0] / fs_hz:.3f} s is shorter than the 0.4 s BS.1770 "
-                             "gating block; accepted: clips of at least 0.4 s")
+        raise ParameterError(
+            f"loudness: {x.shape[0] / fs_hz:.3f} s is shorter than the 0.4 s BS.1770 "
+            "gating block; accepted: clips of at least 0.4 s"
+        )
     sos, _ = k_weighting_sos(fs_hz)
     y = signal.sosfilt(sos, x, axis=0)
     step = n_block // 4  # 75 % overlap
     n_blocks = (x.shape[0] - n_block) // step + 1
     csum = np.concatenate([np.zeros((1, x.shape[1])), np.cumsum(y**2, axis=0)])
     starts = np.arange(n_blocks) * step
-    z = (csum[starts + n_block] - csum[starts]) / n_block          # eq. 1, per block and channel
+    z = (csum[starts + n_block] - csum[starts]) / n_block  # eq. 1, per block and channel
     power = z @ channel_weights(x.shape[1])
     with np.errstate(divide="ignore"):
-        lj = -0.691 + 10 * np.log10(power)                            # eq. 4
-    gated = lj >= -70.0                                               # absolute gate
+        lj = -0.691 + 10 * np.log10(power)  # eq. 4
+    gated = lj >= -70.0  # absolute gate
     if not np.any(gated):
         return -math.inf
-    gamma_r = -0.691 + 10 * math.log10(float(np.mean(power[gated]))) - 10.0   # eq. 6
+    gamma_r = -0.691 + 10 * math.log10(float(np.mean(power[gated]))) - 10.0  # eq. 6
     keep = gated & (lj > gamma_r)
-    return -0.691 + 10 * math.log10(float(np.mean(power[keep])))      # eq. 7
+    return -0.691 + 10 * math.log10(float(np.mean(power[keep])))  # eq. 7
 
 
 def true_peak(x: np.ndarray) -> float:

@@ -8,20 +8,27 @@ from ..chain import Chain
 
 
 def _chain_text(c: Chain) -> str:
-    return (f"Rs {c.source_ohms:g} ohm at {c.temperature_k:g} K; gain {c.gain_db:g} dB; e_n {c.en_v_rthz:.3g} V/rtHz; "
-            f"i_n {c.in_a_rthz:.3g} A/rtHz; h2 {'none' if c.h2_db is None else f'{c.h2_db:g} dB'}; "
-            f"h3 {'none' if c.h3_db is None else f'{c.h3_db:g} dB'}; amplifier bandwidth "
-            f"{'unlimited' if c.amp_bandwidth_hz is None else f'{c.amp_bandwidth_hz:g} Hz'}; {c.bits} bits; "
-            f"full scale {c.full_scale_vrms:g} V rms; dither {c.dither}; filter stage {c.stage}; "
-            f"anti-alias {c.anti_alias}; input gain {c.input_gain_db:.3g} dB"
-            + (f"; e_n table {c.en_table_file or '(no file name)'}, {len(c.en_table)} rows, its top row the e_n above"
-               if c.en_table is not None else "")
-            + (f"; {WHITE_ONLY}" if c.has_flicker else ""))
+    return (
+        f"Rs {c.source_ohms:g} ohm at {c.temperature_k:g} K; gain {c.gain_db:g} dB; e_n {c.en_v_rthz:.3g} V/rtHz; "
+        f"i_n {c.in_a_rthz:.3g} A/rtHz; h2 {'none' if c.h2_db is None else f'{c.h2_db:g} dB'}; "
+        f"h3 {'none' if c.h3_db is None else f'{c.h3_db:g} dB'}; amplifier bandwidth "
+        f"{'unlimited' if c.amp_bandwidth_hz is None else f'{c.amp_bandwidth_hz:g} Hz'}; {c.bits} bits; "
+        f"full scale {c.full_scale_vrms:g} V rms; dither {c.dither}; filter stage {c.stage}; "
+        f"anti-alias {c.anti_alias}; input gain {c.input_gain_db:.3g} dB"
+        + (
+            f"; e_n table {c.en_table_file or '(no file name)'}, {len(c.en_table)} rows, its top row the e_n above"
+            if c.en_table is not None
+            else ""
+        )
+        + (f"; {WHITE_ONLY}" if c.has_flicker else "")
+    )
 
 
 #: what the time-domain render leaves out of the noise it synthesises
-WHITE_ONLY = ("the render synthesises the white noise only: the 1/f part and the excess of an e_n table over its "
-              "top row are in the sweep estimate, not in the audio")
+WHITE_ONLY = (
+    "the render synthesises the white noise only: the 1/f part and the excess of an e_n table over its "
+    "top row are in the sweep estimate, not in the audio"
+)
 
 
 def noise_check(input_path, filt, chain: Chain, *, noise_ms: float, program_ms: float) -> dict:
@@ -52,13 +59,17 @@ def noise_check(input_path, filt, chain: Chain, *, noise_ms: float, program_ms: 
             return None
         return abs(20 * math.log10(a / b)) if power_ratio else abs(a - b)
 
-    return {"method": "the same chain and seed rendered on silence (the noise) and on the program "
-                      "(output minus noise: the program), over the whole file; estimate: the sweep's "
-                      "fast path on the same file, meter 0 to fs/2",
-            "measured_noise_vrms": measured_v, "estimate_noise_vrms": est_v,
-            "noise_apart_db": apart(measured_v, est_v, True),
-            "measured_snr_db": measured_snr, "estimate_snr_db": est_snr,
-            "snr_apart_db": apart(measured_snr, est_snr, False)}
+    return {
+        "method": "the same chain and seed rendered on silence (the noise) and on the program "
+        "(output minus noise: the program), over the whole file; estimate: the sweep's "
+        "fast path on the same file, meter 0 to fs/2",
+        "measured_noise_vrms": measured_v,
+        "estimate_noise_vrms": est_v,
+        "noise_apart_db": apart(measured_v, est_v, True),
+        "measured_snr_db": measured_snr,
+        "estimate_snr_db": est_snr,
+        "snr_apart_db": apart(measured_snr, est_snr, False),
+    }
 
 
 def noise_check_lines(check: dict) -> list[str]:
@@ -74,10 +85,12 @@ def noise_check_lines(check: dict) -> list[str]:
     def gap(x):
         return "" if x is None else f" ({x:.2f} dB apart)"
 
-    return [f"noise: measured {v(check['measured_noise_vrms'])}, sweep estimate "
-            f"{v(check['estimate_noise_vrms'])}{gap(check['noise_apart_db'])}",
-            f"SNR: measured {db(check['measured_snr_db'])}, sweep estimate "
-            f"{db(check['estimate_snr_db'])}{gap(check['snr_apart_db'])}"]
+    return [
+        f"noise: measured {v(check['measured_noise_vrms'])}, sweep estimate "
+        f"{v(check['estimate_noise_vrms'])}{gap(check['noise_apart_db'])}",
+        f"SNR: measured {db(check['measured_snr_db'])}, sweep estimate "
+        f"{db(check['estimate_snr_db'])}{gap(check['snr_apart_db'])}",
+    ]
 
 
 def _finite(x):
@@ -103,27 +116,34 @@ def notes_text(facts: dict) -> str:
         f"Filter: {f['label']} ({f['stage']} stage); -3 dB edges {fmt(f['low_hz'])} / {fmt(f['high_hz'])}",
         f"Chain: {_chain_text(Chain(**c))}",
         f"Seed: {facts['seed']} (noise, dither and trial order)",
-        "Converter clipping: " + ("none" if cl["samples"] == 0 else
-                                  f"{cl['samples']} samples clipped, first at {cl['first_s']:.3f} s"),
+        "Converter clipping: "
+        + ("none" if cl["samples"] == 0 else f"{cl['samples']} samples clipped, first at {cl['first_s']:.3f} s"),
         f"chain-output.wav: the chain output at its true level, 32-bit float; peak "
         f"{facts['chain_output']['peak_dbfs']:.2f} dBFS",
         f"Excerpt: {facts['excerpt']['start_s']:.3f} s to {facts['excerpt']['stop_s']:.3f} s "
         f"({facts['excerpt']['why']}), {facts['excerpt']['fade_s'] * 1000:.0f} ms fades",
         f"Loudness: {facts['loudness']['method']}; target {facts['loudness']['target_lufs']:g} LUFS; "
         f"ceiling {facts['loudness']['ceiling_dbfs']:g} dBFS {facts['loudness']['ceiling_kind']}"
-        + (f"; both clips lowered {facts['loudness']['ceiling_reduction_db']:.2f} dB to respect it"
-           if facts["loudness"]["ceiling_reduction_db"] > 0 else ""),
+        + (
+            f"; both clips lowered {facts['loudness']['ceiling_reduction_db']:.2f} dB to respect it"
+            if facts["loudness"]["ceiling_reduction_db"] > 0
+            else ""
+        ),
     ]
     for clip in facts["clips"].values():
-        lines.append(f"  {clip['file']}: {clip['loudness_lufs']:.2f} LUFS, true peak "
-                     f"{clip['true_peak_dbfs']:.2f} dBFS, sample peak {clip['sample_peak_dbfs']:.2f} dBFS")
+        lines.append(
+            f"  {clip['file']}: {clip['loudness_lufs']:.2f} LUFS, true peak "
+            f"{clip['true_peak_dbfs']:.2f} dBFS, sample peak {clip['sample_peak_dbfs']:.2f} dBFS"
+        )
     if facts.get("noise_check"):
         lines.append("Measured on this render (" + facts["noise_check"]["method"] + "):")
         lines += ["  " + line for line in noise_check_lines(facts["noise_check"])]
     t = facts.get("trials")
     if t:
-        lines.append(f"Blind trials: {t['count']} pairs in {t['folder']}/ (answer sheet {t['answer_sheet']}); "
-                     f"the answer key is {t['key']} - keep it away from the listeners; score with "
-                     f"`audiobw trials-score {t['key']} ANSWERS`")
+        lines.append(
+            f"Blind trials: {t['count']} pairs in {t['folder']}/ (answer sheet {t['answer_sheet']}); "
+            f"the answer key is {t['key']} - keep it away from the listeners; score with "
+            f"`audiobw trials-score {t['key']} ANSWERS`"
+        )
     lines += ["", facts["caution"], ""]
     return "\n".join(lines)

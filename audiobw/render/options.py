@@ -18,6 +18,7 @@ DEFAULT_SEED = 1
 
 # -- options and results --------------------------------------------------------
 
+
 @dataclass(frozen=True)
 class RenderOptions:
     """What to render besides the chain output.
@@ -48,13 +49,25 @@ class RenderOptions:
 
     def __post_init__(self):
         checks = [
-            ("--loudness", self.loudness_lufs, -60.0 <= self.loudness_lufs <= -10.0,
-             "-60 to -10 LUFS (a moderate listening level; -23LUFS is the default)"),
+            (
+                "--loudness",
+                self.loudness_lufs,
+                -60.0 <= self.loudness_lufs <= -10.0,
+                "-60 to -10 LUFS (a moderate listening level; -23LUFS is the default)",
+            ),
             ("--ceiling", self.ceiling_dbfs, -60.0 <= self.ceiling_dbfs <= 0.0, "-60 to 0 dBFS"),
-            ("--excerpt", self.excerpt_s, MIN_CLIP_S <= self.excerpt_s <= 600.0,
-             "0.4 s (one BS.1770 gating block) to 600 s"),
-            ("--trials", self.trials, 0 <= self.trials <= 200 and int(self.trials) == self.trials,
-             "a whole number 0 to 200"),
+            (
+                "--excerpt",
+                self.excerpt_s,
+                MIN_CLIP_S <= self.excerpt_s <= 600.0,
+                "0.4 s (one BS.1770 gating block) to 600 s",
+            ),
+            (
+                "--trials",
+                self.trials,
+                0 <= self.trials <= 200 and int(self.trials) == self.trials,
+                "a whole number 0 to 200",
+            ),
         ]
         if self.excerpt_start_s is not None:
             checks.append(("--excerpt-at", self.excerpt_start_s, self.excerpt_start_s >= 0, "a time >= 0 s"))

@@ -29,9 +29,12 @@ def _write_trials(out_dir: Path, clips: dict, fs: int, options: RenderOptions, i
     blind = out_dir / "blind"
     rows, paths = [], []
     width = max(2, len(str(options.trials)))
-    sheet = ["# audiobw blind trials: for each pair, write which file is the processed chain output,",
-             "# 'first' or 'second', after the trial number. Lines starting with # are ignored.",
-             "# " + LISTENING_CAUTION, ""]
+    sheet = [
+        "# audiobw blind trials: for each pair, write which file is the processed chain output,",
+        "# 'first' or 'second', after the trial number. Lines starting with # are ignored.",
+        "# " + LISTENING_CAUTION,
+        "",
+    ]
     for i in range(1, options.trials + 1):
         processed_first = bool(rng.integers(0, 2))
         order = ("processed", "reference") if processed_first else ("reference", "processed")
@@ -41,18 +44,32 @@ def _write_trials(out_dir: Path, clips: dict, fs: int, options: RenderOptions, i
             write_audio_atomic(target, clips[which], fs, subtype="FLOAT", inputs=[input_path])
             paths.append(target)
             names[slot] = target.name
-        rows.append({"trial": i, "first": order[0], "second": order[1],
-                     "processed": CHOICES[order.index("processed")], "files": names})
+        rows.append(
+            {
+                "trial": i,
+                "first": order[0],
+                "second": order[1],
+                "processed": CHOICES[order.index("processed")],
+                "files": names,
+            }
+        )
         sheet.append(f"{i:0{width}d} ")
-    key = {"format": KEY_FORMAT,
-           "question": "In each pair, which file is the processed chain output: first or second?",
-           "seed": options.seed, "trials": rows}
+    key = {
+        "format": KEY_FORMAT,
+        "question": "In each pair, which file is the processed chain output: first or second?",
+        "seed": options.seed,
+        "trials": rows,
+    }
     key_path = out_dir / "trial-key.json"
     write_text_atomic(key_path, json.dumps(key, indent=2) + "\n", inputs=[input_path])
     sheet_path = blind / "answer-sheet.txt"
     write_text_atomic(sheet_path, "\n".join(sheet) + "\n", inputs=[input_path])
-    return {"count": options.trials, "folder": "blind", "key": key_path.name,
-            "answer_sheet": f"blind/{sheet_path.name}"}, paths + [key_path, sheet_path]
+    return {
+        "count": options.trials,
+        "folder": "blind",
+        "key": key_path.name,
+        "answer_sheet": f"blind/{sheet_path.name}",
+    }, paths + [key_path, sheet_path]
 
 
 # -- scoring blind trials ----------------------------------------------------------------
@@ -77,15 +94,25 @@ def read_key(path) -> dict:
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise ParameterError(f"KEY: {str(p)!r}: not a readable trial key ({exc})") from None
     if not isinstance(key, dict) or key.get("format") != KEY_FORMAT or not isinstance(key.get("trials"), list):
-        raise ParameterError(f"KEY: {str(p)!r} is not an audiobw trial key; accepted: the trial-key.json "
-                             "that `audiobw render --trials N` writes")
+        raise ParameterError(
+            f"KEY: {str(p)!r} is not an audiobw trial key; accepted: the trial-key.json "
+            "that `audiobw render --trials N` writes"
+        )
     seen = set()
     for i, t in enumerate(key["trials"]):
         n = t.get("trial") if isinstance(t, dict) else None
-        if (not isinstance(t, dict) or not isinstance(n, int) or isinstance(n, bool) or not 1 <= n <= 100_000
-                or n in seen or t.get("processed") not in ("first", "second")):
-            raise ParameterError(f"KEY: {str(p)!r}: trials[{i}] = {str(t)[:80]!r} is not a trial entry; accepted: "
-                                 "{\"trial\": a whole number from 1, unique, \"processed\": \"first\" or \"second\"}")
+        if (
+            not isinstance(t, dict)
+            or not isinstance(n, int)
+            or isinstance(n, bool)
+            or not 1 <= n <= 100_000
+            or n in seen
+            or t.get("processed") not in ("first", "second")
+        ):
+            raise ParameterError(
+                f"KEY: {str(p)!r}: trials[{i}] = {str(t)[:80]!r} is not a trial entry; accepted: "
+                '{"trial": a whole number from 1, unique, "processed": "first" or "second"}'
+            )
         seen.add(n)
     return key
 
@@ -113,12 +140,15 @@ def read_answers(path, n_trials) -> dict[int, str]:
         if len(parts) == 1 and _TRIAL_RE.fullmatch(parts[0]):
             continue  # a trial left unanswered on the sheet
         if len(parts) != 2 or not _TRIAL_RE.fullmatch(parts[0]) or parts[1].lower() not in words:
-            raise ParameterError(f"ANSWERS: {p} line {lineno}: {raw.strip()!r}; accepted: a trial number and "
-                                 "'first' or 'second' (or 1 or 2), e.g. '03 second'")
+            raise ParameterError(
+                f"ANSWERS: {p} line {lineno}: {raw.strip()!r}; accepted: a trial number and "
+                "'first' or 'second' (or 1 or 2), e.g. '03 second'"
+            )
         trial = int(parts[0])
         if trial not in known:
-            raise ParameterError(f"ANSWERS: {p} line {lineno}: trial {trial} is not in the key; accepted: "
-                                 f"{_trial_list(known)}")
+            raise ParameterError(
+                f"ANSWERS: {p} line {lineno}: trial {trial} is not in the key; accepted: {_trial_list(known)}"
+            )
         if trial in answers:
             raise ParameterError(f"ANSWERS: {p} line {lineno}: trial {trial} is answered twice")
         answers[trial] = words[parts[1].lower()]
@@ -144,12 +174,22 @@ def score_trials(key_path, answers_path, *, alpha: float = 0.05) -> dict:
     n = len(answers)
     p = float(stats.binomtest(correct, n, 0.5, alternative="greater").pvalue)
     if p <= alpha:
-        reading = (f"Listeners told them apart more often than chance: {correct} of {n} right, "
-                   f"p = {p:.3g} (one-sided binomial, chance = 1/2).")
+        reading = (
+            f"Listeners told them apart more often than chance: {correct} of {n} right, "
+            f"p = {p:.3g} (one-sided binomial, chance = 1/2)."
+        )
     else:
-        reading = (f"{correct} of {n} right, p = {p:.3g}: not more often than chance at the {alpha:g} level. "
-                   "This does not show the two sound the same; more trials make a more sensitive test.")
+        reading = (
+            f"{correct} of {n} right, p = {p:.3g}: not more often than chance at the {alpha:g} level. "
+            "This does not show the two sound the same; more trials make a more sensitive test."
+        )
     if n < 5:
         reading += f" With {n} trials even a perfect score cannot reach p < 0.05 (it needs at least 5)."
-    return {"trials": len(truth), "answered": n, "correct": correct, "p_value": p,
-            "unanswered": sorted(set(truth) - set(answers)), "reading": reading}
+    return {
+        "trials": len(truth),
+        "answered": n,
+        "correct": correct,
+        "p_value": p,
+        "unanswered": sorted(set(truth) - set(answers)),
+        "reading": reading,
+    }

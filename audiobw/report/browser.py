@@ -27,9 +27,20 @@ import tempfile
 from pathlib import Path
 
 CANDIDATES = ("chromium", "chromium-browser", "google-chrome", "google-chrome-stable")
-FLAGS = ("--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-         "--disable-background-networking", "--disable-component-update", "--disable-sync",
-         "--disable-default-apps", "--disable-extensions", "--mute-audio", "--hide-scrollbars")
+FLAGS = (
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-quic",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--disable-default-apps",
+    "--disable-extensions",
+    "--mute-audio",
+    "--hide-scrollbars",
+)
 
 
 def find_chromium() -> str | None:
@@ -46,8 +57,13 @@ def _run(args: list[str], *, timeout_s: float) -> subprocess.CompletedProcess:
     if exe is None:
         raise FileNotFoundError("no Chromium on PATH (tried " + ", ".join(CANDIDATES) + ")")
     with tempfile.TemporaryDirectory(prefix="audiobw-chromium-") as profile:
-        return subprocess.run([exe, *FLAGS, f"--user-data-dir={profile}", *args], capture_output=True,
-                              text=True, timeout=timeout_s, check=False)
+        return subprocess.run(
+            [exe, *FLAGS, f"--user-data-dir={profile}", *args],
+            capture_output=True,
+            text=True,
+            timeout=timeout_s,
+            check=False,
+        )
 
 
 def console_lines(stderr: str) -> list[str]:
@@ -66,29 +82,39 @@ def selftest(page: Path, *, timeout_s: float = 90.0) -> dict:
     # images, reading clip metadata) when the machine is loaded: a larger budget
     # on a second and a third try, rather than a verdict from a half-run test.
     for budget_ms in (20000, 60000, 180000):
-        proc = _run([f"--virtual-time-budget={budget_ms}", "--enable-logging=stderr", "--v=0", "--dump-dom", url],
-                    timeout_s=timeout_s)
+        proc = _run(
+            [f"--virtual-time-budget={budget_ms}", "--enable-logging=stderr", "--v=0", "--dump-dom", url],
+            timeout_s=timeout_s,
+        )
         m = re.search(r'<pre id="selftest"[^>]*data-done="1"[^>]*>(.*?)</pre>', proc.stdout, re.S)
         if m:
             break
     else:
         pre = re.search(r'<pre id="selftest"[^>]*>', proc.stdout)
-        raise RuntimeError(f"the page's self-test did not finish (exit {proc.returncode}; "
-                           f"{pre.group(0) if pre else 'no self-test element in the DOM'}); "
-                           f"stderr tail: {proc.stderr[-800:]}")
+        raise RuntimeError(
+            f"the page's self-test did not finish (exit {proc.returncode}; "
+            f"{pre.group(0) if pre else 'no self-test element in the DOM'}); "
+            f"stderr tail: {proc.stderr[-800:]}"
+        )
     result = json.loads(html.unescape(m.group(1)))
     result["console"] = console_lines(proc.stderr)
     result["dom"] = proc.stdout
     return result
 
 
-def screenshot(page: Path, target: Path, *, width: int = 1200, height: int = 1500,
-               timeout_s: float = 90.0) -> Path:
+def screenshot(page: Path, target: Path, *, width: int = 1200, height: int = 1500, timeout_s: float = 90.0) -> Path:
     """Save a PNG screenshot of the top ``width`` × ``height`` CSS pixels of ``page``."""
     target = Path(target).resolve()
     target.parent.mkdir(parents=True, exist_ok=True)
-    proc = _run([f"--window-size={width},{height}", "--virtual-time-budget=5000", f"--screenshot={target}",
-                 Path(page).resolve().as_uri()], timeout_s=timeout_s)
+    proc = _run(
+        [
+            f"--window-size={width},{height}",
+            "--virtual-time-budget=5000",
+            f"--screenshot={target}",
+            Path(page).resolve().as_uri(),
+        ],
+        timeout_s=timeout_s,
+    )
     if not target.is_file():
         raise RuntimeError(f"Chromium wrote no screenshot (exit {proc.returncode}); stderr tail: {proc.stderr[-800:]}")
     return target

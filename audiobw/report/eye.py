@@ -19,8 +19,9 @@ from .figure import GRIDLINE, HIGHLIGHT, INK, MUTED, PAPER, RC
 MAX_TRACES = 600
 
 
-def eye_traces(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, skip_bits: int = 16,
-               points_per_ui: int = 48) -> tuple[np.ndarray, np.ndarray]:
+def eye_traces(
+    x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, skip_bits: int = 16, points_per_ui: int = 48
+) -> tuple[np.ndarray, np.ndarray]:
     """Overlaid two-UI traces of ``x`` (resampled by linear interpolation).
 
     Returns ``(t_ui, traces)``: time axis 0…2 UI and an array (n_traces, points).
@@ -36,8 +37,14 @@ def eye_traces(x: np.ndarray, fs_hz: float, bit_rate_hz: float, *, skip_bits: in
     return t_ui, np.interp(sample_pos, idx, x)
 
 
-def eye_diagram(wave_path, bit_rate_hz: float, target, *, sample_delay_ui: float | None = None,
-                title: str = "Eye diagram of the simulated chain output") -> Path:
+def eye_diagram(
+    wave_path,
+    bit_rate_hz: float,
+    target,
+    *,
+    sample_delay_ui: float | None = None,
+    title: str = "Eye diagram of the simulated chain output",
+) -> Path:
     """Write an eye-diagram PNG of ``wave_path`` (first channel) to ``target``.
 
     Parameters

@@ -33,11 +33,27 @@ FAMILY_STYLE = {  # family -> (colour, marker)
 ORDER_LINES = ("-", "--", ":", "-.", (0, (5, 1, 1, 1, 1, 1)), (0, (1, 1)), (0, (8, 2)), (0, (3, 3)))
 HATCHES = ("////", "....", "xxxx", "\\\\\\\\", "oo", "++")
 RC = {
-    "font.size": 8.5, "axes.titlesize": 9.5, "axes.labelsize": 8.5, "axes.edgecolor": INK,
-    "axes.labelcolor": INK, "axes.facecolor": "white", "figure.facecolor": PAPER, "text.color": INK,
-    "xtick.color": INK, "ytick.color": INK, "axes.grid": True, "grid.color": GRIDLINE, "grid.linewidth": 0.6,
-    "axes.spines.top": False, "axes.spines.right": False, "legend.frameon": False, "legend.fontsize": 7.5,
-    "svg.hashsalt": "audiobw", "svg.fonttype": "none", "lines.linewidth": 1.4, "lines.markersize": 4,
+    "font.size": 8.5,
+    "axes.titlesize": 9.5,
+    "axes.labelsize": 8.5,
+    "axes.edgecolor": INK,
+    "axes.labelcolor": INK,
+    "axes.facecolor": "white",
+    "figure.facecolor": PAPER,
+    "text.color": INK,
+    "xtick.color": INK,
+    "ytick.color": INK,
+    "axes.grid": True,
+    "grid.color": GRIDLINE,
+    "grid.linewidth": 0.6,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "legend.frameon": False,
+    "legend.fontsize": 7.5,
+    "svg.hashsalt": "audiobw",
+    "svg.fonttype": "none",
+    "lines.linewidth": 1.4,
+    "lines.markersize": 4,
 }
 POINTS_PER_DECADE = 160
 
@@ -53,7 +69,7 @@ class Plot:
     svg: bytes | None = None
     width_px: int = 0
     height_px: int = 0
-    data: dict | None = None   # the numbers drawn, where a test checks them against the sweep
+    data: dict | None = None  # the numbers drawn, where a test checks them against the sweep
 
     def write(self, out_dir, *, inputs=()) -> dict[str, Path]:
         out = {}
@@ -109,16 +125,25 @@ def _db(x):
 
 def _style(family: str, order_index: int):
     colour, marker = FAMILY_STYLE.get(family, (INK, "v"))
-    return dict(color=colour, marker=marker, linestyle=ORDER_LINES[order_index % len(ORDER_LINES)],
-                markerfacecolor=colour if order_index % 2 == 0 else "white", markeredgecolor=colour)
+    return dict(
+        color=colour,
+        marker=marker,
+        linestyle=ORDER_LINES[order_index % len(ORDER_LINES)],
+        markerfacecolor=colour if order_index % 2 == 0 else "white",
+        markeredgecolor=colour,
+    )
 
 
 def _series_keys(cases):
     fams = [f for f in FAMILY_STYLE if any(c["family"] == f for c in cases)]
     fams += sorted({c["family"] for c in cases} - set(fams))
     orders = sorted({c["order"] for c in cases})
-    return [(f, o, orders.index(o)) for f in fams for o in orders
-            if any(c["family"] == f and c["order"] == o for c in cases)]
+    return [
+        (f, o, orders.index(o))
+        for f in fams
+        for o in orders
+        if any(c["family"] == f and c["order"] == o for c in cases)
+    ]
 
 
 def _khz(ax, axis="x"):
@@ -129,6 +154,7 @@ def _khz(ax, axis="x"):
         if v >= 1000:
             return f"{v / 1000:g}k"
         return f"{v:g}"
+
     a = ax.xaxis if axis == "x" else ax.yaxis
     a.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
     a.set_major_formatter(FuncFormatter(f))

@@ -6,8 +6,17 @@ from pathlib import Path
 
 from ..cautions import LISTENING_CAUTION
 from ..names import md_code, md_text
-from .formatting import (case_line, chain_value_text, fmt, margin_value_text, metric_value_text, passband_phrase,
-                         spec_rows, target_info, target_text)
+from .formatting import (
+    case_line,
+    chain_value_text,
+    fmt,
+    margin_value_text,
+    metric_value_text,
+    passband_phrase,
+    spec_rows,
+    target_info,
+    target_text,
+)
 
 
 def markdown(spec: dict, renders: list | None = None) -> str:
@@ -15,10 +24,12 @@ def markdown(spec: dict, renders: list | None = None) -> str:
     inp = spec["input"]
     name = Path(inp["path"]).name
     out = [f"# Passband spec sheet — {md_text(name)}", ""]
-    out.append(f"Program: {md_code(inp['path'])} (sha256 `{inp['sha256'][:16]}…`), {inp['duration_s']:g} s, "
-               f"{inp['channels']} ch, {inp['sample_rate_hz']} Hz; peak {inp['peak_dbfs']:.1f} dBFS, "
-               f"rms {inp['rms_dbfs']:.1f} dBFS; 99 % occupied band {fmt(inp['occupied_low_hz'], 'Hz')} to "
-               f"{fmt(inp['occupied_high_hz'], 'Hz')}.")
+    out.append(
+        f"Program: {md_code(inp['path'])} (sha256 `{inp['sha256'][:16]}…`), {inp['duration_s']:g} s, "
+        f"{inp['channels']} ch, {inp['sample_rate_hz']} Hz; peak {inp['peak_dbfs']:.1f} dBFS, "
+        f"rms {inp['rms_dbfs']:.1f} dBFS; 99 % occupied band {fmt(inp['occupied_low_hz'], 'Hz')} to "
+        f"{fmt(inp['occupied_high_hz'], 'Hz')}."
+    )
     out.append(f"{spec['cases_passing']} of {spec['cases_total']} cases meet every target.")
     out.append("")
     out.append(f"> **Caution.** {spec['caution']}")
@@ -33,9 +44,13 @@ def markdown(spec: dict, renders: list | None = None) -> str:
         if spec.get("conflicts"):
             out += ["", "These targets each hold in some case but never together:", ""]
             out += [f"- {c['text']}" for c in spec["conflicts"]]
-        out += ["", f"The figures below are for the **closest case** ({spec['subject']['case']}, the largest worst "
-                f"margin), which fails: {', '.join(target_info(k)[0] for k in spec['subject']['fails'])}. "
-                "It is not a recommendation.", ""]
+        out += [
+            "",
+            f"The figures below are for the **closest case** ({spec['subject']['case']}, the largest worst "
+            f"margin), which fails: {', '.join(target_info(k)[0] for k in spec['subject']['fails'])}. "
+            "It is not a recommendation.",
+            "",
+        ]
         out.append(f"## Closest case: {passband_phrase(spec)}")
     else:
         out.append(f"## Chosen passband: {passband_phrase(spec)}")
@@ -45,10 +60,14 @@ def markdown(spec: dict, renders: list | None = None) -> str:
             out += ["", f"Bound by **{target_text(t)}** (margin {margin_value_text(b, spec['binding_margin_db'])})."]
         if spec["grid_limits"]:
             from .text import grid_limit_lines
+
             out += [""] + grid_limit_lines(spec["filter"]["response"], spec["grid_limits"])
         elif spec["grid_limited"]:
-            out += ["", "This is the narrowest case of its family and order in the grid: extend the grid to see "
-                    "whether a narrower passband also passes."]
+            out += [
+                "",
+                "This is the narrowest case of its family and order in the grid: extend the grid to see "
+                "whether a narrower passband also passes.",
+            ]
     out += ["", "| quantity | value |", "|---|---|"]
     section = None
     for sec, label, text, _ptr in spec_rows(spec):
@@ -59,8 +78,10 @@ def markdown(spec: dict, renders: list | None = None) -> str:
     out += ["", "### Targets", "", "| target | this case | margin | met | bound the choice |", "|---|---|---|---|---|"]
     for t in spec["targets"]:
         margin = margin_value_text(t["key"], t["margin_db"])
-        out.append(f"| {target_text(t)} | {metric_value_text(t['metric'], t['value'])} | {margin} | "
-                   f"{'yes' if t['met'] else 'no'} | {'yes' if t['binding'] else ''} |")
+        out.append(
+            f"| {target_text(t)} | {metric_value_text(t['metric'], t['value'])} | {margin} | "
+            f"{'yes' if t['met'] else 'no'} | {'yes' if t['binding'] else ''} |"
+        )
     out += ["", "### Margin: the neighbouring cases", ""]
     nb = spec["neighbours"]
     out.append(f"- next narrower (same family and order): {case_line(nb['next_narrower'])}")
@@ -68,18 +89,25 @@ def markdown(spec: dict, renders: list | None = None) -> str:
     out.append(f"- runner-up (next passing case by the choice rule): {case_line(nb['runner_up'])}")
     so = spec["ser_optimum"]
     if so:
-        out.append(f"- signal-to-error optimum of the sweep: case {so['case']} ({so['family']} {so['order']}), "
-                   f"bandwidth {fmt(so['bandwidth_hz'], 'Hz')}, SER {fmt(so['ser_db'], 'dB')}")
+        out.append(
+            f"- signal-to-error optimum of the sweep: case {so['case']} ({so['family']} {so['order']}), "
+            f"bandwidth {fmt(so['bandwidth_hz'], 'Hz')}, SER {fmt(so['ser_db'], 'dB')}"
+        )
     out += ["", "### Noise budget", "", "| contributor | noise | dBu | dBFS | share |", "|---|---|---|---|---|"]
     for c in spec["noise"]["components"].values():
-        out.append(f"| {c['label']} | {fmt(c['vrms'], 'V rms')} | {fmt(c['dbu'], 'dBu')} | {fmt(c['dbfs'], 'dBFS')} "
-                   f"| {100 * c['share']:.1f} % |")
+        out.append(
+            f"| {c['label']} | {fmt(c['vrms'], 'V rms')} | {fmt(c['dbu'], 'dBu')} | {fmt(c['dbfs'], 'dBFS')} "
+            f"| {100 * c['share']:.1f} % |"
+        )
     out += ["", "### Chain assumptions", "", "| parameter | key | value |", "|---|---|---|"]
     for row in spec["chain"]:
         out.append(f"| {row['label']} | `{row['key']}` | {chain_value_text(row)} |")
     m = spec["meter"]
-    out += ["", f"Meter band {fmt(m['low_hz'], 'Hz')} to {fmt(m['high_hz'], 'Hz')} ({m['mode']}); "
-            f"A-weighting per IEC 61672-1; dBFS re a full-scale sine (AES17); 0 dBu = 0.7746 V rms."]
+    out += [
+        "",
+        f"Meter band {fmt(m['low_hz'], 'Hz')} to {fmt(m['high_hz'], 'Hz')} ({m['mode']}); "
+        f"A-weighting per IEC 61672-1; dBFS re a full-scale sine (AES17); 0 dBu = 0.7746 V rms.",
+    ]
     for note in spec["notes"]:
         out.append(f"Note: {note}")
     if renders:

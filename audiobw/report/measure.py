@@ -63,10 +63,16 @@ def stopband_points(filt, case: dict, fs_hz: float) -> list[dict]:
         if filt.analog:
             add("alias_of_upper_edge", "fs − f_high (aliases onto f_high)", fs_hz - hi)
         else:
-            points.append({"name": "alias_of_upper_edge", "label": "fs − f_high (aliases onto f_high)",
-                           "freq_hz": fs_hz - hi, "attenuation_db": None,
-                           "note": "digital stage: the filter acts after sampling; what aliases onto f_high "
-                                   "is set by the converter's own anti-alias filter"})
+            points.append(
+                {
+                    "name": "alias_of_upper_edge",
+                    "label": "fs − f_high (aliases onto f_high)",
+                    "freq_hz": fs_hz - hi,
+                    "attenuation_db": None,
+                    "note": "digital stage: the filter acts after sampling; what aliases onto f_high "
+                    "is set by the converter's own anti-alias filter",
+                }
+            )
     if lo is not None:
         add("half_lower_edge", "f_low / 2", lo / 2.0)
     return points
@@ -91,8 +97,13 @@ def passband_figures(filt, case: dict, doc: dict) -> dict:
         out["ripple_note"] = f"{family}: monotonic passband, no ripple by design"
     occ_lo, occ_hi = doc["input"]["occupied_low_hz"], doc["input"]["occupied_high_hz"]
     g = filt.response_db(_band_grid(max(occ_lo, 1e-3), min(occ_hi, nyq)))
-    out["flatness"] = {"low_hz": occ_lo, "high_hz": occ_hi, "max_db": float(np.max(g)),
-                       "min_db": float(np.min(g)), "variation_db": float(np.max(g) - np.min(g))}
+    out["flatness"] = {
+        "low_hz": occ_lo,
+        "high_hz": occ_hi,
+        "max_db": float(np.max(g)),
+        "min_db": float(np.min(g)),
+        "variation_db": float(np.max(g) - np.min(g)),
+    }
     return out
 
 
@@ -103,15 +114,24 @@ def group_delay_figures(filt, case: dict, doc: dict) -> dict:
     def spread(lo, hi):
         tau = filt.group_delay_s(_band_grid(lo, hi))
         tau = tau[np.isfinite(tau)]  # a zero on the jω axis makes its own frequency singular
-        return {"low_hz": lo, "high_hz": hi, "min_s": float(np.min(tau)), "max_s": float(np.max(tau)),
-                "spread_s": float(np.max(tau) - np.min(tau))}
+        return {
+            "low_hz": lo,
+            "high_hz": hi,
+            "min_s": float(np.min(tau)),
+            "max_s": float(np.max(tau)),
+            "spread_s": float(np.max(tau) - np.min(tau)),
+        }
 
     lo, hi = _passband(case, nyq)
     occ_lo, occ_hi = doc["input"]["occupied_low_hz"], min(doc["input"]["occupied_high_hz"], nyq)
     g1k = float(filt.power_response(GROUP_DELAY_AT_HZ))
-    return {"at_hz": GROUP_DELAY_AT_HZ, "at_s": at,
-            "note": None if g1k >= 0.5 else "1 kHz is outside the −3 dB passband",
-            "passband": spread(lo, hi), "occupied_band": spread(occ_lo, occ_hi)}
+    return {
+        "at_hz": GROUP_DELAY_AT_HZ,
+        "at_s": at,
+        "note": None if g1k >= 0.5 else "1 kHz is outside the −3 dB passband",
+        "passband": spread(lo, hi),
+        "occupied_band": spread(occ_lo, occ_hi),
+    }
 
 
 def noise_figures(chain, filt, doc: dict, case: dict) -> dict:
@@ -125,12 +145,22 @@ def noise_figures(chain, filt, doc: dict, case: dict) -> dict:
     def fin(x):
         return x if x is not None and math.isfinite(x) else None
 
-    comps = {k: {"label": NOISE_LABELS.get(k, k), "vrms": e["vrms"], "dbu": fin(e["dbu"]),
-                 "dbfs": fin(e["dbfs"]), "share": e["share"]} for k, e in b["components"].items()}
+    comps = {
+        k: {
+            "label": NOISE_LABELS.get(k, k),
+            "vrms": e["vrms"],
+            "dbu": fin(e["dbu"]),
+            "dbfs": fin(e["dbfs"]),
+            "share": e["share"],
+        }
+        for k, e in b["components"].items()
+    }
     ta = b["total_a_weighted"]
     return {
         "meter": {"low_hz": m["low_hz"], "high_hz": m["high_hz"]},
-        "vrms": case["noise_vrms"], "dbu": vrms_to_dbu(case["noise_vrms"]), "dbfs": case["noise_dbfs"],
+        "vrms": case["noise_vrms"],
+        "dbu": vrms_to_dbu(case["noise_vrms"]),
+        "dbfs": case["noise_dbfs"],
         "a_weighted": {"vrms": ta["vrms"], "dbu": fin(ta["dbu"]), "dbfs": fin(ta["dbfs"])},
         "budget_total_vrms": b["total"]["vrms"],
         "components": comps,

@@ -32,8 +32,23 @@ import math
 
 import numpy as np
 
-from .figure import (FAMILY_STYLE, GRIDLINE, HATCHES, HIGHLIGHT, INK, MUTED, RC, TARGET, Plot, _db, _khz, _render,
-                     _series_keys, _style, log_average)
+from .figure import (
+    FAMILY_STYLE,
+    GRIDLINE,
+    HATCHES,
+    HIGHLIGHT,
+    INK,
+    MUTED,
+    RC,
+    TARGET,
+    Plot,
+    _db,
+    _khz,
+    _render,
+    _series_keys,
+    _style,
+    log_average,
+)
 from .perceptual_plots import masking_plot, perceptual_scorer, wiener_plot
 
 
@@ -73,8 +88,11 @@ def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
     keys = _series_keys(cases)
     for ax, (key, label, tkey, logy) in zip(axes.flat, panels):
         for fam, order, oi in keys:
-            pts = sorted((c[swept], c[key]) for c in cases if c["family"] == fam and c["order"] == order
-                         and c.get(key) is not None and (not logy or c[key] > 0))
+            pts = sorted(
+                (c[swept], c[key])
+                for c in cases
+                if c["family"] == fam and c["order"] == order and c.get(key) is not None and (not logy or c[key] > 0)
+            )
             if pts:
                 x, y = zip(*pts)
                 ax.plot(x, y, label=f"{fam} {order}", **_style(fam, oi))
@@ -84,24 +102,57 @@ def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
 
             sense = target_info(tkey)[3]
             ax.axhline(limit, color=TARGET, linewidth=2.2, linestyle="-.", zorder=1)
-            ax.annotate(f"target {sense} {limit:g}", xy=(1.0, limit), xycoords=("axes fraction", "data"),
-                        xytext=(-2, 3), textcoords="offset points", ha="right", va="bottom", fontsize=7,
-                        color=MUTED)
+            ax.annotate(
+                f"target {sense} {limit:g}",
+                xy=(1.0, limit),
+                xycoords=("axes fraction", "data"),
+                xytext=(-2, 3),
+                textcoords="offset points",
+                ha="right",
+                va="bottom",
+                fontsize=7,
+                color=MUTED,
+            )
         v = subject.get(key)
         if v is not None and (not logy or v > 0):
-            ax.plot([subject[swept]], [v], marker="*", markersize=13, color=HIGHLIGHT, markeredgecolor=INK,
-                    linestyle="none", zorder=5, label=f"{role}: case {subject['id']}")
+            ax.plot(
+                [subject[swept]],
+                [v],
+                marker="*",
+                markersize=13,
+                color=HIGHLIGHT,
+                markeredgecolor=INK,
+                linestyle="none",
+                zorder=5,
+                label=f"{role}: case {subject['id']}",
+            )
         if key in ("eye_fraction", "ber") and "data" in doc:
             nyq = doc["data"]["nyquist_min_hz"]
             ax.axvline(nyq, color=MUTED, linewidth=1.4, linestyle=(0, (2, 2)), zorder=1)
-            ax.annotate("Nyquist 1/(2T)", xy=(nyq, 1.0), xycoords=("data", "axes fraction"), xytext=(3, -10),
-                        textcoords="offset points", fontsize=7, color=MUTED)
+            ax.annotate(
+                "Nyquist 1/(2T)",
+                xy=(nyq, 1.0),
+                xycoords=("data", "axes fraction"),
+                xytext=(3, -10),
+                textcoords="offset points",
+                fontsize=7,
+                color=MUTED,
+            )
             q_opt = (doc["data"].get("q_optimal") or {}).get("case")
             if key == "ber" and q_opt:
                 qc = doc["cases"][q_opt - 1]
                 if qc.get(swept) is not None and qc.get("ber", 0) > 0:
-                    ax.plot([qc[swept]], [qc["ber"]], marker="v", markersize=9, color="white",
-                            markeredgecolor=INK, linestyle="none", zorder=5, label=f"highest Q: case {q_opt}")
+                    ax.plot(
+                        [qc[swept]],
+                        [qc["ber"]],
+                        marker="v",
+                        markersize=9,
+                        color="white",
+                        markeredgecolor=INK,
+                        linestyle="none",
+                        zorder=5,
+                        label=f"highest Q: case {q_opt}",
+                    )
         ax.set_xscale("log")
         if logy:
             ax.set_yscale("log")
@@ -115,14 +166,16 @@ def metrics_plot(doc: dict, spec: dict, edge: str) -> Plot:
     fig.legend(handles, labels, loc="outside lower center", ncol=min(5, len(labels)))
     held = ""
     if doc["grid"]["response"] == "bandpass":
-        held = (f"; {'lower' if edge == 'high' else 'upper'} design edge held at "
-                f"{subject[other]:.4g} Hz")
+        held = f"; {'lower' if edge == 'high' else 'upper'} design edge held at {subject[other]:.4g} Hz"
     fig.suptitle(f"Metrics against the {'upper' if edge == 'high' else 'lower'} edge{held}")
-    return _render(fig, f"metrics-{'upper' if edge == 'high' else 'lower'}-edge",
-                   f"Metrics against the {'upper' if edge == 'high' else 'lower'} edge",
-                   "Each metric against the swept design edge, one line per family (marker) and order (line "
-                   f"style); thick dash-dot lines are the targets, the star marks the {role} case{held}.",
-                   svg=True)
+    return _render(
+        fig,
+        f"metrics-{'upper' if edge == 'high' else 'lower'}-edge",
+        f"Metrics against the {'upper' if edge == 'high' else 'lower'} edge",
+        "Each metric against the swept design edge, one line per family (marker) and order (line "
+        f"style); thick dash-dot lines are the targets, the star marks the {role} case{held}.",
+        svg=True,
+    )
 
 
 def spectrum_plot(doc: dict, spec: dict, spectrum: dict, filt, chain) -> Plot:
@@ -133,18 +186,25 @@ def spectrum_plot(doc: dict, spec: dict, spectrum: dict, filt, chain) -> Plot:
 
     f = np.asarray(spectrum["freqs_hz"], float)
     fs = float(spectrum["sample_rate_hz"])
-    S = np.asarray(spectrum["psd"], float) * chain.volts_per_unit ** 2
+    S = np.asarray(spectrum["psd"], float) * chain.volts_per_unit**2
     G = filt.power_response(f)
     N = noise_spectra(chain, filt, f, np.asarray(spectrum["weights_hz"], float), fs).total
     fig = Figure(figsize=(7.6, 4.2), layout="constrained")
     ax = fig.subplots()
     inp = doc["input"]
-    ax.axvspan(inp["occupied_low_hz"], inp["occupied_high_hz"], color=GRIDLINE, alpha=0.35, zorder=0,
-               label="program's 99 % occupied band")
-    for y, label, colour, ls, lw in ((S, "program (converter input)", FAMILY_STYLE["butterworth"][0], "-", 1.3),
-                                     (S * G + N, "chain output: program + noise", FAMILY_STYLE["bessel"][0], "--",
-                                      1.3),
-                                     (N, "output noise floor", INK, ":", 1.8)):
+    ax.axvspan(
+        inp["occupied_low_hz"],
+        inp["occupied_high_hz"],
+        color=GRIDLINE,
+        alpha=0.35,
+        zorder=0,
+        label="program's 99 % occupied band",
+    )
+    for y, label, colour, ls, lw in (
+        (S, "program (converter input)", FAMILY_STYLE["butterworth"][0], "-", 1.3),
+        (S * G + N, "chain output: program + noise", FAMILY_STYLE["bessel"][0], "--", 1.3),
+        (N, "output noise floor", INK, ":", 1.8),
+    ):
         fx, py = log_average(f, y)
         ax.plot(fx, _db(py), color=colour, linestyle=ls, linewidth=lw, label=label)
     for edge in (spec["filter"]["low_hz"], spec["filter"]["high_hz"]):
@@ -160,10 +220,15 @@ def spectrum_plot(doc: dict, spec: dict, spectrum: dict, filt, chain) -> Plot:
     _khz(ax)
     ax.legend(loc="lower left")
     ax.set_title("Program and chain output spectra (dash-dot verticals: −3 dB edges)")
-    return _render(fig, "spectrum", "Spectra",
-                   "Long-term spectrum of the program at the converter input, of the chain output (program "
-                   "through the filter plus noise), and of the output noise alone; averaged over 1/160-decade "
-                   "cells. Dash-dot verticals mark the −3 dB edges.", svg=True)
+    return _render(
+        fig,
+        "spectrum",
+        "Spectra",
+        "Long-term spectrum of the program at the converter input, of the chain output (program "
+        "through the filter plus noise), and of the output noise alone; averaged over 1/160-decade "
+        "cells. Dash-dot verticals mark the −3 dB edges.",
+        svg=True,
+    )
 
 
 def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
@@ -188,12 +253,27 @@ def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
     for p, m in zip(spec["stopband"], marks):
         if p["attenuation_db"] is None:
             continue
-        ax1.plot([p["freq_hz"]], [-p["attenuation_db"]], marker=m, markersize=8, color=HIGHLIGHT,
-                 markeredgecolor=INK, linestyle="none", label=f"{p['label']}: {p['attenuation_db']:.1f} dB down")
+        ax1.plot(
+            [p["freq_hz"]],
+            [-p["attenuation_db"]],
+            marker=m,
+            markersize=8,
+            color=HIGHLIGHT,
+            markeredgecolor=INK,
+            linestyle="none",
+            label=f"{p['label']}: {p['attenuation_db']:.1f} dB down",
+        )
     if filt.analog:
         ax1.axvline(nyq, color=INK, linewidth=0.8, linestyle=":")
-        ax1.annotate("fs/2", xy=(nyq, 1.0), xycoords=("data", "axes fraction"), xytext=(3, -3),
-                     textcoords="offset points", va="top", fontsize=7)
+        ax1.annotate(
+            "fs/2",
+            xy=(nyq, 1.0),
+            xycoords=("data", "axes fraction"),
+            xytext=(3, -3),
+            textcoords="offset points",
+            va="top",
+            fontsize=7,
+        )
     ax1.set_ylim(floor, 5)
     ax1.set_ylabel("magnitude [dB]")
     ax1.legend(loc="lower center" if lo and hi else ("lower left" if hi else "lower right"))
@@ -204,20 +284,34 @@ def filter_plot(spec: dict, filt, fs_hz: float) -> Plot:
     if np.any(inside):
         top = float(np.max(tau_ms[inside]))
         ax2.set_ylim(min(0.0, float(np.min(tau_ms[inside]))), 1.25 * top if top > 0 else 1.0)
-    ax2.plot([1000.0], [1e3 * spec["group_delay"]["at_s"]], marker="o", color=HIGHLIGHT, markeredgecolor=INK,
-             linestyle="none", label=f"1 kHz: {1e3 * spec['group_delay']['at_s']:.3g} ms")
+    ax2.plot(
+        [1000.0],
+        [1e3 * spec["group_delay"]["at_s"]],
+        marker="o",
+        color=HIGHLIGHT,
+        markeredgecolor=INK,
+        linestyle="none",
+        label=f"1 kHz: {1e3 * spec['group_delay']['at_s']:.3g} ms",
+    )
     ax2.axvspan(pb["low_hz"], pb["high_hz"], color=GRIDLINE, alpha=0.3, zorder=0, label="−3 dB passband")
     ax2.set_ylabel("group delay [ms]")
     ax2.set_xlabel("frequency [Hz]")
     ax2.set_xscale("log")
     ax2.legend(loc="upper center")
     _khz(ax2)
-    fig.suptitle(f"{spec['filter']['family']} order {spec['filter']['order']} {spec['filter']['response']}, "
-                 f"{spec['filter']['stage']} stage")
-    return _render(fig, "filter", "Filter response",
-                   "Magnitude (with the attenuation at the named stopband frequencies) and group delay of the "
-                   f"{'chosen' if spec['status'] == 'chosen' else 'closest'} filter; the shaded band is the −3 dB "
-                   "passband over which the group-delay spread is given.", svg=True)
+    fig.suptitle(
+        f"{spec['filter']['family']} order {spec['filter']['order']} {spec['filter']['response']}, "
+        f"{spec['filter']['stage']} stage"
+    )
+    return _render(
+        fig,
+        "filter",
+        "Filter response",
+        "Magnitude (with the attenuation at the named stopband frequencies) and group delay of the "
+        f"{'chosen' if spec['status'] == 'chosen' else 'closest'} filter; the shaded band is the −3 dB "
+        "passband over which the group-delay spread is given.",
+        svg=True,
+    )
 
 
 def budget_plot(spec: dict) -> Plot:
@@ -231,20 +325,29 @@ def budget_plot(spec: dict) -> Plot:
     for yi, c, hatch in zip(y, comps, HATCHES):
         share = 100.0 * c["share"]
         ax.barh(yi, share, color="white", edgecolor=INK, hatch=hatch, linewidth=1.0)
-        text = (f"{share:.1f} %  ({c['vrms'] * 1e6:.3g} µV rms, {c['dbfs']:.1f} dBFS)" if c["dbfs"] is not None
-                else "0 % (not present)")
+        text = (
+            f"{share:.1f} %  ({c['vrms'] * 1e6:.3g} µV rms, {c['dbfs']:.1f} dBFS)"
+            if c["dbfs"] is not None
+            else "0 % (not present)"
+        )
         ax.annotate(text, xy=(share, yi), xytext=(4, 0), textcoords="offset points", va="center", fontsize=7.5)
     ax.set_yticks(y, [c["label"] for c in comps])
     ax.set_xlim(0, 135)
     ax.set_xticks([0, 20, 40, 60, 80, 100])
     ax.set_xlabel("share of output noise power [%]")
     n = spec["noise"]
-    ax.set_title(f"Noise budget: total {n['vrms'] * 1e6:.3g} µV rms ({n['dbfs']:.1f} dBFS, {n['dbu']:.1f} dBu); "
-                 f"A-weighted {n['a_weighted']['dbfs']:.1f} dBFS")
+    ax.set_title(
+        f"Noise budget: total {n['vrms'] * 1e6:.3g} µV rms ({n['dbfs']:.1f} dBFS, {n['dbu']:.1f} dBu); "
+        f"A-weighted {n['a_weighted']['dbfs']:.1f} dBFS"
+    )
     ax.grid(axis="y", visible=False)
-    return _render(fig, "noise-budget", "Noise budget",
-                   "Share of the output noise power from each contributor in the meter band, with its level.",
-                   svg=False)
+    return _render(
+        fig,
+        "noise-budget",
+        "Noise budget",
+        "Share of the output noise power from each contributor in the meter band, with its level.",
+        svg=False,
+    )
 
 
 def ser_plot(doc: dict, spec: dict) -> Plot:
@@ -258,18 +361,44 @@ def ser_plot(doc: dict, spec: dict) -> Plot:
         pts = [(c["bandwidth_hz"], c["ser_db"]) for c in cases if c["family"] == fam and c["order"] == order]
         x, y = zip(*pts)
         st = _style(fam, oi)
-        ax.plot(x, y, linestyle="none", marker=st["marker"], color=st["color"], markerfacecolor=st["markerfacecolor"],
-                markeredgecolor=st["markeredgecolor"], markersize=3.5, label=f"{fam} {order}")
+        ax.plot(
+            x,
+            y,
+            linestyle="none",
+            marker=st["marker"],
+            color=st["color"],
+            markerfacecolor=st["markerfacecolor"],
+            markeredgecolor=st["markeredgecolor"],
+            markersize=3.5,
+            label=f"{fam} {order}",
+        )
     so = spec["ser_optimum"]
     if so:
-        ax.plot([so["bandwidth_hz"]], [so["ser_db"]], marker="*", markersize=15, color="white", markeredgecolor=INK,
-                markeredgewidth=1.4, linestyle="none", zorder=5,
-                label=f"SER optimum: case {so['case']}, {so['ser_db']:.1f} dB")
+        ax.plot(
+            [so["bandwidth_hz"]],
+            [so["ser_db"]],
+            marker="*",
+            markersize=15,
+            color="white",
+            markeredgecolor=INK,
+            markeredgewidth=1.4,
+            linestyle="none",
+            zorder=5,
+            label=f"SER optimum: case {so['case']}, {so['ser_db']:.1f} dB",
+        )
     subj = doc["cases"][spec["subject"]["case"] - 1]
     if subj.get("ser_db") is not None:
-        ax.plot([subj["bandwidth_hz"]], [subj["ser_db"]], marker="*", markersize=13, color=HIGHLIGHT,
-                markeredgecolor=INK, linestyle="none", zorder=6,
-                label=f"{'chosen' if spec['status'] == 'chosen' else 'closest'}: case {subj['id']}")
+        ax.plot(
+            [subj["bandwidth_hz"]],
+            [subj["ser_db"]],
+            marker="*",
+            markersize=13,
+            color=HIGHLIGHT,
+            markeredgecolor=INK,
+            linestyle="none",
+            zorder=6,
+            label=f"{'chosen' if spec['status'] == 'chosen' else 'closest'}: case {subj['id']}",
+        )
     if "min_ser_db" in doc["targets"]:
         ax.axhline(doc["targets"]["min_ser_db"], color=TARGET, linewidth=2.2, linestyle="-.", label="SER target")
     ax.set_xscale("log")
@@ -278,10 +407,15 @@ def ser_plot(doc: dict, spec: dict) -> Plot:
     _khz(ax)
     ax.legend(loc="best", ncol=2)
     ax.set_title("Noise/bandwidth trade-off: signal-to-error against bandwidth")
-    return _render(fig, "ser", "Signal-to-error against bandwidth",
-                   "Signal-to-error (loss and noise together) for every case against its −3 dB bandwidth; the "
-                   "white star is the sweep's optimum, the filled star the "
-                   f"{'chosen' if spec['status'] == 'chosen' else 'closest'} case.", svg=True)
+    return _render(
+        fig,
+        "ser",
+        "Signal-to-error against bandwidth",
+        "Signal-to-error (loss and noise together) for every case against its −3 dB bandwidth; the "
+        "white star is the sweep's optimum, the filled star the "
+        f"{'chosen' if spec['status'] == 'chosen' else 'closest'} case.",
+        svg=True,
+    )
 
 
 def make_plots(run: dict, spec: dict) -> list[Plot]:

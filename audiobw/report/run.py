@@ -20,6 +20,7 @@ TRUE_LEVEL_CLIPS = ("chain-output.wav",)
 
 # -- reading a run -------------------------------------------------------------
 
+
 def read_run(out_dir) -> dict:
     """Read the outputs of a sweep folder.
 
@@ -53,8 +54,9 @@ def read_run(out_dir) -> dict:
     doc = loads(path, raw)
     if not isinstance(doc, dict) or doc.get("tool") != "audiobw":
         why = f"tool is {doc.get('tool')!r}" if isinstance(doc, dict) else "not a JSON object"
-        raise AudioFileError(f"{path}: not a sweep.json written by audiobw ({why}); "
-                             "accepted: a folder written by audiobw sweep")
+        raise AudioFileError(
+            f"{path}: not a sweep.json written by audiobw ({why}); accepted: a folder written by audiobw sweep"
+        )
     validate_sweep(doc, path)
     spectrum = None
     npz = d / "spectrum.npz"
@@ -63,9 +65,15 @@ def read_run(out_dir) -> dict:
         if str(spectrum["sha256"]) != doc["input"]["sha256"]:
             raise AudioFileError(
                 f"{npz}: its program (sha256 {str(spectrum['sha256'])[:12]}…) is not the one in sweep.json "
-                f"({doc['input']['sha256'][:12]}…); accepted: the spectrum.npz written by the same sweep")
-    return {"dir": d, "doc": doc, "sweep_sha256": hashlib.sha256(raw).hexdigest(), "spectrum": spectrum,
-            "renders": find_renders(d)}
+                f"({doc['input']['sha256'][:12]}…); accepted: the spectrum.npz written by the same sweep"
+            )
+    return {
+        "dir": d,
+        "doc": doc,
+        "sweep_sha256": hashlib.sha256(raw).hexdigest(),
+        "spectrum": spectrum,
+        "renders": find_renders(d),
+    }
 
 
 PNG_MAGIC = (b"\x89PNG\r\n\x1a\n",)  # PNG signature (ISO/IEC 15948, clause 5.2)
@@ -114,26 +122,36 @@ def find_renders(out_dir) -> list[dict]:
         wavs = sorted(p.name for p in sub.iterdir() if p.suffix.lower() == ".wav" and safe_member(root, p, WAV_MAGIC))
         if not wavs:
             continue
-        found.append({
-            "folder": sub.name,
-            "eye": "eye.png" if safe_member(root, sub / "eye.png", PNG_MAGIC) else None,
-            "ab": [n for n in AB_CLIPS if n in wavs],
-            "true_level": [n for n in wavs if n in TRUE_LEVEL_CLIPS],
-            "other": [n for n in wavs if n not in AB_CLIPS and n not in TRUE_LEVEL_CLIPS],
-        })
+        found.append(
+            {
+                "folder": sub.name,
+                "eye": "eye.png" if safe_member(root, sub / "eye.png", PNG_MAGIC) else None,
+                "ab": [n for n in AB_CLIPS if n in wavs],
+                "true_level": [n for n in wavs if n in TRUE_LEVEL_CLIPS],
+                "other": [n for n in wavs if n not in AB_CLIPS and n not in TRUE_LEVEL_CLIPS],
+            }
+        )
     return found
 
 
 # -- rebuilding the case ---------------------------------------------------------
 
+
 def rebuild_filter(doc: dict, case: dict):
     """The case's filter, designed again exactly as the sweep designed it."""
     from ..filters import FilterSpec, design
 
-    spec = FilterSpec(case["response"], case["family"], int(case["order"]), case["design_low_hz"],
-                      case["design_high_hz"], ripple_db=doc["grid"]["ripple_db"],
-                      stopband_db=doc["grid"]["stopband_db"], stage=doc["chain"]["stage"],
-                      fs_hz=doc["input"]["sample_rate_hz"])
+    spec = FilterSpec(
+        case["response"],
+        case["family"],
+        int(case["order"]),
+        case["design_low_hz"],
+        case["design_high_hz"],
+        ripple_db=doc["grid"]["ripple_db"],
+        stopband_db=doc["grid"]["stopband_db"],
+        stage=doc["chain"]["stage"],
+        fs_hz=doc["input"]["sample_rate_hz"],
+    )
     return design(spec)
 
 

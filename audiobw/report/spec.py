@@ -58,8 +58,11 @@ CHAIN_FIELDS = {
     "input_gain_db": ("gain applied to the file's program", "dB"),
     "anti_alias": ("anti-alias model (none: everything above fs/2 folds; ideal: a brick-wall at fs/2)", ""),
 }
-SUMMARY_KEYS = (("id", "response", "family", "order", "low_hz", "high_hz") + registry.keys(1, "summary")
-                + ("passes", "fails", "margins_db"))
+SUMMARY_KEYS = (
+    ("id", "response", "family", "order", "low_hz", "high_hz")
+    + registry.keys(1, "summary")
+    + ("passes", "fails", "margins_db")
+)
 
 
 def _summary(case: dict, ref: dict | None = None) -> dict:
@@ -84,21 +87,34 @@ def neighbours(cases: list[dict], subject: dict) -> dict:
     The runner-up is the passing case the choice rule would take if the
     subject were removed (None when no other case passes).
     """
-    same = [c for c in cases if c["family"] == subject["family"] and c["order"] == subject["order"]
-            and c["id"] != subject["id"]]
+    same = [
+        c
+        for c in cases
+        if c["family"] == subject["family"] and c["order"] == subject["order"] and c["id"] != subject["id"]
+    ]
     narrower = [c for c in same if c["bandwidth_hz"] < subject["bandwidth_hz"]]
     wider = [c for c in same if c["bandwidth_hz"] > subject["bandwidth_hz"]]
     nn = max(narrower, key=lambda c: (c["bandwidth_hz"], -c["enbw_hz"], -c["id"])) if narrower else None
     nw = min(wider, key=lambda c: (c["bandwidth_hz"], c["enbw_hz"], c["id"])) if wider else None
     passing = [c for c in cases if c["passes"] and c["id"] != subject["id"]]
     ru = min(passing, key=lambda c: (c["bandwidth_hz"], c["enbw_hz"], c["order"], c["id"])) if passing else None
-    return {"next_narrower": _summary(nn, subject) if nn else None,
-            "next_wider": _summary(nw, subject) if nw else None,
-            "runner_up": _summary(ru, subject) if ru else None}
+    return {
+        "next_narrower": _summary(nn, subject) if nn else None,
+        "next_wider": _summary(nw, subject) if nw else None,
+        "runner_up": _summary(ru, subject) if ru else None,
+    }
 
 
-DATA_LINK_KEYS = ("eye_fraction", "eye_opening_v", "q", "ber", "jitter_pp_ui", "sample_delay_ui", "eye_ideal",
-                  "q_ideal")
+DATA_LINK_KEYS = (
+    "eye_fraction",
+    "eye_opening_v",
+    "q",
+    "ber",
+    "jitter_pp_ui",
+    "sample_delay_ui",
+    "eye_ideal",
+    "q_ideal",
+)
 
 
 def _data_link(doc: dict, subject: dict) -> dict | None:
@@ -118,9 +134,20 @@ def _targets(doc: dict, subject: dict, binding: str | None) -> list[dict]:
             continue
         label, metric, unit, sense = target_info(key)
         margin = subject["margins_db"].get(key)
-        out.append({"key": key, "label": label, "metric": metric, "sense": "min" if sense == "≥" else "max",
-                    "limit": doc["targets"][key], "unit": unit, "value": subject.get(metric),
-                    "margin_db": margin, "met": key not in subject["fails"], "binding": key == binding})
+        out.append(
+            {
+                "key": key,
+                "label": label,
+                "metric": metric,
+                "sense": "min" if sense == "≥" else "max",
+                "limit": doc["targets"][key],
+                "unit": unit,
+                "value": subject.get(metric),
+                "margin_db": margin,
+                "met": key not in subject["fails"],
+                "binding": key == binding,
+            }
+        )
     return out
 
 
@@ -138,34 +165,81 @@ def build_spec(run: dict) -> dict:
     filt = rebuild_filter(doc, subject)
     chain = rebuild_chain(doc)
     binding = choice.get("binding") if choice else None
-    ser_best = max((c for c in cases if c.get("ser_db") is not None), key=lambda c: (c["ser_db"], -c["id"]),
-                   default=None)
+    ser_best = max(
+        (c for c in cases if c.get("ser_db") is not None), key=lambda c: (c["ser_db"], -c["id"]), default=None
+    )
     inp = doc["input"]
     unmet = []
     for key, best in (doc.get("unmet") or {}).items():
         label, metric, unit, sense = target_info(key)
-        unmet.append({"key": key, "label": label, "metric": metric, "sense": "min" if sense == "≥" else "max",
-                      "limit": doc["targets"][key], "unit": unit, "best": best})
-    conflicts = [{"targets": list(c["targets"]), "edge": c.get("edge"), "needs": c["needs"],
-                  "text": conflict_text(c, doc["targets"], hz=lambda v: fmt(v, "Hz")).removeprefix("Conflict: ")}
-                 for c in doc.get("conflicts") or []]
-    chain_rows = [{"key": k, "label": CHAIN_FIELDS.get(k, (k, ""))[0], "value": _chain_value(k, v),
-                   "unit": CHAIN_FIELDS.get(k, (k, ""))[1]} for k, v in doc["chain"].items()]
+        unmet.append(
+            {
+                "key": key,
+                "label": label,
+                "metric": metric,
+                "sense": "min" if sense == "≥" else "max",
+                "limit": doc["targets"][key],
+                "unit": unit,
+                "best": best,
+            }
+        )
+    conflicts = [
+        {
+            "targets": list(c["targets"]),
+            "edge": c.get("edge"),
+            "needs": c["needs"],
+            "text": conflict_text(c, doc["targets"], hz=lambda v: fmt(v, "Hz")).removeprefix("Conflict: "),
+        }
+        for c in doc.get("conflicts") or []
+    ]
+    chain_rows = [
+        {
+            "key": k,
+            "label": CHAIN_FIELDS.get(k, (k, ""))[0],
+            "value": _chain_value(k, v),
+            "unit": CHAIN_FIELDS.get(k, (k, ""))[1],
+        }
+        for k, v in doc["chain"].items()
+    ]
     spec = {
-        "tool": "audiobw", "version": __version__, "spec_version": SPEC_VERSION,
-        "sweep": {"file": "sweep.json", "sha256": run["sweep_sha256"], "version": doc.get("version"),
-                  "spectrum_file": "spectrum.npz" if run["spectrum"] is not None else None},
-        "input": {k: inp.get(k) for k in ("path", "sha256", "sample_rate_hz", "channels", "duration_s",
-                                          "peak_dbfs", "rms_dbfs", "occupied_bw_hz", "occupied_low_hz",
-                                          "occupied_high_hz")},
+        "tool": "audiobw",
+        "version": __version__,
+        "spec_version": SPEC_VERSION,
+        "sweep": {
+            "file": "sweep.json",
+            "sha256": run["sweep_sha256"],
+            "version": doc.get("version"),
+            "spectrum_file": "spectrum.npz" if run["spectrum"] is not None else None,
+        },
+        "input": {
+            k: inp.get(k)
+            for k in (
+                "path",
+                "sha256",
+                "sample_rate_hz",
+                "channels",
+                "duration_s",
+                "peak_dbfs",
+                "rms_dbfs",
+                "occupied_bw_hz",
+                "occupied_low_hz",
+                "occupied_high_hz",
+            )
+        },
         "status": "chosen" if choice else "no_passing_case",
         "subject": {"role": role, "case": subject["id"], "passes": subject["passes"], "fails": subject["fails"]},
         "filter": {
-            "response": subject["response"], "family": subject["family"], "order": subject["order"],
-            "poles": subject["poles"], "stage": doc["chain"]["stage"],
-            "low_hz": subject["low_hz"], "high_hz": subject["high_hz"],
-            "design_low_hz": subject["design_low_hz"], "design_high_hz": subject["design_high_hz"],
-            "bandwidth_hz": subject["bandwidth_hz"], "enbw_hz": subject["enbw_hz"],
+            "response": subject["response"],
+            "family": subject["family"],
+            "order": subject["order"],
+            "poles": subject["poles"],
+            "stage": doc["chain"]["stage"],
+            "low_hz": subject["low_hz"],
+            "high_hz": subject["high_hz"],
+            "design_low_hz": subject["design_low_hz"],
+            "design_high_hz": subject["design_high_hz"],
+            "bandwidth_hz": subject["bandwidth_hz"],
+            "enbw_hz": subject["enbw_hz"],
             "stopband_design_db": doc["grid"]["stopband_db"] if subject["family"] == "elliptic" else None,
             "alias_rejection_db": subject.get("alias_rejection_db"),
         },
@@ -175,8 +249,13 @@ def build_spec(run: dict) -> dict:
         "noise": noise_figures(chain, filt, doc, subject),
         "program": {k: subject.get(k) for k in ("snr_db", "snr_a_db", "loss_db", "lsd_db", "ser_db")},
         "data_link": _data_link(doc, subject),
-        "thdn": {"tone_hz": doc["meter"]["tone_hz"], "tone_level_dbfs": doc["meter"]["tone_level_dbfs"],
-                 "pct": subject.get("thdn_pct"), "db": subject.get("thdn_db"), "note": subject.get("thdn_note")},
+        "thdn": {
+            "tone_hz": doc["meter"]["tone_hz"],
+            "tone_level_dbfs": doc["meter"]["tone_level_dbfs"],
+            "pct": subject.get("thdn_pct"),
+            "db": subject.get("thdn_db"),
+            "note": subject.get("thdn_note"),
+        },
         "chain": chain_rows,
         "targets": _targets(doc, subject, binding),
         "binding": binding,
@@ -186,9 +265,17 @@ def build_spec(run: dict) -> dict:
         "unmet": unmet,
         "conflicts": conflicts,
         "neighbours": neighbours(cases, subject),
-        "ser_optimum": ({"case": ser_best["id"], "bandwidth_hz": ser_best["bandwidth_hz"],
-                         "ser_db": ser_best["ser_db"], "family": ser_best["family"], "order": ser_best["order"]}
-                        if ser_best else None),
+        "ser_optimum": (
+            {
+                "case": ser_best["id"],
+                "bandwidth_hz": ser_best["bandwidth_hz"],
+                "ser_db": ser_best["ser_db"],
+                "family": ser_best["family"],
+                "order": ser_best["order"],
+            }
+            if ser_best
+            else None
+        ),
         "cases_total": len(cases),
         "cases_passing": sum(1 for c in cases if c["passes"]),
         "meter": doc["meter"],

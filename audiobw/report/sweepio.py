@@ -16,8 +16,12 @@ from .. import registry
 from ..audio import write_text_atomic
 from ..names import csv_cell
 
-CSV_KEYS = (("id", "response", "family", "order", "poles", "low_hz", "high_hz") + registry.keys(1, "csv")
-            + ("passes", "fails") + registry.keys(2, "csv"))
+CSV_KEYS = (
+    ("id", "response", "family", "order", "poles", "low_hz", "high_hz")
+    + registry.keys(1, "csv")
+    + ("passes", "fails")
+    + registry.keys(2, "csv")
+)
 
 
 def dumps(doc: dict) -> str:

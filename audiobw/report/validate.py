@@ -48,6 +48,7 @@ def _refuse(path, parts, what: str):
 
 def loads(path, raw: bytes):
     """Parse sweep.json text; NaN, Infinity and duplicate keys are refused."""
+
     def no_constant(name):
         raise ValueError(f"non-finite number {name}")
 
@@ -135,15 +136,20 @@ def validate_sweep(doc, path) -> None:
             _number(doc, ["cases", i, key], path, positive=True, null=True)
         if c.get("response") != grid["response"]:
             _refuse(path, ["cases", i, "response"], f"{_short(c.get('response'))} differs from /grid/response")
-        for key, need in (("low_hz", c.get("response") in ("highpass", "bandpass")),
-                          ("high_hz", c.get("response") in ("lowpass", "bandpass"))):
+        for key, need in (
+            ("low_hz", c.get("response") in ("highpass", "bandpass")),
+            ("high_hz", c.get("response") in ("lowpass", "bandpass")),
+        ):
             if need:
                 _number(doc, ["cases", i, key], path, positive=True)
     choice = doc["choice"]
     if choice is not None:
         if not isinstance(choice, dict) or choice.get("case") not in ids:
-            _refuse(path, ["choice", "case"], f"{_short(choice.get('case') if isinstance(choice, dict) else choice)} "
-                    "names no case in /cases")
+            _refuse(
+                path,
+                ["choice", "case"],
+                f"{_short(choice.get('case') if isinstance(choice, dict) else choice)} names no case in /cases",
+            )
         nn = choice.get("next_narrower")
         if nn is not None and nn not in ids:
             _refuse(path, ["choice", "next_narrower"], f"{_short(nn)} names no case in /cases")
@@ -154,8 +160,11 @@ def validate_sweep(doc, path) -> None:
         _number(doc, ["input", key], path)
     lo, hi = doc["input"]["occupied_low_hz"], doc["input"]["occupied_high_hz"]
     if not 0 <= lo < hi <= fs / 2:
-        _refuse(path, ["input", "occupied_high_hz"], f"occupied band {_short(lo)} to {_short(hi)} Hz is not inside "
-                f"0 to fs/2 = {fs / 2:g} Hz with low < high")
+        _refuse(
+            path,
+            ["input", "occupied_high_hz"],
+            f"occupied band {_short(lo)} to {_short(hi)} Hz is not inside 0 to fs/2 = {fs / 2:g} Hz with low < high",
+        )
     chain = doc["chain"]
     for key, (low, high, null) in CHAIN_LIMITS.items():
         v = chain.get(key)
@@ -170,8 +179,9 @@ def validate_sweep(doc, path) -> None:
             _refuse(path, ["cases", i, "margins_db"], f"{_short(c.get('margins_db'))} is not an object of margins")
     for i, c in enumerate(doc.get("conflicts") or []):
         if choice is not None:
-            _refuse(path, ["conflicts", i], "a conflict beside a choice (conflicts are listed only when no case "
-                    "passes)")
+            _refuse(
+                path, ["conflicts", i], "a conflict beside a choice (conflicts are listed only when no case passes)"
+            )
         for j, key in enumerate(c.get("targets", [])):
             if key not in doc["targets"]:
                 _refuse(path, ["conflicts", i, "targets", j], f"{_short(key)} is not a target of /targets")
@@ -208,6 +218,7 @@ CHAIN_LIMITS = {
     "h3_db": (-400.0, 0.0, True),
 }
 
+
 def _check_en_table(chain: dict, path) -> None:
     """``chain.en_table``: null, or the rows --en-table accepts, its top row's e_n equal to ``en_v_rthz``."""
     from ..entable import check_rows
@@ -225,8 +236,11 @@ def _check_en_table(chain: dict, path) -> None:
     except ParameterError as exc:
         _refuse(path, ["chain", "en_table"], str(exc).split(";")[0])
     if rows[-1][1] != chain.get("en_v_rthz"):
-        _refuse(path, ["chain", "en_v_rthz"], f"{_short(chain.get('en_v_rthz'))} is not the e_n of the table's top "
-                f"row ({rows[-1][1]!r})")
+        _refuse(
+            path,
+            ["chain", "en_v_rthz"],
+            f"{_short(chain.get('en_v_rthz'))} is not the e_n of the table's top row ({rows[-1][1]!r})",
+        )
 
 
 NPZ_ACCEPTED = "accepted: the spectrum.npz written by the same audiobw sweep"
@@ -251,7 +265,8 @@ def load_spectrum(npz, doc) -> dict:
     if str(sha) != doc["input"]["sha256"]:
         raise AudioFileError(
             f"{npz}: its program (sha256 {str(sha)[:12]}…) is not the one in sweep.json "
-            f"({doc['input']['sha256'][:12]}…); accepted: the spectrum.npz written by the same sweep")
+            f"({doc['input']['sha256'][:12]}…); accepted: the spectrum.npz written by the same sweep"
+        )
     f, psd, w = spectrum["freqs_hz"], spectrum["psd"], spectrum["weights_hz"]
 
     def bad(what):
@@ -275,10 +290,16 @@ def load_spectrum(npz, doc) -> dict:
         bad(f"sample_rate_hz {sr!r} is not sweep.json's {doc['input']['sample_rate_hz']} Hz")
     if f[-1] > int(sr) / 2 * (1 + 1e-9):
         bad(f"freqs_hz reaches {f[-1]:g} Hz, above fs/2 = {int(sr) / 2:g} Hz")
-    if "band_frames" in spectrum:   # the masking plot's input (sweeps before it lack it: no plot)
+    if "band_frames" in spectrum:  # the masking plot's input (sweeps before it lack it: no plot)
         e, bf = spectrum.get("band_edges_hz"), spectrum["band_frames"]
-        if e is None or e.ndim != 1 or e.size < 2 or e.dtype.kind not in "fiu" or not np.all(np.isfinite(e)) \
-                or np.any(np.diff(e) <= 0):
+        if (
+            e is None
+            or e.ndim != 1
+            or e.size < 2
+            or e.dtype.kind not in "fiu"
+            or not np.all(np.isfinite(e))
+            or np.any(np.diff(e) <= 0)
+        ):
             bad("band_edges_hz is not a rising row of band edges")
         if bf.ndim != 2 or bf.dtype.kind not in "fiu" or bf.shape[1] != e.size - 1 or bf.shape[0] < 1:
             bad(f"band_frames has shape {bf.shape}; accepted: (frames, {e.size - 1}) numbers")

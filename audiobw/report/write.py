@@ -42,14 +42,15 @@ def write_report(out_dir, *, plots: bool = True, html: bool = True) -> dict[str,
     with output_lock(run["dir"]):
         try:
             return _write_report(run, plots, html)
-        except (KeyError, TypeError, ValueError, IndexError, ZeroDivisionError, OverflowError,
-                AttributeError) as exc:
+        except (KeyError, TypeError, ValueError, IndexError, ZeroDivisionError, OverflowError, AttributeError) as exc:
             if isinstance(exc, AudiobwError):
                 raise
             # validate_sweep holds the known rules; a value combination they miss still ends in one line
-            raise AudioFileError(f"{run['dir'] / 'sweep.json'}: inconsistent content ({type(exc).__name__}: "
-                                 f"{str(exc)[:120]}); accepted: a sweep.json as written by audiobw sweep "
-                                 "(docs/sweep.schema.json)") from exc
+            raise AudioFileError(
+                f"{run['dir'] / 'sweep.json'}: inconsistent content ({type(exc).__name__}: "
+                f"{str(exc)[:120]}); accepted: a sweep.json as written by audiobw sweep "
+                "(docs/sweep.schema.json)"
+            ) from exc
 
 
 def _input_candidates(run) -> list:
