@@ -14,7 +14,7 @@ from pathlib import Path
 import click
 
 from .cautions import ESTIMATE_CAUTION, LISTENING_CAUTION  # noqa: F401  (the commands take them from here)
-from .options import OPTIONS, option_name
+from .options import CHAIN_KEYS, GRID_KEYS, METER_KEYS, OPTIONS, PROGRAM_KEYS, option_name
 from .registry import TARGET_OPTION
 
 CONTEXT = dict(help_option_names=["-h", "--help"], max_content_width=100)
@@ -36,32 +36,9 @@ def options(keys, group: str):
     return deco
 
 
-CHAIN = (
-    "source_ohms",
-    "temperature",
-    "input_level",
-    "gain",
-    "en",
-    "in",
-    "h2",
-    "h3",
-    "amp_bandwidth",
-    "bits",
-    "full_scale",
-    "dither",
-    "stage",
-    "anti_alias",
-    "source_level",
-    "spl",
-    "mic_sensitivity",
-    "en_corner",
-    "en_table",
-    "in_corner",
-)
-GRID = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
+CHAIN, GRID = CHAIN_KEYS, GRID_KEYS  # the groups of audiobw.options
 TARGETS = tuple(TARGET_OPTION)  # in target rank order (audiobw.registry)
-PROGRAM = ("program", "bit_rate", "playback_spl", "hearing_threshold")
-METER = ("meter", "tone", "tone_level")
+PROGRAM, METER = PROGRAM_KEYS, METER_KEYS
 
 
 def cli_values(kwargs) -> dict:
@@ -70,7 +47,7 @@ def cli_values(kwargs) -> dict:
 
 def default_chain_line(kwargs, chain_file, settings) -> str | None:
     """'No chain given; ...' when neither a chain file nor any chain option was given, else None."""
-    from .settings import CHAIN_KEYS, default_chain_text
+    from .settings import default_chain_text
 
     if chain_file or any(v is not None for k, v in cli_values(kwargs).items() if k in CHAIN_KEYS):
         return None

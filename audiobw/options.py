@@ -123,6 +123,34 @@ OPTIONS: dict[str, tuple[str, str, str]] = {
 OPTIONS.update(target_options())  # the targets, from the one table of metrics
 
 
+#: The option groups (CLI help sections and TOML sections' keys), in --help order.
+CHAIN_KEYS = (
+    "source_ohms",
+    "temperature",
+    "input_level",
+    "gain",
+    "en",
+    "in",
+    "h2",
+    "h3",
+    "amp_bandwidth",
+    "bits",
+    "full_scale",
+    "dither",
+    "stage",
+    "anti_alias",
+    "source_level",
+    "spl",
+    "mic_sensitivity",
+    "en_corner",
+    "en_table",
+    "in_corner",
+)
+GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
+PROGRAM_KEYS = ("program", "bit_rate", "playback_spl", "hearing_threshold")
+METER_KEYS = ("meter", "tone", "tone_level")
+
+
 def option_name(key: str) -> str:
     """The command-line spelling of a key: ``source_ohms`` -> ``--source-ohms``."""
     return "--" + key.replace("_", "-")

@@ -31,32 +31,17 @@ from .chain import Chain
 from .errors import ConfigError, ParameterError
 from .metrics import Meter
 from .registry import FIDELITY_TARGETS, TARGET_OPTION
-from .options import FAMILIES, FAMILY_ALIASES, MAX_ORDER, MIN_ORDER, OPTIONS, RESPONSE_ALIASES, option_name
-
-CHAIN_KEYS = (
-    "source_ohms",
-    "temperature",
-    "input_level",
-    "gain",
-    "en",
-    "in",
-    "h2",
-    "h3",
-    "amp_bandwidth",
-    "bits",
-    "full_scale",
-    "dither",
-    "stage",
-    "anti_alias",
-    "source_level",
-    "spl",
-    "mic_sensitivity",
-    "en_corner",
-    "en_table",
-    "in_corner",
+from .options import (
+    FAMILIES,
+    FAMILY_ALIASES,
+    GRID_KEYS,
+    MAX_ORDER,
+    MIN_ORDER,
+    OPTIONS,
+    RESPONSE_ALIASES,
+    option_name,
 )
-GRID_KEYS = ("response", "family", "order", "cutoffs", "low_edges", "high_edges", "ripple", "stopband", "rank", "tie")
-METER_KEYS = ("meter", "tone", "tone_level")
+
 MAX_TOML_BYTES = 1_000_000  # a chain file is a few hundred bytes; more is a mistake or hostile
 
 

@@ -69,3 +69,32 @@ def clean_stream(tmp_path_factory, prefix: str):
     stream = d / "b.flac"
     assert main(["bits", "--bit-rate", "1200", "--bits-count", "1024", "--out", str(stream)]) == 0
     return d, stream
+
+
+def sweep_data_stream(stream, out, cutoffs: str) -> int:
+    """``audiobw sweep`` of a 1200 bit/s stream as a data program, eye target 50 %, Bessel 4 lowpass
+    at ``cutoffs``, into ``out``; the exit status."""
+    from audiobw.cli import main
+
+    return main(
+        [
+            "sweep",
+            str(stream),
+            "--program",
+            "data",
+            "--bit-rate",
+            "1200",
+            "--min-eye",
+            "0.5",
+            "--response",
+            "lowpass",
+            "--family",
+            "bessel",
+            "--order",
+            "4",
+            "--cutoffs",
+            cutoffs,
+            "--out",
+            str(out),
+        ]
+    )

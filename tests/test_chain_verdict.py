@@ -9,7 +9,7 @@ import pytest
 
 from audiobw.cli import main
 
-from .conftest import clean_stream
+from .conftest import clean_stream, sweep_data_stream
 
 
 @pytest.fixture(scope="module")
@@ -69,31 +69,7 @@ def test_eye_target_prints_as_a_percentage(tmp_path, capsys):
     stream = tmp_path / "b.flac"
     assert main(["bits", "--bit-rate", "1200", "--bits-count", "1024", "--out", str(stream)]) == 0
     out = tmp_path / "s"
-    assert (
-        main(
-            [
-                "sweep",
-                str(stream),
-                "--program",
-                "data",
-                "--bit-rate",
-                "1200",
-                "--min-eye",
-                "0.5",
-                "--response",
-                "lowpass",
-                "--family",
-                "bessel",
-                "--order",
-                "4",
-                "--cutoffs",
-                "1k:8k:3",
-                "--out",
-                str(out),
-            ]
-        )
-        == 0
-    )
+    assert sweep_data_stream(stream, out, "1k:8k:3") == 0
     assert main(["report", str(out)]) == 0
     md = (out / "spec.md").read_text()
     targets = md.split("### Targets")[1].split("###")[0]

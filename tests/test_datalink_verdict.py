@@ -7,9 +7,8 @@ import math
 
 import pytest
 
-from audiobw.cli import main
 
-from .conftest import clean_stream
+from .conftest import clean_stream, sweep_data_stream
 from audiobw.report.text import Q_FLOOR, q_text
 
 
@@ -23,31 +22,7 @@ def test_a_choice_below_the_nyquist_minimum_is_explained(narrow_choice, capsys):
     d, stream = narrow_choice
     capsys.readouterr()
     out = d / "s"
-    assert (
-        main(
-            [
-                "sweep",
-                str(stream),
-                "--program",
-                "data",
-                "--bit-rate",
-                "1200",
-                "--min-eye",
-                "0.5",
-                "--response",
-                "lowpass",
-                "--family",
-                "bessel",
-                "--order",
-                "4",
-                "--cutoffs",
-                "300:8k:8",
-                "--out",
-                str(out),
-            ]
-        )
-        == 0
-    )
+    assert sweep_data_stream(stream, out, "300:8k:8") == 0
     text = capsys.readouterr().out
     doc = json.loads((out / "sweep.json").read_text())
     chosen = next(c for c in doc["cases"] if c["id"] == doc["choice"]["case"])
@@ -61,31 +36,7 @@ def test_a_choice_below_the_nyquist_minimum_is_explained(narrow_choice, capsys):
 def test_a_choice_above_the_nyquist_minimum_needs_no_explanation(narrow_choice, capsys):
     d, stream = narrow_choice
     capsys.readouterr()
-    assert (
-        main(
-            [
-                "sweep",
-                str(stream),
-                "--program",
-                "data",
-                "--bit-rate",
-                "1200",
-                "--min-eye",
-                "0.5",
-                "--response",
-                "lowpass",
-                "--family",
-                "bessel",
-                "--order",
-                "4",
-                "--cutoffs",
-                "1k:8k:3",
-                "--out",
-                str(d / "w"),
-            ]
-        )
-        == 0
-    )
+    assert sweep_data_stream(stream, d / "w", "1k:8k:3") == 0
     assert "narrower than 1/(2T)" not in capsys.readouterr().out
 
 

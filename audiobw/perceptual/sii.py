@@ -28,78 +28,28 @@ from __future__ import annotations
 import numpy as np
 
 #: Table 3: band centre frequencies F_i (Hz).
-CENTRES_HZ = np.array(
-    [160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250, 1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000], float
-)
+# fmt: off
+CENTRES_HZ = np.array([160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250,
+                       1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000], float)
+# fmt: on
 #: Table 3: band importance I_i (average speech).
-IMPORTANCE = np.array(
-    [
-        0.0083,
-        0.0095,
-        0.0150,
-        0.0289,
-        0.0440,
-        0.0578,
-        0.0653,
-        0.0711,
-        0.0818,
-        0.0844,
-        0.0882,
-        0.0898,
-        0.0868,
-        0.0844,
-        0.0771,
-        0.0527,
-        0.0364,
-        0.0185,
-    ]
-)
+# fmt: off
+IMPORTANCE = np.array([0.0083, 0.0095, 0.0150, 0.0289, 0.0440, 0.0578, 0.0653,
+                       0.0711, 0.0818, 0.0844, 0.0882, 0.0898, 0.0868, 0.0844,
+                       0.0771, 0.0527, 0.0364, 0.0185])
+# fmt: on
 #: Table 3: standard speech spectrum level U_i, normal vocal effort (dB SPL/Hz).
-SPEECH_NORMAL_DB = np.array(
-    [
-        32.41,
-        34.48,
-        34.75,
-        33.98,
-        34.59,
-        34.27,
-        32.06,
-        28.30,
-        25.01,
-        23.00,
-        20.15,
-        17.32,
-        13.18,
-        11.55,
-        9.33,
-        5.31,
-        2.59,
-        1.13,
-    ]
-)
+# fmt: off
+SPEECH_NORMAL_DB = np.array([32.41, 34.48, 34.75, 33.98, 34.59, 34.27, 32.06,
+                             28.30, 25.01, 23.00, 20.15, 17.32, 13.18, 11.55,
+                             9.33, 5.31, 2.59, 1.13])
+# fmt: on
 #: Table 3: reference internal noise spectrum level X'_i (dB SPL/Hz).
-INTERNAL_NOISE_DB = np.array(
-    [
-        0.6,
-        -1.7,
-        -3.9,
-        -6.1,
-        -8.2,
-        -9.7,
-        -10.8,
-        -11.9,
-        -12.5,
-        -13.5,
-        -15.4,
-        -17.7,
-        -21.2,
-        -24.2,
-        -25.9,
-        -23.6,
-        -15.8,
-        -7.1,
-    ]
-)
+# fmt: off
+INTERNAL_NOISE_DB = np.array([0.6, -1.7, -3.9, -6.1, -8.2, -9.7, -10.8, -11.9,
+                              -12.5, -13.5, -15.4, -17.7, -21.2, -24.2, -25.9,
+                              -23.6, -15.8, -7.1])
+# fmt: on
 #: Overall level of the standard speech spectrum at normal vocal effort (dB SPL),
 #: ANSI S3.5-1997 Table 3 / clause 3.
 NORMAL_EFFORT_SPL_DB = 62.35

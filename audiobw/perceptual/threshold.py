@@ -23,75 +23,19 @@ from __future__ import annotations
 
 import numpy as np
 
-# ISO 226:2003 Table 1: frequencies (Hz) and T_f (dB SPL).  Values from memory;
-# cross-checked against the public transcription used in common ISO 226 code.
-ISO226_FREQS_HZ = np.array(
-    [
-        20,
-        25,
-        31.5,
-        40,
-        50,
-        63,
-        80,
-        100,
-        125,
-        160,
-        200,
-        250,
-        315,
-        400,
-        500,
-        630,
-        800,
-        1000,
-        1250,
-        1600,
-        2000,
-        2500,
-        3150,
-        4000,
-        5000,
-        6300,
-        8000,
-        10000,
-        12500,
-    ],
-    dtype=float,
-)
-ISO226_TF_DB = np.array(
-    [
-        78.5,
-        68.7,
-        59.5,
-        51.1,
-        44.0,
-        37.5,
-        31.5,
-        26.5,
-        22.1,
-        17.9,
-        14.4,
-        11.4,
-        8.6,
-        6.2,
-        4.4,
-        3.0,
-        2.2,
-        2.4,
-        3.5,
-        1.7,
-        -1.3,
-        -4.2,
-        -6.0,
-        -5.4,
-        -1.5,
-        6.0,
-        12.6,
-        13.9,
-        12.3,
-    ]
-)
+# ISO 226:2003 Table 1: frequencies (Hz) and T_f (dB SPL).  Values from memory.
+# fmt: off
+ISO226_FREQS_HZ = np.array([
+    20, 25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630,
+    800, 1000, 1250, 1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000, 10000,
+    12500], dtype=float)
+# fmt: on
+# fmt: off
+ISO226_TF_DB = np.array([
+    78.5, 68.7, 59.5, 51.1, 44.0, 37.5, 31.5, 26.5, 22.1, 17.9, 14.4, 11.4,
+    8.6, 6.2, 4.4, 3.0, 2.2, 2.4, 3.5, 1.7, -1.3, -4.2, -6.0, -5.4, -1.5, 6.0,
+    12.6, 13.9, 12.3])
+# fmt: on
 
 # ISO 389-7:2005 Table 1 free-field reference thresholds above ISO 226's range
 # (dB SPL).  From memory: verify against the standard before relying on them
