@@ -525,7 +525,11 @@ def _tabled(spec: FilterSpec):
     """The shipped normalised prototype for ``spec`` (audiobw._prototypes), or None."""
     from ._prototypes import TABLE
 
-    ripple = float(spec.ripple_db) if spec.family == "chebyshev1" else None
+    ripple: object = None
+    if spec.family == "chebyshev1":
+        ripple = float(spec.ripple_db)
+    elif spec.family == "elliptic":
+        ripple = (float(spec.ripple_db), float(spec.stopband_db))
     return TABLE.get((spec.response, spec.family, int(spec.order), ripple))
 
 

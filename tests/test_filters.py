@@ -216,12 +216,15 @@ def test_edges_of_a_very_wide_digital_bessel_bandpass():
 
 
 def _scipy_prototype(response, family, order, ripple):
-    """Reference: scipy.signal.butter / bessel(norm='mag') / cheby1, analog, output='zpk', 1 rad/s."""
+    """Reference: scipy.signal.butter / bessel(norm='mag') / cheby1 / ellip, analog, output='zpk', 1 rad/s."""
     kw = dict(btype=response, analog=True, output="zpk")
     if family == "butterworth":
         return signal.butter(order, 1.0, **kw)
     if family == "bessel":
         return signal.bessel(order, 1.0, norm="mag", **kw)
+    if family == "elliptic":
+        rp, rs = ripple
+        return signal.ellip(order, rp, rs, 1.0, **kw)
     return signal.cheby1(order, ripple, 1.0, **kw)
 
 
@@ -233,7 +236,8 @@ def _sorted(x):
 def test_prototype_table_matches_scipy_signal():
     from audiobw._prototypes import TABLE
 
-    assert len(TABLE) == 2 * (2 + 3) * 8  # lp/hp x (butterworth, bessel, 3 chebyshev ripples) x orders
+    # lp/hp x (butterworth, bessel, 3 chebyshev ripples, 3 elliptic ripples at 60 dB stopband) x orders
+    assert len(TABLE) == 2 * (2 + 3 + 3) * 8
     for (response, family, order, ripple), (z, p, k, gram, (upward, ratio)) in TABLE.items():
         zr, pr, kr = _scipy_prototype(response, family, order, ripple)
         assert len(z) == len(zr) and len(p) == len(pr)
@@ -255,7 +259,7 @@ def test_prototype_table_matches_scipy_signal():
         assert 2 * gram == pytest.approx(2 * val / math.pi, rel=1e-6, abs=1e-9)
 
 
-@pytest.mark.parametrize("family", ["butterworth", "bessel", "chebyshev1"])
+@pytest.mark.parametrize("family", ["butterworth", "bessel", "chebyshev1", "elliptic"])
 @pytest.mark.parametrize("response", ["lowpass", "highpass"])
 def test_tabled_design_equals_scipy_designed(family, response):
     for order in (1, 3, 8):
@@ -271,7 +275,7 @@ def test_tabled_design_equals_scipy_designed(family, response):
 
 
 def test_sweep_imports_no_heavy_scipy(tmp_path):
-    """A Butterworth/Bessel/Chebyshev sweep runs without scipy.signal/stats/optimize/interpolate."""
+    """A sweep of the four families (default ripple and stopband) runs without scipy.signal/stats/optimize/interpolate."""
     import subprocess
     import sys
     from pathlib import Path
@@ -280,7 +284,7 @@ def test_sweep_imports_no_heavy_scipy(tmp_path):
     code = (
         "import sys\n"
         "from audiobw.cli import main\n"
-        f"args = ['sweep', {str(clip)!r}, '--family', 'butterworth,bessel,chebyshev1', '--order', '2,4',\n"
+        f"args = ['sweep', {str(clip)!r}, '--family', 'butterworth,bessel,chebyshev1,elliptic', '--order', '2,3,4',\n"
         f"        '--cutoffs', '2k:20k:8', '--max-loss', '0.5', '--out', {str(tmp_path / 'o')!r}]\n"
         "try:\n    rc = main(args)\nexcept SystemExit as e:\n    rc = e.code\n"
         "heavy = sorted(m for m in sys.modules if m.split('.')[:2] in\n"
