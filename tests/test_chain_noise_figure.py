@@ -49,3 +49,10 @@ def test_ein_of_a_150_ohm_source_over_20_khz():
     noisy = Chain(source_ohms=150.0, en_v_rthz=1.2e-9, in_a_rthz=1.5e-12, gain_db=40.0)
     bn = budget(noisy, filt, fs, meter=(0.0, 20000.0), n_bins=1 << 16)
     assert bn["ein_dbu"] - b["ein_dbu"] == pytest.approx(bn["noise_figure_db"], abs=0.05)
+
+
+def test_boltzmann_constant_is_the_si_value():
+    """audiobw.chain.BOLTZMANN is written out; it equals scipy.constants.k exactly (SI 2019)."""
+    from audiobw.chain import BOLTZMANN
+
+    assert BOLTZMANN == K == 1.380649e-23
