@@ -7,8 +7,8 @@ pickled objects: read with ``allow_pickle=False``) keyed by
 
 * the file's SHA-256 (the same digest batch takes once per file and the
   sweep records in sweep.json ``input.sha256``), and
-* the analysis parameters: cache format, the versions of audiobw, numpy,
-  scipy and libsndfile, PSD resolution, short-frame length, frame cap and
+* the analysis parameters: cache format, the versions of audiobw, numpy and
+  libsndfile, PSD resolution, short-frame length, frame cap and
   decode block size.
 
 Folder: ``$AUDIOBW_CACHE_DIR`` if set, else ``$XDG_CACHE_HOME/audiobw/analysis``
@@ -115,7 +115,6 @@ def max_bytes() -> int:
 
 def params(blocksize: int) -> dict:
     """Everything besides the file's bytes that the analysis depends on."""
-    import scipy
     import soundfile
 
     from . import __version__, spectrum
@@ -125,7 +124,6 @@ def params(blocksize: int) -> dict:
         "format": FORMAT,
         "audiobw": __version__,
         "numpy": np.__version__,
-        "scipy": scipy.__version__,
         "libsndfile": soundfile.__libsndfile_version__,
         "psd_resolution_hz": spectrum.PSD_RESOLUTION_HZ,
         "frame_seconds": spectrum.FRAME_SECONDS,
