@@ -26,6 +26,7 @@ References
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -304,6 +305,42 @@ def _digest_unchanged(digest, path, before) -> str:
     return hex_
 
 
+def helper_threads() -> bool:
+    """Whether the pass may use helper threads beyond decoding and hashing (see :class:`_Lane`).
+
+    Off with ``AUDIOBW_THREADS=1`` (batch sets it in its workers when they
+    already fill the machine's cores): a second core then serves another file.
+    """
+    return os.environ.get("AUDIOBW_THREADS", "") != "1"
+
+
+class _Lane:
+    """Run submitted jobs one after another, in order, in one helper thread.
+
+    At most ``depth`` jobs wait; ``drain`` waits for all and raises the first
+    error there, in the caller; ``close`` drops what has not started.
+    """
+
+    def __init__(self, depth: int = 2):
+        from concurrent.futures import ThreadPoolExecutor
+
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="audiobw-fine")
+        self._pending: list = []
+        self._depth = depth
+
+    def submit(self, fn, *args) -> None:
+        self._pending.append(self._pool.submit(fn, *args))
+        while len(self._pending) > self._depth:
+            self._pending.pop(0).result()
+
+    def drain(self) -> None:
+        while self._pending:
+            self._pending.pop(0).result()
+
+    def close(self) -> None:
+        self._pool.shutdown(wait=True, cancel_futures=True)
+
+
 def _prefetched(blocks, depth: int = 2):
     """Iterate ``blocks`` with the next ones decoded in a helper thread.
 
@@ -489,67 +526,85 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     frames = 0
     near_full = 1.0 - 2.0**-15
 
-    for block_fc in _prefetched(audio.iter_blocks(path, blocksize=blocksize)):
-        if not looked_up and getattr(digest, "ready", bool)():
-            found = lookup()  # the digest came in: a hit ends the pass here
-            if found is not None:
-                return found
-        block = np.ascontiguousarray(block_fc.T)  # (channels, frames)
-        n = block.shape[1]
-        frames += n
-        block_peak = np.maximum(block.max(axis=1), -block.min(axis=1))
-        peak = np.maximum(peak, block_peak)
-        if np.any(block_peak > MAX_PEAK):
-            raise AudioFileError(_overflow_message(info.path, float(np.max(block_peak))))
-        sumsq += np.einsum("ij,ij->i", block, block)
-        sums += block.sum(axis=1)
-        if np.any(block_peak >= near_full):  # counted only where a sample can reach it
-            at_full_scale += int(np.count_nonzero(np.abs(block) >= near_full))
+    # The fine PSD's long transforms (about half of the pass's FFT work) run in
+    # a helper thread, one block after another in file order (so the sums are
+    # the same, bit for bit); numpy's FFT releases the GIL.  At most two blocks
+    # wait for it (memory stays bounded).
+    fine_lane = _Lane() if nfine and helper_threads() else None
+    try:
+        found = None
+        for block_fc in _prefetched(audio.iter_blocks(path, blocksize=blocksize)):
+            if not looked_up and getattr(digest, "ready", bool)():
+                found = lookup()  # the digest came in: a hit ends the pass here
+                if found is not None:
+                    break
+            block = np.ascontiguousarray(block_fc.T)  # (channels, frames)
+            n = block.shape[1]
+            frames += n
+            block_peak = np.maximum(block.max(axis=1), -block.min(axis=1))
+            peak = np.maximum(peak, block_peak)
+            if np.any(block_peak > MAX_PEAK):
+                raise AudioFileError(_overflow_message(info.path, float(np.max(block_peak))))
+            sumsq += np.einsum("ij,ij->i", block, block)
+            sums += block.sum(axis=1)
+            if np.any(block_peak >= near_full):  # counted only where a sample can reach it
+                at_full_scale += int(np.count_nonzero(np.abs(block) >= near_full))
 
-        buf = np.concatenate([carry, block], axis=1) if carry.size else block
-        if buf.shape[1] >= nper:
-            segs = np.lib.stride_tricks.sliding_window_view(buf, nper, axis=1)[:, ::hop]  # (ch, nseg, nper)
-            v = sfft.rfft(segs * win, axis=-1).view(np.float64)
-            np.multiply(v, v, out=v)
-            acc += v.sum(axis=1)
-            n_seg += segs.shape[1]
-            carry = buf[:, segs.shape[1] * hop :]
-        else:
-            carry = buf
-
-        if nfine:
-            buf_f = np.concatenate([carry_f, block], axis=1) if carry_f.size else block
-            if buf_f.shape[1] >= nfine:
-                done = fine_segments(buf_f)
-                n_seg_f += done
-                carry_f = buf_f[:, done * hop_f :]
-            else:
-                carry_f = buf_f
-
-        buf_s = np.concatenate([carry_s, block], axis=1) if carry_s.size else block
-        nfr = buf_s.shape[1] // nshort
-        if nfr:
-            # a frame whose index is not a multiple of the current stride is
-            # never kept (the stride only grows), so it is not transformed
-            idx = np.arange((-frame_index) % stride, nfr, stride)
-            if idx.size:
-                frames_arr = buf_s[:, : nfr * nshort].reshape(nch, nfr, nshort)[:, idx]  # (ch, kept, nshort)
-                v = sfft.rfft(frames_arr * win_s, axis=-1).view(np.float64)
+            buf = np.concatenate([carry, block], axis=1) if carry.size else block
+            if buf.shape[1] >= nper:
+                segs = np.lib.stride_tricks.sliding_window_view(buf, nper, axis=1)[:, ::hop]  # (ch, nseg, nper)
+                v = sfft.rfft(segs * win, axis=-1).view(np.float64)
                 np.multiply(v, v, out=v)
-                pw = (v[..., 0::2] + v[..., 1::2]).sum(axis=0) * bin_weight  # (kept, bins)
-                bands = np.zeros((idx.size, n_bands))
-                bands[:, filled] = np.add.reduceat(pw, starts, axis=1)
-                for i, row in zip(idx.tolist(), bands):
-                    if (frame_index + i) % stride == 0:
-                        kept.append(row)
-                        if len(kept) >= MAX_FRAMES:
-                            kept = kept[::2]
-                            stride *= 2
-            frame_index += nfr
-        carry_s = buf_s[:, nfr * nshort :]
-        if progress is not None:
-            progress(frames, max(info.frames, frames))
+                acc += v.sum(axis=1)
+                n_seg += segs.shape[1]
+                carry = buf[:, segs.shape[1] * hop :]
+            else:
+                carry = buf
 
+            if nfine:
+                buf_f = np.concatenate([carry_f, block], axis=1) if carry_f.size else block
+                if buf_f.shape[1] >= nfine:
+                    done = (buf_f.shape[1] - nfine) // hop_f + 1
+                    if fine_lane is not None:
+                        fine_lane.submit(fine_segments, buf_f)
+                    else:
+                        fine_segments(buf_f)
+                    n_seg_f += done
+                    carry_f = buf_f[:, done * hop_f :]
+                else:
+                    carry_f = buf_f
+
+            buf_s = np.concatenate([carry_s, block], axis=1) if carry_s.size else block
+            nfr = buf_s.shape[1] // nshort
+            if nfr:
+                # a frame whose index is not a multiple of the current stride is
+                # never kept (the stride only grows), so it is not transformed
+                idx = np.arange((-frame_index) % stride, nfr, stride)
+                if idx.size:
+                    frames_arr = buf_s[:, : nfr * nshort].reshape(nch, nfr, nshort)[:, idx]  # (ch, kept, nshort)
+                    v = sfft.rfft(frames_arr * win_s, axis=-1).view(np.float64)
+                    np.multiply(v, v, out=v)
+                    pw = (v[..., 0::2] + v[..., 1::2]).sum(axis=0) * bin_weight  # (kept, bins)
+                    bands = np.zeros((idx.size, n_bands))
+                    bands[:, filled] = np.add.reduceat(pw, starts, axis=1)
+                    for i, row in zip(idx.tolist(), bands):
+                        if (frame_index + i) % stride == 0:
+                            kept.append(row)
+                            if len(kept) >= MAX_FRAMES:
+                                kept = kept[::2]
+                                stride *= 2
+                frame_index += nfr
+            carry_s = buf_s[:, nfr * nshort :]
+            if progress is not None:
+                progress(frames, max(info.frames, frames))
+
+        if fine_lane is not None:
+            fine_lane.drain()
+    finally:
+        if fine_lane is not None:
+            fine_lane.close()
+    if found is not None:
+        return found
     acc = acc[:, 0::2] + acc[:, 1::2]
     if not looked_up:
         found = lookup()  # a short file can end before its digest does

@@ -145,3 +145,20 @@ def test_hann_window_is_scipy_bit_for_bit(m):
 
     # reference: scipy.signal.get_window('hann', m) (periodic, fftbins=True)
     assert np.array_equal(hann_periodic(m), signal.get_window("hann", m))
+
+
+def test_fine_psd_in_a_helper_thread_is_bit_identical(write_audio, rng, monkeypatch):
+    """The fine low-frequency PSD computed in its helper thread (default) and inline
+    (AUDIOBW_THREADS=1, as batch workers that fill the cores run it) are the same bits."""
+    fs = 48000
+    x = rng.standard_normal((fs * 13 + 777, 2)) * 0.1
+    path = write_audio("fine.wav", x, fs)
+    threaded = analyse(path, blocksize=40000)
+    monkeypatch.setenv("AUDIOBW_THREADS", "1")
+    inline = analyse(path, blocksize=40000)
+    assert threaded.fine_nperseg > 0 and threaded.meta["fine_welch_segments"] >= 16
+    assert threaded.fine_psd.tobytes() == inline.fine_psd.tobytes()
+    assert threaded.psd_channels.tobytes() == inline.psd_channels.tobytes()
+    # and against one block (no carries): the same sums up to rounding
+    whole = analyse(path, blocksize=1 << 22)
+    np.testing.assert_allclose(threaded.fine_psd, whole.fine_psd, rtol=1e-10)

@@ -90,14 +90,21 @@ def exit_with_parent(parent_pid: int | None) -> None:
     threading.Thread(target=watch, name="audiobw-parent-watch", daemon=True).start()
 
 
-def worker_init(parent_pid: int | None = None) -> None:
-    """Process-pool initializer: one BLAS thread, Ctrl-C handled by the parent only, exit with the parent."""
+def worker_init(parent_pid: int | None = None, cores_full: bool = False) -> None:
+    """Process-pool initializer: one BLAS thread, Ctrl-C handled by the parent only, exit with the parent.
+
+    ``cores_full``: the pool has as many workers as the machine has cores, so
+    each analysis runs without its extra helper thread (``AUDIOBW_THREADS=1``,
+    :func:`audiobw.spectrum.helper_threads`): the other cores serve other files.
+    """
     import signal
 
     exit_with_parent(parent_pid)
 
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ[var] = "1"
+    if cores_full:
+        os.environ["AUDIOBW_THREADS"] = "1"
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
