@@ -308,8 +308,9 @@ def score_cases(
     scorer = Scorer(analysis, chain, meter)
     # converter full-scale peak over the program's sample peak at the converter (negative: it clips)
     headroom = -(analysis.peak_dbfs + chain.input_gain_db) if math.isfinite(analysis.peak_dbfs) else None
-    rows = []
-    for i, spec in enumerate(specs, start=1):
+
+    def score_one(item) -> dict:
+        i, spec = item
         filt = design(spec)
         row = {
             "id": i,
@@ -330,8 +331,95 @@ def score_cases(
             row.update(_perceptual_metrics(filt, analysis, chain, perceptual, shared))
         passes, fails, margins = check_targets(row, targets)
         row.update(passes=passes, fails=fails, margins_db=margins)
-        rows.append(row)
-    return rows
+        return row
+
+    return forked_map(score_one, list(enumerate(specs, start=1)))
+
+
+#: Below this many cases a sweep scores in one process (a fork costs more than it saves).
+FORK_MIN_CASES = 128
+
+
+def _may_fork(n_items: int) -> bool:
+    """Whether :func:`forked_map` may score half of ``n_items`` cases in a forked child.
+
+    Only on Linux (fork after numpy is safe there), with at least two cores and
+    one of them idle (1-minute load average at most cores − 1), no other live
+    thread in this process, ``AUDIOBW_THREADS`` not ``1`` (batch workers that
+    fill the cores set it), and enough cases to pay for the fork.
+    """
+    import os
+    import sys
+    import threading
+
+    from .spectrum import helper_threads
+
+    if n_items < FORK_MIN_CASES or not sys.platform.startswith("linux") or not helper_threads():
+        return False
+    cores = os.cpu_count() or 1
+    try:
+        idle = os.getloadavg()[0] <= cores - 1
+    except OSError:
+        idle = False
+    return cores >= 2 and idle and threading.active_count() == 1
+
+
+def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
+    """``[fn(x) for x in items]``, the second half computed in a forked child when a core is idle.
+
+    The child inherits everything computed so far (analysis, scorers, the shared
+    prototypes) and sends its results back pickled through a pipe; the order
+    and the values are those of the plain loop (tested).  An error in the child
+    is raised here; an interrupt stops both.  ``fork``: force (True) or forbid
+    (False) the split; default :func:`_may_fork`.
+    """
+    import os
+    import pickle
+
+    if not (_may_fork(len(items)) if fork is None else fork) or len(items) < 2:
+        return [fn(x) for x in items]
+    half = (len(items) + 1) // 2
+    r, w = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # the child: score the second half, send it, leave without any cleanup of the parent's
+        code = 0
+        try:
+            os.close(r)
+            try:
+                data = pickle.dumps(("ok", [fn(x) for x in items[half:]]), protocol=pickle.HIGHEST_PROTOCOL)
+            except BaseException as exc:  # handed to the parent
+                try:
+                    data = pickle.dumps(("error", exc))
+                except Exception:
+                    data = pickle.dumps(("error", RuntimeError(repr(exc))))
+            with os.fdopen(w, "wb") as fh:
+                fh.write(data)
+        except BaseException:
+            code = 1
+        finally:
+            os._exit(code)
+    os.close(w)
+    try:
+        mine = [fn(x) for x in items[:half]]
+        with os.fdopen(r, "rb") as fh:
+            r = -1
+            data = fh.read()
+    except BaseException:
+        if r >= 0:
+            os.close(r)
+        try:
+            os.kill(pid, 9)
+        except OSError:
+            pass
+        os.waitpid(pid, 0)
+        raise
+    os.waitpid(pid, 0)
+    if not data:
+        raise RuntimeError("scoring: the helper process ended without its results")
+    status, theirs = pickle.loads(data)
+    if status != "ok":
+        raise theirs
+    return mine + theirs
 
 
 def _data_metrics(filt, analysis: Analysis, chain: Chain, data, total=None) -> dict:

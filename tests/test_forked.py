@@ -1,0 +1,76 @@
+"""Scoring half of a large sweep in a forked child (audiobw.sweep.forked_map) changes nothing."""
+
+from __future__ import annotations
+
+import math
+import sys
+
+import pytest
+
+from audiobw.chain import Chain
+from audiobw.errors import ParameterError
+from audiobw.perceptual.scoring import Listening, PerceptualScorer
+from audiobw.spectrum import analyse
+from audiobw.sweep import Grid, Meter, forked_map, score_cases
+
+pytestmark = pytest.mark.skipif(not sys.platform.startswith("linux"), reason="forked scoring is Linux-only")
+
+
+def _square(x):
+    return x * x
+
+
+def test_forked_map_keeps_order_and_values():
+    items = list(range(257))
+    assert forked_map(_square, items, fork=True) == [x * x for x in items]
+    assert forked_map(_square, [3], fork=True) == [9]  # one item: nothing to split
+    assert forked_map(_square, [], fork=True) == []
+
+
+def _fail_late(x):
+    if x == 90:
+        raise ParameterError("--cutoffs: case 90 is refused")
+    return x
+
+
+def test_an_error_in_the_child_is_raised_in_the_parent():
+    # 90 lies in the second half (50 … 99): the child's error reaches the caller, type and text kept
+    with pytest.raises(ParameterError, match="case 90 is refused"):
+        forked_map(_fail_late, list(range(100)), fork=True)
+
+
+def test_forked_scoring_gives_the_same_rows(write_audio, rng, monkeypatch):
+    import audiobw.sweep as sweep_mod
+
+    fs = 48000
+    x = rng.standard_normal((fs * 2, 2)) * 0.05
+    path = write_audio("forked.wav", x, fs)
+    a = analyse(path)
+    chain = Chain()
+    grid = Grid(
+        response="lowpass",
+        families=("butterworth", "chebyshev1"),
+        orders=(2, 5),
+        cutoffs_hz=tuple(2000.0 * 10 ** (i / 40) for i in range(40)),
+    )
+    scorer = PerceptualScorer(a, chain, Listening(program="music"))
+    targets = {"max_loss_db": 0.5}
+    monkeypatch.setattr(sweep_mod, "_may_fork", lambda n: False)
+    plain = score_cases(a, chain, grid, Meter(), targets, perceptual=scorer)
+    monkeypatch.setattr(sweep_mod, "_may_fork", lambda n: True)
+    forked = score_cases(a, chain, grid, Meter(), targets, perceptual=scorer)
+    assert len(plain) == len(forked) == 160
+    for p, f in zip(plain, forked):
+        assert p.keys() == f.keys()
+        for key in p:
+            same = p[key] == f[key] or (isinstance(p[key], float) and math.isnan(p[key]) and math.isnan(f[key]))
+            assert same, (p["id"], key, p[key], f[key])
+
+
+def test_no_fork_when_told_not_to(monkeypatch):
+    import audiobw.sweep as sweep_mod
+
+    monkeypatch.setenv("AUDIOBW_THREADS", "1")
+    assert not sweep_mod._may_fork(10_000)
+    monkeypatch.delenv("AUDIOBW_THREADS")
+    assert not sweep_mod._may_fork(sweep_mod.FORK_MIN_CASES - 1)
