@@ -374,3 +374,15 @@ def columns(table: str) -> tuple[tuple[str, str, str, str, str | None], ...]:
         (m.column.header, m.column.unit, m.column.show or m.key, m.column.fmt, m.target.key if m.target else None)
         for _, m in sorted(placed, key=lambda pm: pm[0])
     )
+
+
+def worst_margin(case: dict) -> float:
+    """A case's least target margin, dB (a target that cannot be evaluated counts as −∞;
+    no target: −∞).  The closest case, when none passes, is the one where this is largest."""
+    vals = list(case["margins_db"].values())
+    return min((-float("inf") if v is None else v) for v in vals) if vals else -float("inf")
+
+
+def closest_case(cases: list[dict]) -> dict:
+    """With no case passing: the case whose worst target margin is largest (ties: the earlier case)."""
+    return max(cases, key=lambda c: (worst_margin(c), -c["id"]))

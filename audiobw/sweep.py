@@ -491,11 +491,6 @@ def grid_limits(case: dict, cases: list[dict]) -> list[dict]:
 FAMILY_GENTLENESS = {"butterworth": 0, "bessel": 0, "chebyshev1": 1, "elliptic": 2}
 
 
-def _worst_margin(c: dict) -> float:
-    vals = list(c["margins_db"].values())
-    return min((-math.inf if v is None else v) for v in vals) if vals else -math.inf
-
-
 def _wide_ends(case: dict, cases: list[dict], response: str) -> list[dict]:
     """A lowpass or highpass case at the wide end of its grid (for a case that fails)."""
     key, end = {"lowpass": ("design_high_hz", "highest"), "highpass": ("design_low_hz", "lowest")}.get(
@@ -738,7 +733,7 @@ def run_sweep(
             "--anti-alias ideal to score them"
         )
     if choice is None and cases:
-        closest = max(cases, key=lambda c: (_worst_margin(c), -c["id"]))
+        closest = registry.closest_case(cases)
         for lim in grid_limits(closest, cases) + _wide_ends(closest, cases, grid.response):
             notes.append(
                 f"no case passes; the closest (case {closest['id']}) has its {lim['edge']} edge at the "

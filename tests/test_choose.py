@@ -386,3 +386,48 @@ def test_property_unmet_and_conflicts_explain_every_failed_sweep():
                             assert v <= need["edge_hz"] if need["bound"] == "max" else v >= need["edge_hz"]
 
     check()
+
+
+# --- the terminal table of a large sweep (audiobw.report.text.shown_cases) ---------------
+
+
+def test_large_table_shows_one_row_per_design():
+    from audiobw.report.text import TABLE_MAX_ROWS, case_table, shown_cases
+
+    cases, i = [], 0
+    for family in ("butterworth", "bessel"):
+        for order in (2, 4):
+            for k in range(40):  # 160 cases > TABLE_MAX_ROWS
+                i += 1
+                bw = 2000.0 + 100.0 * k
+                # bessel order 4 never passes; its margin grows with the bandwidth
+                ok = not (family == "bessel" and order == 4) and k >= 10 + order
+                margin = (k - 45) * 0.01 if not ok else 0.05
+                cases.append(
+                    row(
+                        i,
+                        bw,
+                        order=order,
+                        family=family,
+                        passes=ok,
+                        response="lowpass",
+                        low_hz=None,
+                        high_hz=bw,
+                        margins={"max_loss_db": margin},
+                        fails=() if ok else ("max_loss_db",),
+                    )
+                )
+    assert len(cases) > TABLE_MAX_ROWS
+    doc = {"cases": cases, "choice": {"case": 13}}
+    shown, note = shown_cases(doc)
+    ids = [c["id"] for c in shown]
+    # narrowest passing of each design: butterworth 2 -> k=12 (id 13), butterworth 4 -> k=14 (id 55),
+    # bessel 2 -> k=12 (id 93); bessel 4 has none passing: its closest is its widest case (id 160)
+    assert ids == [13, 55, 93, 160]
+    assert note.startswith("(4 of 160 cases shown")
+    text = case_table(doc)
+    assert "<== chosen" in text and note in text
+    assert len(text.splitlines()) == 2 + 4 + 2
+    # at or below the limit every case is shown and nothing is said
+    small = {"cases": cases[:TABLE_MAX_ROWS], "choice": None}
+    assert shown_cases(small) == (small["cases"], None)

@@ -71,14 +71,6 @@ def _summary(case: dict, ref: dict | None = None) -> dict:
     return out
 
 
-def _worst_margin(case: dict) -> float:
-    vals = list(case["margins_db"].values())
-    return min((-math.inf if v is None else v) for v in vals) if vals else -math.inf
-
-
-def closest_case(cases: list[dict]) -> dict:
-    """With no case passing: the case whose worst target margin is largest (the sweep's own rule)."""
-    return max(cases, key=lambda c: (_worst_margin(c), -c["id"]))
 
 
 def neighbours(cases: list[dict], subject: dict) -> dict:
@@ -160,7 +152,7 @@ def build_spec(run: dict) -> dict:
     if choice:
         subject, role = by_id[choice["case"]], "chosen"
     else:
-        subject, role = closest_case(cases), "closest"
+        subject, role = registry.closest_case(cases), "closest"
     fs = doc["input"]["sample_rate_hz"]
     filt = rebuild_filter(doc, subject)
     chain = rebuild_chain(doc)

@@ -43,8 +43,44 @@ def _cell(fmt: str, value) -> str:
     return fmt.format(value)
 
 
+#: Above this many cases the terminal table shows one row per design (every case stays in sweep.csv).
+TABLE_MAX_ROWS = 120
+
+
+def shown_cases(doc: dict) -> tuple[list[dict], str | None]:
+    """The cases the terminal table shows, and a line saying what was left out (None: all shown).
+
+    Up to :data:`TABLE_MAX_ROWS` cases, all of them.  Beyond, the chosen case and,
+    for each design (response, family, order), its narrowest passing case (least
+    −3 dB bandwidth; ties: the earlier case) or, where none of the design passes,
+    its closest case (largest worst margin, as the sweep picks the closest).
+    """
+    cases = doc["cases"]
+    if len(cases) <= TABLE_MAX_ROWS:
+        return cases, None
+    designs: dict = {}
+    for c in cases:
+        designs.setdefault((c["response"], c["family"], c["order"]), []).append(c)
+    keep = {(doc.get("choice") or {}).get("case")}
+    for group in designs.values():
+        passing = [c for c in group if c["passes"]]
+        if passing:
+            bw = [math.inf if c.get("bandwidth_hz") is None else c["bandwidth_hz"] for c in passing]
+            keep.add(min(zip(bw, (c["id"] for c in passing)))[1])
+        else:
+            keep.add(registry.closest_case(group)["id"])
+    shown = [c for c in cases if c["id"] in keep]
+    note = (
+        f"({len(shown)} of {len(cases)} cases shown: the chosen case and, for each of the {len(designs)} "
+        "designs, its narrowest passing case, or its closest where none passes; every case is in sweep.csv "
+        "and sweep.json)"
+    )
+    return shown, note
+
+
 def case_table(doc: dict, *, mark: str = "*") -> str:
-    """The case table: one row per case, units in the header, failing values marked."""
+    """The case table: one row per case (per design beyond :data:`TABLE_MAX_ROWS` cases; see
+    :func:`shown_cases`), units in the header, failing values marked."""
     columns = DATA_COLUMNS if "data" in doc else COLUMNS
     heads, unitrow, widths = [], [], []
     for head, unit, _key, fmt, _t in columns:
@@ -54,7 +90,8 @@ def case_table(doc: dict, *, mark: str = "*") -> str:
         unitrow.append((f"[{unit}]" if unit else "").rjust(w) if ">" in fmt else "".ljust(w))
     lines = [" ".join(heads) + "  result", " ".join(unitrow)]
     choice = (doc.get("choice") or {}).get("case")
-    for case in map(_derived, doc["cases"]):
+    shown, left_out = shown_cases(doc)
+    for case in map(_derived, shown):
         cells = []
         for (_head, _unit, key, fmt, target), w in zip(columns, widths):
             text = _cell(fmt, case.get(key))
@@ -65,6 +102,8 @@ def case_table(doc: dict, *, mark: str = "*") -> str:
             result += "   <== chosen"
         lines.append("".join(cells) + " " + result)
     lines.append(f"({mark} marks a value that fails its target; — : not defined for this case)")
+    if left_out:
+        lines.append(left_out)
     return "\n".join(lines)
 
 
