@@ -341,13 +341,15 @@ class _Lane:
         self._pool.shutdown(wait=True, cancel_futures=True)
 
 
-def _prefetched(blocks, depth: int = 2):
+def _prefetched(blocks, depth: int = 2, prepare=None):
     """Iterate ``blocks`` with the next ones decoded in a helper thread.
 
     libsndfile decodes without holding the GIL, so decoding the next block
-    overlaps the transforms of the current one.  At most ``depth`` blocks
-    wait in the queue (memory stays bounded); an exception from the reader
-    is raised here, in the consumer.
+    overlaps the transforms of the current one.  ``prepare``, if given, is
+    applied to each block in the helper thread too (the pass turns blocks
+    channel-major there: numpy copies without the GIL).  At most ``depth``
+    blocks wait in the queue (memory stays bounded); an exception from the
+    reader is raised here, in the consumer.
     """
     import queue
     import threading
@@ -359,6 +361,8 @@ def _prefetched(blocks, depth: int = 2):
     def reader():
         try:
             for item in blocks:
+                if prepare is not None:
+                    item = prepare(item)
                 while not stop.is_set():
                     try:
                         q.put(item, timeout=0.1)
@@ -384,6 +388,11 @@ def _prefetched(blocks, depth: int = 2):
     finally:
         stop.set()
         thread.join(timeout=5.0)
+
+
+def _channel_major(block_fc: np.ndarray) -> np.ndarray:
+    """A decoded block (frames, channels) as a contiguous (channels, frames) array."""
+    return np.ascontiguousarray(block_fc.T)
 
 
 def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None = None, cache=None) -> Analysis:
@@ -500,8 +509,7 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     edges = critical_band_edges(fs / 2.0)
     band_of_bin = np.clip(np.searchsorted(edges, freqs_s, side="right") - 1, 0, len(edges) - 2)
 
-    # Blocks are turned channel-major once (numpy reduces and transforms
-    # contiguous rows several times faster than a column of 2 channels).
+    # Blocks are turned channel-major in the decode thread (see _channel_major).
     # |X|² is accumulated as re² and im² side by side (a float view of the
     # complex spectrum, squared in place): one pass, no complex temporaries.
     # The short-frame channel mean and scale are folded into the band matrix.
@@ -533,12 +541,13 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     fine_lane = _Lane() if nfine and helper_threads() else None
     try:
         found = None
-        for block_fc in _prefetched(audio.iter_blocks(path, blocksize=blocksize)):
+        # blocks arrive channel-major, (channels, frames): numpy reduces and transforms
+        # contiguous rows several times faster than a column of 2 channels
+        for block in _prefetched(audio.iter_blocks(path, blocksize=blocksize), prepare=_channel_major):
             if not looked_up and getattr(digest, "ready", bool)():
                 found = lookup()  # the digest came in: a hit ends the pass here
                 if found is not None:
                     break
-            block = np.ascontiguousarray(block_fc.T)  # (channels, frames)
             n = block.shape[1]
             frames += n
             block_peak = np.maximum(block.max(axis=1), -block.min(axis=1))

@@ -368,13 +368,18 @@ def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
     """``[fn(x) for x in items]``, the second half computed in a forked child when a core is idle.
 
     The child inherits everything computed so far (analysis, scorers, the shared
-    prototypes) and sends its results back pickled through a pipe; the order
-    and the values are those of the plain loop (tested).  An error in the child
-    is raised here; an interrupt stops both.  ``fork``: force (True) or forbid
+    prototypes) and sends its results back as JSON through a pipe (plain rows:
+    numbers, strings, None, lists and string-keyed mappings; floats keep every
+    bit through their repr); the order and the values are those of the plain
+    loop (tested).  An error in the child is raised here (an
+    :class:`~audiobw.errors.AudiobwError` with its type and text, anything else
+    as RuntimeError); an interrupt stops both.  ``fork``: force (True) or forbid
     (False) the split; default :func:`_may_fork`.
     """
+    import json
     import os
-    import pickle
+
+    from . import errors
 
     if not (_may_fork(len(items)) if fork is None else fork) or len(items) < 2:
         return [fn(x) for x in items]
@@ -386,14 +391,11 @@ def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
         try:
             os.close(r)
             try:
-                data = pickle.dumps(("ok", [fn(x) for x in items[half:]]), protocol=pickle.HIGHEST_PROTOCOL)
+                msg = {"ok": [fn(x) for x in items[half:]]}
             except BaseException as exc:  # handed to the parent
-                try:
-                    data = pickle.dumps(("error", exc))
-                except Exception:
-                    data = pickle.dumps(("error", RuntimeError(repr(exc))))
+                msg = {"error": type(exc).__name__, "text": str(exc)}
             with os.fdopen(w, "wb") as fh:
-                fh.write(data)
+                fh.write(json.dumps(msg, allow_nan=True).encode())
         except BaseException:
             code = 1
         finally:
@@ -416,10 +418,13 @@ def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
     os.waitpid(pid, 0)
     if not data:
         raise RuntimeError("scoring: the helper process ended without its results")
-    status, theirs = pickle.loads(data)
-    if status != "ok":
-        raise theirs
-    return mine + theirs
+    msg = json.loads(data)
+    if "ok" not in msg:
+        kind = getattr(errors, msg["error"], None)
+        if isinstance(kind, type) and issubclass(kind, errors.AudiobwError):
+            raise kind(msg["text"])
+        raise RuntimeError(f"scoring (helper process): {msg['error']}: {msg['text']}")
+    return mine + msg["ok"]
 
 
 def _data_metrics(filt, analysis: Analysis, chain: Chain, data, total=None) -> dict:
