@@ -86,13 +86,15 @@ def cold_env():
 def interleaved(repeats, subjects):
     """Run the subjects one after the other, ``repeats`` rounds; per subject: min, median, loads, RSS.
 
-    A subject is ``(name, cmd)`` (run with a cold analysis cache) or ``(name, cmd, env)``."""
+    A subject is ``(name, cmd)`` (run with a cold analysis cache) or ``(name, cmd, env)`` (``env``:
+    a mapping, or a function returning one for each run)."""
     runs = {s[0]: [] for s in subjects}
     for _ in range(repeats):
         for name, cmd, *env in subjects:
             if "--out" in cmd:  # a fresh output folder each run: batch would resume from its own cache
                 shutil.rmtree(cmd[cmd.index("--out") + 1], ignore_errors=True)
-            runs[name].append((*timed(cmd, env[0] if env else cold_env()), timed.cpu))
+            e = (env[0]() if callable(env[0]) else env[0]) if env else cold_env()
+            runs[name].append((*timed(cmd, e), timed.cpu))
             w, r, ld, cpu = runs[name][-1]
             print(f"  {name}: {w:.2f} s, CPU {cpu:.2f} s, {r:.0f} MB, load {ld:.2f}", flush=True)
     out = {}
@@ -238,6 +240,19 @@ def main(argv=None):
     row(f"batch, {n_files} one-minute files: 1 worker / 2 workers (speed-up)", speedup,
         {"min": r["w2"]["min"], "median": r["w2"]["median"]}, "≥ 1.8 ×")
 
+    print("6. helper threads on a loaded machine", flush=True)
+    busy = [subprocess.Popen([sys.executable, "-c", "while True: pass"]) for _ in range(os.cpu_count() or 2)]
+    try:
+        time.sleep(2.0)
+        off = lambda: {**cold_env(), "AUDIOBW_THREADS": "1"}  # noqa: E731
+        r = interleaved(reps, [("threads", sweep_cmd(p3, [2, 4, 8], 8, tmp / "g")),
+                               ("single", sweep_cmd(p3, [2, 4, 8], 8, tmp / "h"), off)])
+    finally:
+        for b in busy:
+            b.kill()
+            b.wait()
+    row(f"{short / 60:g}-min, 96 cases, with {os.cpu_count()} busy processes: helper threads on / off "
+        "(AUDIOBW_THREADS=1)", r["threads"], r["single"], "≤ 1.0 ×")
     lines = [BEGIN, "", f"Run: {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}"
              f"{' (quick mode)' if a.quick else ''}; {os.cpu_count()} cores; load average (1, 5, 15 min) at start "
              f"{load0[0]:.2f}, {load0[1]:.2f}, {load0[2]:.2f}.  Whole processes, interleaved; ratio of the minima "
