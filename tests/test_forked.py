@@ -74,3 +74,36 @@ def test_no_fork_when_told_not_to(monkeypatch):
     assert not sweep_mod._may_fork(10_000)
     monkeypatch.delenv("AUDIOBW_THREADS")
     assert not sweep_mod._may_fork(sweep_mod.FORK_MIN_CASES - 1)
+
+
+def test_malloc_tuning_changes_no_figure(tmp_path):
+    """The console script's glibc mallopt settings (audiobw._start.tune_malloc) leave every byte of
+    sweep.json and sweep.csv as the default allocator gives them."""
+    import os
+    import subprocess
+    from pathlib import Path
+
+    from audiobw._start import tune_malloc
+
+    assert tune_malloc() is True  # Linux with glibc (this suite's platform)
+    clip = Path(__file__).resolve().parents[1] / "clips" / "ensemble-48k-stereo.flac"
+    out = {}
+    for mode in ("tuned", "default"):
+        env = {**os.environ, "AUDIOBW_MALLOC": mode, "AUDIOBW_NO_CACHE": "1"}
+        args = [
+            "sweep",
+            str(clip),
+            "--family",
+            "butterworth,chebyshev1",
+            "--order",
+            "2,5",
+            "--cutoffs",
+            "3k:18k:6",
+            "--max-loss",
+            "0.5",
+            "--out",
+            str(tmp_path / mode),
+        ]
+        subprocess.run([sys.executable, "-m", "audiobw", *args], env=env, check=True, capture_output=True)
+        out[mode] = [(tmp_path / mode / name).read_bytes() for name in ("sweep.json", "sweep.csv")]
+    assert out["tuned"] == out["default"]

@@ -105,6 +105,10 @@ def worker_init(parent_pid: int | None = None, cores_full: bool = False) -> None
         os.environ[var] = "1"
     if cores_full:
         os.environ["AUDIOBW_THREADS"] = "1"
+    if os.environ.get("AUDIOBW_MALLOC", "") != "default":
+        from .._start import tune_malloc
+
+        tune_malloc()
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
