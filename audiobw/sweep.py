@@ -344,7 +344,7 @@ def _may_fork(n_items: int) -> bool:
     """Whether :func:`forked_map` may score half of ``n_items`` cases in a forked child.
 
     Only on Linux (fork after numpy is safe there), with at least two cores and
-    one of them idle (1-minute load average at most cores − 1), no other live
+    one of them idle (:func:`_others_running` at most cores − 2), no other live
     thread in this process, ``AUDIOBW_THREADS`` not ``1`` (batch workers that
     fill the cores set it), and enough cases to pay for the fork.
     """
@@ -357,11 +357,30 @@ def _may_fork(n_items: int) -> bool:
     if n_items < FORK_MIN_CASES or not sys.platform.startswith("linux") or not helper_threads():
         return False
     cores = os.cpu_count() or 1
+    return cores >= 2 and threading.active_count() == 1 and _others_running() <= cores - 2
+
+
+def _others_running() -> float:
+    """How many other tasks want a core now: the runnable count of /proc/loadavg (4th field,
+    which counts this process too), median of five reads 4 ms apart; the 1-minute load
+    average where /proc is missing (it also counts runs that have just ended)."""
+    import os
+    import statistics
+    import time
+
+    counts = []
     try:
-        idle = os.getloadavg()[0] <= cores - 1
-    except OSError:
-        idle = False
-    return cores >= 2 and idle and threading.active_count() == 1
+        for i in range(5):
+            if i:
+                time.sleep(0.004)
+            with open("/proc/loadavg", encoding="ascii") as fh:
+                counts.append(int(fh.read().split()[3].split("/")[0]) - 1)
+    except (OSError, ValueError, IndexError):
+        try:
+            return os.getloadavg()[0]
+        except OSError:
+            return float("inf")
+    return statistics.median(counts)
 
 
 def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
