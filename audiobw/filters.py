@@ -226,12 +226,16 @@ class Filter:
             s = 1j * (2.0 * np.pi * f / self.ref_rad_s)
         else:
             s = np.exp(1j * 2.0 * np.pi * f / self.spec.fs_hz)
+        # in place: the same products in the same order, without a temporary per factor
         num = np.ones_like(s)
+        t = np.empty_like(s)
         for zero in self.z:
-            num = num * (s - zero)
+            np.subtract(s, zero, out=t)
+            num *= t
         den = np.ones_like(s)
         for pole in self.p:
-            den = den * (s - pole)
+            np.subtract(s, pole, out=t)
+            den *= t
         return self.k * num / den
 
     def group_delay_s(self, freq_hz) -> np.ndarray:

@@ -156,12 +156,17 @@ def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.
     use = upper | single
     if 2 * int(np.count_nonzero(upper)) + int(np.count_nonzero(single)) != n:
         return None
-    pz = p[:, None] - z[None, :] if z.size else np.ones((n, 1), complex)
-    mz = -p[:, None] - z[None, :] if z.size else np.ones((n, 1), complex)
-    off = np.where(np.eye(n, dtype=bool), 1.0, p[:, None] - p[None, :])
-    resid = (k * np.prod(pz, axis=1) / np.prod(off, axis=1)) * (
-        k * np.prod(mz, axis=1) / np.prod(-p[:, None] - p[None, :], axis=1)
-    )
+    # the residues depend on the normalised prototype only: shared by every cutoff
+    cache = filt._proto if filt._proto is not None else filt._cache
+    resid = cache.get("image_residues")
+    if resid is None:
+        pz = p[:, None] - z[None, :] if z.size else np.ones((n, 1), complex)
+        mz = -p[:, None] - z[None, :] if z.size else np.ones((n, 1), complex)
+        off = np.where(np.eye(n, dtype=bool), 1.0, p[:, None] - p[None, :])
+        resid = (k * np.prod(pz, axis=1) / np.prod(off, axis=1)) * (
+            k * np.prod(mz, axis=1) / np.prod(-p[:, None] - p[None, :], axis=1)
+        )
+        cache["image_residues"] = resid
     theta_half = math.pi * np.asarray(freqs_hz, dtype=float) / fs_hz
     st, ct = np.sin(theta_half), np.cos(theta_half)
     out = np.zeros_like(theta_half)
