@@ -9,7 +9,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from .errors import OutputError, ParameterError
-from .settings import Settings
+from .model import Settings
 
 
 def sweep_file(
@@ -132,8 +132,7 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     fs = units.parse_quantity(rate, "frequency", name="--rate")
     lo, hi = units.parse_band(band, name="--band")
     response = "bandpass" if lo and hi else ("lowpass" if hi else "highpass")
-    g = settings.grid_values
-    families, orders = g.get("family", ("butterworth",)), g.get("order", (4,))
+    families, orders = settings.grid_value("family"), settings.grid_value("order")
     if len(families) != 1 or len(orders) != 1:
         raise ParameterError("--family/--order: the noise budget takes one family and one order")
     spec = FilterSpec(
@@ -142,8 +141,8 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
         orders[0],
         lo,
         hi,
-        g.get("ripple", 0.1),
-        g.get("stopband", 60.0),
+        settings.grid_value("ripple"),
+        settings.grid_value("stopband"),
         settings.chain.stage,
         fs,
     )

@@ -20,7 +20,7 @@ from .chain import Chain
 from .errors import ParameterError
 from .filters import FilterSpec, design, validate_spec
 from .metrics import TARGET_KEYS, TARGET_METRIC, Meter, Scorer, check_targets
-from .options import grid_option
+from .options import default, grid_option
 from .spectrum import Analysis, analyse
 
 
@@ -58,16 +58,16 @@ class Grid:
     ripple_db, stopband_db : float
     """
 
-    response: str = "lowpass"
-    families: tuple = ("butterworth",)
-    orders: tuple = (4,)
+    response: str = default("response")
+    families: tuple = default("family")
+    orders: tuple = default("order")
     cutoffs_hz: tuple = ()
     low_edges_hz: tuple = ()
     high_edges_hz: tuple = ()
-    ripple_db: float = 0.1
-    stopband_db: float = 60.0
-    rank: str = "enbw"
-    tie: float = 0.01
+    ripple_db: float = default("ripple")
+    stopband_db: float = default("stopband")
+    rank: str = default("rank")
+    tie: float = default("tie")
 
     def count(self) -> int:
         """The number of cases, counted without building them (bandpass: pairs with low < high)."""
