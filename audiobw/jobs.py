@@ -42,7 +42,7 @@ def sweep_file(
             "--max-loss, --max-lsd, --min-ser"
         )
     grid = settings.grid_for(info.sample_rate_hz / 2.0)
-    grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
+    specs = grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
     from .sweep import ESTIMATE_FROM_CASES, time_estimate
 
     if notify is not None and grid.count() >= ESTIMATE_FROM_CASES:
@@ -65,6 +65,7 @@ def sweep_file(
         analysis=analysis,
         data=data,
         listening=settings.listening,
+        specs=specs,  # built and validated once, above
     )
     if settings.default_targets:
         result.notes.append(_default_targets_note(settings))

@@ -273,6 +273,7 @@ def score_cases(
     data=None,
     perceptual=None,
     refused: list | None = None,
+    specs: list[FilterSpec] | None = None,
 ) -> list[dict]:
     """Design and score every case of ``grid`` against one analysis.
 
@@ -286,10 +287,14 @@ def score_cases(
     stage) is refused before any is scored: left out of the rows (ids count
     the scored cases) with its reason appended to ``refused``; when every
     case is refused, the first one's :class:`ParameterError` is raised.
+
+    ``specs``: the grid's cases as :meth:`Grid.specs` built and validated them for
+    this chain and sample rate (a caller that has them saves building them again).
     """
     from .noise import unbounded_reason, check_noise_bounded
 
-    specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
+    if specs is None:
+        specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
     if chain.anti_alias == "none" and chain.amp_bandwidth_hz is None:
         # only a response with a floor at high frequencies (highpass, even-order elliptic)
         # or the digital stage can be unbounded
@@ -583,6 +588,7 @@ def run_sweep(
     analysis: Analysis | None = None,
     data=None,
     listening=None,
+    specs: list[FilterSpec] | None = None,
 ) -> SweepResult:
     """Analyse ``path`` once and score every case of ``grid``.
 
@@ -606,6 +612,9 @@ def run_sweep(
         (speech) and ``wiener_gap_db`` to every case, ``limits`` to the result,
         and allows the ``max_nmr_db``, ``max_audible_frames_pct`` and
         ``min_sii`` targets.
+    specs : list of FilterSpec, optional
+        The grid's cases from :meth:`Grid.specs` for this chain's stage and the
+        file's sample rate, when the caller has built (and so validated) them already.
     """
     meter = meter or Meter()
     targets = {k: v for k, v in (targets or {}).items() if v is not None}
@@ -640,7 +649,9 @@ def run_sweep(
 
         pscorer = PerceptualScorer(analysis, chain, listening)
     refused: list[str] = []
-    cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer, refused=refused)
+    cases = score_cases(
+        analysis, chain, grid, meter, targets, data=data, perceptual=pscorer, refused=refused, specs=specs
+    )
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
     if refused:

@@ -8,6 +8,7 @@ the Python field (``Chain.gain_db``).
 import json
 import re
 
+import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -21,6 +22,8 @@ from audiobw.model import Settings
 from audiobw.options import CHAIN_KEYS, GRID_KEYS, METER_KEYS, OPTIONS, PROGRAM_KEYS, Limit, model_fields
 from audiobw.settings import Raw, build, load_toml, merge
 from audiobw.sweep import Grid
+
+from .conftest import tones
 
 
 def run(args, capsys):
@@ -236,3 +239,25 @@ def test_any_settings_round_trip_through_json(chain, grid, targets, level):
     back = round_trip(s)
     assert back == s
     assert json.dumps(back.to_json(), sort_keys=True) == json.dumps(s.to_json(), sort_keys=True)
+
+
+# -- one grid of cases per sweep ---------------------------------------------------------------------------
+
+
+def test_a_sweep_builds_its_cases_once(write_audio, monkeypatch):
+    """The grid is built and validated once per file (before the analysis), not again when scoring."""
+    from audiobw import jobs, sweep
+
+    fs = 48000
+    path = write_audio("t.wav", tones([440.0, 3000.0], [0.2, 0.05], fs, 1.0) + 1e-4 * np.ones(fs), fs)
+    calls = []
+    real = sweep.Grid.specs
+
+    def counted(self, **kw):
+        calls.append(kw)
+        return real(self, **kw)
+
+    monkeypatch.setattr(sweep.Grid, "specs", counted)
+    s = build({"cutoffs": Raw("2k:16k:3", "--cutoffs"), "max_loss": Raw("1", "--max-loss")})
+    doc, _ = jobs.sweep_file(path, s, use_cache=False)
+    assert len(calls) == 1 and len(doc["cases"]) == 3
