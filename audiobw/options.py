@@ -15,6 +15,7 @@ drift apart.  Importing this module costs nothing beyond the standard library
 from __future__ import annotations
 
 import math
+import numbers
 from dataclasses import dataclass
 from typing import Any
 
@@ -37,6 +38,11 @@ STAGES = ("analog", "digital")
 MIN_ORDER, MAX_ORDER = 1, 8
 
 
+def _is_number(value) -> bool:
+    """A real number (numpy's included), not a bool."""
+    return isinstance(value, numbers.Real) and not isinstance(value, bool)
+
+
 @dataclass(frozen=True)
 class Limit:
     """The range a parsed value must lie in, and the words that say so when it does not.
@@ -53,7 +59,7 @@ class Limit:
     whole: bool = False
 
     def holds(self, value) -> bool:
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
+        if not _is_number(value):
             return False
         x = float(value)
         if not math.isfinite(x) or (self.whole and not x.is_integer()):
@@ -115,7 +121,7 @@ class Option:
         shown = value if shown is None else shown
         if self.choices and value not in self.choices:
             raise ParameterError(f"{where}: {shown!r} is not accepted; accepted: {', '.join(self.choices)}")
-        if self.limit is not None and (isinstance(value, bool) or not isinstance(value, (int, float))):
+        if self.limit is not None and not _is_number(value):
             raise ParameterError(f"{where}: {shown!r} is not a number; accepted: {self.limit.accepted}")
         if self.limit is not None and not self.limit.holds(value):
             raise ParameterError(f"{where}: {shown!r} is out of range; accepted: {self.limit.accepted}")

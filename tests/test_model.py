@@ -140,6 +140,9 @@ def test_the_origin_follows_the_value_that_won(tmp_path):
 
 
 def test_library_checks_name_the_field_not_a_flag():
+    assert Chain(bits=np.int64(16), gain_db=np.float32(20.0)).bits == 16  # numpy numbers are numbers
+    with pytest.raises(ParameterError, match=r"^Chain\.bits: True is not a number"):
+        Chain(bits=True)
     for kw, field in ((dict(bits=40), "bits"), (dict(temperature_k=0.0), "temperature_k"), (dict(h3_db=1.0), "h3_db")):
         with pytest.raises(ParameterError) as exc:
             Chain(**kw)
