@@ -175,7 +175,7 @@ OPTIONS: dict[str, Option] = {
            290.0, "K", _positive("a temperature > 0 K"), "Chain.temperature_k"),
         _o("input_level", "source", "input_level",
            "rescale the program: its rms level at the converter input (-18dBFS, +4dBu, 0.5V) or a gain (6dB)",
-           default_text="none: the program as it is at the converter"),
+           default_text="none (the program as it is at the converter)"),
         _o("gain", "amplifier", "gain_db", "amplifier voltage gain, dB (e.g. 40)",
            40.0, "dB", Limit("a gain in dB, |G| <= 200", -200.0, 200.0), "Chain.gain_db"),
         _o("en", "amplifier", "voltage_density", "amplifier input voltage noise, V/√Hz (e.g. 1.2n)",
