@@ -148,6 +148,13 @@ def build(raw: dict[str, Raw]) -> Settings:
             "--stage analog, or leave the target out"
         )
     grid_values = {k: parsed[k] for k in GRID_KEYS if k in parsed}
+    if "elliptic" in parsed.get("family", ()) and "stopband" in parsed:
+        ripple = parsed.get("ripple", default("ripple"))
+        if not parsed["stopband"] > ripple:  # the per-case check (filters.validate_spec) names only --stopband
+            raise ParameterError(
+                f"{raw['stopband'].origin}: {raw['stopband'].value!r} is out of range; accepted: an elliptic "
+                f"stopband above the ripple ({ripple:g} dB), up to 200 dB"
+            )
     program = parsed.get("program", default("program"))
     if program == "audio":
         program = "music"

@@ -139,6 +139,16 @@ def test_the_origin_follows_the_value_that_won(tmp_path):
         build(merge(load_toml(cfg), {"tone_level": "2"}))
 
 
+def test_the_elliptic_stopband_above_the_ripple_is_named_by_its_origin(tmp_path):
+    cfg = tmp_path / "grid.toml"
+    cfg.write_text("[grid]\nfamily = 'elliptic'\nripple = 1\nstopband = 0.5\n", encoding="utf-8")
+    with pytest.raises(ParameterError, match=rf"^{re.escape(str(cfg))} \[grid\] stopband: 0\.5 is out of range; "):
+        build(load_toml(cfg))
+    with pytest.raises(ParameterError, match=r"^--stopband: '0.5dB' is out of range; accepted: an elliptic stopband"):
+        build(merge(load_toml(cfg), {"stopband": "0.5dB"}))
+    assert build(merge(load_toml(cfg), {"family": "butterworth"})).grid_value("stopband") == 0.5
+
+
 def test_library_checks_name_the_field_not_a_flag():
     assert Chain(bits=np.int64(16), gain_db=np.float32(20.0)).bits == 16  # numpy numbers are numbers
     with pytest.raises(ParameterError, match=r"^Chain\.bits: True is not a number"):
