@@ -42,7 +42,8 @@ def sweep_file(
             "--max-loss, --max-lsd, --min-ser"
         )
     grid = settings.grid_for(info.sample_rate_hz / 2.0)
-    specs = grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
+    # refuse a bad grid before reading, naming where its edges came from
+    specs = grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz, names=settings.origins)
     from .sweep import ESTIMATE_FROM_CASES, time_estimate
 
     if notify is not None and grid.count() >= ESTIMATE_FROM_CASES:

@@ -9,7 +9,7 @@ batch workers get them as :meth:`Settings.to_json` and read them back with
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass, fields
+from dataclasses import asdict, dataclass, field, fields
 
 from . import units
 from .chain import Chain
@@ -46,6 +46,9 @@ class Settings:
     source_vrms: float | None = None
     listening: object = None  # perceptual.scoring.Listening (music, speech)
     default_targets: tuple = ()  # target keys filled in by program-kind defaults
+    #: option key -> where its value came from (``--cutoffs``, ``chain.toml [grid] cutoffs``), for the
+    #: refusals that only the file can prompt (an edge above its Nyquist); not part of the JSON form
+    origins: dict = field(default_factory=dict, compare=False)
 
     def grid_value(self, key: str):
         """The grid option ``key`` as given, or its default (:data:`audiobw.options.OPTIONS`)."""
@@ -79,12 +82,12 @@ class Settings:
         Tuples become lists and dataclasses mappings (``json.dumps`` writes the audiogram's
         frequencies as strings; :meth:`from_json` reads them back as numbers).
         """
-        return {f.name: _plain(getattr(self, f.name)) for f in fields(self)}
+        return {f.name: _plain(getattr(self, f.name)) for f in fields(self) if f.name != "origins"}
 
     @classmethod
     def from_json(cls, data: dict) -> Settings:
         """The settings back from :meth:`to_json` output (equal to the ones written)."""
-        kw = {f.name: data[f.name] for f in fields(cls) if f.name in data}
+        kw = {f.name: data[f.name] for f in fields(cls) if f.name in data and f.name != "origins"}
         kw["chain"] = Chain.from_json(data["chain"])
         kw["meter"] = Meter(**data["meter"])
         kw["grid_values"] = {k: tuple(v) if isinstance(v, list) else v for k, v in data["grid_values"].items()}

@@ -193,6 +193,7 @@ def build(raw: dict[str, Raw]) -> Settings:
         source_vrms=source_vrms,
         listening=listening,
         default_targets=tuple(default_targets),
+        origins={key: r.origin for key, r in raw.items()},
     )
 
 

@@ -20,7 +20,7 @@ from .chain import Chain
 from .errors import ParameterError
 from .filters import FilterSpec, design, validate_spec
 from .metrics import TARGET_KEYS, TARGET_METRIC, Meter, Scorer, check_targets
-from .options import default, grid_option
+from .options import default, grid_option, option_name
 from .spectrum import Analysis, analyse
 
 
@@ -80,27 +80,31 @@ class Grid:
             pairs = len(self.cutoffs_hz)
         return len(self.families) * len(self.orders) * pairs
 
-    def specs(self, *, stage: str, fs_hz: float) -> list[FilterSpec]:
-        """Every case as a FilterSpec, validated for ``fs_hz``."""
+    def specs(self, *, stage: str, fs_hz: float, names: dict | None = None) -> list[FilterSpec]:
+        """Every case as a FilterSpec, validated for ``fs_hz``.
+
+        ``names``: where the edge grids came from, option key -> origin (``cutoffs`` ->
+        ``chain.toml [grid] cutoffs``) for the refusals; default the options (``--cutoffs``).
+        """
+        where = {k: (names or {}).get(k, option_name(k)) for k in ("cutoffs", "low_edges", "high_edges")}
+        opt = where["cutoffs"] if self.response != "bandpass" else f"{where['low_edges']}/{where['high_edges']}"
         n = self.count()
         if n > MAX_CASES:
-            opt = "--cutoffs" if self.response != "bandpass" else "--low-edges/--high-edges"
             raise ParameterError(
                 f"{opt} with --family and --order: the grid holds {n:,} cases; accepted: at most "
                 f"{MAX_CASES:,} (a coarser grid, or fewer families or orders)"
             )
         if self.response == "bandpass":
             if not self.low_edges_hz or not self.high_edges_hz:
-                raise ParameterError("--low-edges/--high-edges: a bandpass sweep needs both grids")
+                raise ParameterError(f"{opt}: a bandpass sweep needs both grids")
             pairs = [(lo, hi) for lo in self.low_edges_hz for hi in self.high_edges_hz if lo < hi]
             if not pairs:
                 raise ParameterError(
-                    "--low-edges/--high-edges: no pair has its low edge below its high edge; "
-                    "accepted: grids with some LOW < HIGH"
+                    f"{opt}: no pair has its low edge below its high edge; accepted: grids with some LOW < HIGH"
                 )
         else:
             if not self.cutoffs_hz:
-                raise ParameterError(f"--cutoffs: a {self.response} sweep needs a cutoff grid, e.g. 2k:20k:40")
+                raise ParameterError(f"{opt}: a {self.response} sweep needs a cutoff grid, e.g. 2k:20k:40")
             pairs = [(None, c) if self.response == "lowpass" else (c, None) for c in self.cutoffs_hz]
         out = []
         for family in self.families:
@@ -109,7 +113,6 @@ class Grid:
                     spec = FilterSpec(
                         self.response, family, int(order), lo, hi, self.ripple_db, self.stopband_db, stage, fs_hz
                     )
-                    opt = "--cutoffs" if self.response != "bandpass" else "--low-edges/--high-edges"
                     validate_spec(spec, fs_hz=fs_hz, name=opt)
                     out.append(spec)
         return out

@@ -274,3 +274,25 @@ def test_a_sweep_builds_its_cases_once(write_audio, monkeypatch):
     s = build({"cutoffs": Raw("2k:16k:3", "--cutoffs"), "max_loss": Raw("1", "--max-loss")})
     doc, _ = jobs.sweep_file(path, s, use_cache=False)
     assert len(calls) == 1 and len(doc["cases"]) == 3
+
+
+def test_an_edge_above_the_files_nyquist_is_named_by_its_origin(write_audio, tmp_path):
+    """The edges can only be checked against a file's sample rate, at the sweep: still named by origin."""
+    from audiobw import jobs
+
+    fs = 48000
+    path = write_audio("t.wav", tones([440.0], [0.2], fs, 0.5), fs)
+    cfg = tmp_path / "grid.toml"
+    cfg.write_text("[grid]\ncutoffs = '10k:30k:3'\n[targets]\nmax_loss = 1\n", encoding="utf-8")
+    with pytest.raises(ParameterError, match=rf"^{re.escape(str(cfg))} \[grid\] cutoffs: edge 30000 Hz must be"):
+        jobs.sweep_file(path, build(load_toml(cfg)), use_cache=False)
+    with pytest.raises(ParameterError, match=r"^--cutoffs: edge 25000 Hz must be"):
+        jobs.sweep_file(path, build(merge(load_toml(cfg), {"cutoffs": "10k:25k:2"})), use_cache=False)
+    cfg.write_text("[grid]\nresponse = 'bandpass'\nlow_edges = '5k'\nhigh_edges = '1k,2k'\n", encoding="utf-8")
+    s = build(merge(load_toml(cfg), {"max_loss": "1"}))
+    with pytest.raises(
+        ParameterError, match=rf"^{re.escape(str(cfg))} \[grid\] low_edges/.*\[grid\] high_edges: no pair"
+    ):
+        jobs.sweep_file(path, s, use_cache=False)
+    assert s.origins["low_edges"].endswith("[grid] low_edges") and "origins" not in s.to_json()
+    assert Settings.from_json(s.to_json()) == s  # the origins are not part of the JSON form, nor of equality
