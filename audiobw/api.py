@@ -25,8 +25,8 @@ from . import sweep as _sweep
 from .chain import Chain
 from .errors import ParameterError
 from .metrics import TARGET_KEYS, Meter
-from .options import FAMILIES, MAX_ORDER, MIN_ORDER
-from .settings import Settings
+from .options import FAMILIES, MAX_ORDER, MIN_ORDER, RESPONSES, default
+from .model import Settings
 
 __all__ = [
     "Chain",
@@ -44,7 +44,8 @@ __all__ = [
     "run_batch",
 ]
 
-RESPONSES = ("lowpass", "highpass", "bandpass")
+#: the command's grid defaults (audiobw.options)
+FAMILIES_DEFAULT, ORDERS_DEFAULT = default("family"), default("order")
 
 #: Listening (the A/B clips' loudness, ceiling, length, trials, seed) is
 #: :class:`audiobw.render.RenderOptions`, loaded on first use (module __getattr__).
@@ -73,7 +74,7 @@ class Grid(_sweep.Grid):
 
     @classmethod
     def lowpass(
-        cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",), orders=(4,), **kw
+        cls, start_hz: float, stop_hz: float, count: int, *, families=FAMILIES_DEFAULT, orders=ORDERS_DEFAULT, **kw
     ) -> Grid:
         """Lowpass cases with the upper edge swept over ``count`` log-spaced values.
 
@@ -98,7 +99,7 @@ class Grid(_sweep.Grid):
 
     @classmethod
     def highpass(
-        cls, start_hz: float, stop_hz: float, count: int, *, families=("butterworth",), orders=(4,), **kw
+        cls, start_hz: float, stop_hz: float, count: int, *, families=FAMILIES_DEFAULT, orders=ORDERS_DEFAULT, **kw
     ) -> Grid:
         """Highpass cases with the lower edge swept over ``count`` log-spaced values (Hz)."""
         return cls(
@@ -115,8 +116,8 @@ class Grid(_sweep.Grid):
         low: tuple[float, float, int],
         high: tuple[float, float, int],
         *,
-        families=("butterworth",),
-        orders=(4,),
+        families=FAMILIES_DEFAULT,
+        orders=ORDERS_DEFAULT,
         **kw,
     ) -> Grid:
         """Bandpass cases: every (low edge, high edge) pair with low < high.

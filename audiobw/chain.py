@@ -34,6 +34,7 @@ from dataclasses import asdict, dataclass, fields
 
 
 from .errors import ParameterError
+from .options import default, model_fields
 
 #: J/K, exact by definition since the 2019 SI revision (BIPM, The International System of
 #: Units, 9th ed., 2019, §2.2); equal to scipy.constants.k (tests/test_chain_noise_figure.py).
@@ -43,6 +44,8 @@ DBU_REF_VRMS = math.sqrt(0.6)  # 0 dBu: 1 mW into 600 Ω
 DITHERS = ("tpdf", "none")
 #: What stands between the chain and the converter's sampler above fs/2 (see :mod:`audiobw.noise`).
 ANTI_ALIAS = ("ideal", "none")
+#: the fields an option fills, with its limits
+CHAIN_FIELDS = model_fields("Chain")
 
 
 @dataclass(frozen=True)
@@ -101,70 +104,47 @@ class Chain:
         The table's file name, as recorded in sweep.json (None without a table).
     """
 
-    source_ohms: float = 200.0
-    temperature_k: float = 290.0
-    gain_db: float = 40.0
-    en_v_rthz: float = 1.5e-9
-    in_a_rthz: float = 1.0e-12
+    source_ohms: float = default("source_ohms")
+    temperature_k: float = default("temperature")
+    gain_db: float = default("gain")
+    en_v_rthz: float = default("en")
+    in_a_rthz: float = default("in")
     h2_db: float | None = None
     h3_db: float | None = None
     amp_bandwidth_hz: float | None = None
-    bits: int = 24
-    full_scale_vrms: float = 1.228
-    dither: str = "tpdf"
-    stage: str = "analog"
+    bits: int = default("bits")
+    full_scale_vrms: float = default("full_scale")
+    dither: str = default("dither")
+    stage: str = default("stage")
     input_gain_db: float = 0.0
     en_corner_hz: float | None = None
     in_corner_hz: float | None = None
-    anti_alias: str = "none"
+    anti_alias: str = default("anti_alias")
     en_table: tuple | None = None
     en_table_file: str | None = None
 
     def __post_init__(self):
+        """Check every field against its option's limits (:data:`audiobw.options.OPTIONS`), naming the field."""
         if self.en_table is not None:
             from .entable import check_rows
 
-            table = check_rows(self.en_table, name="--en-table")
+            table = check_rows(self.en_table, name="Chain.en_table")
             if self.en_corner_hz is not None:
                 raise ParameterError(
-                    "--en-table: conflicts with --en-corner (the table gives e_n at every "
+                    "Chain.en_table: conflicts with Chain.en_corner_hz (the table gives e_n at every "
                     "frequency, its 1/f part included); accepted: one of them"
                 )
             object.__setattr__(self, "en_table", table)
             object.__setattr__(self, "en_v_rthz", table[-1][1])
         elif self.en_table_file is not None:
             raise ParameterError(
-                f"--en-table: a file name ({self.en_table_file!r}) without its rows; "
+                f"Chain.en_table_file: a file name ({self.en_table_file!r}) without its rows; "
                 "accepted: en_table given with en_table_file"
             )
-        checks = [
-            ("--source-ohms", self.source_ohms, self.source_ohms >= 0, "a resistance >= 0 ohm"),
-            ("--temperature", self.temperature_k, self.temperature_k > 0, "a temperature > 0 K"),
-            ("--en", self.en_v_rthz, self.en_v_rthz >= 0, "a density >= 0 V/rtHz"),
-            ("--in", self.in_a_rthz, self.in_a_rthz >= 0, "a density >= 0 A/rtHz"),
-            ("--bits", self.bits, float(self.bits).is_integer() and 1 <= self.bits <= 32, "an integer 1 to 32"),
-            ("--full-scale", self.full_scale_vrms, self.full_scale_vrms > 0, "a voltage > 0 V rms"),
-            ("--dither", self.dither, self.dither in DITHERS, "tpdf or none"),
-            ("--stage", self.stage, self.stage in ("analog", "digital"), "analog or digital"),
-            ("--anti-alias", self.anti_alias, self.anti_alias in ANTI_ALIAS, "ideal or none"),
-            (
-                "--gain",
-                self.gain_db,
-                math.isfinite(self.gain_db) and abs(self.gain_db) <= 200,
-                "a gain in dB, |G| <= 200",
-            ),
-        ]
-        for opt, value in (("--h2", self.h2_db), ("--h3", self.h3_db)):
-            if value is not None:
-                checks.append((opt, value, value < 0, "a level below 0 dB re the fundamental"))
-        for opt, value in (("--en-corner", self.en_corner_hz), ("--in-corner", self.in_corner_hz)):
-            if value is not None:
-                checks.append((opt, value, math.isfinite(value) and value > 0, "a frequency > 0 Hz"))
-        if self.amp_bandwidth_hz is not None:
-            checks.append(("--amp-bandwidth", self.amp_bandwidth_hz, self.amp_bandwidth_hz > 0, "a frequency > 0 Hz"))
-        for opt, given, ok, accepted in checks:
-            if not ok:
-                raise ParameterError(f"{opt}: {given!r} is out of range; accepted: {accepted}")
+        for name, option in CHAIN_FIELDS.items():
+            value = getattr(self, name)
+            if value is not None or option.default is not None:
+                option.check(value, f"Chain.{name}")
 
     # -- derived quantities -------------------------------------------------
     @property
@@ -234,6 +214,12 @@ class Chain:
         if self.en_table is not None:
             out["en_table"] = [list(row) for row in self.en_table]
         return out
+
+    @classmethod
+    def from_json(cls, data: dict) -> Chain:
+        """The chain back from :meth:`to_json` (sweep.json's ``chain``); keys it does not know are left out."""
+        known = cls.field_names()
+        return cls(**{k: v for k, v in data.items() if k in known})
 
     @classmethod
     def field_names(cls) -> tuple[str, ...]:

@@ -14,7 +14,7 @@ from pathlib import Path
 import click
 
 from .cautions import ESTIMATE_CAUTION, LISTENING_CAUTION  # noqa: F401  (the commands take them from here)
-from .options import CHAIN_KEYS, GRID_KEYS, METER_KEYS, OPTIONS, PROGRAM_KEYS, option_name
+from .options import CHAIN_KEYS, GRID_KEYS, METER_KEYS, OPTIONS, PROGRAM_KEYS
 from .registry import TARGET_OPTION
 
 CONTEXT = dict(help_option_names=["-h", "--help"], max_content_width=100)
@@ -25,12 +25,15 @@ def dest(key: str) -> str:
 
 
 def options(keys, group: str):
-    """Declare ``--key`` options from the one table in settings.OPTIONS."""
+    """Declare ``--key`` options from the one table, :data:`audiobw.options.OPTIONS` (help with its default).
+
+    The click default stays None, so a value that was not given is told from one that was.
+    """
 
     def deco(fn):
         for key in reversed(keys):
-            _, _, text = OPTIONS[key]
-            fn = click.option(option_name(key), dest(key), default=None, metavar="VALUE", help=text)(fn)
+            o = OPTIONS[key]
+            fn = click.option(o.flag, dest(key), default=None, metavar="VALUE", help=o.help_text)(fn)
         return fn
 
     return deco
@@ -108,7 +111,8 @@ chain_file_option = click.option(
     "chain_file",
     type=click.Path(path_type=Path),
     default=None,
-    help="TOML file with [source] [amplifier] [converter] [grid] [targets] [meter]; options override it.",
+    help=f"TOML file with {' '.join(f'[{s}]' for s in dict.fromkeys(o.section for o in OPTIONS.values()))}; "
+    "options override it.",
 )
 
 

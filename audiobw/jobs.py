@@ -9,7 +9,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from .errors import OutputError, ParameterError
-from .settings import Settings
+from .model import Settings
 
 
 def sweep_file(
@@ -42,7 +42,8 @@ def sweep_file(
             "--max-loss, --max-lsd, --min-ser"
         )
     grid = settings.grid_for(info.sample_rate_hz / 2.0)
-    grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz)  # refuse a bad grid before reading
+    # refuse a bad grid before reading, naming where its edges came from
+    specs = grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz, names=settings.origins)
     from .sweep import ESTIMATE_FROM_CASES, time_estimate
 
     if notify is not None and grid.count() >= ESTIMATE_FROM_CASES:
@@ -65,6 +66,7 @@ def sweep_file(
         analysis=analysis,
         data=data,
         listening=settings.listening,
+        specs=specs,  # built and validated once, above
     )
     if settings.default_targets:
         result.notes.append(_default_targets_note(settings))
@@ -132,8 +134,7 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
     fs = units.parse_quantity(rate, "frequency", name="--rate")
     lo, hi = units.parse_band(band, name="--band")
     response = "bandpass" if lo and hi else ("lowpass" if hi else "highpass")
-    g = settings.grid_values
-    families, orders = g.get("family", ("butterworth",)), g.get("order", (4,))
+    families, orders = settings.grid_value("family"), settings.grid_value("order")
     if len(families) != 1 or len(orders) != 1:
         raise ParameterError("--family/--order: the noise budget takes one family and one order")
     spec = FilterSpec(
@@ -142,8 +143,8 @@ def noise_budget(settings: Settings, *, band: str, rate: str):
         orders[0],
         lo,
         hi,
-        g.get("ripple", 0.1),
-        g.get("stopband", 60.0),
+        settings.grid_value("ripple"),
+        settings.grid_value("stopband"),
         settings.chain.stage,
         fs,
     )

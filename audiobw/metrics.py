@@ -27,6 +27,7 @@ from numpy import fft as sfft  # the same pocketfft as scipy.fft, without import
 from .chain import Chain
 from .filters import Filter
 from .noise import noise_total
+from .options import default
 from .registry import TARGET_KEYS, TARGET_METRIC  # noqa: F401  (re-exported: the targets of the one metric table)
 from .spectrum import Analysis
 from .weighting import a_weighting_power
@@ -59,9 +60,9 @@ class Meter:
         Test-tone level, dBFS.
     """
 
-    mode: str = "full"
-    tone_hz: float = 997.0
-    tone_level_dbfs: float = -1.0
+    mode: str = default("meter")
+    tone_hz: float = default("tone")
+    tone_level_dbfs: float = default("tone_level")
 
     def band(self, nyquist_hz: float) -> tuple[float, float]:
         if self.mode == "aes17":

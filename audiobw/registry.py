@@ -356,9 +356,9 @@ TARGET_LABEL: dict[str, tuple[str, str, str, str]] = {
 FIDELITY_TARGETS: tuple[str, ...] = tuple(t.key for t, _ in TARGETS if t.fidelity)
 
 
-def target_options() -> dict[str, tuple[str, str, str]]:
-    """The target entries of :data:`audiobw.options.OPTIONS`: option key -> (section, kind, help)."""
-    return {t.option: ("targets", t.kind, t.help) for t, _ in TARGETS}
+def target_options() -> dict[str, tuple[str, str, str, str]]:
+    """The target entries of :data:`audiobw.options.OPTIONS`: option key -> (section, kind, help, target key)."""
+    return {t.option: ("targets", t.kind, t.help, t.key) for t, _ in TARGETS}
 
 
 def keys(block: int, flag: str | None = None) -> tuple[str, ...]:

@@ -20,7 +20,7 @@ from .chain import Chain
 from .errors import ParameterError
 from .filters import FilterSpec, design, validate_spec
 from .metrics import TARGET_KEYS, TARGET_METRIC, Meter, Scorer, check_targets
-from .options import grid_option
+from .options import default, grid_option, option_name
 from .spectrum import Analysis, analyse
 
 
@@ -58,16 +58,16 @@ class Grid:
     ripple_db, stopband_db : float
     """
 
-    response: str = "lowpass"
-    families: tuple = ("butterworth",)
-    orders: tuple = (4,)
+    response: str = default("response")
+    families: tuple = default("family")
+    orders: tuple = default("order")
     cutoffs_hz: tuple = ()
     low_edges_hz: tuple = ()
     high_edges_hz: tuple = ()
-    ripple_db: float = 0.1
-    stopband_db: float = 60.0
-    rank: str = "enbw"
-    tie: float = 0.01
+    ripple_db: float = default("ripple")
+    stopband_db: float = default("stopband")
+    rank: str = default("rank")
+    tie: float = default("tie")
 
     def count(self) -> int:
         """The number of cases, counted without building them (bandpass: pairs with low < high)."""
@@ -80,27 +80,31 @@ class Grid:
             pairs = len(self.cutoffs_hz)
         return len(self.families) * len(self.orders) * pairs
 
-    def specs(self, *, stage: str, fs_hz: float) -> list[FilterSpec]:
-        """Every case as a FilterSpec, validated for ``fs_hz``."""
+    def specs(self, *, stage: str, fs_hz: float, names: dict | None = None) -> list[FilterSpec]:
+        """Every case as a FilterSpec, validated for ``fs_hz``.
+
+        ``names``: where the edge grids came from, option key -> origin (``cutoffs`` ->
+        ``chain.toml [grid] cutoffs``) for the refusals; default the options (``--cutoffs``).
+        """
+        where = {k: (names or {}).get(k, option_name(k)) for k in ("cutoffs", "low_edges", "high_edges")}
+        opt = where["cutoffs"] if self.response != "bandpass" else f"{where['low_edges']}/{where['high_edges']}"
         n = self.count()
         if n > MAX_CASES:
-            opt = "--cutoffs" if self.response != "bandpass" else "--low-edges/--high-edges"
             raise ParameterError(
                 f"{opt} with --family and --order: the grid holds {n:,} cases; accepted: at most "
                 f"{MAX_CASES:,} (a coarser grid, or fewer families or orders)"
             )
         if self.response == "bandpass":
             if not self.low_edges_hz or not self.high_edges_hz:
-                raise ParameterError("--low-edges/--high-edges: a bandpass sweep needs both grids")
+                raise ParameterError(f"{opt}: a bandpass sweep needs both grids")
             pairs = [(lo, hi) for lo in self.low_edges_hz for hi in self.high_edges_hz if lo < hi]
             if not pairs:
                 raise ParameterError(
-                    "--low-edges/--high-edges: no pair has its low edge below its high edge; "
-                    "accepted: grids with some LOW < HIGH"
+                    f"{opt}: no pair has its low edge below its high edge; accepted: grids with some LOW < HIGH"
                 )
         else:
             if not self.cutoffs_hz:
-                raise ParameterError(f"--cutoffs: a {self.response} sweep needs a cutoff grid, e.g. 2k:20k:40")
+                raise ParameterError(f"{opt}: a {self.response} sweep needs a cutoff grid, e.g. 2k:20k:40")
             pairs = [(None, c) if self.response == "lowpass" else (c, None) for c in self.cutoffs_hz]
         out = []
         for family in self.families:
@@ -109,7 +113,6 @@ class Grid:
                     spec = FilterSpec(
                         self.response, family, int(order), lo, hi, self.ripple_db, self.stopband_db, stage, fs_hz
                     )
-                    opt = "--cutoffs" if self.response != "bandpass" else "--low-edges/--high-edges"
                     validate_spec(spec, fs_hz=fs_hz, name=opt)
                     out.append(spec)
         return out
@@ -273,6 +276,7 @@ def score_cases(
     data=None,
     perceptual=None,
     refused: list | None = None,
+    specs: list[FilterSpec] | None = None,
 ) -> list[dict]:
     """Design and score every case of ``grid`` against one analysis.
 
@@ -286,10 +290,14 @@ def score_cases(
     stage) is refused before any is scored: left out of the rows (ids count
     the scored cases) with its reason appended to ``refused``; when every
     case is refused, the first one's :class:`ParameterError` is raised.
+
+    ``specs``: the grid's cases as :meth:`Grid.specs` built and validated them for
+    this chain and sample rate (a caller that has them saves building them again).
     """
     from .noise import unbounded_reason, check_noise_bounded
 
-    specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
+    if specs is None:
+        specs = grid.specs(stage=chain.stage, fs_hz=analysis.sample_rate_hz)
     if chain.anti_alias == "none" and chain.amp_bandwidth_hz is None:
         # only a response with a floor at high frequencies (highpass, even-order elliptic)
         # or the digital stage can be unbounded
@@ -690,6 +698,7 @@ def run_sweep(
     analysis: Analysis | None = None,
     data=None,
     listening=None,
+    specs: list[FilterSpec] | None = None,
 ) -> SweepResult:
     """Analyse ``path`` once and score every case of ``grid``.
 
@@ -713,6 +722,9 @@ def run_sweep(
         (speech) and ``wiener_gap_db`` to every case, ``limits`` to the result,
         and allows the ``max_nmr_db``, ``max_audible_frames_pct`` and
         ``min_sii`` targets.
+    specs : list of FilterSpec, optional
+        The grid's cases from :meth:`Grid.specs` for this chain's stage and the
+        file's sample rate, when the caller has built (and so validated) them already.
     """
     meter = meter or Meter()
     targets = {k: v for k, v in (targets or {}).items() if v is not None}
@@ -747,7 +759,9 @@ def run_sweep(
 
         pscorer = PerceptualScorer(analysis, chain, listening)
     refused: list[str] = []
-    cases = score_cases(analysis, chain, grid, meter, targets, data=data, perceptual=pscorer, refused=refused)
+    cases = score_cases(
+        analysis, chain, grid, meter, targets, data=data, perceptual=pscorer, refused=refused, specs=specs
+    )
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []
     if refused:

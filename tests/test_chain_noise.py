@@ -133,13 +133,21 @@ def test_budget_shares_add_up():
 @pytest.mark.parametrize(
     "kw,match",
     [
-        (dict(source_ohms=-1.0), r"--source-ohms: -1.0 is out of range; accepted: a resistance >= 0 ohm"),
-        (dict(temperature_k=0.0), "--temperature: 0.0 is out of range"),
-        (dict(temperature_k=-5.0), "--temperature"),
-        (dict(bits=0), "--bits: 0 is out of range; accepted: an integer 1 to 32"),
-        (dict(full_scale_vrms=0.0), "--full-scale"),
-        (dict(h2_db=3.0), "--h2"),
-        (dict(dither="rect"), "--dither"),
+        # library use names the Python field (Chain.<field>), not a command-line flag
+        (dict(source_ohms=-1.0), r"^Chain\.source_ohms: -1\.0 is out of range; accepted: a resistance >= 0 ohm$"),
+        (dict(temperature_k=0.0), r"^Chain\.temperature_k: 0\.0 is out of range"),
+        (dict(temperature_k=-5.0), r"^Chain\.temperature_k: -5\.0"),
+        (dict(bits=0), r"^Chain\.bits: 0 is out of range; accepted: an integer 1 to 32$"),
+        (dict(bits=40), r"^Chain\.bits: 40 is out of range; accepted: an integer 1 to 32$"),
+        (dict(bits=16.5), r"^Chain\.bits: 16\.5 is out of range"),
+        (dict(full_scale_vrms=0.0), r"^Chain\.full_scale_vrms: 0\.0"),
+        (dict(h2_db=3.0), r"^Chain\.h2_db: 3\.0 is out of range; accepted: a harmonic level below 0 dB"),
+        (dict(h3_db=0.0), r"^Chain\.h3_db: 0\.0 is out of range"),
+        (dict(gain_db=250.0), r"^Chain\.gain_db: 250\.0 is out of range; accepted: a gain in dB, \|G\| <= 200$"),
+        (dict(en_corner_hz=0.0), r"^Chain\.en_corner_hz: 0\.0 is out of range; accepted: a frequency > 0 Hz$"),
+        (dict(dither="rect"), r"^Chain\.dither: 'rect' is not accepted; accepted: tpdf, none$"),
+        (dict(stage="dsp"), r"^Chain\.stage: 'dsp' is not accepted; accepted: analog, digital$"),
+        (dict(source_ohms="150"), r"^Chain\.source_ohms: '150' is not a number; accepted: a resistance >= 0 ohm$"),
     ],
 )
 def test_chain_refuses_bad_values(kw, match):

@@ -20,7 +20,7 @@ DOCS = (REPO / "docs" / "metrics.md").read_text(encoding="utf-8") + (REPO / "doc
 
 
 def test_every_target_option_maps_to_a_target_key():
-    target_options = {k for k, (section, _, _) in OPTIONS.items() if section == "targets"}
+    target_options = {k for k, o in OPTIONS.items() if o.section == "targets"}
     assert target_options == set(TARGET_OPTION)
     assert set(TARGET_OPTION.values()) == set(TARGET_KEYS)
     assert set(TARGET_METRIC) == set(TARGET_KEYS)
@@ -68,7 +68,7 @@ def test_every_chain_field_is_in_the_schema_and_the_docs():
     props = SCHEMA["properties"]["chain"]["properties"]
     assert [k for k in Chain.field_names() if k not in props] == []
     assert [k for k in Chain.field_names() if not re.search(rf"\b{k}\b", DOCS)] == []
-    assert set(props["anti_alias"]["enum"]) == set(ANTI_ALIAS) == set(OPTIONS["anti_alias"][1].split(":")[1].split(","))
+    assert set(props["anti_alias"]["enum"]) == set(ANTI_ALIAS) == set(OPTIONS["anti_alias"].choices)
     assert "anti_alias" in SCHEMA["properties"]["chain"]["required"]
     assert Chain().anti_alias == "none"  # the default the docs and the verdict state
     assert option_name("anti_alias") in DOCS

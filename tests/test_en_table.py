@@ -324,5 +324,5 @@ def test_the_library_chain_takes_rows_and_refuses_a_corner():
     c = Chain(en_table=[[10, 4e-9], [1e4, 2e-9]])
     assert c.en_table == ((10.0, 4e-9), (1e4, 2e-9)) and c.en_v_rthz == 2e-9 and c.has_flicker
     assert Chain(**json.loads(json.dumps(c.to_json()))) == c
-    with pytest.raises(ParameterError, match="conflicts with --en-corner"):
+    with pytest.raises(ParameterError, match=r"^Chain\.en_table: conflicts with Chain\.en_corner_hz"):
         Chain(en_table=[[10, 4e-9], [1e4, 2e-9]], en_corner_hz=100.0)

@@ -160,7 +160,7 @@ def test_any_magnitude_gives_figures_or_one_line(wav, tmp_path_factory, capsys, 
     """Any power of ten, either sign, in any numeric key: a finite result or a one-line refusal."""
     from audiobw.options import OPTIONS
 
-    section = OPTIONS[key][0]
+    section = OPTIONS[key].section
     value = sign * 10.0**exponent if exponent < 308 else sign * 1.7e308
     d = tmp_path_factory.mktemp("mag")
     cfg = d / "c.toml"

@@ -13,7 +13,9 @@ def test_every_key_list_comes_from_the_registry():
     assert metrics.TARGET_KEYS == registry.TARGET_KEYS and metrics.TARGET_METRIC == registry.TARGET_METRIC
     assert settings.TARGET_OPTION == registry.TARGET_OPTION and clikit.TARGETS == tuple(registry.TARGET_OPTION)
     assert text.TARGET_LABEL is registry.TARGET_LABEL
-    assert {k: v for k, v in options.OPTIONS.items() if v[0] == "targets"} == registry.target_options()
+    assert {k: (o.section, o.kind, o.help, o.field) for k, o in options.OPTIONS.items() if o.section == "targets"} == {
+        k: (s, kind, text, f"Targets.{key}") for k, (s, kind, text, key) in registry.target_options().items()
+    }
     assert text.COLUMNS[5:] == registry.columns("audio") and text.DATA_COLUMNS[5:] == registry.columns("data")
     assert set(registry.keys(1, "csv")) <= set(sweepio.CSV_KEYS)
     assert set(registry.keys(1, "summary")) <= set(spec.SUMMARY_KEYS)

@@ -49,9 +49,9 @@ def command(bit_rate, pattern, bits_count, amplitude, full_scale, rate, seed, ou
     from ..audio import write_audio_atomic
     from ..datalink import nrz_stream, prbs
     from ..errors import ParameterError
-    from ..settings import _parse_bit_rate
+    from ..values import parse_bit_rate
 
-    r = _parse_bit_rate(bit_rate, "--bit-rate")
+    r = parse_bit_rate(bit_rate, "--bit-rate")
     if r == "auto":
         raise ParameterError("--bit-rate: 'auto' is for recordings; accepted: a rate such as 2k")
     n = units.parse_int_list(bits_count, name="--bits-count", low=1, high=10_000_000)

@@ -133,8 +133,7 @@ def command(
     settings = settings_from(kwargs, chain_file)
     lo, hi = units.parse_band(band, name="--band")
     response = "bandpass" if lo and hi else ("lowpass" if hi else "highpass")
-    g = settings.grid_values
-    families, orders = g.get("family", ("butterworth",)), g.get("order", (4,))
+    families, orders = settings.grid_value("family"), settings.grid_value("order")
     if len(families) != 1 or len(orders) != 1:
         raise click.BadParameter("give one family and one order", param_hint="--family/--order")
     opts = RenderOptions(
@@ -158,8 +157,8 @@ def command(
         int(orders[0]),
         lo,
         hi,
-        g.get("ripple", 0.1),
-        g.get("stopband", 60.0),
+        settings.grid_value("ripple"),
+        settings.grid_value("stopband"),
         settings.chain.stage,
         info.sample_rate_hz,
     )
@@ -189,9 +188,9 @@ def command(
     if bit_rate is not None:
         from ..datalink import recover_bit_rate
         from ..report.eye import eye_diagram
-        from ..settings import _parse_bit_rate
+        from ..values import parse_bit_rate
 
-        rate = _parse_bit_rate(bit_rate, "--bit-rate")
+        rate = parse_bit_rate(bit_rate, "--bit-rate")
         if rate == "auto":
             rate, _ = recover_bit_rate(input)
         eye = eye_diagram(result.out_dir / "chain-output.wav", rate, result.out_dir / "eye.png")

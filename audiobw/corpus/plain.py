@@ -4,52 +4,18 @@ from __future__ import annotations
 
 import hashlib
 import json
-from dataclasses import asdict
-
-
-def _plain(v):
-    if isinstance(v, (tuple, list)):
-        return [_plain(x) for x in v]
-    if isinstance(v, dict):
-        return {k: _plain(x) for k, x in v.items()}
-    if hasattr(v, "__dataclass_fields__"):
-        return _plain(asdict(v))
-    return v
 
 
 def settings_to_plain(settings) -> dict:
-    """The Settings as JSON-ready plain data (what travels to the workers): every field."""
-    from dataclasses import fields
-
-    return {f.name: _plain(getattr(settings, f.name)) for f in fields(settings)}
+    """The Settings as JSON-ready plain data (what travels to the workers): :meth:`Settings.to_json`."""
+    return settings.to_json()
 
 
 def settings_from_plain(data: dict):
-    """Rebuild Settings from :func:`settings_to_plain` output."""
-    from dataclasses import fields
+    """Rebuild Settings from :func:`settings_to_plain` output: :meth:`Settings.from_json`."""
+    from ..model import Settings
 
-    from ..chain import Chain
-    from ..metrics import Meter
-    from ..settings import Settings
-
-    kw = dict(data)
-    kw["chain"] = Chain(**data["chain"])
-    kw["meter"] = Meter(**data["meter"])
-    kw["grid_values"] = {k: tuple(v) if isinstance(v, list) else v for k, v in data["grid_values"].items()}
-    kw["targets"] = dict(data["targets"])
-    kw["input_level"] = tuple(data["input_level"]) if data["input_level"] is not None else None
-    if data.get("listening"):
-        from ..perceptual.scoring import Listening
-
-        ls = data["listening"]
-        ag = ls.get("audiogram_hl")
-        kw["listening"] = Listening(
-            ls["program"], ls.get("playback_spl_db"), {float(k): float(v) for k, v in ag.items()} if ag else None
-        )
-    if "default_targets" in data:
-        kw["default_targets"] = tuple(data["default_targets"])
-    known = {f.name for f in fields(Settings)}
-    return Settings(**{k: v for k, v in kw.items() if k in known})
+    return Settings.from_json(data)
 
 
 def options_hash(plain: dict) -> str:

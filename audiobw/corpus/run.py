@@ -9,7 +9,7 @@ from pathlib import Path
 
 from ..errors import OutputError, ParameterError
 from .inputs import collect_inputs
-from .plain import options_hash, settings_to_plain
+from .plain import options_hash
 from .runners import _run_cluster, _run_pool, _run_serial
 from .summary import csv_text, summarise
 
@@ -106,7 +106,7 @@ def _run_batch(
     if out.exists() and not out.is_dir():
         raise OutputError(f"--out: {str(out)!r} exists and is not a folder")
     inputs = collect_inputs(args, follow_links=follow_links)
-    plain = settings_to_plain(settings)
+    plain = settings.to_json()  # what travels to the workers (Settings.from_json there)
     opt = options_hash(plain)
     out_abs = Path(os.path.abspath(out))
     tasks = [

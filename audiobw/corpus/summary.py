@@ -10,7 +10,6 @@ from __future__ import annotations
 import math
 
 from .cache import DATA_KEYS, IDENTITY_KEYS, MEDIAN_KEYS
-from .plain import settings_to_plain
 
 PERCENTILES = (5, 25, 50, 75, 95)
 CSV_KEYS = (
@@ -90,7 +89,7 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
     # no case passes: the shares are over every input, not only the swept ones
     n = len(files) + len(failed)
     need = math.ceil(coverage * n - 1e-9)
-    families = list(settings.grid_values.get("family", ("butterworth",)))
+    families = list(settings.grid_value("family"))
     table: dict[tuple, dict] = {}
     for fi, (_, entry) in enumerate(files):
         for case in entry["cases"]:
@@ -154,8 +153,8 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
         picked, _ = choose(
             cases,
             settings.targets,
-            rank=settings.grid_values.get("rank", "enbw"),
-            tie=settings.grid_values.get("tie", 0.01),
+            rank=settings.grid_value("rank"),
+            tie=settings.grid_value("tie"),
         )
         if picked is not None:
             chosen = cases[picked["case"] - 1]
@@ -244,7 +243,7 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
             }
         )
     chain = settings.chain.to_json()
-    plain = settings_to_plain(settings)
+    plain = settings.to_json()
     return {
         "tool": "audiobw",
         "version": __version__,

@@ -26,7 +26,7 @@ from .cache import (
     entry_checksum,
     read_cache,
 )
-from .plain import settings_from_plain
+from ..model import Settings
 
 _local = threading.local()
 _hook_lock = threading.Lock()
@@ -116,7 +116,7 @@ def sweep_task(task: dict) -> dict:
     """Sweep one file (or take it from the cache); returns a small plain mapping.
 
     ``task`` keys: ``path`` (absolute), ``out_dir``, ``cache_dir``,
-    ``settings`` (:func:`settings_to_plain`), ``options`` (its hash).
+    ``settings`` (:meth:`Settings.to_json`), ``options`` (its hash).
     The result has ``status`` ("ok" or "failed"), ``cached``, and either the
     cache entry (``entry``) or a ``reason``.
     """
@@ -144,7 +144,7 @@ def sweep_task(task: dict) -> dict:
     _install_warning_hook()
     _local.sink = caught = []
     try:
-        settings = settings_from_plain(task["settings"])
+        settings = Settings.from_json(task["settings"])
         # the digest just taken is reused by the analysis (one hash per file);
         # a change while the file is read shows in its fingerprint (check_unchanged)
         # the analysis cache is keyed by that digest too: options changed since, the file is not decoded

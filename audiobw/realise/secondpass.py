@@ -22,7 +22,7 @@ from ..weighting import a_weighting_power
 def second_pass(doc: dict, case: dict, spec: FilterSpec, n_bins: int = 1 << 14):
     """A callable(f_hz, density) -> second-pass mapping for :func:`..build.realise`."""
     fs = float(doc["input"]["sample_rate_hz"])
-    chain = Chain(**doc["chain"])
+    chain = Chain.from_json(doc["chain"])
     m_lo, m_hi = float(doc["meter"]["low_hz"]), float(doc["meter"]["high_hz"])
     grid = np.linspace(0.0, fs / 2, n_bins + 1)
     weights = np.full(grid.size, fs / 2 / n_bins)

@@ -44,7 +44,7 @@ def render_sweep(
             "accepted: a sweep with a passing case"
         )
     fs = int(doc["input"]["sample_rate_hz"])
-    chain = Chain(**{k: v for k, v in doc["chain"].items() if k in Chain.field_names()})
+    chain = Chain.from_json(doc["chain"])
     by_id = {c["id"]: c for c in doc["cases"]}
     out_dir = Path(out_dir)
     paths = []

@@ -114,7 +114,7 @@ def notes_text(facts: dict) -> str:
         f"  {facts['input']['sample_rate_hz']} Hz, {facts['input']['channels']} channel(s), "
         f"{facts['input']['frames']} frames",
         f"Filter: {f['label']} ({f['stage']} stage); -3 dB edges {fmt(f['low_hz'])} / {fmt(f['high_hz'])}",
-        f"Chain: {_chain_text(Chain(**c))}",
+        f"Chain: {_chain_text(Chain.from_json(c))}",
         f"Seed: {facts['seed']} (noise, dither and trial order)",
         "Converter clipping: "
         + ("none" if cl["samples"] == 0 else f"{cl['samples']} samples clipped, first at {cl['first_s']:.3f} s"),

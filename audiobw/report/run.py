@@ -158,4 +158,4 @@ def rebuild_filter(doc: dict, case: dict):
 def rebuild_chain(doc: dict):
     from ..chain import Chain
 
-    return Chain(**doc["chain"])
+    return Chain.from_json(doc["chain"])
