@@ -71,8 +71,6 @@ def _summary(case: dict, ref: dict | None = None) -> dict:
     return out
 
 
-
-
 def neighbours(cases: list[dict], subject: dict) -> dict:
     """Next-narrower and next-wider cases of the same family and order, and the runner-up.
 
