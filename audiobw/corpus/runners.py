@@ -34,13 +34,11 @@ def _run_pool(tasks, workers: int, on_result):
     from concurrent.futures import ProcessPoolExecutor, as_completed
     from concurrent.futures.process import BrokenProcessPool
 
-    n = max(1, min(workers, len(tasks)))
     pool = ProcessPoolExecutor(
-        max_workers=n,
+        max_workers=max(1, min(workers, len(tasks))),
         mp_context=multiprocessing.get_context("spawn"),
         initializer=worker_init,
-        # workers that fill the cores run their analysis without its extra helper thread
-        initargs=(os.getpid(), n >= (os.cpu_count() or 1)),
+        initargs=(os.getpid(),),
     )
     futures: dict = {}
 

@@ -90,12 +90,13 @@ def exit_with_parent(parent_pid: int | None) -> None:
     threading.Thread(target=watch, name="audiobw-parent-watch", daemon=True).start()
 
 
-def worker_init(parent_pid: int | None = None, cores_full: bool = False) -> None:
+def worker_init(parent_pid: int | None = None) -> None:
     """Process-pool initializer: one BLAS thread, Ctrl-C handled by the parent only, exit with the parent.
 
-    ``cores_full``: the pool has as many workers as the machine has cores, so
-    each analysis runs without its extra helper thread (``AUDIOBW_THREADS=1``,
-    :func:`audiobw.spectrum.helper_threads`): the other cores serve other files.
+    A worker is one core: its sweeps run without the analysis's extra helper
+    thread and without forked scoring (``AUDIOBW_THREADS=1``,
+    :func:`audiobw.spectrum.helper_threads`); ``--workers`` says how many
+    cores a batch takes.
     """
     import signal
 
@@ -103,8 +104,7 @@ def worker_init(parent_pid: int | None = None, cores_full: bool = False) -> None
 
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ[var] = "1"
-    if cores_full:
-        os.environ["AUDIOBW_THREADS"] = "1"
+    os.environ["AUDIOBW_THREADS"] = "1"
     if os.environ.get("AUDIOBW_MALLOC", "") != "default":
         from .._start import tune_malloc
 
