@@ -108,12 +108,24 @@ def sweep(input, out, as_json, do_render, do_report, no_cache, chain_file, **kwa
     click.echo(ESTIMATE_CAUTION)
 
 
+#: Sweeps of at least this many cases show a scoring progress bar (or lines, AUDIOBW_PROGRESS=lines).
+SCORING_PROGRESS_CASES = 2000
+
+
 def _sweep_into(input, settings, out_dir, do_render, do_report, *, use_cache: bool = True):
     """sweep's work (sweep, then --render and --report), run while the output folder is locked."""
     from .jobs import sweep_file
     from .names import shown
 
     progress = Progress(f"analysing {shown(input.name)}")
+    # scoring shows progress from SCORING_PROGRESS_CASES cases up (about 3 s of scoring)
+    scoring = Progress("scoring cases", min_frames=SCORING_PROGRESS_CASES)
+
+    def case_progress(done, total):
+        if total >= SCORING_PROGRESS_CASES:
+            progress.close()  # the analysis bar ends before the scoring bar starts
+            scoring(done, total)
+
     try:
         doc, paths = sweep_file(
             input,
@@ -122,9 +134,11 @@ def _sweep_into(input, settings, out_dir, do_render, do_report, *, use_cache: bo
             progress=progress,
             notify=lambda line: click.echo(f"audiobw: {line}", err=True),
             use_cache=use_cache,
+            case_progress=case_progress,
         )
     finally:
         progress.close()
+        scoring.close()
     extra = []
     if do_render:
         from .render import render_sweep

@@ -102,8 +102,10 @@ class Progress:
             self._last = done
 
     def close(self):
+        """End the bar (if one was drawn); calling it again does nothing."""
         if self.bar:
             self.bar.__exit__(None, None, None)
+            self.bar = False
 
 
 chain_file_option = click.option(

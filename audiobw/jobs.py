@@ -13,9 +13,20 @@ from .model import Settings
 
 
 def sweep_file(
-    path, settings: Settings, *, out_dir=None, progress=None, sha256=None, notify=None, use_cache: bool = True
+    path,
+    settings: Settings,
+    *,
+    out_dir=None,
+    progress=None,
+    sha256=None,
+    notify=None,
+    use_cache: bool = True,
+    case_progress=None,
 ):
     """Analyse ``path``, sweep the grid, write sweep.json/sweep.csv to ``out_dir``.
+
+    ``progress`` is called with (frames done, frames) during the analysis,
+    ``case_progress`` with (cases done, cases) while they are scored.
 
     With ``use_cache`` the analysis comes from, and goes to, the analysis cache
     (:mod:`audiobw.cache`, keyed by the file's SHA-256); the figures are the same.
@@ -67,6 +78,7 @@ def sweep_file(
         data=data,
         listening=settings.listening,
         specs=specs,  # built and validated once, above
+        case_progress=case_progress,
     )
     if settings.default_targets:
         result.notes.append(_default_targets_note(settings))

@@ -26,8 +26,10 @@ from .spectrum import Analysis, analyse
 
 #: The largest grid swept in one run (each case keeps a row of figures; far beyond any useful resolution).
 MAX_CASES = 200_000
-#: Mean time to design and score one case, s: about 0.5 ms, measured in docs/performance.md (target 3).
-SECONDS_PER_CASE = 0.5e-3
+#: Mean time to design and score one case on one core, s, perceptual figures included (music and
+#: speech): about 1.7 ms, docs/performance.md ("Using the whole machine"); half that when the
+#: scoring forks onto an idle second core.
+SECONDS_PER_CASE = 1.7e-3
 #: Grids of at least this many cases get a time estimate on stderr before the sweep starts.
 ESTIMATE_FROM_CASES = 10_000
 
@@ -37,8 +39,9 @@ def time_estimate(n_cases: int) -> str:
     t = n_cases * SECONDS_PER_CASE
     span = f"{t:.0f} s" if t < 120 else f"{t / 60:.1f} min"
     return (
-        f"{n_cases:,} cases to score: about {span} at {SECONDS_PER_CASE * 1e3:g} ms per case "
-        "(measured on the benchmark machine; a busy or slower machine takes longer)"
+        f"{n_cases:,} cases to score: about {span} at {SECONDS_PER_CASE * 1e3:g} ms per case on one core "
+        "(measured on the benchmark machine; an idle second core halves it, a busy or slower machine "
+        "takes longer)"
     )
 
 
@@ -277,6 +280,7 @@ def score_cases(
     perceptual=None,
     refused: list | None = None,
     specs: list[FilterSpec] | None = None,
+    progress=None,
 ) -> list[dict]:
     """Design and score every case of ``grid`` against one analysis.
 
@@ -293,6 +297,7 @@ def score_cases(
 
     ``specs``: the grid's cases as :meth:`Grid.specs` built and validated them for
     this chain and sample rate (a caller that has them saves building them again).
+    ``progress``: called as ``progress(cases_done, cases)`` while scoring.
     """
     from .noise import unbounded_reason, check_noise_bounded
 
@@ -341,7 +346,7 @@ def score_cases(
         row.update(passes=passes, fails=fails, margins_db=margins)
         return row
 
-    return forked_map(score_one, list(enumerate(specs, start=1)))
+    return forked_map(score_one, list(enumerate(specs, start=1)), progress=progress)
 
 
 #: Below this many cases a sweep scores in one process (a fork costs more than it saves).
@@ -354,7 +359,7 @@ def _may_fork(n_items: int) -> bool:
     Only on Linux (fork after numpy is safe there), with at least two cores and
     one of them idle (:func:`_others_running` at most cores − 2), no other live
     thread in this process, ``AUDIOBW_THREADS`` not ``1`` (batch workers that
-    fill the cores set it), and enough cases to pay for the fork.
+    are one core each set it), and enough cases to pay for the fork.
     """
     import os
     import sys
@@ -391,7 +396,7 @@ def _others_running() -> float:
     return statistics.median(counts)
 
 
-def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
+def forked_map(fn, items: list, *, fork: bool | None = None, progress=None) -> list:
     """``[fn(x) for x in items]``, the second half computed in a forked child when a core is idle.
 
     The child inherits everything computed so far (analysis, scorers, the shared
@@ -400,23 +405,29 @@ def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
     bit through their repr); the order and the values are those of the plain
     loop (tested).  An error in the child is raised here (an
     :class:`~audiobw.errors.AudiobwError` with its type and text, anything else
-    as RuntimeError); an interrupt stops both.  ``fork``: force (True) or forbid
-    (False) the split; default :func:`_may_fork`.
+    as RuntimeError); an interrupt stops both, and the child dies with the
+    parent (Linux ``PR_SET_PDEATHSIG``).  ``fork``: force (True) or forbid
+    (False) the split; default :func:`_may_fork`.  ``progress``: called as
+    ``progress(done, total)`` after each item of this process (the child's
+    half is counted at the pace of the parent's).
     """
     import json
     import os
 
     from . import errors
 
-    if not (_may_fork(len(items)) if fork is None else fork) or len(items) < 2:
-        return [fn(x) for x in items]
-    half = (len(items) + 1) // 2
+    n = len(items)
+    if not (_may_fork(n) if fork is None else fork) or n < 2:
+        return [_ticked(fn, x, i, n, 1, progress) for i, x in enumerate(items, start=1)]
+    half = (n + 1) // 2
+    parent = os.getpid()
     r, w = os.pipe()
     pid = os.fork()
     if pid == 0:  # the child: score the second half, send it, leave without any cleanup of the parent's
         code = 0
         try:
             os.close(r)
+            _die_with(parent)
             try:
                 msg = {"ok": [fn(x) for x in items[half:]]}
             except BaseException as exc:  # handed to the parent
@@ -429,7 +440,7 @@ def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
             os._exit(code)
     os.close(w)
     try:
-        mine = [fn(x) for x in items[:half]]
+        mine = [_ticked(fn, x, i, n, n / half, progress) for i, x in enumerate(items[:half], start=1)]
         with os.fdopen(r, "rb") as fh:
             r = -1
             data = fh.read()
@@ -451,7 +462,34 @@ def forked_map(fn, items: list, *, fork: bool | None = None) -> list:
         if isinstance(kind, type) and issubclass(kind, errors.AudiobwError):
             raise kind(msg["text"])
         raise RuntimeError(f"scoring (helper process): {msg['error']}: {msg['text']}")
+    if progress is not None:
+        progress(n, n)
     return mine + msg["ok"]
+
+
+def _ticked(fn, x, i: int, n: int, pace: float, progress):
+    out = fn(x)
+    if progress is not None:
+        progress(min(n, int(i * pace)), n)
+    return out
+
+
+def _die_with(parent_pid: int) -> None:
+    """Linux: end this (forked) process when its parent ends (prctl(2) PR_SET_PDEATHSIG), so a
+    killed sweep leaves no half-finished scorer running; elsewhere nothing."""
+    import os
+    import sys
+
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        import ctypes
+        import signal
+
+        if ctypes.CDLL(None).prctl(1, int(signal.SIGKILL), 0, 0, 0) == 0 and os.getppid() != parent_pid:
+            os._exit(1)  # the parent ended before the call
+    except (OSError, AttributeError):
+        pass
 
 
 def _data_metrics(filt, analysis: Analysis, chain: Chain, data, total=None) -> dict:
@@ -699,6 +737,7 @@ def run_sweep(
     data=None,
     listening=None,
     specs: list[FilterSpec] | None = None,
+    case_progress=None,
 ) -> SweepResult:
     """Analyse ``path`` once and score every case of ``grid``.
 
@@ -725,6 +764,8 @@ def run_sweep(
     specs : list of FilterSpec, optional
         The grid's cases from :meth:`Grid.specs` for this chain's stage and the
         file's sample rate, when the caller has built (and so validated) them already.
+    case_progress : callable(cases_done, cases), optional
+        Called while the cases are scored.
     """
     meter = meter or Meter()
     targets = {k: v for k, v in (targets or {}).items() if v is not None}
@@ -760,7 +801,16 @@ def run_sweep(
         pscorer = PerceptualScorer(analysis, chain, listening)
     refused: list[str] = []
     cases = score_cases(
-        analysis, chain, grid, meter, targets, data=data, perceptual=pscorer, refused=refused, specs=specs
+        analysis,
+        chain,
+        grid,
+        meter,
+        targets,
+        data=data,
+        perceptual=pscorer,
+        refused=refused,
+        specs=specs,
+        progress=case_progress,
     )
     choice, unmet = choose(cases, targets, rank=grid.rank, tie=grid.tie)
     notes = []

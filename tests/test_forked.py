@@ -107,3 +107,54 @@ def test_malloc_tuning_changes_no_figure(tmp_path):
         subprocess.run([sys.executable, "-m", "audiobw", *args], env=env, check=True, capture_output=True)
         out[mode] = [(tmp_path / mode / name).read_bytes() for name in ("sweep.json", "sweep.csv")]
     assert out["tuned"] == out["default"]
+
+
+@pytest.mark.parametrize("fork", [False, True])
+def test_progress_counts_up_to_every_item(fork):
+    seen = []
+    items = list(range(41))
+    assert forked_map(_square, items, fork=fork, progress=lambda done, total: seen.append((done, total))) == [
+        x * x for x in items
+    ]
+    dones = [d for d, _ in seen]
+    assert all(t == 41 for _, t in seen)
+    assert dones == sorted(dones) and dones[-1] == 41 and 0 < dones[0] <= 2
+
+
+def test_the_child_dies_with_its_parent():
+    """A forked scorer whose parent is killed does not run on (prctl PR_SET_PDEATHSIG)."""
+    import os
+    import signal
+    import subprocess
+    import time
+
+    code = (
+        "import os, sys, time\n"
+        "from audiobw.sweep import forked_map\n"
+        "def slow(x):\n"
+        "    if x == 3:\n"
+        "        print(os.getpid(), flush=True)\n"
+        "    time.sleep(0.05 if x < 3 else 5.0)\n"
+        "    return x\n"
+        "print('parent', os.getpid(), flush=True)\n"
+        "forked_map(slow, list(range(6)), fork=True)\n"
+    )
+    proc = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
+    assert proc.stdout.readline().startswith("parent")
+    child = int(proc.stdout.readline())  # item 3 is the child's first (items 3, 4, 5)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    for _ in range(40):  # 2 s, well before the child's own 15 s of work would end
+        try:
+            os.kill(child, 0)
+        except ProcessLookupError:
+            break
+        try:  # reaped by init; a zombie still answers kill(0): read its state
+            with open(f"/proc/{child}/stat") as fh:
+                if fh.read().split(")")[1].split()[0] == "Z":
+                    break
+        except FileNotFoundError:
+            break
+        time.sleep(0.05)
+    else:
+        pytest.fail(f"the forked child {child} outlived its killed parent")

@@ -248,7 +248,24 @@ def test_a_large_grid_gets_a_time_estimate_on_stderr(wav, tmp_path, capsys, monk
     monkeypatch.setattr(sweep_mod, "ESTIMATE_FROM_CASES", 20)
     got, io = run(["sweep", wav, "--cutoffs", "2k:20k:24", "--max-loss", "1", "--out", tmp_path / "o"], capsys)
     assert got == 0
-    assert "24 cases to score: about 0 s at 0.5 ms per case" in io.err and "cases to score" not in io.out
+    assert "24 cases to score: about 0 s at 1.7 ms per case on one core" in io.err
+    assert "cases to score" not in io.out
+
+
+def test_a_large_sweep_shows_scoring_progress(wav, tmp_path, capsys, monkeypatch):
+    import audiobw.cli as cli_mod
+
+    monkeypatch.setattr(cli_mod, "SCORING_PROGRESS_CASES", 20)
+    monkeypatch.setenv("AUDIOBW_PROGRESS", "lines")
+    got, io = run(["sweep", wav, "--cutoffs", "2k:20k:24", "--max-loss", "1", "--out", tmp_path / "o"], capsys)
+    assert got == 0
+    lines = [ln for ln in io.err.splitlines() if "progress: scoring cases" in ln]
+    assert lines[0].endswith("scoring cases 0 %") or lines[0].endswith("scoring cases 10 %")
+    assert lines[-1].endswith("scoring cases 100 %") and len(lines) >= 5
+    # below the threshold nothing is said about scoring
+    monkeypatch.setattr(cli_mod, "SCORING_PROGRESS_CASES", 25)
+    got, io = run(["sweep", wav, "--cutoffs", "2k:20k:24", "--max-loss", "1", "--out", tmp_path / "p"], capsys)
+    assert got == 0 and "scoring cases" not in io.err
 
 
 # -- configs: depth, size, types ----------------------------------------------------------------------------
