@@ -388,7 +388,7 @@ def test_property_unmet_and_conflicts_explain_every_failed_sweep():
     check()
 
 
-# --- the terminal table of a large sweep (audiobw.report.text.shown_cases) ---------------
+# --- the terminal table of a large sweep (audiobw.report.table.shown_cases) ---------------
 
 
 def test_large_table_shows_one_row_per_design():

@@ -35,7 +35,7 @@ from .formatting import (
     target_info,
     target_text,
 )
-from .text import COLUMNS
+from .table import COLUMNS
 
 CSP = (
     "default-src 'none'; img-src data:; media-src 'self' file:; style-src 'unsafe-inline'; "
