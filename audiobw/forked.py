@@ -23,7 +23,7 @@ def _may_fork(n_items: int) -> bool:
     import sys
     import threading
 
-    from .spectrum import helper_threads
+    from .background import helper_threads
 
     if n_items < FORK_MIN_CASES or not sys.platform.startswith("linux") or not helper_threads():
         return False

@@ -95,7 +95,7 @@ def worker_init(parent_pid: int | None = None, cores_full: bool = False) -> None
 
     ``cores_full``: the pool has as many workers as the machine has cores, so
     each analysis runs without its extra helper thread (``AUDIOBW_THREADS=1``,
-    :func:`audiobw.spectrum.helper_threads`): the other cores serve other files.
+    :func:`audiobw.background.helper_threads`): the other cores serve other files.
     """
     import signal
 
