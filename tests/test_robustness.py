@@ -389,7 +389,7 @@ def test_truncated_header_is_refused(tmp_path, capsys):
 def test_unreadable_file_is_refused(tmp_path, capsys, monkeypatch):
     p = tmp_path / "locked.wav"
     sf.write(str(p), np.full((FS, 1), 0.1), FS, subtype="PCM_16")
-    import audiobw.audio as audio_mod
+    import audiobw.audio.reading as audio_mod  # open_info looks os.access up there
 
     real = audio_mod.os.access
     monkeypatch.setattr(
