@@ -83,7 +83,8 @@ def sweep(input, out, as_json, do_render, do_report, no_cache, chain_file, **kwa
     """
     from .report.sweepio import dumps
     from .names import shown
-    from .report.text import case_table, closing_paragraph
+    from .report.table import case_table
+    from .report.text import closing_paragraph
 
     settings = settings_from(kwargs, chain_file)
     out_dir = out or _default_out(input)
@@ -199,7 +200,7 @@ def noise(band, family, order, ripple, stopband, rate, as_json, chain_file, **kw
         # a zero contributor has no level in dB: JSON carries null for it
         click.echo(json.dumps(_finite_or_null(b), indent=2, allow_nan=False, default=str))
         return
-    from .report.text import budget_text
+    from .report.budget import budget_text
 
     click.echo(budget_text(b, header=header))
     stated = default_chain_line(kwargs, chain_file, settings)

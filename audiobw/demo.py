@@ -99,7 +99,8 @@ def _data_link(out: Path, summary: list):
     from .audio import write_audio_atomic
     from .datalink import nrz_stream, prbs
     from .jobs import sweep_file
-    from .report.text import closing_paragraph, passband_text
+    from .report.text import closing_paragraph
+    from .report.words import passband_text
     from .settings import Raw, build
 
     fs, rate, amp_v, fs_v = 48000, 2000.0, 0.010, 0.050
@@ -173,7 +174,8 @@ def _fmt_part(name, value):
 def _speech(folder: Path, out: Path, summary: list):
     """The paging example: the announcement as speech, chosen by SII ≥ 0.75."""
     from .jobs import sweep_file
-    from .report.text import closing_paragraph, passband_text
+    from .report.text import closing_paragraph
+    from .report.words import passband_text
     from .settings import Raw, build
 
     raw = {k: Raw(v, f"demo {k}") for k, v in {**DEMO_CHAIN, **SPEECH_TARGETS, **SPEECH_GRID}.items()}
@@ -207,7 +209,8 @@ def run(out: Path, *, clips_dir=None):
     import time
 
     from .jobs import sweep_file
-    from .report.text import closing_paragraph, passband_text
+    from .report.text import closing_paragraph
+    from .report.words import passband_text
     from .settings import Raw, build
 
     folder = find_clips(clips_dir)

@@ -55,7 +55,7 @@ def sweep_file(
     grid = settings.grid_for(info.sample_rate_hz / 2.0)
     # refuse a bad grid before reading, naming where its edges came from
     specs = grid.specs(stage=settings.chain.stage, fs_hz=info.sample_rate_hz, names=settings.origins)
-    from .sweep import ESTIMATE_FROM_CASES, time_estimate
+    from .grid import ESTIMATE_FROM_CASES, time_estimate
 
     if notify is not None and grid.count() >= ESTIMATE_FROM_CASES:
         notify(time_estimate(grid.count()))

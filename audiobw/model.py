@@ -56,7 +56,7 @@ class Settings:
 
     def grid_for(self, nyquist_hz: float):
         """The Grid, with defaults for the edges that were not given, fitted to ``nyquist_hz``."""
-        from .sweep import Grid
+        from .grid import Grid
 
         g = dict(self.grid_values)
         response = self.grid_value("response")

@@ -46,7 +46,7 @@ class Column:
 
     ``audio``/``data``: its position in the music/speech table and in the
     data-program table (None: not shown there); ``show`` a derived key that
-    :mod:`audiobw.report.text` computes for display (``eye_pct``).
+    :mod:`audiobw.report.table` computes for display (``eye_pct``).
     """
 
     header: str

@@ -115,7 +115,7 @@ def test_integer_subtype_refuses_overrange(tmp_path):
 def test_disk_full_is_a_clear_error_and_leaves_no_file(tmp_path, monkeypatch):
     import errno
 
-    import audiobw.audio as audio_mod
+    import audiobw.audio.writing as audio_mod
 
     def full(*a, **k):
         raise OSError(errno.ENOSPC, "No space left on device")

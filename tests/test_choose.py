@@ -1,11 +1,11 @@
-"""The choice rule (audiobw.sweep.choose) on plain rows, one tie-break per test.
+"""The choice rule (audiobw.choice.choose) on plain rows, one tie-break per test.
 
-The rule (audiobw/sweep.py docstring): among passing cases the narrowest
+The rule (audiobw/choice.py docstring): among passing cases the narrowest
 -3 dB bandwidth; ties go to the lower ENBW, then the lower order, then the
 earlier case; the binding target is the one with the least margin; with no
 passing case there is no choice, ``unmet`` names the targets no case meets
 even on its own with the best value any case reached, and ``conflicts``
-(audiobw.sweep.conflicts) the targets that each hold somewhere but never
+(audiobw.choice.conflicts) the targets that each hold somewhere but never
 together, with the edge where each flips.
 """
 
@@ -388,7 +388,7 @@ def test_property_unmet_and_conflicts_explain_every_failed_sweep():
     check()
 
 
-# --- the terminal table of a large sweep (audiobw.report.text.shown_cases) ---------------
+# --- the terminal table of a large sweep (audiobw.report.table.shown_cases) ---------------
 
 
 def test_large_table_shows_one_row_per_design():

@@ -1,4 +1,4 @@
-"""Scoring half of a large sweep in a forked child (audiobw.sweep.forked_map) changes nothing."""
+"""Scoring half of a large sweep in a forked child (audiobw.forked.forked_map) changes nothing."""
 
 from __future__ import annotations
 
@@ -11,7 +11,8 @@ from audiobw.chain import Chain
 from audiobw.errors import ParameterError
 from audiobw.perceptual.scoring import Listening, PerceptualScorer
 from audiobw.spectrum import analyse
-from audiobw.sweep import Grid, Meter, forked_map, score_cases
+from audiobw.forked import forked_map
+from audiobw.sweep import Grid, Meter, score_cases
 
 pytestmark = pytest.mark.skipif(not sys.platform.startswith("linux"), reason="forked scoring is Linux-only")
 
@@ -40,7 +41,7 @@ def test_an_error_in_the_child_is_raised_in_the_parent():
 
 
 def test_forked_scoring_gives_the_same_rows(write_audio, rng, monkeypatch):
-    import audiobw.sweep as sweep_mod
+    import audiobw.forked as forked_mod
 
     fs = 48000
     x = rng.standard_normal((fs * 2, 2)) * 0.05
@@ -55,9 +56,9 @@ def test_forked_scoring_gives_the_same_rows(write_audio, rng, monkeypatch):
     )
     scorer = PerceptualScorer(a, chain, Listening(program="music"))
     targets = {"max_loss_db": 0.5}
-    monkeypatch.setattr(sweep_mod, "_may_fork", lambda n: False)
+    monkeypatch.setattr(forked_mod, "_may_fork", lambda n: False)
     plain = score_cases(a, chain, grid, Meter(), targets, perceptual=scorer)
-    monkeypatch.setattr(sweep_mod, "_may_fork", lambda n: True)
+    monkeypatch.setattr(forked_mod, "_may_fork", lambda n: True)
     forked = score_cases(a, chain, grid, Meter(), targets, perceptual=scorer)
     assert len(plain) == len(forked) == 160
     for p, f in zip(plain, forked):
@@ -68,12 +69,12 @@ def test_forked_scoring_gives_the_same_rows(write_audio, rng, monkeypatch):
 
 
 def test_no_fork_when_told_not_to(monkeypatch):
-    import audiobw.sweep as sweep_mod
+    import audiobw.forked as forked_mod
 
     monkeypatch.setenv("AUDIOBW_THREADS", "1")
-    assert not sweep_mod._may_fork(10_000)
+    assert not forked_mod._may_fork(10_000)
     monkeypatch.delenv("AUDIOBW_THREADS")
-    assert not sweep_mod._may_fork(sweep_mod.FORK_MIN_CASES - 1)
+    assert not forked_mod._may_fork(forked_mod.FORK_MIN_CASES - 1)
 
 
 def test_malloc_tuning_changes_no_figure(tmp_path):

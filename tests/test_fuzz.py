@@ -243,9 +243,9 @@ def test_grid_count_matches_the_cases_built():
 
 
 def test_a_large_grid_gets_a_time_estimate_on_stderr(wav, tmp_path, capsys, monkeypatch):
-    import audiobw.sweep as sweep_mod
+    import audiobw.grid as grid_mod
 
-    monkeypatch.setattr(sweep_mod, "ESTIMATE_FROM_CASES", 20)
+    monkeypatch.setattr(grid_mod, "ESTIMATE_FROM_CASES", 20)
     got, io = run(["sweep", wav, "--cutoffs", "2k:20k:24", "--max-loss", "1", "--out", tmp_path / "o"], capsys)
     assert got == 0
     assert "24 cases to score: about 0 s at 1.7 ms per case on one core" in io.err

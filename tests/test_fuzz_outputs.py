@@ -202,7 +202,7 @@ def test_second_run_into_a_locked_folder_waits_then_refuses(tmp_path, monkeypatc
     holder = subprocess.Popen([PY, "-c", code, str(out)], stdout=subprocess.PIPE, text=True)
     try:
         assert holder.stdout.readline().strip() == "held"
-        monkeypatch.setattr(audio, "LOCK_WAIT_S", 0.3)
+        monkeypatch.setattr(audio.lock, "LOCK_WAIT_S", 0.3)  # read where output_lock looks it up
         code = main(["sweep", str(program), "--out", str(out), *SWEEP])
         line = _one_line_error(capsys, code)
         assert "another audiobw run is writing into this folder" in line

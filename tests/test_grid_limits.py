@@ -1,4 +1,4 @@
-"""Grid limits on every edge of every response (audiobw.sweep.grid_limits, the sweep text)."""
+"""Grid limits on every edge of every response (audiobw.choice.grid_limits, the sweep text)."""
 
 import json
 

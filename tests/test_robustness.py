@@ -135,7 +135,7 @@ def test_noise_never_falls_as_a_lowpass_widens(program, family, order, stage, f1
         for f in (f1, f2)
     )
     # relative slack 1e-5: the folded alias images are interpolated on the
-    # analysis grid (audiobw.noise.IMAGE_STRIDE); measured up to 6e-6 from the exact fold.
+    # analysis grid (audiobw.folding.IMAGE_STRIDE); measured up to 6e-6 from the exact fold.
     # Ripple families (0.1 dB ripple here) may lose up to their ripple in a band-limited
     # meter: widening a Chebyshev 2 past 20 kHz moves its 0 dB peak out of the AES17
     # band and leaves the band at the −0.1 dB DC gain (found by hypothesis: 0.03 dB less
@@ -389,7 +389,7 @@ def test_truncated_header_is_refused(tmp_path, capsys):
 def test_unreadable_file_is_refused(tmp_path, capsys, monkeypatch):
     p = tmp_path / "locked.wav"
     sf.write(str(p), np.full((FS, 1), 0.1), FS, subtype="PCM_16")
-    import audiobw.audio as audio_mod
+    import audiobw.audio.reading as audio_mod  # open_info looks os.access up there
 
     real = audio_mod.os.access
     monkeypatch.setattr(

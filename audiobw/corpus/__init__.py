@@ -5,7 +5,7 @@ Every file is swept exactly as ``audiobw sweep`` sweeps it (through
 ``OUT/files/<name>/``.  The corpus summary then takes, for every case, the
 share of files on which the case passes, and picks the narrowest case that
 passes on at least the requested coverage with the same rule as
-:func:`audiobw.sweep.choose` (narrowest −3 dB bandwidth, then lower ENBW,
+:func:`audiobw.choice.choose` (narrowest −3 dB bandwidth, then lower ENBW,
 then lower order).
 
 Case identity across files is ``(response, family, order, design_low_hz,

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 
+from ..rounding import round_figure as _round
 from .cache import DATA_KEYS, IDENTITY_KEYS, MEDIAN_KEYS
 
 PERCENTILES = (5, 25, 50, 75, 95)
@@ -29,12 +30,6 @@ CSV_KEYS = (
     "passes",
     "fails",
 )
-
-
-def _round(x):
-    from ..sweep import _round as r
-
-    return r(x)
 
 
 def _median(values):
@@ -83,7 +78,7 @@ def summarise(files: list, failed: list, skipped: list, *, settings, coverage: f
     """
     from .. import __version__
     from ..metrics import TARGET_KEYS
-    from ..sweep import choose
+    from ..choice import choose
 
     # a file that could not be swept (unreadable, or it cannot take the grid) counts as one on which
     # no case passes: the shares are over every input, not only the swept ones

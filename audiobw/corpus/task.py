@@ -95,7 +95,7 @@ def worker_init(parent_pid: int | None = None) -> None:
 
     A worker is one core: its sweeps run without the analysis's extra helper
     thread and without forked scoring (``AUDIOBW_THREADS=1``,
-    :func:`audiobw.spectrum.helper_threads`); ``--workers`` says how many
+    :func:`audiobw.background.helper_threads`); ``--workers`` says how many
     cores a batch takes.
     """
     import signal

@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..metrics import PHASOR_BLOCK, best_delay
+from ..delay import PHASOR_BLOCK, best_delay
 from . import masking, sii, threshold, wiener
 
 #: Default playback level by program kind (dB SPL): speech at ANSI S3.5-1997
@@ -154,7 +154,7 @@ class PerceptualScorer:
     def _band_phasor(self, delay_b):
         """e^{j2π f_k τ_b(k)} on the uniform analysis grid, τ constant within each critical band.
 
-        Each band's phasor is a table product (see :func:`audiobw.metrics.uniform_phasor`):
+        Each band's phasor is a table product (see :func:`audiobw.delay.uniform_phasor`):
         e^{j(s_b + qB)θ_b}·e^{jrθ_b}, θ_b = 2π·df·τ_b, within a few units in the last
         place of the direct exponential.
         """

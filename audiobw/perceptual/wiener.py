@@ -96,7 +96,7 @@ def group_delay_s(h, freqs_hz) -> np.ndarray:
 
 def passband_group_delay_s(h, freqs_hz, gd=None) -> float:
     """Largest group delay −dφ/dω (s) where |H|² ≥ 1/2: sets the window in which
-    :func:`audiobw.metrics.best_delay` (the one delay search, shared with SER) looks.
+    :func:`audiobw.delay.best_delay` (the one delay search, shared with SER) looks.
     ``gd``: :func:`group_delay_s` of ``h`` when already computed."""
     gd = group_delay_s(h, freqs_hz) if gd is None else gd
     band = np.abs(h) ** 2 >= 0.5

@@ -7,7 +7,7 @@ Shared by spec.md (:mod:`audiobw.report.markdown`) and report.html
 from __future__ import annotations
 
 from ..metrics import TARGET_METRIC
-from .text import TARGET_LABEL
+from ..registry import TARGET_LABEL
 
 
 def target_info(key: str) -> tuple[str, str, str, str]:
@@ -39,7 +39,7 @@ def fmt(value, unit: str = "", digits: int = 4) -> str:
 
 
 def passband_phrase(spec: dict) -> str:
-    from .text import band_words
+    from .words import band_words
 
     f = spec["filter"]
     band = band_words(f["response"], f["low_hz"], f["high_hz"], hz=lambda v: fmt(v, "Hz"))
@@ -61,7 +61,7 @@ def _metric_unit(metric: str) -> str:
 
 def metric_value_text(metric: str, value) -> str:
     """A target's metric as the sheet shows it: BER and Q are plain numbers, the eye a percentage."""
-    from .text import ber_text
+    from .words import ber_text
 
     if value is None:
         return "—"

@@ -1,187 +1,58 @@
-"""What a sweep and a noise budget look like in a terminal."""
+"""What a sweep looks like in a terminal: the answer in words (:func:`closing_paragraph`).
+
+The case table is :mod:`audiobw.report.table`, figures and targets in words
+:mod:`audiobw.report.words`, the noise budget :mod:`audiobw.report.budget`;
+their names are re-exported here (``__all__``), where the spec sheet, batch,
+the demo and the tests import them.
+"""
 
 from __future__ import annotations
 
-import math
-
-from .. import registry
-from ..registry import TARGET_LABEL  # noqa: F401  (the verdict words; spec and batch take them from here)
+from ..registry import TARGET_LABEL
 from ..units import format_quantity
 from ..names import shown
-
-#: The identity columns every case table starts with: (header, unit, key, format, target)
-ID_COLUMNS = (
-    ("id", "", "id", "{:>4d}", None),
-    ("family", "", "family", "{:<11s}", None),
-    ("ord", "", "order", "{:>3d}", None),
-    ("low", "Hz", "low_hz", "{:>8.1f}", None),
-    ("high", "Hz", "high_hz", "{:>8.0f}", None),
+from .budget import budget_text
+from .table import COLUMNS, DATA_COLUMNS, ID_COLUMNS, TABLE_MAX_ROWS, case_table, shown_cases
+from .words import (
+    BER_FLOOR,
+    Q_FLOOR,
+    band_words,
+    ber_text,
+    margin_text,
+    metric_text,
+    passband_text,
+    q_text,
+    target_phrase,
+    target_text,
 )
-#: table column -> (header, unit, key, format, target that marks it); metric columns from audiobw.registry
-COLUMNS = ID_COLUMNS + registry.columns("audio")
-#: columns of a data-program sweep
-DATA_COLUMNS = ID_COLUMNS + registry.columns("data")
 
-
-def _derived(case: dict) -> dict:
-    c = dict(case)
-    if c.get("noise_sigma_v") is not None:
-        c["noise_sigma_uv"] = c["noise_sigma_v"] * 1e6
-    if c.get("eye_fraction") is not None:
-        c["eye_pct"] = 100 * c["eye_fraction"]
-    if c.get("delay_spread_s") is not None:
-        c["delay_spread_us"] = c["delay_spread_s"] * 1e6
-    return c
-
-
-def _cell(fmt: str, value) -> str:
-    width = int("".join(ch for ch in fmt.split(":")[1] if ch.isdigit()).split(".")[0] or 0) if ":" in fmt else 0
-    if value is None:
-        return "—".rjust(width)
-    if fmt.endswith("e}") and isinstance(value, float) and 0 <= value < BER_FLOOR:
-        return "<1e-300".rjust(width)
-    return fmt.format(value)
-
-
-#: Above this many cases the terminal table shows one row per design (every case stays in sweep.csv).
-TABLE_MAX_ROWS = 120
-
-
-def shown_cases(doc: dict) -> tuple[list[dict], str | None]:
-    """The cases the terminal table shows, and a line saying what was left out (None: all shown).
-
-    Up to :data:`TABLE_MAX_ROWS` cases, all of them.  Beyond, the chosen case and,
-    for each design (response, family, order), its narrowest passing case (least
-    −3 dB bandwidth; ties: the earlier case) or, where none of the design passes,
-    its closest case (largest worst margin, as the sweep picks the closest).
-    """
-    cases = doc["cases"]
-    if len(cases) <= TABLE_MAX_ROWS:
-        return cases, None
-    designs: dict = {}
-    for c in cases:
-        designs.setdefault((c["response"], c["family"], c["order"]), []).append(c)
-    keep = {(doc.get("choice") or {}).get("case")}
-    for group in designs.values():
-        passing = [c for c in group if c["passes"]]
-        if passing:
-            bw = [math.inf if c.get("bandwidth_hz") is None else c["bandwidth_hz"] for c in passing]
-            keep.add(min(zip(bw, (c["id"] for c in passing)))[1])
-        else:
-            keep.add(registry.closest_case(group)["id"])
-    shown = [c for c in cases if c["id"] in keep]
-    note = (
-        f"({len(shown)} of {len(cases)} cases shown: the chosen case and, for each of the {len(designs)} "
-        "designs, its narrowest passing case, or its closest where none passes; every case is in sweep.csv "
-        "and sweep.json)"
-    )
-    return shown, note
-
-
-def case_table(doc: dict, *, mark: str = "*") -> str:
-    """The case table: one row per case (per design beyond :data:`TABLE_MAX_ROWS` cases; see
-    :func:`shown_cases`), units in the header, failing values marked."""
-    columns = DATA_COLUMNS if "data" in doc else COLUMNS
-    heads, unitrow, widths = [], [], []
-    for head, unit, _key, fmt, _t in columns:
-        w = max(len(_cell(fmt, 0 if "d}" in fmt else ("x" if "s}" in fmt else 0.0))), len(head), len(unit)) + 1
-        widths.append(w)
-        heads.append(head.rjust(w) if ">" in fmt else head.ljust(w))
-        unitrow.append((f"[{unit}]" if unit else "").rjust(w) if ">" in fmt else "".ljust(w))
-    lines = [" ".join(heads) + "  result", " ".join(unitrow)]
-    choice = (doc.get("choice") or {}).get("case")
-    shown, left_out = shown_cases(doc)
-    for case in map(_derived, shown):
-        cells = []
-        for (_head, _unit, key, fmt, target), w in zip(columns, widths):
-            text = _cell(fmt, case.get(key))
-            flag = mark if target and target in case["fails"] else " "
-            cells.append((text + flag).rjust(w + 1)[-(w + 1) :] if ">" in fmt else (text.ljust(w) + " "))
-        result = "pass" if case["passes"] else "fail: " + ", ".join(TARGET_LABEL[t][0] for t in case["fails"])
-        if case["id"] == choice:
-            result += "   <== chosen"
-        lines.append("".join(cells) + " " + result)
-    lines.append(f"({mark} marks a value that fails its target; — : not defined for this case)")
-    if left_out:
-        lines.append(left_out)
-    return "\n".join(lines)
-
-
-def _fmt_metric(key: str, value) -> str:
-    if value is None:
-        return "n/a"
-    if key == "thdn_pct":
-        return f"{value:.5f} %"
-    if key == "ber":
-        return ber_text(value)
-    if key == "eye_fraction":
-        return f"{100 * value:.1f} % of the unfiltered opening"
-    if key == "q":
-        return q_text(value)
-    if key == "sii":
-        return f"{value:.3f}"
-    if key == "audible_frames_pct":
-        return f"{value:.1f} % of frames"
-    if key == "noise_dbfs":
-        return f"{value:.1f} dBFS"
-    if key == "noise_vrms":
-        return format_quantity(value, "V rms")
-    if key == "delay_spread_s":
-        return format_quantity(value, "s")
-    if key.endswith("_hz"):
-        return format_quantity(value, "Hz")
-    return f"{value:.2f} dB"
-
-
-#: the smallest BER printed as a number; below it the Gaussian tail underflows a double
-BER_FLOOR = 1e-300
-
-
-#: above this Q the Gaussian error rate ½·erfc(Q/√2) is below 1e-300 (math.erfc: Q = 37.05 gives
-#: 1.0e-300; Q = 37.0 gives 5.7e-300, so 37.0 would overstate it)
-Q_FLOOR = 37.1
-
-
-def q_text(value) -> str:
-    """Q for people: the number, in dB (20·lg Q, common practice), and what it means at the extremes."""
-    if value is None:
-        return "unbounded (no noise at the decision point)"
-    if value <= 0:
-        return "0 (the eye is closed)"
-    text = f"{value:.3g} ({20 * math.log10(value):.1f} dB; half the noiseless eye over the noise σ"
-    if value > Q_FLOOR:
-        text += f"; above {Q_FLOOR:g} the Gaussian error rate is below 1e-300"
-    return text + ")"
-
-
-def ber_text(value) -> str:
-    """A bit-error rate for people: '3.10e-12', or '< 1e-300' where the double range runs out."""
-    if value is None:
-        return "n/a"
-    if value < BER_FLOOR:
-        return "< 1e-300"
-    return f"{value:.2e}"
-
-
-def margin_text(key: str, margin) -> str:
-    """A target's margin; a BER of (numerically) zero has a margin beyond the double range."""
-    if margin is None:
-        return "beyond the double range" if key == "max_ber" else "n/a"
-    return f"{margin:.3g} dB"
-
-
-def band_words(response: str, low_hz, high_hz, hz=lambda v: format_quantity(v, "Hz")) -> str:
-    """'lowpass, −3 dB edge 9.5 kHz' and the like; ``hz`` formats a frequency."""
-    if response == "lowpass":
-        return f"lowpass, −3 dB edge {hz(high_hz)}"
-    if response == "highpass":
-        return f"highpass, −3 dB edge {hz(low_hz)}"
-    return f"bandpass, −3 dB edges {hz(low_hz)} to {hz(high_hz)}"
-
-
-def passband_text(case: dict) -> str:
-    band = band_words(case["response"], case.get("low_hz"), case.get("high_hz"))
-    return f"{case['family']} order {case['order']} {band}"
+__all__ = [
+    "BER_FLOOR",
+    "COLUMNS",
+    "DATA_COLUMNS",
+    "EDGE_WORDS",
+    "ID_COLUMNS",
+    "POOR_ALIAS_REJECTION_DB",
+    "Q_FLOOR",
+    "TABLE_MAX_ROWS",
+    "TARGET_LABEL",
+    "anti_alias_text",
+    "band_words",
+    "ber_text",
+    "budget_text",
+    "case_table",
+    "closing_paragraph",
+    "conflict_text",
+    "filter_quality_lines",
+    "grid_limit_lines",
+    "margin_text",
+    "metric_text",
+    "passband_text",
+    "q_text",
+    "shown_cases",
+    "target_phrase",
+    "target_text",
+]
 
 
 def closing_paragraph(doc: dict) -> str:
@@ -211,8 +82,8 @@ def closing_paragraph(doc: dict) -> str:
             label, metric, unit, sense = TARGET_LABEL[b]
             margin = choice.get("binding_margin_db")
             lines.append(
-                f"Binding target: {label} {sense} {_target_text(b, targets[b])} "
-                f"(this case: {_fmt_metric(metric, c[metric])}; margin {margin_text(b, margin)})."
+                f"Binding target: {label} {sense} {target_text(b, targets[b])} "
+                f"(this case: {metric_text(metric, c[metric])}; margin {margin_text(b, margin)})."
             )
         limits = choice.get("grid_limits") or []
         if limits:
@@ -236,7 +107,7 @@ def closing_paragraph(doc: dict) -> str:
                     f"is above the masked threshold in {nn['audible_band_pct']:.0f} % of frames."
                 )
         figs = ", ".join(
-            f"{name} {_fmt_metric(k, c[k])}".strip()
+            f"{name} {metric_text(k, c[k])}".strip()
             for name, k in (
                 ("noise", "noise_vrms"),
                 ("", "noise_dbfs"),
@@ -268,7 +139,7 @@ def closing_paragraph(doc: dict) -> str:
             lines.append(
                 "Data link: "
                 + ", ".join(
-                    f"{name} {_fmt_metric(k, c.get(k))}"
+                    f"{name} {metric_text(k, c.get(k))}"
                     for name, k in (("eye", "eye_fraction"), ("Q", "q"), ("BER", "ber"))
                 )
                 + f", jitter {c['jitter_pp_ui']:.3f} UI p-p at the best sampling instant "
@@ -281,8 +152,8 @@ def closing_paragraph(doc: dict) -> str:
         for key, best in doc.get("unmet", {}).items():
             label, metric, unit, sense = TARGET_LABEL[key]
             lines.append(
-                f"Cannot be met: {label} {sense} {_target_text(key, targets[key])}; the best any case "
-                f"reached is {_fmt_metric(metric, best)}."
+                f"Cannot be met: {label} {sense} {target_text(key, targets[key])}; the best any case "
+                f"reached is {metric_text(metric, best)}."
             )
         for c in doc.get("conflicts") or []:
             lines.append(conflict_text(c, targets))
@@ -332,12 +203,6 @@ def closing_paragraph(doc: dict) -> str:
 
 #: how the edge a conflict parts on reads
 EDGE_WORDS = {"high_hz": "an upper −3 dB edge", "low_hz": "a lower −3 dB edge", "bandwidth_hz": "a −3 dB bandwidth"}
-
-
-def target_phrase(key: str, targets: dict) -> str:
-    """'A-weighted SNR ≥ 75 dB': a target as the sweep states it."""
-    label, _metric, _unit, sense = TARGET_LABEL[key]
-    return f"{label} {sense} {_target_text(key, targets[key])}"
 
 
 def conflict_text(c: dict, targets: dict, hz=lambda v: format_quantity(v, "Hz")) -> str:
@@ -467,62 +332,3 @@ def _per_channel_occupied(inp: dict) -> str:
         for c in chans
     )
     return f", taken over the power summed across {inp['channels']} channels (per channel: {each})"
-
-
-def _target_text(key: str, value: float) -> str:
-    if key == "max_ber":
-        return f"{value:.0e}"
-    if key == "min_eye":
-        return f"{100 * value:g} % of the unfiltered opening"
-    if key == "min_sii":
-        return f"{value:g}"
-    if key == "max_audible_frames_pct":
-        return f"{value:g} % of frames"
-    if key == "max_delay_spread_s":
-        return format_quantity(value, "s")
-    return f"{value:g} %" if key == "max_thdn_pct" else f"{value:g} dB"
-
-
-def budget_text(b: dict, *, header: str) -> str:
-    """The noise budget as a table of contributors."""
-    names = {
-        "source_thermal": "source thermal (4kTRs)",
-        "amplifier_voltage": "amplifier voltage noise e_n",
-        "amplifier_current": "amplifier current noise i_n·Rs",
-        "quantisation": "quantisation q²/12",
-        "dither": "dither (TPDF, 2q²/12)",
-    }
-    lines = [header, f"{'contributor':<34s}{'noise':>14s}{'[dBu]':>10s}{'[dBFS]':>10s}{'share':>9s}"]
-
-    def row(label, e):
-        dbu = f"{e['dbu']:.1f}" if math.isfinite(e["dbu"]) else "none"
-        dbfs = f"{e['dbfs']:.1f}" if math.isfinite(e["dbfs"]) else "none"
-        return f"{label:<34s}{format_quantity(e['vrms'], 'V rms'):>14s}{dbu:>10s}{dbfs:>10s}{100 * e['share']:>8.1f}%"
-
-    for key, e in b["components"].items():
-        lines.append(row(names.get(key, key), e))
-    lines.append(row("total", b["total"]))
-    ta = dict(b["total_a_weighted"], share=float("nan"))
-    lines.append(row("total, A-weighted", ta).replace("nan%", "   —"))
-    lines.append(
-        f"ENBW of the filter: {format_quantity(b['enbw_hz'], 'Hz')}; meter band "
-        f"{format_quantity(b['meter']['low_hz'], 'Hz')} to {format_quantity(b['meter']['high_hz'], 'Hz')}"
-    )
-    lines.append(
-        f"Dynamic range for a full-scale sine: {b['dynamic_range_db']:.1f} dB "
-        f"({b['dynamic_range_a_db']:.1f} dB A-weighted)"
-    )
-    if b.get("ein_dbu") is not None:
-        nf = b.get("noise_figure_db")
-        nf_text = (
-            f"noise figure {nf:.2f} dB at the source resistance"
-            if nf is not None
-            else "noise figure undefined (ideal source, 0 Ω)"
-        )
-        a = b.get("ein_dbu_a")
-        lines.append(
-            f"Equivalent input noise (source and amplifier, meter band): {b['ein_dbu']:.1f} dBu"
-            + (f" ({a:.1f} dBu A-weighted)" if a is not None else "")
-            + f"; {nf_text}"
-        )
-    return "\n".join(lines)

@@ -1,0 +1,93 @@
+"""What a candidate does to the program's band and lets fold into it: flatness and group-delay
+spread over the occupied band, alias rejection over the image bands (analog stage)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .filters import Filter
+
+
+#: Points of the occupied-band grid for flatness and delay spread: linear, plus
+#: logarithmic ones for the low end (a 20 Hz edge in a 20 kHz band).
+BAND_GRID_LINEAR, BAND_GRID_LOG = 512, 128
+#: Points of the image-band grid for alias rejection (per image band).
+IMAGE_GRID = 128
+
+
+def band_grid(low_hz: float, high_hz: float, *, floor_hz: float) -> np.ndarray:
+    """Frequencies over ``low_hz``…``high_hz`` (Hz) for flatness and delay spread.
+
+    The band starts no lower than ``floor_hz`` (> 0; the sweep passes one PSD
+    bin): a program whose occupied band reaches 0 Hz is judged from its first
+    bin, where a highpass still has gain.
+    """
+    lo = max(float(low_hz), float(floor_hz))
+    hi = float(high_hz)
+    if not hi > lo:
+        return np.array([max(hi, lo)])
+    return np.union1d(np.linspace(lo, hi, BAND_GRID_LINEAR), np.geomspace(lo, hi, BAND_GRID_LOG))
+
+
+def flatness_db(filt: Filter, freqs_hz: np.ndarray) -> float:
+    """Peak-to-peak gain (dB) of ``filt`` over the frequencies ``freqs_hz``.
+
+    A Chebyshev type I of ripple r gives r over its ripple band; a gain that
+    reaches zero inside the band gives infinity.
+    """
+    g = filt.power_response(freqs_hz)
+    top, bottom = float(np.max(g)), float(np.min(g))
+    if not top > 0.0:
+        return math.inf
+    return math.inf if bottom <= 0.0 else 10.0 * math.log10(top / bottom)
+
+
+def delay_spread_s(filt: Filter, freqs_hz: np.ndarray) -> float:
+    """Group-delay spread max − min (s) of ``filt`` over ``freqs_hz`` (group delay −dφ/dω)."""
+    tau = filt.group_delay_s(freqs_hz)
+    return float(np.max(tau) - np.min(tau))
+
+
+def image_bands_hz(
+    response: str, low_hz: float | None, high_hz: float | None, fs_hz: float
+) -> list[tuple[float, float]]:
+    """The analog frequencies that sampling at ``fs_hz`` folds into the passband.
+
+    A component at fs ± f lands on f.  Passband f_low…f_high (a lowpass from
+    0 Hz, a highpass to fs/2): the images come from fs − f_high…fs − f_low and
+    fs + f_low…fs + f_high (a highpass: fs/2…fs − f_low, and fs + f_low…1.5·fs,
+    where its gain has long settled).
+    """
+    nyq = fs_hz / 2.0
+    lo = 0.0 if response == "lowpass" or low_hz is None else float(low_hz)
+    hi = nyq if response == "highpass" or high_hz is None else min(float(high_hz), nyq)
+    return [(fs_hz - hi, fs_hz - lo), (fs_hz + lo, fs_hz + hi)]
+
+
+def alias_rejection_db(
+    filt: Filter, response: str, low_hz: float | None, high_hz: float | None, fs_hz: float
+) -> float | None:
+    """Least attenuation (dB, positive) of an analog ``filt`` over the frequencies that fold
+    into its passband, relative to the passband peak (0 dB by design; see :mod:`audiobw.filters`).
+
+    For a response that falls monotonically above its upper edge this is the
+    attenuation at fs − f_high, the image nearest the band; an elliptic's
+    stopband lobes are searched over the whole image band.  None for the
+    digital stage: that filter acts after sampling, so it cannot reject what
+    has already aliased.
+    """
+    if not filt.analog:
+        return None
+    f = np.concatenate(
+        [
+            np.geomspace(max(a, 1e-9), b, IMAGE_GRID) if b > a else np.array([a])
+            for a, b in image_bands_hz(response, low_hz, high_hz, fs_hz)
+        ]
+    )
+    worst = float(np.max(filt.power_response(f)))
+    if worst <= 0.0:
+        return math.inf
+    # the passband peak is 0 dB by design: a gain a rounding above it is no attenuation
+    return max(-10.0 * math.log10(worst), 0.0)
