@@ -145,8 +145,9 @@ def run_batch(
     )
 
 
-#: Listening (the A/B clips' loudness, ceiling, length, trials, seed) is
-#: :class:`audiobw.render.RenderOptions`, loaded on first use (module __getattr__).
+#: ``audiobw.Listening`` (the playback conditions: program kind, playback SPL, audiogram) is
+#: :class:`audiobw.perceptual.scoring.Listening`, loaded on first use (module __getattr__) so
+#: ``import audiobw`` stays light; the A/B clips' options are :class:`audiobw.render.RenderOptions`.
 
 
 def _listening():
