@@ -1,4 +1,5 @@
-"""Scoring half of a large sweep in a forked child: :func:`forked_map`.
+"""Scoring half of a large sweep in a forked child (:func:`forked_map`), and the rule that a
+child process dies with its parent (:func:`exit_with_parent`; batch workers use it too).
 
 Linux only, when a core is idle; the rows come back as JSON through a pipe and
 are identical to those of the plain loop (tests/test_forked.py).
@@ -85,7 +86,7 @@ def forked_map(fn, items: list, *, fork: bool | None = None, progress=None) -> l
         code = 0
         try:
             os.close(r)
-            _die_with(parent)
+            exit_with_parent(parent)
             try:
                 msg = {"ok": [fn(x) for x in items[half:]]}
             except BaseException as exc:  # handed to the parent
@@ -132,19 +133,38 @@ def _ticked(fn, x, i: int, n: int, pace: float, progress):
     return out
 
 
-def _die_with(parent_pid: int) -> None:
-    """Linux: end this (forked) process when its parent ends (prctl(2) PR_SET_PDEATHSIG), so a
-    killed sweep leaves no half-finished scorer running; elsewhere nothing."""
+def exit_with_parent(parent_pid: int | None) -> None:
+    """Make this process (a batch worker, a forked scorer) die with its parent, so a killed run leaves no
+    process holding the caller's pipes or scoring on.
+
+    Linux: ``prctl(PR_SET_PDEATHSIG, SIGKILL)`` through ctypes (prctl(2)); then the parent is checked
+    once, since it may have died before the call.  Elsewhere: a daemon thread watches the parent's pid.
+    """
     import os
+    import signal
     import sys
+    import threading
+    import time
 
-    if not sys.platform.startswith("linux"):
+    if parent_pid is None:
         return
-    try:
-        import ctypes
-        import signal
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
 
-        if ctypes.CDLL(None).prctl(1, int(signal.SIGKILL), 0, 0, 0) == 0 and os.getppid() != parent_pid:
-            os._exit(1)  # the parent ended before the call
-    except (OSError, AttributeError):
-        pass
+            libc = ctypes.CDLL(None, use_errno=True)
+            PR_SET_PDEATHSIG = 1  # linux/prctl.h
+            if libc.prctl(PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0) == 0:
+                if os.getppid() != parent_pid:
+                    os._exit(1)
+                return
+        except (OSError, AttributeError):
+            pass
+
+    def watch():
+        while True:
+            if os.getppid() != parent_pid:
+                os._exit(1)
+            time.sleep(0.5)
+
+    threading.Thread(target=watch, name="audiobw-parent-watch", daemon=True).start()

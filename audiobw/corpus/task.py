@@ -9,13 +9,12 @@ from __future__ import annotations
 
 import json
 import os
-import sys
 import threading
-import time
 import warnings
 from pathlib import Path
 
 from ..errors import AudiobwError, OutputError
+from ..forked import exit_with_parent  # noqa: F401  (re-exported: audiobw.batch)
 from .cache import (
     CACHE_FORMAT,
     DATA_KEYS,
@@ -56,38 +55,6 @@ def _limit_blas() -> None:
     except ImportError:
         return
     threadpool_limits(1)
-
-
-def exit_with_parent(parent_pid: int | None) -> None:
-    """Make this worker die with its parent, so a killed batch leaves no process holding the caller's pipes.
-
-    Linux: ``prctl(PR_SET_PDEATHSIG, SIGKILL)`` through ctypes (prctl(2)); then the parent is checked
-    once, since it may have died before the call.  Elsewhere: a daemon thread watches the parent's pid.
-    """
-    import signal
-
-    if parent_pid is None:
-        return
-    if sys.platform.startswith("linux"):
-        try:
-            import ctypes
-
-            libc = ctypes.CDLL(None, use_errno=True)
-            PR_SET_PDEATHSIG = 1  # linux/prctl.h
-            if libc.prctl(PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0) == 0:
-                if os.getppid() != parent_pid:
-                    os._exit(1)
-                return
-        except (OSError, AttributeError):
-            pass
-
-    def watch():
-        while True:
-            if os.getppid() != parent_pid:
-                os._exit(1)
-            time.sleep(0.5)
-
-    threading.Thread(target=watch, name="audiobw-parent-watch", daemon=True).start()
 
 
 def worker_init(parent_pid: int | None = None) -> None:
