@@ -16,9 +16,10 @@ def _may_fork(n_items: int) -> bool:
     """Whether :func:`forked_map` may score half of ``n_items`` cases in a forked child.
 
     Only on Linux (fork after numpy is safe there), with at least two cores and
-    one of them idle (:func:`_others_running` at most cores − 2), no other live
-    thread in this process, ``AUDIOBW_THREADS`` not ``1`` (batch workers that
-    are one core each set it), and enough cases to pay for the fork.
+    one of them idle (:func:`_others_busy`, the other processes' CPU use since
+    this module was imported, at most cores − 1.5), no other live thread in
+    this process, ``AUDIOBW_THREADS`` not ``1`` (batch workers that are one
+    core each set it), and enough cases to pay for the fork.
     """
     import os
     import sys
@@ -29,30 +30,65 @@ def _may_fork(n_items: int) -> bool:
     if n_items < FORK_MIN_CASES or not sys.platform.startswith("linux") or not helper_threads():
         return False
     cores = os.cpu_count() or 1
-    return cores >= 2 and threading.active_count() == 1 and _others_running() <= cores - 2
+    return cores >= 2 and threading.active_count() == 1 and _others_busy() <= cores - 1.5
 
 
-def _others_running() -> float:
-    """How many other tasks want a core now: the runnable count of /proc/loadavg (4th field,
-    which counts this process too), median of five reads 4 ms apart; the 1-minute load
-    average where /proc is missing (it also counts runs that have just ended)."""
-    import os
-    import statistics
+#: Shortest window over which :func:`_others_busy` measures (s): a few clock ticks per core.
+BUSY_WINDOW_S = 0.05
+#: Longest: CPU use further back says little about now.
+BUSY_WINDOW_MAX_S = 30.0
+
+
+def _cpu_times() -> tuple[float, int, int] | None:
+    """(monotonic s, jiffies every core spent busy, jiffies this process spent, all its threads), or None
+    without /proc.  Busy is user + nice + system + irq + softirq + steal of the first line of /proc/stat
+    (proc(5); idle and iowait left out); this process's is utime + stime of /proc/self/stat."""
     import time
 
-    counts = []
     try:
-        for i in range(5):
-            if i:
-                time.sleep(0.004)
-            with open("/proc/loadavg", encoding="ascii") as fh:
-                counts.append(int(fh.read().split()[3].split("/")[0]) - 1)
+        with open("/proc/stat", encoding="ascii") as fh:
+            v = [int(x) for x in fh.readline().split()[1:9]]
+        with open("/proc/self/stat", encoding="ascii", errors="replace") as fh:
+            stat = fh.read()
+        own = stat[stat.rindex(")") + 2 :].split()  # fields from the 3rd (state) on; the name may hold spaces
+        return time.monotonic(), sum(v) - v[3] - v[4], int(own[11]) + int(own[12])
     except (OSError, ValueError, IndexError):
+        return None
+
+
+_SINCE = _cpu_times()
+
+
+def _others_busy() -> float:
+    """How many cores the other processes kept busy (in cores, e.g. 0.3) since this module was
+    imported or last asked (the analysis of a sweep runs in between), measured over at least
+    :data:`BUSY_WINDOW_S` and at most :data:`BUSY_WINDOW_MAX_S` (older than that, e.g. in a
+    long Python session, a fresh window of BUSY_WINDOW_S is taken).
+
+    CPU time, not the runnable count of /proc/loadavg: that one snapshot counts tasks that
+    are runnable for an instant (a machine's own monitors) as a core taken.  The 1-minute
+    load average where /proc is missing (it also counts runs that have just ended).
+    """
+    import os
+    import time
+
+    global _SINCE
+    now = _cpu_times()
+    if _SINCE is None or now is None:
         try:
             return os.getloadavg()[0]
         except OSError:
             return float("inf")
-    return statistics.median(counts)
+    since = _SINCE if now[0] - _SINCE[0] <= BUSY_WINDOW_MAX_S else now
+    wait = BUSY_WINDOW_S - (now[0] - since[0])
+    if wait > 0:
+        time.sleep(wait)
+        now = _cpu_times() or now
+    _SINCE = now
+    seconds = now[0] - since[0]
+    ticks = os.sysconf("SC_CLK_TCK") if hasattr(os, "sysconf") else 100
+    others = (now[1] - since[1]) - (now[2] - since[2])
+    return max(others, 0) / ticks / max(seconds, 1e-9)
 
 
 def forked_map(fn, items: list, *, fork: bool | None = None, progress=None) -> list:

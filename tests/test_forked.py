@@ -77,6 +77,42 @@ def test_no_fork_when_told_not_to(monkeypatch):
     assert not forked_mod._may_fork(forked_mod.FORK_MIN_CASES - 1)
 
 
+def _busy_over(forked_mod, seconds: float, *, spin: bool) -> float:
+    """forked._others_busy over a fresh window of ``seconds``, this process spinning or asleep."""
+    import time
+
+    forked_mod._SINCE = forked_mod._cpu_times()
+    end = time.monotonic() + seconds
+    if spin:
+        while time.monotonic() < end:
+            pass
+    else:
+        time.sleep(seconds)
+    return forked_mod._others_busy()
+
+
+def test_idle_core_is_judged_by_the_other_processes_cpu_time(monkeypatch):
+    """A process spinning beside us takes about a core; our own spinning is not counted
+    (without subtracting this process's CPU time the second figure would grow by a whole core)."""
+    import subprocess
+    import time
+
+    import audiobw.forked as forked_mod
+
+    monkeypatch.setattr(forked_mod, "_SINCE", forked_mod._SINCE)
+    asleep = _busy_over(forked_mod, 0.3, spin=False)
+    spinning = _busy_over(forked_mod, 0.3, spin=True)
+    assert spinning < asleep + 0.5
+    hog = subprocess.Popen([sys.executable, "-c", "import time\nt = time.time() + 5\nwhile time.time() < t: pass"])
+    try:
+        time.sleep(0.2)  # the interpreter has started and spins
+        beside = _busy_over(forked_mod, 0.4, spin=False)
+    finally:
+        hog.kill()
+        hog.wait()
+    assert beside > asleep + 0.6
+
+
 def test_malloc_tuning_changes_no_figure(tmp_path):
     """The console script's glibc mallopt settings (audiobw._start.tune_malloc) leave every byte of
     sweep.json and sweep.csv as the default allocator gives them."""
