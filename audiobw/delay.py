@@ -71,7 +71,7 @@ def _delay_cross(
     τ is searched in ±1/(2·df), or in 0 … ``max_delay_s`` when that is given.
     ``coarse``: :func:`coarse_cross` of the same ``c`` and ``f``, when already computed.
     """
-    if f.size < 2 or not np.any(c):
+    if f.size < 2 or not c.any():
         return 0.0, float(np.sum(c.real))
     g, step_s = coarse_cross(c, f) if coarse is None else coarse
     n_fft = g.size

@@ -89,15 +89,15 @@ def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.
     """
     z, p, k = np.asarray(filt.z, complex), np.asarray(filt.p, complex), float(filt.k)
     n = p.size
-    if n == 0 or z.size > n or np.any(p.real >= 0):
+    if n == 0 or z.size > n or (p.real >= 0).any():
         return None
-    size = float(np.max(np.abs(p)))
+    size = float(np.abs(p).max())
     gaps = np.abs(p[:, None] - p[None, :]) + np.eye(n) * size
-    if np.min(gaps) < 1e-6 * size:
+    if gaps.min() < 1e-6 * size:
         return None
     period = 2.0 * math.pi * fs_hz / filt.ref_rad_s
     half_beta = math.pi * (-p.real) / period
-    if np.max(half_beta) > 300.0:
+    if half_beta.max() > 300.0:
         return None
     upper = p.imag > 1e-12 * np.abs(p)
     single = np.abs(p.imag) <= 1e-12 * np.abs(p)
@@ -132,7 +132,7 @@ def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.
         term = weight * (r.real * sinh2 * (d1 + d2) + r.imag * 2.0 * (s1 * c1 * d1 - s2 * c2 * d2))
         out += term
         bound += np.abs(term)
-    if not np.all(np.isfinite(out)) or 1e-16 * float(np.max(bound)) > 1e-9 * float(np.max(np.abs(out))):
+    if not np.isfinite(out).all() or 1e-16 * float(bound.max()) > 1e-9 * float(np.abs(out).max()):
         return None
     out *= math.pi / period
     return np.maximum(out, 0.0)

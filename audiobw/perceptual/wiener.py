@@ -78,7 +78,7 @@ def group_delay_s(h, freqs_hz) -> np.ndarray:
         if h[-1] == 0:
             d[-1] = d[-2]
     wrap = np.abs(d) >= np.pi  # numpy.unwrap: steps of at least π are taken mod 2π
-    if np.any(wrap):
+    if wrap.any():
         dw = d[wrap]
         dm = np.mod(dw + np.pi, 2 * np.pi) - np.pi
         dm[(dm == -np.pi) & (dw > 0)] = np.pi
@@ -100,7 +100,7 @@ def passband_group_delay_s(h, freqs_hz, gd=None) -> float:
     ``gd``: :func:`group_delay_s` of ``h`` when already computed."""
     gd = group_delay_s(h, freqs_hz) if gd is None else gd
     band = np.abs(h) ** 2 >= 0.5
-    return float(np.max(gd[band])) if np.any(band) else 0.0
+    return float(gd[band].max()) if band.any() else 0.0
 
 
 def gap_db(mse, mse_min) -> float:
