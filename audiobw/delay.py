@@ -46,7 +46,8 @@ def _check_uniform(f: np.ndarray) -> float:
 
 
 def coarse_cross(c: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, float]:
-    """(g, step_s): Re Σ c_k e^{j2π f_k τ} on the coarse delay grid τ = n·step_s (one inverse FFT).
+    """(g, step_s): Re Σ c_k e^{j2π f_k τ} on the coarse delay grid τ = n·step_s (one inverse FFT;
+    ``c`` may hold one cross spectrum per row, along its last axis).
 
     Computed once per case and shared by every delay search on the same cross
     spectrum ``c`` (SER's and the perceptual scorer's: :func:`_delay_cross` with
@@ -58,7 +59,7 @@ def coarse_cross(c: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, float]:
     # a real inverse FFT counts every bin but DC twice, so DC is doubled and the result halved
     # (the scale n_fft/2 is applied to the bins, a quarter of the samples)
     d = c * (n_fft / 2.0)
-    d[0] *= 2.0
+    d[..., 0] *= 2.0
     g = sfft.irfft(d, n_fft)
     return g, 1.0 / (n_fft * df)
 

@@ -7,6 +7,7 @@ import math
 
 import numpy as np
 
+from .batchresponse import group_delays, power_responses
 from .filters import Filter
 
 
@@ -91,3 +92,32 @@ def alias_rejection_db(
         return math.inf
     # the passband peak is 0 dB by design: a gain a rounding above it is no attenuation
     return max(-10.0 * math.log10(worst), 0.0)
+
+
+def flatness_and_spread(filts: list[Filter], freqs_hz: np.ndarray) -> list[tuple[float, float]]:
+    """(:func:`flatness_db`, :func:`delay_spread_s`) of each filter over ``freqs_hz``, their
+    responses evaluated together (:mod:`audiobw.batchresponse`; the same figures)."""
+    out = []
+    for g, tau in zip(power_responses(filts, freqs_hz), group_delays(filts, freqs_hz)):
+        top, bottom = float(g.max()), float(g.min())
+        flat = math.inf if not top > 0.0 or bottom <= 0.0 else 10.0 * math.log10(top / bottom)
+        out.append((flat, float(tau.max() - tau.min())))
+    return out
+
+
+def alias_rejection_many(filts: list[Filter], edges: list[tuple], fs_hz: float) -> list[float | None]:
+    """:func:`alias_rejection_db` of each filter (``edges``: each one's (low, high) −3 dB edges),
+    the image-band grids and responses of all of them evaluated together (the same figures)."""
+    if not filts[0].analog:
+        return [None] * len(filts)
+    bands = np.array([image_bands_hz(f.spec.response, lo, hi, fs_hz) for f, (lo, hi) in zip(filts, edges)])
+    if len(filts) < 2 or not np.all(bands[:, :, 1] > bands[:, :, 0]):
+        return [alias_rejection_db(f, f.spec.response, lo, hi, fs_hz) for f, (lo, hi) in zip(filts, edges)]
+    grid = np.concatenate(
+        [np.geomspace(np.maximum(bands[:, i, 0], 1e-9), bands[:, i, 1], IMAGE_GRID, axis=1) for i in range(2)], axis=1
+    )
+    out: list[float | None] = []
+    for worst in power_responses(filts, grid).max(axis=1):
+        # the passband peak is 0 dB by design: a gain a rounding above it is no attenuation
+        out.append(math.inf if worst <= 0.0 else max(-10.0 * math.log10(float(worst)), 0.0))
+    return out

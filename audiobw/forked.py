@@ -91,7 +91,7 @@ def _others_busy() -> float:
     return max(others, 0) / ticks / max(seconds, 1e-9)
 
 
-def forked_map(fn, items: list, *, fork: bool | None = None, progress=None) -> list:
+def forked_map(fn, items: list, *, fork: bool | None = None, progress=None, sizes: list[int] | None = None) -> list:
     """``[fn(x) for x in items]``, the second half computed in a forked child when a core is idle.
 
     The child inherits everything computed so far (analysis, scorers, the shared
@@ -104,17 +104,24 @@ def forked_map(fn, items: list, *, fork: bool | None = None, progress=None) -> l
     parent (Linux ``PR_SET_PDEATHSIG``).  ``fork``: force (True) or forbid
     (False) the split; default :func:`_may_fork`.  ``progress``: called as
     ``progress(done, total)`` after each item of this process (the child's
-    half is counted at the pace of the parent's).
+    half is counted at the pace of the parent's).  ``sizes``: how many cases
+    each item holds (a batch of cases), for the fork rule, the halves and the
+    progress count; default one each.
     """
     import json
     import os
 
     from . import errors
 
-    n = len(items)
-    if not (_may_fork(n) if fork is None else fork) or n < 2:
-        return [_ticked(fn, x, i, n, 1, progress) for i, x in enumerate(items, start=1)]
-    half = (n + 1) // 2
+    sizes = [1] * len(items) if sizes is None else list(sizes)
+    n = sum(sizes)
+    done = [0]
+    for size in sizes:
+        done.append(done[-1] + size)  # cases finished after each item
+    if not (_may_fork(n) if fork is None else fork) or len(items) < 2:
+        return [_ticked(fn, x, done[i], n, 1, progress) for i, x in enumerate(items, start=1)]
+    # the first item whose end passes half the cases ends the parent's share (at least one each)
+    half = min(max(next(i for i, d in enumerate(done) if 2 * d >= n), 1), len(items) - 1)
     parent = os.getpid()
     r, w = os.pipe()
     pid = os.fork()
@@ -135,7 +142,7 @@ def forked_map(fn, items: list, *, fork: bool | None = None, progress=None) -> l
             os._exit(code)
     os.close(w)
     try:
-        mine = [_ticked(fn, x, i, n, n / half, progress) for i, x in enumerate(items[:half], start=1)]
+        mine = [_ticked(fn, x, done[i], n, n / done[half], progress) for i, x in enumerate(items[:half], start=1)]
         with os.fdopen(r, "rb") as fh:
             r = -1
             data = fh.read()
@@ -162,10 +169,11 @@ def forked_map(fn, items: list, *, fork: bool | None = None, progress=None) -> l
     return mine + msg["ok"]
 
 
-def _ticked(fn, x, i: int, n: int, pace: float, progress):
+def _ticked(fn, x, done: int, n: int, pace: float, progress):
+    """``fn(x)``, then ``progress`` told that ``done`` of ``n`` cases are finished (times ``pace``)."""
     out = fn(x)
     if progress is not None:
-        progress(min(n, int(i * pace)), n)
+        progress(min(n, int(done * pace)), n)
     return out
 
 

@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .batchresponse import power_responses, responses
 from .chain import Chain
 from .delay import (  # noqa: F401  (re-exported: audiobw.metrics.best_delay and the rest, as tests and scorers import them)
     DELAY_OVERSAMPLE,
@@ -37,8 +38,10 @@ from .filterquality import (  # noqa: F401  (re-exported)
     BAND_GRID_LOG,
     IMAGE_GRID,
     alias_rejection_db,
+    alias_rejection_many,
     band_grid,
     delay_spread_s,
+    flatness_and_spread,
     flatness_db,
     image_bands_hz,
 )
@@ -186,81 +189,110 @@ class Scorer:
         ``shared``: a dict that receives this case's arrays for the other scorers of
         the same case (complex response ``H``, power response ``G``, output noise
         density ``N``, and ``cross`` — the cross spectrum and its coarse delay
-        search — when the meter band is the whole grid).
+        search — when the meter band is the whole grid).  One case of :meth:`score_many`.
+        """
+        return self.score_many([filt], None if shared is None else [shared])[0]
+
+    def score_many(self, filts: list[Filter], shared: list[dict] | None = None) -> list[dict]:
+        """:meth:`score` of each candidate, the grid-wide arrays of all of them built at once.
+
+        The responses (:mod:`audiobw.batchresponse`), the cross spectra with their
+        delay searches' inverse FFTs and the log-spectral distance are computed
+        for every candidate together (one row each); the rest case by case.  Each
+        row is the same as scoring its candidate alone (tests/test_batched.py).
+        ``shared``: one dict per candidate, as for :meth:`score`.
         """
         a, c, p = self.analysis, self.chain, self._pre
         f = a.freqs_hz
         wm = p["wm"]
-        G = filt.power_response(f)
-        N = noise_total(c, filt, f, a.weights_hz, a.sample_rate_hz, direct=G)
-        H = filt.response(f)
-        n_pow = float(np.dot(N, wm))
-        n_pow_a = float(np.dot(N, p["wm_a"]))
-        # program out on the scoring grid (fine below the crossover)
         k = p["k"]
-        Gl = filt.power_response(p["fl"]) if p["fl"].size else p["fl"]
-        Gh = G[k:]
-        x_out = float(np.dot(p["swl"], Gl)) + float(np.dot(p["swh"], Gh))
-        x_out_a = float(np.dot(p["swl_a"], Gl)) + float(np.dot(p["swh_a"], Gh))
+        G_all = power_responses(filts, f)
+        H_all = responses(filts, f)
+        Gl_all = power_responses(filts, p["fl"]) if p["fl"].size else np.zeros((len(filts), 0))
         # error against the input at the best single delay, phase included
         # (∫S|1 − H·e^{j2πfτ}|² = ∫S(1 + |H|²) − 2·max_τ Re ∫S·H·e^{j2πfτ}; see best_delay):
         # on the normal grid throughout (the delay search needs a uniform grid from 0 Hz)
-        s_out = float(np.dot(p["swm"], G))
-        cs = p["swm"] * H
-        coarse = coarse_cross(cs, f) if f.size > 1 and cs.any() else None
-        _, cross = _delay_cross(cs, f, coarse=coarse)
-        if shared is not None:
-            shared.update(H=H, G=G, N=N)
-            if self.full_meter and coarse is not None:
-                shared["cross"] = (cs, coarse)
-        err = max(p["s_total"] + s_out - 2.0 * cross, 0.0)
+        cs_all = p["swm"] * H_all
+        searched = cs_all.any(axis=1) if f.size > 1 else np.zeros(len(filts), dtype=bool)
+        coarse_all = coarse_cross(cs_all, f) if searched.any() else None
+        lsd = self._lsd_many(G_all)
+        edges = [filt.edges_3db for filt in filts]
+        alias = alias_rejection_many(filts, edges, a.sample_rate_hz)
+        in_band = flatness_and_spread(filts, p["occupied_grid"])
         nyq = a.nyquist_hz
-        lo3, hi3 = filt.edges_3db
-        row = {
-            "low_hz": lo3 if filt.spec.response != "lowpass" else None,
-            "high_hz": hi3 if filt.spec.response != "highpass" else None,
-            # a response that never falls is integrated to fs/2: on the analysis grid, already evaluated
-            "enbw_hz": (float(np.sum(G * a.weights_hz)) if math.isinf(filt.power_integral_hz()) else filt.enbw_hz(nyq)),
-            "noise_vrms": math.sqrt(n_pow),
-            "noise_dbfs": _db(n_pow / c.full_scale_power_v2),
-            "snr_db": _db(x_out / n_pow) if x_out > 0 else None,
-            "snr_a_db": _db(x_out_a / n_pow_a) if x_out_a > 0 and n_pow_a > 0 else None,
-            "loss_db": _db(p["x_total"] / x_out) if x_out > 0 else None,
-            "lsd_db": self._lsd(G),
-            "ser_db": _db(p["s_total"] / (err + n_pow)),
-            "alias_rejection_db": alias_rejection_db(filt, filt.spec.response, lo3, hi3, a.sample_rate_hz),
-            "flatness_db": flatness_db(filt, p["occupied_grid"]),
-            "delay_spread_s": delay_spread_s(filt, p["occupied_grid"]),
-        }
-        row.update(self._thdn(filt, n_pow))
-        return row
+        rows = []
+        for i, filt in enumerate(filts):
+            G, H, Gl = G_all[i], H_all[i], Gl_all[i]
+            N = noise_total(c, filt, f, a.weights_hz, a.sample_rate_hz, direct=G)
+            n_pow = float(np.dot(N, wm))
+            n_pow_a = float(np.dot(N, p["wm_a"]))
+            # program out on the scoring grid (fine below the crossover)
+            Gh = G[k:]
+            x_out = float(np.dot(p["swl"], Gl)) + float(np.dot(p["swh"], Gh))
+            x_out_a = float(np.dot(p["swl_a"], Gl)) + float(np.dot(p["swh_a"], Gh))
+            s_out = float(np.dot(p["swm"], G))
+            cs = cs_all[i]
+            coarse = (coarse_all[0][i], coarse_all[1]) if coarse_all is not None and searched[i] else None
+            _, cross = _delay_cross(cs, f, coarse=coarse)
+            if shared is not None:
+                shared[i].update(H=H, G=G, N=N)
+                if self.full_meter and coarse is not None:
+                    shared[i]["cross"] = (cs, coarse)
+            err = max(p["s_total"] + s_out - 2.0 * cross, 0.0)
+            lo3, hi3 = edges[i]
+            row = {
+                "low_hz": lo3 if filt.spec.response != "lowpass" else None,
+                "high_hz": hi3 if filt.spec.response != "highpass" else None,
+                # a response that never falls is integrated to fs/2: on the analysis grid, already evaluated
+                "enbw_hz": (
+                    float(np.sum(G * a.weights_hz)) if math.isinf(filt.power_integral_hz()) else filt.enbw_hz(nyq)
+                ),
+                "noise_vrms": math.sqrt(n_pow),
+                "noise_dbfs": _db(n_pow / c.full_scale_power_v2),
+                "snr_db": _db(x_out / n_pow) if x_out > 0 else None,
+                "snr_a_db": _db(x_out_a / n_pow_a) if x_out_a > 0 and n_pow_a > 0 else None,
+                "loss_db": _db(p["x_total"] / x_out) if x_out > 0 else None,
+                "lsd_db": lsd[i],
+                "ser_db": _db(p["s_total"] / (err + n_pow)),
+                "alias_rejection_db": alias[i],
+                "flatness_db": in_band[i][0],
+                "delay_spread_s": in_band[i][1],
+            }
+            row.update(self._thdn(filt, n_pow))
+            rows.append(row)
+        return rows
 
     def _band_sum(self, x: np.ndarray) -> np.ndarray:
-        """Sum of ``x`` over the bins of each critical band (0 for a band with no bin)."""
+        """Sum of ``x`` over the bins of each critical band (0 for a band with no bin), along the last axis."""
         filled, starts, n_bands = self._bands
-        out = np.zeros(n_bands)
-        out[filled] = np.add.reduceat(x, starts)
+        out = np.zeros(x.shape[:-1] + (n_bands,))
+        out[..., filled] = np.add.reduceat(x, starts, axis=-1)
         return out
 
-    def _lsd(self, G: np.ndarray) -> float:
-        """Program in against program out (no noise: noise has SNR), per frame over bands."""
+    def _lsd_many(self, G: np.ndarray) -> list[float]:
+        """Program in against program out (no noise: noise has SNR), per frame over bands; one figure
+        per row of the power responses ``G`` (candidates × bins)."""
         p = self._pre
         band_s = p["band_s"]
-        gain = np.divide(self._band_sum(p["sw"] * G), band_s, out=np.zeros_like(band_s), where=band_s > 0)
+        gain = np.divide(self._band_sum(p["sw"] * G), band_s, out=np.zeros((G.shape[0], band_s.size)), where=band_s > 0)
         empty = band_s <= 0
         if empty.any():
             counts = p["bins_per_band"]
-            gain[empty] = (self._band_sum(G) / np.maximum(counts, 1))[empty]
-        # in place: (frames x bands) arrays; 10·lg(max(P·g, F)) as max(10·lg P + 10·lg g, 10·lg F)
+            gain[:, empty] = (self._band_sum(G) / np.maximum(counts, 1))[:, empty]
         with np.errstate(divide="ignore"):
             gain_db = 10 * np.log10(gain)
-        out = p["raw_db"] + gain_db
-        np.maximum(out, p["floor_db"], out=out)
-        out -= p["frames_db"]
-        out *= out
-        # np.mean's own sums and divisions, without its wrappers (the same bits)
-        per_frame = np.sqrt(np.add.reduce(out, axis=1) / out.shape[1])
-        return float(per_frame.sum() / per_frame.size)
+        figures = []
+        for g_db in gain_db:
+            # in place, one (frames x bands) array per candidate (it stays in cache);
+            # 10·lg(max(P·g, F)) as max(10·lg P + 10·lg g, 10·lg F)
+            out = p["raw_db"] + g_db
+            np.maximum(out, p["floor_db"], out=out)
+            out -= p["frames_db"]
+            out *= out
+            # np.mean's own sums and divisions, without its wrappers (the same bits)
+            per_frame = np.sqrt(np.add.reduce(out, axis=1) / out.shape[1])
+            figures.append(float(per_frame.sum() / per_frame.size))
+        return figures
 
     def _thdn(self, filt: Filter, n_pow: float) -> dict:
         """THD+N of the test tone through the chain (model, AES17 ratio to total).

@@ -217,31 +217,61 @@ def score_cases(
     # converter full-scale peak over the program's sample peak at the converter (negative: it clips)
     headroom = -(analysis.peak_dbfs + chain.input_gain_db) if math.isfinite(analysis.peak_dbfs) else None
 
-    def score_one(item) -> dict:
-        i, spec = item
-        filt = design(spec)
-        row = {
-            "id": i,
-            "response": spec.response,
-            "family": spec.family,
-            "order": spec.order,
-            "poles": spec.poles,
-            "design_low_hz": spec.low_hz,
-            "design_high_hz": spec.high_hz,
-        }
-        shared: dict = {}  # this case's response, noise and delay search, for the other scorers
-        row.update(scorer.score(filt, shared))
-        row["bandwidth_hz"] = filt.bandwidth_3db(analysis.nyquist_hz)
-        row["headroom_db"] = headroom
-        if data is not None:
-            row.update(_data_metrics(filt, analysis, chain, data, shared.get("N")))
+    def score_batch(batch: list) -> list[dict]:
+        """The rows of consecutive cases of one design (their grid-wide arrays built together)."""
+        filts = [design(spec) for _, spec in batch]
+        shared: list[dict] = [{} for _ in batch]  # each case's response, noise and delay search, for the other scorers
+        scored = scorer.score_many(filts, shared)
+        rows = []
+        for (i, spec), filt, figures, mine in zip(batch, filts, scored, shared):
+            row = {
+                "id": i,
+                "response": spec.response,
+                "family": spec.family,
+                "order": spec.order,
+                "poles": spec.poles,
+                "design_low_hz": spec.low_hz,
+                "design_high_hz": spec.high_hz,
+            }
+            row.update(figures)
+            row["bandwidth_hz"] = filt.bandwidth_3db(analysis.nyquist_hz)
+            row["headroom_db"] = headroom
+            if data is not None:
+                row.update(_data_metrics(filt, analysis, chain, data, mine.get("N")))
+            rows.append(row)
         if perceptual is not None:
-            row.update(_perceptual_metrics(filt, analysis, chain, perceptual, shared))
-        passes, fails, margins = check_targets(row, targets)
-        row.update(passes=passes, fails=fails, margins_db=margins)
-        return row
+            for row, figures in zip(rows, _perceptual_many(filts, analysis, chain, perceptual, shared)):
+                row.update(figures)
+        for row in rows:
+            passes, fails, margins = check_targets(row, targets)
+            row.update(passes=passes, fails=fails, margins_db=margins)
+        return rows
 
-    return forked_map(score_one, list(enumerate(specs, start=1)), progress=progress)
+    batches = design_batches(list(enumerate(specs, start=1)))
+    scored = forked_map(score_batch, batches, progress=progress, sizes=[len(b) for b in batches])
+    return [row for rows in scored for row in rows]
+
+
+#: At most this many cases of one design are scored together (:meth:`Scorer.score_many`): enough
+#: to spread the per-call cost of numpy, few enough that their (cases × bins) and
+#: (cases × frames × bands) arrays stay a few MB.
+BATCH_CASES = 8
+
+
+def design_batches(items: list) -> list[list]:
+    """``(id, spec)`` items cut into runs of consecutive cases of one design (everything but the
+    edges alike), each at most :data:`BATCH_CASES` long; the order is kept."""
+    batches: list[list] = []
+    key = None
+    for item in items:
+        spec = item[1]
+        k = (spec.response, spec.family, spec.order, spec.ripple_db, spec.stopband_db, spec.stage, spec.fs_hz)
+        if batches and k == key and len(batches[-1]) < BATCH_CASES:
+            batches[-1].append(item)
+        else:
+            batches.append([item])
+            key = k
+    return batches
 
 
 def _data_metrics(filt, analysis: Analysis, chain: Chain, data, total=None) -> dict:
@@ -261,13 +291,20 @@ def _data_metrics(filt, analysis: Analysis, chain: Chain, data, total=None) -> d
 def _perceptual_metrics(filt, analysis: Analysis, chain: Chain, perceptual, shared=None) -> dict:
     """nmr_db, audible_frames_pct, sii, wiener_gap_db of one case (see audiobw.perceptual.scoring);
     ``shared``: what :meth:`Scorer.score` left for this case (response, noise, delay search)."""
+    return _perceptual_many([filt], analysis, chain, perceptual, [shared or {}])[0]
+
+
+def _perceptual_many(filts, analysis: Analysis, chain: Chain, perceptual, shared: list[dict]) -> list[dict]:
+    """:func:`_perceptual_metrics` of consecutive cases of one design, scored together."""
     from .noise import noise_total
 
-    shared = shared or {}
-    total = shared.get("N")
-    if total is None:
-        total = noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
-    return perceptual.score(filt, total, shared)
+    noise = [
+        mine["N"]
+        if mine.get("N") is not None
+        else noise_total(chain, filt, analysis.freqs_hz, analysis.weights_hz, analysis.sample_rate_hz)
+        for filt, mine in zip(filts, shared)
+    ]
+    return perceptual.score_many(filts, noise, shared)
 
 
 def run_sweep(

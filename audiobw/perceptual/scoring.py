@@ -156,13 +156,14 @@ class PerceptualScorer:
 
         Each band's phasor is a table product (see :func:`audiobw.delay.uniform_phasor`):
         e^{j(s_b + qB)θ_b}·e^{jrθ_b}, θ_b = 2π·df·τ_b, within a few units in the last
-        place of the direct exponential.
+        place of the direct exponential.  ``delay_b``: (bands,) or (candidates, bands).
         """
         B = PHASOR_BLOCK
         th = 2.0 * np.pi * self._df * delay_b
-        t1 = np.exp(1j * th[:, None] * (self._ph_first[:, None] + B * np.arange(self._ph_nq)[None, :]))
-        t2 = np.exp(1j * th[:, None] * np.arange(B)[None, :])
-        return t1.ravel()[self._ph_i1] * t2.ravel()[self._ph_i2]
+        t1 = np.exp(1j * th[..., None] * (self._ph_first[:, None] + B * np.arange(self._ph_nq)[None, :]))
+        t2 = np.exp(1j * th[..., None] * np.arange(B)[None, :])
+        lead = th.shape[:-1]
+        return t1.reshape(lead + (-1,))[..., self._ph_i1] * t2.reshape(lead + (-1,))[..., self._ph_i2]
 
     def _band_sum(self, x):
         out = np.zeros(x.shape[:-1] + (self._nb,))
@@ -185,17 +186,19 @@ class PerceptualScorer:
         between bands (a highpass delays the bass by milliseconds) is not counted
         as error; gain error and phase dispersion inside a band are.  ``tau``
         (the best overall delay) is used where a band's own delay is undefined.
+        ``h``, ``gd``: one candidate (bins,) or one per row (candidates, bins), ``tau`` likewise.
         """
         sw = self.sw
-        gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=np.full(self._nb, tau), where=self.band_s > 0)
+        tau_b = np.multiply.outer(np.asarray(tau, dtype=float), np.ones(self._nb))
+        gd_b = np.divide(self._band_sum(gd * sw), self.band_s, out=tau_b, where=self.band_s > 0)
         if f.size > 1:
             he = h * self._band_phasor(gd_b)
         else:
-            he = h * np.exp(2j * np.pi * f * gd_b[self._band_of_bin])
+            he = h * np.exp(2j * np.pi * f * gd_b[..., self._band_of_bin])
         power = self._band_sum((1.0 + (he.real**2 + he.imag**2)) * sw)
         cross = np.abs(self._band_sum(he.real * sw) + 1j * self._band_sum(he.imag * sw))
         err = np.maximum(power - 2.0 * cross, 0.0)
-        return np.divide(err, self.band_s, out=np.zeros(self._nb), where=self.band_s > 0)
+        return np.divide(err, self.band_s, out=np.zeros(err.shape), where=self.band_s > 0)
 
     def limits(self) -> dict:
         """Top-level figures of the program and chain (no filter), and the playback conditions."""
@@ -217,13 +220,23 @@ class PerceptualScorer:
         return err, tau
 
     def _errors(self, h, noise_psd, cross=None):
-        """(error per frame and band, best delay, |1 − H e^{j2πfτ}|² per bin)."""
+        """(error per frame and band, best delay, |1 − H e^{j2πfτ}|² per bin) of one candidate."""
+        err, tau, removed = self._errors_many(h[None, :], noise_psd[None, :], [cross])
+        return err[0], tau[0], removed[0]
+
+    def _errors_many(self, h, noise_psd, crosses):
+        """:meth:`_errors` of one candidate per row of ``h`` and ``noise_psd`` (candidates × bins):
+        errors (a list of frames × bands arrays), delays (candidates,), removed gains (candidates × bins)."""
         f, w = self.analysis.freqs_hz, self.analysis.weights_hz
         gd = wiener.group_delay_s(h, f)
-        tau, removed_gain = self._delay(h, f, w, gd, cross)
+        tau = np.empty(h.shape[0])
+        removed = np.empty(h.shape)
+        for i, cross in enumerate(crosses):
+            tau[i], removed[i] = self._delay(h[i], f, w, gd[i], cross)
         share = self._heard_share(h, f, w, tau, gd)
         n_band = self._band_sum(noise_psd * w) * self.k_ac
-        return self.frames * share + n_band, tau, removed_gain
+        # frames × bands per candidate: a few hundred kB each, so the next steps stay in cache
+        return [self.frames * share[i] + n_band[i] for i in range(h.shape[0])], tau, removed
 
     def score(self, filt, noise_psd, shared: dict | None = None) -> dict:
         """nmr_db, audible_frames_pct, sii and wiener_gap_db of one filter.
@@ -233,43 +246,55 @@ class PerceptualScorer:
         ``shared``: the arrays :meth:`audiobw.metrics.Scorer.score` left for this
         case (its complex response ``H`` on the same grid and, when the meter band
         is the whole grid, the cross spectrum with its coarse delay search).
+        One case of :meth:`score_many`.
         """
+        return self.score_many([filt], [noise_psd], [shared or {}])[0]
+
+    def score_many(self, filts, noise_psds, shared: list[dict]) -> list[dict]:
+        """:meth:`score` of each candidate, the frames × bands arrays of all of them built at once
+        (each row the same as scoring its candidate alone: tests/test_batched.py)."""
         a = self.analysis
         f, w = a.freqs_hz, a.weights_hz
-        shared = shared or {}
-        h = shared["H"] if "H" in shared else complex_response(filt, f)
-        err, tau, removed_gain = self._errors(h, noise_psd, shared.get("cross"))
-        rw = removed_gain * self.S * w  # wiener.removed_psd(h, S, f, tau), already evaluated
-        ratio = err / self.mask
-        over = ratio > 1.0
-        audible = over.any(axis=1)
-        row = {
-            # np.mean's sums and divisions without its wrappers (the same bits)
-            "nmr_db": _db(float(ratio.sum() / ratio.size)),
-            "audible_frames_pct": 100.0 * (np.count_nonzero(audible) / audible.size),
-            "wiener_gap_db": _db((float(np.sum(rw)) + float(np.sum(noise_psd * w))) / self.mse_min)
-            if self.mse_min > 0
-            else None,
-            "delay_s": tau,
-        }
-        # where the error is heard: the band over its threshold in the most frames
-        row["audible_band_hz"] = row["audible_band_pct"] = None
-        counts = over.sum(axis=0)
-        if counts.max() > 0:
-            b = int(np.argmax(counts))
-            row["audible_band_hz"] = [float(f"{self.edges[b]:.6g}"), float(f"{self.edges[b + 1]:.6g}")]
-            row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
-        if self.listening.program == "speech":
-            k = self.k_ac
-            m = self._sii_bins  # the bins up to the top SII band edge: the same band sums
-            hm = h[:m]
-            g2 = hm.real * hm.real + hm.imag * hm.imag
-            e18 = sii.band_spectrum_levels(f[:m], self.S[:m] * g2 * k, w[:m])
-            n18 = sii.band_spectrum_levels(f[:m], noise_psd[:m] * k, w[:m])
-            row["sii"] = sii.sii(np.maximum(e18, -200.0), n18, self.hl18)
-        else:
-            row["sii"] = None
-        return row
+        h = np.empty((len(filts), f.size), dtype=complex)
+        for row, filt, mine in zip(h, filts, shared):
+            row[...] = mine["H"] if "H" in mine else complex_response(filt, f)
+        noise = np.asarray(noise_psds, dtype=float).reshape(len(filts), f.size)
+        errs, tau, removed_gain = self._errors_many(h, noise, [mine.get("cross") for mine in shared])
+        rows = []
+        for i, err in enumerate(errs):
+            ratio = err / self.mask
+            over = ratio > 1.0
+            audible = over.any(axis=1)
+            rw = removed_gain[i] * self.S * w  # wiener.removed_psd(h, S, f, tau), already evaluated
+            noise_psd = noise[i]
+            row = {
+                # np.mean's sums and divisions without its wrappers (the same bits)
+                "nmr_db": _db(float(ratio.sum() / ratio.size)),
+                "audible_frames_pct": 100.0 * (np.count_nonzero(audible) / audible.size),
+                "wiener_gap_db": _db((float(np.sum(rw)) + float(np.sum(noise_psd * w))) / self.mse_min)
+                if self.mse_min > 0
+                else None,
+                "delay_s": float(tau[i]),
+            }
+            # where the error is heard: the band over its threshold in the most frames
+            row["audible_band_hz"] = row["audible_band_pct"] = None
+            counts = over.sum(axis=0)
+            if counts.max() > 0:
+                b = int(np.argmax(counts))
+                row["audible_band_hz"] = [float(f"{self.edges[b]:.6g}"), float(f"{self.edges[b + 1]:.6g}")]
+                row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
+            if self.listening.program == "speech":
+                k = self.k_ac
+                m = self._sii_bins  # the bins up to the top SII band edge: the same band sums
+                hm = h[i, :m]
+                g2 = hm.real * hm.real + hm.imag * hm.imag
+                e18 = sii.band_spectrum_levels(f[:m], self.S[:m] * g2 * k, w[:m])
+                n18 = sii.band_spectrum_levels(f[:m], noise_psd[:m] * k, w[:m])
+                row["sii"] = sii.sii(np.maximum(e18, -200.0), n18, self.hl18)
+            else:
+                row["sii"] = None
+            rows.append(row)
+        return rows
 
 
 def _db(x):

@@ -62,21 +62,24 @@ def group_delay_s(h, freqs_hz) -> np.ndarray:
     (second-order central differences, first-order at the ends), written on the
     phase steps between neighbouring bins, wrapped into (−π, π] by the rule of
     :func:`numpy.unwrap`: the same figure without forming the unwrapped phase
-    (whose large values cancel in the differences).
+    (whose large values cancel in the differences).  ``h`` may hold one
+    response per row (along its last axis).
     """
     om = 2 * np.pi * np.asarray(freqs_hz, float)
+    h = np.asarray(h)
     ph = np.angle(h)
-    if ph.size < 2:
-        return -np.gradient(ph, om)
-    d = np.diff(ph)
+    if ph.shape[-1] < 2:
+        return -np.gradient(ph, om, axis=-1)
+    d = np.diff(ph, axis=-1)
     # an exact zero at an end of the grid (a highpass's at 0 Hz) has no phase: np.angle reads
     # 0 or π there by the sign of a zero, so the first (last) step takes its neighbour's value
     # and the delay at that bin is the limit from inside, as the zpk formula gives it
-    if ph.size > 2:
-        if h[0] == 0:
-            d[0] = d[1]
-        if h[-1] == 0:
-            d[-1] = d[-2]
+    if ph.shape[-1] > 2:
+        first, last = h[..., 0] == 0, h[..., -1] == 0
+        if first.any():
+            d[..., 0] = np.where(first, d[..., 1], d[..., 0])
+        if last.any():
+            d[..., -1] = np.where(last, d[..., -2], d[..., -1])
     wrap = np.abs(d) >= np.pi  # numpy.unwrap: steps of at least π are taken mod 2π
     if wrap.any():
         dw = d[wrap]
@@ -85,12 +88,12 @@ def group_delay_s(h, freqs_hz) -> np.ndarray:
         d[wrap] = dm
     dx = np.diff(om)
     out = np.empty(ph.shape)
-    out[0] = d[0] / dx[0]
-    out[-1] = d[-1] / dx[-1]
-    if ph.size > 2:
+    out[..., 0] = d[..., 0] / dx[0]
+    out[..., -1] = d[..., -1] / dx[-1]
+    if ph.shape[-1] > 2:
         h1, h2 = dx[:-1], dx[1:]
         s = h1 + h2
-        out[1:-1] = h2 / (h1 * s) * d[:-1] + h1 / (h2 * s) * d[1:]
+        out[..., 1:-1] = h2 / (h1 * s) * d[..., :-1] + h1 / (h2 * s) * d[..., 1:]
     return -out
 
 
