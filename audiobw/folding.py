@@ -85,27 +85,34 @@ def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.
     near the axis; a conjugate pair counts twice its upper member.  Returns None
     where it does not apply (repeated or unstable poles, an improper response,
     cosh overflow, or cancellation worse than 1e-9 of the result); the caller
-    then folds image by image.
+    then folds image by image.  One filter of :func:`_images_closed_form_many`.
     """
-    z, p, k = np.asarray(filt.z, complex), np.asarray(filt.p, complex), float(filt.k)
+    return _images_closed_form_many([filt], freqs_hz, fs_hz)[0]
+
+
+def _images_closed_form_many(filts: list[Filter], freqs_hz: np.ndarray, fs_hz: float) -> list[np.ndarray | None]:
+    """:func:`_images_closed_form` of filters of one normalised prototype (the same zeros, poles
+    and gain; each its own ω_ref), the arrays of all of them built at once (one row each)."""
+    first = filts[0]
+    z, p, k = np.asarray(first.z, complex), np.asarray(first.p, complex), float(first.k)
     n = p.size
+    none: list[np.ndarray | None] = [None] * len(filts)
     if n == 0 or z.size > n or (p.real >= 0).any():
-        return None
+        return none
     size = float(np.abs(p).max())
     gaps = np.abs(p[:, None] - p[None, :]) + np.eye(n) * size
     if gaps.min() < 1e-6 * size:
-        return None
-    period = 2.0 * math.pi * fs_hz / filt.ref_rad_s
-    half_beta = math.pi * (-p.real) / period
-    if half_beta.max() > 300.0:
-        return None
+        return none
+    periods = [2.0 * math.pi * fs_hz / filt.ref_rad_s for filt in filts]
+    half_betas = [math.pi * (-p.real) / period for period in periods]
+    rows = [i for i, hb in enumerate(half_betas) if not hb.max() > 300.0]
     upper = p.imag > 1e-12 * np.abs(p)
     single = np.abs(p.imag) <= 1e-12 * np.abs(p)
     use = upper | single
-    if 2 * int(np.count_nonzero(upper)) + int(np.count_nonzero(single)) != n:
-        return None
+    if not rows or 2 * int(np.count_nonzero(upper)) + int(np.count_nonzero(single)) != n:
+        return none
     # the residues depend on the normalised prototype only: shared by every cutoff
-    cache = filt._proto if filt._proto is not None else filt._cache
+    cache = first._proto if first._proto is not None else first._cache
     resid = cache.get("image_residues")
     if resid is None:
         pz = p[:, None] - z[None, :] if z.size else np.ones((n, 1), complex)
@@ -117,25 +124,34 @@ def _images_closed_form(filt: Filter, freqs_hz: np.ndarray, fs_hz: float) -> np.
         cache["image_residues"] = resid
     theta_half = math.pi * np.asarray(freqs_hz, dtype=float) / fs_hz
     st, ct = np.sin(theta_half), np.cos(theta_half)
-    out = np.zeros_like(theta_half)
-    bound = np.zeros_like(theta_half)
-    for r, b, be, weight in zip(resid[use], p.imag[use], half_beta[use], np.where(upper, 2.0, 1.0)[use]):
-        ph = math.pi * b / period
-        cp, sp = math.cos(ph), math.sin(ph)
-        sh2 = 2.0 * math.sinh(be) ** 2
-        sinh2 = math.sinh(2.0 * be)
+    out = np.zeros((len(rows), theta_half.size))
+    bound = np.zeros_like(out)
+    weights = np.where(upper, 2.0, 1.0)
+    for j in np.flatnonzero(use):
+        r, b, weight = resid[j], p.imag[j], weights[j]
+        # per filter: its scalars as math computes them, then one column each
+        ph = [math.pi * b / periods[i] for i in rows]
+        be = [float(half_betas[i][j]) for i in rows]
+        cp = np.array([math.cos(x) for x in ph])[:, None]
+        sp = np.array([math.sin(x) for x in ph])[:, None]
+        sh2 = np.array([2.0 * math.sinh(x) ** 2 for x in be])[:, None]
+        sinh2 = np.array([math.sinh(2.0 * x) for x in be])[:, None]
         a1, b1 = st * cp, ct * sp
         s1, s2 = a1 - b1, a1 + b1
         c1, c2 = ct * cp + st * sp, ct * cp - st * sp
         d1 = 1.0 / (sh2 + 2.0 * s1 * s1)
         d2 = 1.0 / (sh2 + 2.0 * s2 * s2)
-        term = weight * (r.real * sinh2 * (d1 + d2) + r.imag * 2.0 * (s1 * c1 * d1 - s2 * c2 * d2))
+        term = weight * ((r.real * sinh2) * (d1 + d2) + r.imag * 2.0 * (s1 * c1 * d1 - s2 * c2 * d2))
         out += term
         bound += np.abs(term)
-    if not np.isfinite(out).all() or 1e-16 * float(bound.max()) > 1e-9 * float(np.abs(out).max()):
-        return None
-    out *= math.pi / period
-    return np.maximum(out, 0.0)
+    result = none[:]
+    for row, i in enumerate(rows):
+        o = out[row]
+        if not np.isfinite(o).all() or 1e-16 * float(bound[row].max()) > 1e-9 * float(np.abs(o).max()):
+            continue
+        o *= math.pi / periods[i]
+        result[i] = np.maximum(o, 0.0)
+    return result
 
 
 #: The images (everything but |H(f)|² itself) are smooth over 0…fs/2: the
@@ -145,17 +161,25 @@ IMAGE_STRIDE = 8
 
 def _folded_images(filt: Filter, freqs_hz: np.ndarray, fs_hz: float, direct: np.ndarray) -> np.ndarray | None:
     """|H(f)|² plus every alias image, with the images from a subsampled closed form."""
+    return _folded_images_many([filt], freqs_hz, fs_hz, [direct])[0]
+
+
+def _folded_images_many(filts: list[Filter], freqs_hz: np.ndarray, fs_hz: float, direct) -> list[np.ndarray | None]:
+    """:func:`_folded_images` of filters of one normalised prototype (``direct``: each one's |H|²)."""
     n = freqs_hz.size
     if n < 64 * IMAGE_STRIDE:
-        return _images_closed_form(filt, freqs_hz, fs_hz)
+        return _images_closed_form_many(filts, freqs_hz, fs_hz)
     idx = np.arange(0, n, IMAGE_STRIDE)
     if idx[-1] != n - 1:
         idx = np.append(idx, n - 1)
-    total = _images_closed_form(filt, freqs_hz[idx], fs_hz)
-    if total is None:
-        return None
-    images = np.maximum(total - direct[idx], 0.0)
-    return direct + np.interp(freqs_hz, freqs_hz[idx], images)
+    out: list[np.ndarray | None] = []
+    for total, d in zip(_images_closed_form_many(filts, freqs_hz[idx], fs_hz), direct):
+        if total is None:
+            out.append(None)
+            continue
+        images = np.maximum(total - d[idx], 0.0)
+        out.append(d + np.interp(freqs_hz, freqs_hz[idx], images))
+    return out
 
 
 def folded_noise_gain(
@@ -196,13 +220,20 @@ def folded_noise_gain(
         return direct, float(np.sum(direct * weights_hz))
     if noise_filt.floor_gain() > 0:
         raise _unbounded(unbounded_reason(Chain(), filt) or "the response never falls")
+    return _fold(noise_filt, freqs_hz, weights_hz, fs_hz, direct)
+
+
+def _fold(noise_filt: Filter, freqs_hz, weights_hz, fs_hz: float, direct, folded=_folded_images):
+    """What :func:`folded_noise_gain` does once the response is known to fall: fold its images
+    into 0…fs/2 and spread the rest.  ``folded``: :func:`_folded_images`, or a callable
+    giving its result already computed (the batch)."""
     target = noise_filt.varying_integral_hz()
     acc = float(np.sum(direct * weights_hz))
     if abs(target - acc) <= 1e-6 * abs(target):
         # the images hold less than 1 ppm (a steep filter well below fs/2): no folding needed
         g = direct
-    elif (folded := _folded_images(noise_filt, freqs_hz, fs_hz, direct)) is not None:  # every image at once
-        g = folded
+    elif (images := folded(noise_filt, freqs_hz, fs_hz, direct)) is not None:  # every image at once
+        g = images
         acc = float(np.sum(g * weights_hz))
     else:
         g = direct
@@ -217,3 +248,40 @@ def folded_noise_gain(
     if rest < 0 and -rest > 1e-6 * target:
         return g, acc  # never remove more than rounding: keep what was folded
     return np.maximum(g + rest / float(np.sum(weights_hz)), 0.0), target
+
+
+def folded_noise_gains(
+    filts: list[Filter],
+    freqs_hz: np.ndarray,
+    weights_hz: np.ndarray,
+    fs_hz: float,
+    amp_bandwidth_hz: float | None,
+    direct: np.ndarray,
+    *,
+    anti_alias: str = "none",
+) -> list[tuple[np.ndarray, float]]:
+    """:func:`folded_noise_gain` of each filter (``direct``: one |H|² per row), the closed-form
+    images of an analog prototype's cutoffs built together (:func:`_images_closed_form_many`)."""
+    from .batchresponse import shares_prototype
+
+    if amp_bandwidth_hz is not None or anti_alias != "none" or len(filts) < 2 or not shares_prototype(filts):
+        return [
+            folded_noise_gain(f, freqs_hz, weights_hz, fs_hz, amp_bandwidth_hz, direct=d, anti_alias=anti_alias)
+            for f, d in zip(filts, direct)
+        ]
+    if filts[0].floor_gain() > 0:
+        raise _unbounded(unbounded_reason(Chain(), filts[0]) or "the response never falls")
+    need = []
+    for i, (filt, d) in enumerate(zip(filts, direct)):
+        target = filt.varying_integral_hz()
+        if abs(target - float(np.sum(d * weights_hz))) > 1e-6 * abs(target):
+            need.append(i)
+    found = (
+        dict(zip(need, _folded_images_many([filts[i] for i in need], freqs_hz, fs_hz, [direct[i] for i in need])))
+        if need
+        else {}
+    )
+    return [
+        _fold(filt, freqs_hz, weights_hz, fs_hz, d, folded=lambda *_, i=i: found.get(i))
+        for i, (filt, d) in enumerate(zip(filts, direct))
+    ]

@@ -46,7 +46,7 @@ from .filterquality import (  # noqa: F401  (re-exported)
     image_bands_hz,
 )
 from .filters import Filter
-from .noise import noise_total
+from .noisespectra import noise_totals
 from .options import default
 from .registry import TARGET_KEYS, TARGET_METRIC  # noqa: F401  (re-exported: the targets of the one metric table)
 from .spectrum import Analysis
@@ -221,9 +221,9 @@ class Scorer:
         in_band = flatness_and_spread(filts, p["occupied_grid"])
         nyq = a.nyquist_hz
         rows = []
+        N_all = noise_totals(c, filts, f, a.weights_hz, a.sample_rate_hz, direct=G_all)
         for i, filt in enumerate(filts):
-            G, H, Gl = G_all[i], H_all[i], Gl_all[i]
-            N = noise_total(c, filt, f, a.weights_hz, a.sample_rate_hz, direct=G)
+            G, H, Gl, N = G_all[i], H_all[i], Gl_all[i], N_all[i]
             n_pow = float(np.dot(N, wm))
             n_pow_a = float(np.dot(N, p["wm_a"]))
             # program out on the scoring grid (fine below the crossover)

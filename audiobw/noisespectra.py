@@ -126,6 +126,37 @@ def noise_total(
     return out
 
 
+def noise_totals(
+    chain: Chain, filts: list[Filter], freqs_hz: np.ndarray, weights_hz: np.ndarray, fs_hz: float, *, direct
+) -> list[np.ndarray]:
+    """:func:`noise_total` of each filter (``direct``: one |H|² per row), the folded images of an
+    analog prototype's cutoffs computed together (:func:`audiobw.folding.folded_noise_gains`)."""
+    from .batchresponse import shares_prototype
+    from .folding import folded_noise_gains
+
+    if len(filts) < 2 or not filts[0].analog or not shares_prototype(filts):
+        return [noise_total(chain, f, freqs_hz, weights_hz, fs_hz, direct=d) for f, d in zip(filts, direct)]
+    nyq_width = float(np.sum(weights_hz))
+    converter = (chain.quantisation_power_v2() + chain.dither_power_v2()) / nyq_width
+    for filt in filts:
+        check_noise_bounded(chain, filt)
+    if chain.density_amplifier_v2_hz() == 0:  # no amplifier noise: nothing to shape or fold
+        gains = [np.zeros_like(np.asarray(freqs_hz, dtype=float)) for _ in filts]
+    else:
+        folded = folded_noise_gains(
+            filts, freqs_hz, weights_hz, fs_hz, chain.amp_bandwidth_hz, direct, anti_alias=chain.anti_alias
+        )
+        gains = [g for g, _ in folded]
+    excess = amplifier_excess(chain, freqs_hz, weights_hz) if chain.has_flicker else None
+    out = []
+    for g, h2 in zip(gains, direct):
+        total = chain.density_amplifier_v2_hz() * g + converter
+        if excess is not None:
+            total = total + (excess[0] + excess[1]) * _excess_gain(chain, h2, freqs_hz)
+        out.append(total)
+    return out
+
+
 def amplifier_excess(chain: Chain, freqs_hz: np.ndarray, weights_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The amplifier's noise above its white densities, at the converter input, per bin (V²/Hz).
 

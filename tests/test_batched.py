@@ -169,3 +169,23 @@ def test_forked_map_counts_cases_of_uneven_items(fork):
     total = sum(len(x) for x in items)
     assert seen[-1] == (total, total)
     assert all(n == total for _, n in seen) and [d for d, _ in seen] == sorted(d for d, _ in seen)
+
+
+@pytest.mark.parametrize(
+    "chain",
+    [Chain(), Chain(en_corner_hz=200.0, in_corner_hz=100.0), Chain(anti_alias="ideal"), Chain(amp_bandwidth_hz=90e3)],
+)
+@pytest.mark.parametrize("family,order", [("butterworth", 1), ("bessel", 3), ("elliptic", 5), ("chebyshev1", 8)])
+def test_noise_of_cutoffs_folded_together_is_the_noise_of_each(chain, family, order):
+    """The closed-form alias images of a prototype's cutoffs built together (folding.folded_noise_gains)
+    against noise_total of each filter alone; cutoffs up to near fs/2, where most of the noise folds."""
+    from audiobw.noise import noise_total
+    from audiobw.noisespectra import noise_totals
+
+    filts = [design(FilterSpec("lowpass", family, order, None, fc)) for fc in np.geomspace(500.0, 23000.0, 9)]
+    f = np.arange(8193) * FS / 16384
+    w = np.full(f.size, f[1])
+    w[[0, -1]] *= 0.5
+    G = power_responses(filts, f)
+    for filt, n, g in zip(filts, noise_totals(chain, filts, f, w, FS, direct=G), G):
+        assert np.array_equal(n, noise_total(chain, filt, f, w, FS, direct=g))
