@@ -38,6 +38,16 @@ def uniform_phasor(n: int, step_rad: float) -> np.ndarray:
     return np.multiply.outer(hi, lo).ravel()[:n]
 
 
+def uniform_phasors(n: int, steps_rad) -> np.ndarray:
+    """:func:`uniform_phasor` for each of ``steps_rad``, one row each (shape (steps, n))."""
+    b = PHASOR_BLOCK
+    q = -(-n // b)
+    steps = np.asarray(steps_rad, dtype=float)
+    hi = np.exp(1j * (steps * b)[:, None] * np.arange(q))
+    lo = np.exp(1j * steps[:, None] * np.arange(b))
+    return (hi[:, :, None] * lo[:, None, :]).reshape(steps.size, q * b)[:, :n]
+
+
 def _check_uniform(f: np.ndarray) -> float:
     df = f[1] - f[0]
     if f[0] != 0.0 or abs(f[-1] - df * (f.size - 1)) > 1e-9 * f[-1]:
@@ -71,37 +81,60 @@ def _delay_cross(
 
     τ is searched in ±1/(2·df), or in 0 … ``max_delay_s`` when that is given.
     ``coarse``: :func:`coarse_cross` of the same ``c`` and ``f``, when already computed.
+    One row of :func:`_delay_cross_many`.
     """
-    if f.size < 2 or not c.any():
-        return 0.0, float(np.sum(c.real))
-    g, step_s = coarse_cross(c, f) if coarse is None else coarse
-    n_fft = g.size
-    if max_delay_s is None:
-        n = int(np.argmax(g))
-    else:
-        # a causal window 0 … max_delay_s: a tonal program makes the cross term nearly
-        # periodic, and a delay far beyond the filter's own would match one partial
-        # while misaligning the rest (the window is at least three coarse steps)
-        stop = max(3, min(n_fft // 2, int(math.ceil(max_delay_s / step_s)) + 2))
-        n = int(np.argmax(g[:stop]))
-    # parabola through the peak sample and its neighbours, then one Newton step on the exact sum
-    y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
-    den = y0 - 2.0 * y1 + y2
-    frac = 0.5 * (y0 - y2) / den if den < 0 else 0.0
-    tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
-    if max_delay_s is not None:
-        tau = max(tau, 0.0)
+    taus, values = _delay_cross_many(np.asarray(c)[None, :], f, [max_delay_s], [coarse])
+    return float(taus[0]), float(values[0])
+
+
+def _delay_cross_many(c: np.ndarray, f: np.ndarray, max_delays: list, coarse: list) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_delay_cross` of each row of ``c`` (cross spectra, cases × bins), with its own
+    ``max_delays[i]`` and ``coarse[i]``; the refinement's phasors and sums of all rows at once."""
+    n_rows = c.shape[0]
+    taus, values = np.zeros(n_rows), np.zeros(n_rows)
+    rows, steps = [], []
+    for i in range(n_rows):
+        ci = c[i]
+        if f.size < 2 or not ci.any():
+            values[i] = float(np.sum(ci.real))
+            continue
+        g, step_s = coarse_cross(ci, f) if coarse[i] is None else coarse[i]
+        n_fft = g.size
+        max_delay_s = max_delays[i]
+        if max_delay_s is None:
+            n = int(np.argmax(g))
+        else:
+            # a causal window 0 … max_delay_s: a tonal program makes the cross term nearly
+            # periodic, and a delay far beyond the filter's own would match one partial
+            # while misaligning the rest (the window is at least three coarse steps)
+            stop = max(3, min(n_fft // 2, int(math.ceil(max_delay_s / step_s)) + 2))
+            n = int(np.argmax(g[:stop]))
+        # parabola through the peak sample and its neighbours, then one Newton step on the exact sum
+        y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
+        den = y0 - 2.0 * y1 + y2
+        frac = 0.5 * (y0 - y2) / den if den < 0 else 0.0
+        tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
+        if max_delay_s is not None:
+            tau = max(tau, 0.0)
+        taus[i] = tau
+        rows.append(i)
+        steps.append(step_s)
+    if not rows:
+        return taus, values
     om = 2.0 * np.pi * f
-    e = c * uniform_phasor(f.size, 2.0 * np.pi * (f[1] - f[0]) * tau)
-    g0 = float(np.sum(e.real))
-    d1 = -float(np.dot(om, e.imag))  # d/dτ Re Σ c e^{jωτ}
-    d2 = -float(np.dot(om * om, e.real))  # d²/dτ²
-    if d2 < 0.0:
-        delta = -d1 / d2
-        # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
-        if abs(delta) <= step_s and (max_delay_s is None or tau + delta >= 0.0):
-            return tau + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
-    return tau, g0
+    e = c[rows] * uniform_phasors(f.size, 2.0 * np.pi * (f[1] - f[0]) * taus[rows])
+    for j, i in enumerate(rows):
+        ej = e[j]
+        g0 = float(np.sum(ej.real))
+        d1 = -float(np.dot(om, ej.imag))  # d/dτ Re Σ c e^{jωτ}
+        d2 = -float(np.dot(om * om, ej.real))  # d²/dτ²
+        values[i] = g0
+        if d2 < 0.0:
+            delta = -d1 / d2
+            # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
+            if abs(delta) <= steps[j] and (max_delays[i] is None or taus[i] + delta >= 0.0):
+                taus[i], values[i] = taus[i] + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
+    return taus, values
 
 
 def best_delay(
@@ -149,13 +182,30 @@ def best_delay(
         |1 − H·e^{j2πfτ}|² at that delay (multiply by S and integrate for the
         error power).
     """
+    taus, err = best_delays(S, np.asarray(H, dtype=complex)[None, :], freqs_hz, weights_hz, [max_delay_s], [cross])
+    return float(taus[0]), err[0]
+
+
+def best_delays(
+    S, H: np.ndarray, freqs_hz, weights_hz, max_delays: list, crosses: list
+) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`best_delay` of each row of ``H`` (cases × bins), with its own ``max_delays[i]`` and
+    ``crosses[i]`` (None: formed here); delays (cases,) and |1 − H·e^{j2πfτ}|² (cases × bins)."""
     f = np.asarray(freqs_hz, dtype=float)
-    H = np.asarray(H, dtype=complex)
     w = np.full(f.shape, f[1] - f[0]) if weights_hz is None else np.asarray(weights_hz, dtype=float)
-    if cross is None:
-        tau, _ = _delay_cross(np.asarray(S, dtype=float) * w * H, f, max_delay_s)
+    c = np.empty(H.shape, dtype=complex)
+    coarse = []
+    for i, cross in enumerate(crosses):
+        if cross is None:
+            c[i] = np.asarray(S, dtype=float) * w * H[i]
+            coarse.append(None)
+        else:
+            c[i] = cross[0]
+            coarse.append(cross[1])
+    taus, _ = _delay_cross_many(c, f, max_delays, coarse)
+    if f.size > 1:
+        he = H * uniform_phasors(f.size, 2.0 * np.pi * (f[1] - f[0]) * taus)
     else:
-        tau, _ = _delay_cross(cross[0], f, max_delay_s, coarse=cross[1])
-    he = H * (uniform_phasor(f.size, 2.0 * np.pi * (f[1] - f[0]) * tau) if f.size > 1 else np.exp(2j * np.pi * f * tau))
+        he = H * np.exp(2j * np.pi * f[None, :] * taus[:, None])
     re = 1.0 - he.real
-    return tau, re * re + he.imag * he.imag
+    return taus, re * re + he.imag * he.imag

@@ -29,6 +29,7 @@ from .delay import (  # noqa: F401  (re-exported: audiobw.metrics.best_delay and
     DELAY_OVERSAMPLE,
     PHASOR_BLOCK,
     _delay_cross,
+    _delay_cross_many,
     best_delay,
     coarse_cross,
     uniform_phasor,
@@ -215,6 +216,11 @@ class Scorer:
         cs_all = p["swm"] * H_all
         searched = cs_all.any(axis=1) if f.size > 1 else np.zeros(len(filts), dtype=bool)
         coarse_all = coarse_cross(cs_all, f) if searched.any() else None
+        coarse = [
+            (coarse_all[0][i], coarse_all[1]) if coarse_all is not None and searched[i] else None
+            for i in range(len(filts))
+        ]
+        _, crosses = _delay_cross_many(cs_all, f, [None] * len(filts), coarse)
         lsd = self._lsd_many(G_all)
         edges = [filt.edges_3db for filt in filts]
         alias = alias_rejection_many(filts, edges, a.sample_rate_hz)
@@ -231,14 +237,11 @@ class Scorer:
             x_out = float(np.dot(p["swl"], Gl)) + float(np.dot(p["swh"], Gh))
             x_out_a = float(np.dot(p["swl_a"], Gl)) + float(np.dot(p["swh_a"], Gh))
             s_out = float(np.dot(p["swm"], G))
-            cs = cs_all[i]
-            coarse = (coarse_all[0][i], coarse_all[1]) if coarse_all is not None and searched[i] else None
-            _, cross = _delay_cross(cs, f, coarse=coarse)
             if shared is not None:
                 shared[i].update(H=H, G=G, N=N)
-                if self.full_meter and coarse is not None:
-                    shared[i]["cross"] = (cs, coarse)
-            err = max(p["s_total"] + s_out - 2.0 * cross, 0.0)
+                if self.full_meter and coarse[i] is not None:
+                    shared[i]["cross"] = (cs_all[i], coarse[i])
+            err = max(p["s_total"] + s_out - 2.0 * float(crosses[i]), 0.0)
             lo3, hi3 = edges[i]
             row = {
                 "low_hz": lo3 if filt.spec.response != "lowpass" else None,

@@ -189,3 +189,24 @@ def test_noise_of_cutoffs_folded_together_is_the_noise_of_each(chain, family, or
     G = power_responses(filts, f)
     for filt, n, g in zip(filts, noise_totals(chain, filts, f, w, FS, direct=G), G):
         assert np.array_equal(n, noise_total(chain, filt, f, w, FS, direct=g))
+
+
+def test_phasor_rows_and_delay_rows_are_the_single_ones():
+    """delay.uniform_phasors and delay.best_delays, row by row, against uniform_phasor and best_delay."""
+    from audiobw.delay import best_delay, best_delays, uniform_phasor, uniform_phasors
+
+    steps = np.array([-0.3, 0.0, 1e-4, 0.7, 2.9])
+    rows = uniform_phasors(8193, steps)
+    for row, step in zip(rows, steps):
+        np.testing.assert_allclose(row, uniform_phasor(8193, float(step)), rtol=1e-15, atol=0)
+    f = np.linspace(0.0, FS / 2, 4097)
+    rng = np.random.default_rng(3)
+    S = rng.uniform(0.1, 1.0, f.size) / (1.0 + (f / 2000.0) ** 2)
+    filts = [design(s) for s in _specs("lowpass", "elliptic", 4)]
+    H = responses(filts, f)
+    limits = [None, 2e-3, None, 5e-4, 1e-3, None, 3e-3]
+    taus, errs = best_delays(S, H, f, None, limits, [None] * len(filts))
+    for h, lim, tau, err in zip(H, limits, taus, errs):
+        tau1, err1 = best_delay(S, h, f, max_delay_s=lim)
+        assert tau == pytest.approx(tau1, rel=1e-12, abs=0)
+        np.testing.assert_allclose(err, err1, rtol=1e-9, atol=1e-15)

@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..delay import PHASOR_BLOCK, best_delay
+from ..delay import PHASOR_BLOCK, best_delays
 from . import masking, sii, threshold, wiener
 
 #: Default playback level by program kind (dB SPL): speech at ANSI S3.5-1997
@@ -170,12 +170,6 @@ class PerceptualScorer:
         out[..., self._filled] = np.add.reduceat(x, self._starts, axis=-1)
         return out
 
-    def _delay(self, h, f, w, gd, cross=None):
-        """Best delay (s), searched up to twice the filter's largest passband group delay (+ 2 samples),
-        and |1 − H e^{j2πfτ}|² at it.  ``cross``: the case's shared cross spectrum and coarse search."""
-        limit = 2.0 * max(wiener.passband_group_delay_s(h, f, gd), 0.0) + 2.0 / self.analysis.sample_rate_hz
-        return best_delay(self.S, h, f, w, max_delay_s=limit, cross=cross)
-
     def _heard_share(self, h, f, w, tau, gd) -> np.ndarray:
         """Share of each critical band's program power that the filter changes, as heard.
 
@@ -229,10 +223,12 @@ class PerceptualScorer:
         errors (a list of frames × bands arrays), delays (candidates,), removed gains (candidates × bins)."""
         f, w = self.analysis.freqs_hz, self.analysis.weights_hz
         gd = wiener.group_delay_s(h, f)
-        tau = np.empty(h.shape[0])
-        removed = np.empty(h.shape)
-        for i, cross in enumerate(crosses):
-            tau[i], removed[i] = self._delay(h[i], f, w, gd[i], cross)
+        # the best delay, searched up to twice each filter's largest passband group delay (+ 2 samples)
+        limits = [
+            2.0 * max(wiener.passband_group_delay_s(h[i], f, gd[i]), 0.0) + 2.0 / self.analysis.sample_rate_hz
+            for i in range(h.shape[0])
+        ]
+        tau, removed = best_delays(self.S, h, f, w, limits, crosses)
         share = self._heard_share(h, f, w, tau, gd)
         n_band = self._band_sum(noise_psd * w) * self.k_ac
         # frames × bands per candidate: a few hundred kB each, so the next steps stay in cache
