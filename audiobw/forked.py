@@ -118,6 +118,8 @@ def forked_map(fn, items: list, *, fork: bool | None = None, progress=None, size
     done = [0]
     for size in sizes:
         done.append(done[-1] + size)  # cases finished after each item
+    if progress is not None:
+        progress(0, n)  # said at once: the first item may be a batch of many cases
     if not (_may_fork(n) if fork is None else fork) or len(items) < 2:
         return [_ticked(fn, x, done[i], n, 1, progress) for i, x in enumerate(items, start=1)]
     # the first item whose end passes half the cases ends the parent's share (at least one each)
