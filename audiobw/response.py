@@ -3,7 +3,10 @@
 The prototype (zeros, poles, gain) is evaluated analytically on any grid; the
 power integral comes from the state-space Gramian (Lyapunov equation:
 ∫|h(t)|² dt = C P Cᵀ with A P + P Aᵀ + B Bᵀ = 0, Parseval), numerically where
-the Gramian is not trusted.  Built by :func:`audiobw.filters.design`.
+the Gramian is not trusted.  A design built from the shipped prototypes
+(analog bandpass, digital stage) brings its edges and its Gramian term or its
+exact digital power integral in closed form (:func:`audiobw.filters._from_lowpass`).
+Built by :func:`audiobw.filters.design`.
 """
 
 from __future__ import annotations
