@@ -3,7 +3,10 @@
 The prototype (zeros, poles, gain) is evaluated analytically on any grid; the
 power integral comes from the state-space Gramian (Lyapunov equation:
 ∫|h(t)|² dt = C P Cᵀ with A P + P Aᵀ + B Bᵀ = 0, Parseval), numerically where
-the Gramian is not trusted.  Built by :func:`audiobw.filters.design`.
+the Gramian is not trusted.  A design built from the shipped prototypes
+(analog bandpass, digital stage) brings its edges and its Gramian term or its
+exact digital power integral in closed form (:func:`audiobw.filters._from_lowpass`).
+Built by :func:`audiobw.filters.design`.
 """
 
 from __future__ import annotations
@@ -161,7 +164,7 @@ class Filter:
         """
         if "varying" in self._cache:
             return self._cache["varying"]
-        shared = self._proto if self._proto is not None else {}
+        shared = self._proto if self._proto is not None else self._cache
         if "gram_term" not in shared:
             a, b, c, d = self._state_space()
             if a.size == 0:
@@ -211,13 +214,17 @@ class Filter:
         Analog: from the controllability Gramian of the normalised state-space
         form (reference [3] of the module); infinite when the response keeps a
         floor at high frequencies (a highpass, an even-order elliptic).
-        Digital: trapezoidal integration on a dense grid, linear plus
-        logarithmic near DC.
+        Digital: exact, from the prewarped analog design (see
+        :meth:`_digital_power_integral`); for a design made directly by
+        scipy.signal (``design(use_table=False)``), trapezoidal integration
+        on a dense grid, linear plus logarithmic near DC.
         """
         if "power_integral" in self._cache:
             return self._cache["power_integral"]
         if self.analog:
             value = math.inf if self.floor_gain() > 0 else self.varying_integral_hz()
+        elif "warped" in self._cache:
+            value = self._digital_power_integral()
         else:
             nyq = self.spec.fs_hz / 2.0
             f = _dense_grid(float(nyq))
@@ -225,9 +232,23 @@ class Filter:
         self._cache["power_integral"] = value
         return value
 
+    def _digital_power_integral(self) -> float:
+        """∫₀^{fs/2} |H(f)|² df of a digital design built from a prototype, exactly: with
+        Ω = 4·tan(πf/fs), (fs/4π)·∫₀^∞ |H_a(jΩ)|²/(1 + (Ω/4)²) dΩ = (fs/4)·∫|F(jω)|² dω/2π for
+        F = H_a·4/(s + 4), H_a the prewarped analog design (audiobw.filters._from_lowpass)."""
+        from ._zpk import cascade_energy
+
+        sections, gain = self._cache["warped"]
+        return float(self.spec.fs_hz) / 4.0 * cascade_energy(sections, gain)
+
     @cached_property
     def edges_3db(self) -> tuple[float | None, float | None]:
-        """Half-power (−3.01 dB) edges in Hz: (low, high); None where open."""
+        """Half-power (−3.01 dB) edges in Hz: (low, high); None where open.
+
+        A design built from a prototype (audiobw.filters._from_lowpass) has
+        them in closed form; otherwise they are searched for."""
+        if "edges" in self._cache:
+            return self._cache["edges"]
         spec = self.spec
         lo = hi = None
         if spec.response in ("lowpass", "bandpass"):
