@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .response import Filter, _analog_power
+from .response import Filter, _analog_power, _zpk_at
 
 
 def shares_prototype(filts: list[Filter]) -> bool:
@@ -83,14 +83,5 @@ def responses(filts: list[Filter], freq_hz) -> np.ndarray:
         ref = np.array([filt.ref_rad_s for filt in filts])
         # row i: 1j * (2π·f / ref_i), then the products of Filter.response in the same order
         s = 1j * ((2.0 * np.pi * f)[None, :] / ref[:, None])
-        num = np.ones_like(s)
-        t = np.empty_like(s)
-        for zero in first.z:
-            np.subtract(s, zero, out=t)
-            num *= t
-        den = np.ones_like(s)
-        for pole in first.p:
-            np.subtract(s, pole, out=t)
-            den *= t
-        return first.k * num / den
+        return _zpk_at(s, first.z, first.p, first.k)
     return _each(filts, "response", f, complex)

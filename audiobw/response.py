@@ -81,17 +81,7 @@ class Filter:
             s = 1j * (2.0 * np.pi * f / self.ref_rad_s)
         else:
             s = np.exp(1j * 2.0 * np.pi * f / self.spec.fs_hz)
-        # in place: the same products in the same order, without a temporary per factor
-        num = np.ones_like(s)
-        t = np.empty_like(s)
-        for zero in self.z:
-            np.subtract(s, zero, out=t)
-            num *= t
-        den = np.ones_like(s)
-        for pole in self.p:
-            np.subtract(s, pole, out=t)
-            den *= t
-        return self.k * num / den
+        return _zpk_at(s, self.z, self.p, self.k)
 
     def group_delay_s(self, freq_hz) -> np.ndarray:
         """Group delay −dφ/dω in seconds at ``freq_hz`` (Hz), analytically from the zpk.
@@ -321,6 +311,21 @@ class Filter:
                 self._cache["enbw_capped"] = float(np.trapezoid(self.power_response(f), f))
             value = self._cache["enbw_capped"]
         return value
+
+
+def _zpk_at(s: np.ndarray, z, p, k: float) -> np.ndarray:
+    """k·∏(s − z)/∏(s − p) at the points ``s`` (any shape), the products in place and in order
+    (no temporary per factor); :meth:`Filter.response` and audiobw.batchresponse share it."""
+    num = np.ones_like(s)
+    t = np.empty_like(s)
+    for zero in z:
+        np.subtract(s, zero, out=t)
+        num *= t
+    den = np.ones_like(s)
+    for pole in p:
+        np.subtract(s, pole, out=t)
+        den *= t
+    return k * num / den
 
 
 def _real_factors(roots):
