@@ -384,7 +384,36 @@ def entry():  # pragma: no cover - console script
             with contextlib.suppress(OSError, ValueError):
                 stream.flush()
         os._exit(130)
+    _quick_exit(code)
     sys.exit(code)
+
+
+def _quick_exit(code: int) -> None:
+    """End the process at once with ``code`` once its work is done, skipping the interpreter's
+    teardown (freeing every module and array one by one: about 0.1 s after a large sweep).
+
+    Only when nothing is left to do: the streams flush cleanly (a failing flush returns, and the
+    normal exit reports it), no other non-daemon thread is alive (the interpreter would wait for
+    it), and the atexit handlers (temporary folders, dask, multiprocessing) have run.  Every output
+    file is already written and closed (atomically).  ``AUDIOBW_QUICK_EXIT=0`` keeps the normal exit.
+    """
+    import atexit
+    import threading
+
+    if os.environ.get("AUDIOBW_QUICK_EXIT", "") == "0":
+        return
+    if any(t is not threading.main_thread() and not t.daemon and t.is_alive() for t in threading.enumerate()):
+        return
+    try:
+        for stream in (sys.stdout, sys.stderr):
+            stream.flush()
+    except (OSError, ValueError):
+        return
+    atexit._run_exitfuncs()
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(OSError, ValueError):
+            stream.flush()
+    os._exit(code)
 
 
 def threading_main() -> bool:

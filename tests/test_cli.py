@@ -306,3 +306,36 @@ def test_help_lists_units():
     assert r.returncode == 0
     for text in ("--source-ohms", "Ω", "V/√Hz", "--max-thdn", "--cutoffs", "START:STOP:COUNT"):
         assert text in r.stdout
+
+
+@pytest.mark.parametrize("quick", ["1", "0"])
+def test_the_quick_exit_keeps_the_code_the_output_and_the_exit_hooks(tmp_path, quick):
+    """The console entry ends with os._exit after its work (no interpreter teardown): the exit
+    code, the error line and the atexit handlers are those of the normal exit."""
+    import os
+
+    flag = tmp_path / "hook-ran"
+    code = (
+        "import atexit, sys\n"
+        f"atexit.register(lambda: open({str(flag)!r}, 'w').write('ran'))\n"
+        f"sys.argv = ['audiobw', 'sweep', {str(tmp_path / 'missing.wav')!r}]\n"
+        "from audiobw.cli import entry\n"
+        "entry()\n"
+    )
+    env = dict(os.environ, AUDIOBW_QUICK_EXIT=quick)
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=REPO, env=env)
+    assert r.returncode == 1
+    assert r.stderr.strip().splitlines() == [f"audiobw: error: {tmp_path / 'missing.wav'}: no such file"]
+    assert flag.read_text() == "ran"
+    ok = subprocess.run(
+        [
+            sys.executable,
+            "-c",
+            "import sys; sys.argv = ['audiobw', '--version']\nfrom audiobw.cli import entry\nentry()",
+        ],
+        capture_output=True,
+        text=True,
+        cwd=REPO,
+        env=env,
+    )
+    assert ok.returncode == 0 and ok.stdout.startswith("audiobw")
