@@ -87,12 +87,23 @@ def _delay_cross(
     return float(taus[0]), float(values[0])
 
 
-def _delay_cross_many(c: np.ndarray, f: np.ndarray, max_delays: list, coarse: list) -> tuple[np.ndarray, np.ndarray]:
+def _window_stop(max_delay_s: float, step_s: float, n_fft: int) -> int:
+    """End (exclusive) of the causal search window 0 … ``max_delay_s`` on the coarse grid."""
+    return max(3, min(n_fft // 2, int(math.ceil(max_delay_s / step_s)) + 2))
+
+
+def _delay_cross_many(
+    c: np.ndarray, f: np.ndarray, max_delays: list, coarse: list, peaks: list | None = None
+) -> tuple[np.ndarray, np.ndarray]:
     """:func:`_delay_cross` of each row of ``c`` (cross spectra, cases × bins), with its own
-    ``max_delays[i]`` and ``coarse[i]``; the refinement's phasors and sums of all rows at once."""
+    ``max_delays[i]`` and ``coarse[i]``; the refinement's phasors and sums of all rows at once.
+    ``peaks``, when given, receives for each row ``(n, τ₀)``: the coarse peak's index and its
+    parabola's delay (None where nothing was searched), for :func:`windowed_delay_known`."""
     n_rows = c.shape[0]
     taus, values = np.zeros(n_rows), np.zeros(n_rows)
     rows, steps = [], []
+    if peaks is not None:
+        peaks[:] = [None] * n_rows
     for i in range(n_rows):
         ci = c[i]
         if f.size < 2 or not ci.any():
@@ -107,8 +118,7 @@ def _delay_cross_many(c: np.ndarray, f: np.ndarray, max_delays: list, coarse: li
             # a causal window 0 … max_delay_s: a tonal program makes the cross term nearly
             # periodic, and a delay far beyond the filter's own would match one partial
             # while misaligning the rest (the window is at least three coarse steps)
-            stop = max(3, min(n_fft // 2, int(math.ceil(max_delay_s / step_s)) + 2))
-            n = int(np.argmax(g[:stop]))
+            n = int(np.argmax(g[: _window_stop(max_delay_s, step_s, n_fft)]))
         # parabola through the peak sample and its neighbours, then one Newton step on the exact sum
         y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
         den = y0 - 2.0 * y1 + y2
@@ -116,6 +126,8 @@ def _delay_cross_many(c: np.ndarray, f: np.ndarray, max_delays: list, coarse: li
         tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
         if max_delay_s is not None:
             tau = max(tau, 0.0)
+        elif peaks is not None:
+            peaks[i] = (n, tau)
         taus[i] = tau
         rows.append(i)
         steps.append(step_s)
@@ -135,6 +147,22 @@ def _delay_cross_many(c: np.ndarray, f: np.ndarray, max_delays: list, coarse: li
             if abs(delta) <= steps[j] and (max_delays[i] is None or taus[i] + delta >= 0.0):
                 taus[i], values[i] = taus[i] + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
     return taus, values
+
+
+def windowed_delay_known(found, max_delay_s: float) -> float | None:
+    """The delay a search in the causal window 0 … ``max_delay_s`` would find, when the
+    unconstrained search of the same cross spectrum already found it; else None.
+
+    ``found``: ``(n, τ₀, τ, step_s, n_fft)`` of the unconstrained search (its coarse peak's
+    index, its parabola's delay, its refined delay, the coarse grid).  The windowed search
+    takes the first maximum of the same coarse samples inside the window: the same peak when
+    it lies there (0 ≤ n < the window's end), and the same parabola and Newton step when no
+    clamp at τ = 0 acts (τ₀ ≥ 0 and τ ≥ 0).
+    """
+    n, tau0, tau, step_s, n_fft = found
+    if n < min(_window_stop(max_delay_s, step_s, n_fft), n_fft // 2) and tau0 >= 0.0 and tau >= 0.0:
+        return tau
+    return None
 
 
 def best_delay(
@@ -168,10 +196,12 @@ def best_delay(
         Search only 0 ≤ τ ≤ max_delay_s (about; the window is rounded up to
         the coarse grid).  Default: the whole ±1/(2·df).  The perceptual
         scorer passes twice the filter's passband group delay.
-    cross : (c, coarse), optional
+    cross : (c, coarse) or (c, coarse, found), optional
         The cross spectrum S·w·H and its :func:`coarse_cross`, when the caller
         has them (the sweep shares one inverse FFT per case between SER and
-        the perceptual figures).
+        the perceptual figures); ``found``: the unconstrained search's result
+        (see :func:`windowed_delay_known`), which a windowed search reuses
+        when its peak lies in the window.
 
     Returns
     -------
@@ -193,16 +223,28 @@ def best_delays(
     ``crosses[i]`` (None: formed here); delays (cases,) and |1 − H·e^{j2πfτ}|² (cases × bins)."""
     f = np.asarray(freqs_hz, dtype=float)
     w = np.full(f.shape, f[1] - f[0]) if weights_hz is None else np.asarray(weights_hz, dtype=float)
-    c = np.empty(H.shape, dtype=complex)
-    coarse = []
+    taus = np.zeros(H.shape[0])
+    search = []
     for i, cross in enumerate(crosses):
-        if cross is None:
-            c[i] = np.asarray(S, dtype=float) * w * H[i]
-            coarse.append(None)
+        known = None
+        if cross is not None and len(cross) > 2 and cross[2] is not None and max_delays[i] is not None:
+            known = windowed_delay_known(cross[2], max_delays[i])
+        if known is None:
+            search.append(i)
         else:
-            c[i] = cross[0]
-            coarse.append(cross[1])
-    taus, _ = _delay_cross_many(c, f, max_delays, coarse)
+            taus[i] = known
+    if search:
+        c = np.empty((len(search), H.shape[1]), dtype=complex)
+        coarse = []
+        for j, i in enumerate(search):
+            cross = crosses[i]
+            if cross is None:
+                c[j] = np.asarray(S, dtype=float) * w * H[i]
+                coarse.append(None)
+            else:
+                c[j] = cross[0]
+                coarse.append(cross[1])
+        taus[search] = _delay_cross_many(c, f, [max_delays[i] for i in search], coarse)[0]
     if f.size > 1:
         he = H * uniform_phasors(f.size, 2.0 * np.pi * (f[1] - f[0]) * taus)
     else:

@@ -220,7 +220,8 @@ class Scorer:
             (coarse_all[0][i], coarse_all[1]) if coarse_all is not None and searched[i] else None
             for i in range(len(filts))
         ]
-        _, crosses = _delay_cross_many(cs_all, f, [None] * len(filts), coarse)
+        peaks: list = []
+        taus, crosses = _delay_cross_many(cs_all, f, [None] * len(filts), coarse, peaks)
         lsd = self._lsd_many(G_all)
         edges = [filt.edges_3db for filt in filts]
         alias = alias_rejection_many(filts, edges, a.sample_rate_hz)
@@ -240,7 +241,9 @@ class Scorer:
             if shared is not None:
                 shared[i].update(H=H, G=G, N=N)
                 if self.full_meter and coarse[i] is not None:
-                    shared[i]["cross"] = (cs_all[i], coarse[i])
+                    g, step_s = coarse[i]
+                    found = None if peaks[i] is None else (*peaks[i], float(taus[i]), step_s, g.size)
+                    shared[i]["cross"] = (cs_all[i], coarse[i], found)
             err = max(p["s_total"] + s_out - 2.0 * float(crosses[i]), 0.0)
             lo3, hi3 = edges[i]
             row = {

@@ -18,6 +18,7 @@ from hypothesis import given, settings, strategies as st
 
 from audiobw.chain import Chain
 from audiobw.filters import FilterSpec, design
+from audiobw.delay import _delay_cross_many, windowed_delay_known
 from audiobw.metrics import Meter, Scorer, _delay_cross, best_delay, coarse_cross, uniform_phasor
 from audiobw.noise import noise_total
 from audiobw.perceptual import sii, wiener
@@ -128,6 +129,30 @@ def test_shared_delay_search_gives_the_separate_searches(write_audio):
         tau, _ = best_delay(ps.S, complex_response(filt, f), f, w, max_delay_s=limit)
         assert with_shared["delay_s"] == pytest.approx(tau, rel=1e-9, abs=1e-12)
         assert row["ser_db"] is not None
+
+
+@pytest.mark.parametrize(
+    "tau0_ms,window_ms,reused",
+    [(1.0, 3.0, True), (0.0213, 0.5, True), (1.0, 0.5, False), (-1.0, 3.0, False)],
+)
+def test_a_windowed_search_reuses_the_unconstrained_peak_only_inside_its_window(tau0_ms, window_ms, reused):
+    """The perceptual scorer's causal search takes SER's unconstrained result when its peak lies in
+    the window and no clamp at 0 acts; then the delay is the one a windowed search finds."""
+    f, w = _grid(8193)
+    rng = np.random.default_rng(3)
+    s = (1.0 + rng.random(f.size)) * np.exp(-f / 6000.0)
+    c = s * w * np.exp(-2j * np.pi * f * tau0_ms * 1e-3)  # a program delayed by tau0
+    coarse = coarse_cross(c, f)
+    peaks: list = []
+    taus, _ = _delay_cross_many(c[None, :], f, [None], [coarse], peaks)
+    assert taus[0] == pytest.approx(tau0_ms * 1e-3, abs=1e-7)
+    found = (*peaks[0], float(taus[0]), coarse[1], coarse[0].size)
+    known = windowed_delay_known(found, window_ms * 1e-3)
+    windowed = float(_delay_cross_many(c[None, :], f, [window_ms * 1e-3], [coarse])[0][0])
+    if reused:
+        assert known == windowed
+    else:
+        assert known is None and windowed >= 0.0 and windowed != pytest.approx(tau0_ms * 1e-3, abs=1e-6)
 
 
 def test_aes17_meter_does_not_share_the_search(write_audio):
