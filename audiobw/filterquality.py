@@ -9,6 +9,7 @@ import numpy as np
 
 from .batchresponse import group_delays, power_responses
 from .filters import Filter
+from .response import sorted_union
 
 
 #: Points of the occupied-band grid for flatness and delay spread: linear, plus
@@ -29,7 +30,7 @@ def band_grid(low_hz: float, high_hz: float, *, floor_hz: float) -> np.ndarray:
     hi = float(high_hz)
     if not hi > lo:
         return np.array([max(hi, lo)])
-    return np.union1d(np.linspace(lo, hi, BAND_GRID_LINEAR), np.geomspace(lo, hi, BAND_GRID_LOG))
+    return sorted_union(np.linspace(lo, hi, BAND_GRID_LINEAR), np.geomspace(lo, hi, BAND_GRID_LOG))
 
 
 def flatness_db(filt: Filter, freqs_hz: np.ndarray) -> float:

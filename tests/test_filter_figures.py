@@ -333,3 +333,17 @@ def test_digital_stage_reports_no_alias_rejection(music, tmp_path, capsys):
 def test_bad_values_get_one_line(music, tmp_path, capsys, opt, value):
     code, _, err, _ = _sweep([music, *GRID, opt, value], tmp_path, capsys)
     assert code == 2 and opt in err and "Traceback" not in err
+
+
+@given(
+    a=st.lists(st.floats(-1e6, 1e6, allow_nan=False), max_size=40),
+    b=st.lists(st.floats(-1e6, 1e6, allow_nan=False), max_size=40),
+)
+@settings(max_examples=80, deadline=None)
+def test_sorted_union_is_numpy_union1d(a, b):
+    """The grids' union (numpy.union1d's result without its import of numpy.ma), value for value."""
+    from audiobw.response import sorted_union
+
+    got = sorted_union(np.array(a, dtype=float), np.array(b, dtype=float))
+    want = np.union1d(np.array(a, dtype=float), np.array(b, dtype=float))
+    assert got.tobytes() == want.tobytes()
