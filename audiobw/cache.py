@@ -117,7 +117,7 @@ def params(blocksize: int) -> dict:
     """Everything besides the file's bytes that the analysis depends on."""
     import soundfile
 
-    from . import __version__, spectrum
+    from . import __version__, decimate, spectrum
 
     # the libraries whose arithmetic or decoding the figures come from: an upgrade rebuilds
     return {
@@ -131,6 +131,8 @@ def params(blocksize: int) -> dict:
         "fine_resolution_hz": spectrum.FINE_RESOLUTION_HZ,
         "fine_top_hz": spectrum.FINE_TOP_HZ,
         "fine_min_lengths": spectrum.FINE_MIN_LENGTHS,
+        "fine_stopband_db": decimate.STOPBAND_DB,
+        "fine_rate_over_top": decimate.RATE_OVER_TOP,
         "blocksize": int(blocksize),
     }
 

@@ -3,7 +3,8 @@
 Everything the sweep scores is derived from this pass: the long-term power
 spectral density (Welch's method, per channel and power-averaged over
 channels), a second, finer Welch PSD of the low decades (Hann segments 8 times
-longer, computed from the same blocks: the file is still read once), sample
+longer, computed from the same blocks low-passed and decimated: the file is
+still read once; :mod:`audiobw.decimate`), sample
 levels, a compact short-time critical-band summary for the
 log-spectral distance, and the 99 % occupied bandwidth.  No candidate filter
 ever touches the audio.
@@ -33,6 +34,7 @@ from numpy import fft as sfft  # the same pocketfft as scipy.fft, without import
 from . import audio
 from .analysis import CROSSOVER_HALF_BINS, FINE_CROSSOVER_HZ, Analysis, occupied_band, trapezoid_weights
 from .background import Lane, channel_major, digest_unchanged, hash_in_background, helper_threads, prefetched
+from .decimate import LowBandWelch
 from .errors import AudioFileError
 from .segments import (
     FINE_MIN_LENGTHS,
@@ -169,33 +171,18 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     scale_short = 2.0 / (nshort * np.sum(win_s**2))
     freqs = np.arange(nper // 2 + 1) * fs / nper
     freqs_s = np.arange(nshort // 2 + 1) * fs / nshort
-    # the fine low-frequency PSD: longer segments of the same blocks, only the
-    # bins up to FINE_TOP_HZ accumulated (the transform itself is full length)
-    # Welch with Hann at 50 % overlap, like the normal PSD.  The first and last
-    # half segment weigh less (see FINE_MIN_LENGTHS); the file is not zero-padded
-    # to weigh them fully: its abrupt ends would then count as clicks (a 30 s,
-    # 20 Hz tone read 1.2 dB high A-weighted).  75 % overlap (squared windows
-    # adding to a constant) moved a level-change test by 0.004 dB for 1.2x the
-    # sweep's CPU time, and was left out.
+    # the fine low-frequency PSD: longer segments of the same blocks, only the bins up to
+    # FINE_TOP_HZ accumulated, computed on the program low-passed and decimated to a fraction
+    # of the sample rate (audiobw.decimate: the same bins as full-length transforms within
+    # its 150 dB stopband, for about a third of the arithmetic).  Welch with Hann at 50 %
+    # overlap, like the normal PSD.  The first and last half segment weigh less (see
+    # FINE_MIN_LENGTHS); the file is not zero-padded to weigh them fully: its abrupt ends
+    # would then count as clicks (a 30 s, 20 Hz tone read 1.2 dB high A-weighted).  75 %
+    # overlap (squared windows adding to a constant) moved a level-change test by 0.004 dB
+    # for 1.2x the sweep's CPU time, and was left out.
     nfine = fine_length(fs, nper, info.frames if info.frames > 0 else None)
-    hop_f = nfine // 2
-    win_f = hann_periodic(nfine) if nfine else np.zeros(0)
     n_keep = min(int(math.ceil(FINE_TOP_HZ * nfine / fs)) + 1, nfine // 2 + 1) if nfine else 0
-    acc_f = np.zeros((nch, 2 * n_keep))
-    n_seg_f = 0
-    carry_f = np.zeros((nch, 0))
-    work_f = np.zeros((0,))
-
-    def fine_segments(buf):
-        """Accumulate |X|² of the whole segments of ``buf``; returns how many."""
-        nonlocal work_f
-        segs = np.lib.stride_tricks.sliding_window_view(buf, nfine, axis=1)[:, ::hop_f]
-        if work_f.shape != segs.shape:  # reused: fresh pages of a large array cost system time
-            work_f = np.empty(segs.shape)
-        np.multiply(segs, win_f, out=work_f)
-        v = sfft.rfft(work_f, axis=-1)[..., :n_keep].view(np.float64)
-        acc_f[:] += np.einsum("ijk,ijk->ik", v, v)
-        return segs.shape[1]
+    low_band = LowBandWelch(fs, nch, nfine, n_keep, FINE_TOP_HZ) if nfine else None
 
     edges = critical_band_edges(fs / 2.0)
     band_of_bin = np.clip(np.searchsorted(edges, freqs_s, side="right") - 1, 0, len(edges) - 2)
@@ -225,11 +212,10 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     frames = 0
     near_full = 1.0 - 2.0**-15
 
-    # The fine PSD's long transforms (about half of the pass's FFT work) run in
-    # a helper thread, one block after another in file order (so the sums are
-    # the same, bit for bit); numpy's FFT releases the GIL.  At most two blocks
-    # wait for it (memory stays bounded).
-    fine_lane = Lane() if nfine and helper_threads() else None
+    # The fine PSD's decimation and transforms run in a helper thread, one block
+    # after another in file order (so the sums are the same, bit for bit); numpy's
+    # FFT releases the GIL.  At most two blocks wait for it (memory stays bounded).
+    fine_lane = Lane() if low_band is not None and helper_threads() else None
     try:
         found = None
         # blocks arrive channel-major, (channels, frames): numpy reduces and transforms
@@ -261,18 +247,11 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
             else:
                 carry = buf
 
-            if nfine:
-                buf_f = np.concatenate([carry_f, block], axis=1) if carry_f.size else block
-                if buf_f.shape[1] >= nfine:
-                    done = (buf_f.shape[1] - nfine) // hop_f + 1
-                    if fine_lane is not None:
-                        fine_lane.submit(fine_segments, buf_f)
-                    else:
-                        fine_segments(buf_f)
-                    n_seg_f += done
-                    carry_f = buf_f[:, done * hop_f :]
+            if low_band is not None:
+                if fine_lane is not None:
+                    fine_lane.submit(low_band.push, block)
                 else:
-                    carry_f = buf_f
+                    low_band.push(block)
 
             buf_s = np.concatenate([carry_s, block], axis=1) if carry_s.size else block
             nfr = buf_s.shape[1] // nshort
@@ -331,14 +310,15 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     psd_ch = acc * scale_psd / n_seg
     psd_ch[:, 1:-1] *= 2.0  # one-sided
     fine_psd = np.zeros(0)
-    if n_seg_f:
-        fine_ch = (acc_f[:, 0::2] + acc_f[:, 1::2]) / (fs * np.sum(win_f**2) * n_seg_f)
+    n_seg_f = 0
+    if low_band is not None:
         # one-sided, every bin doubled: the DC bin (and a kept Nyquist bin) then holds its
         # power over the half-width trapezoid weight, so a DC offset integrates exactly
-        fine_ch *= 2.0
+        fine_ch, n_seg_f = low_band.finish(frames)
         fine_psd = fine_ch.mean(axis=0)
-    else:
+    if not n_seg_f:
         nfine = n_keep = 0
+        fine_psd = np.zeros(0)
     df = fs / nper
     a = Analysis(
         path=str(info.path),
