@@ -106,7 +106,7 @@ def _delay_cross_many(
         peaks[:] = [None] * n_rows
     for i in range(n_rows):
         ci = c[i]
-        if f.size < 2 or not ci.any():
+        if f.size < 2 or (coarse[i] is None and not ci.any()):  # a given coarse search: a row with power
             values[i] = float(np.sum(ci.real))
             continue
         g, step_s = coarse_cross(ci, f) if coarse[i] is None else coarse[i]

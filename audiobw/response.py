@@ -316,16 +316,24 @@ class Filter:
 def _zpk_at(s: np.ndarray, z, p, k: float) -> np.ndarray:
     """k·∏(s − z)/∏(s − p) at the points ``s`` (any shape), the products in place and in order
     (no temporary per factor); :meth:`Filter.response` and audiobw.batchresponse share it."""
-    num = np.ones_like(s)
+    # each product starts from its first factor (1·x is x, bit for bit)
     t = np.empty_like(s)
-    for zero in z:
-        np.subtract(s, zero, out=t)
-        num *= t
-    den = np.ones_like(s)
-    for pole in p:
-        np.subtract(s, pole, out=t)
-        den *= t
+    num = _product_of_differences(s, z, t)
+    den = _product_of_differences(s, p, t)
     return k * num / den
+
+
+def _product_of_differences(s: np.ndarray, roots, t: np.ndarray) -> np.ndarray:
+    """∏(s − r) over ``roots``, in order, in a new array (ones for no roots); ``t`` is scratch."""
+    if len(roots) == 0:
+        return np.ones_like(s)
+    out = np.subtract(
+        s, roots[0], out=np.empty_like(s)
+    )  # an array even for one point (a numpy scalar rounds otherwise)
+    for r in roots[1:]:
+        np.subtract(s, r, out=t)
+        out *= t
+    return out
 
 
 def _real_factors(roots):
@@ -354,22 +362,30 @@ def _real_factors(roots):
 
 def _factor_product(w2, factors, t):
     origin, lin, axis, quad = factors
-    out = np.ones_like(w2)
+    out = None  # the product starts from its first factor (1·x is x, bit for bit)
+
+    def times(x):
+        nonlocal out
+        if out is None:
+            out = np.array(x, copy=True)  # an array even for one point, as np.ones_like gave
+        else:
+            out *= x
+
     for _ in range(origin):
-        out *= w2
+        times(w2)
     for c in lin:
         np.add(w2, c, out=t)
-        out *= t
+        times(t)
     for c in axis:
         np.subtract(w2, c, out=t)
         t *= t
-        out *= t
+        times(t)
     for c1, c0 in quad:
         np.add(w2, c1, out=t)
         t *= w2
         t += c0
-        out *= t
-    return out
+        times(t)
+    return np.ones_like(w2) if out is None else out
 
 
 def _analog_power(x, k, fz, fp):
