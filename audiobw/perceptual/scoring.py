@@ -220,7 +220,7 @@ class PerceptualScorer:
 
     def _errors_many(self, h, noise_psd, crosses):
         """:meth:`_errors` of one candidate per row of ``h`` and ``noise_psd`` (candidates × bins):
-        errors (a list of frames × bands arrays), delays (candidates,), removed gains (candidates × bins)."""
+        errors (candidates × frames × bands), delays (candidates,), removed gains (candidates × bins)."""
         f, w = self.analysis.freqs_hz, self.analysis.weights_hz
         gd = wiener.group_delay_s(h, f)
         # the best delay, searched up to twice each filter's largest passband group delay (+ 2 samples)
@@ -231,8 +231,10 @@ class PerceptualScorer:
         tau, removed = best_delays(self.S, h, f, w, limits, crosses)
         share = self._heard_share(h, f, w, tau, gd)
         n_band = self._band_sum(noise_psd * w) * self.k_ac
-        # frames × bands per candidate: a few hundred kB each, so the next steps stay in cache
-        return [self.frames * share[i] + n_band[i] for i in range(h.shape[0])], tau, removed
+        # candidates × frames × bands: the same products and sums as one candidate at a time
+        err = self.frames[None, :, :] * share[:, None, :]
+        err += n_band[:, None, :]
+        return err, tau, removed
 
     def score(self, filt, noise_psd, shared: dict | None = None) -> dict:
         """nmr_db, audible_frames_pct, sii and wiener_gap_db of one filter.
@@ -256,17 +258,22 @@ class PerceptualScorer:
             row[...] = mine["H"] if "H" in mine else complex_response(filt, f)
         noise = np.asarray(noise_psds, dtype=float).reshape(len(filts), f.size)
         errs, tau, removed_gain = self._errors_many(h, noise, [mine.get("cross") for mine in shared])
+        # every candidate's frames × bands at once (each candidate's block is contiguous, so its
+        # sums are those of the candidate alone)
+        ratios = errs
+        ratios /= self.mask
+        overs = ratios > 1.0
+        audibles = np.count_nonzero(overs.any(axis=2), axis=1)
+        all_counts = overs.sum(axis=1)
         rows = []
-        for i, err in enumerate(errs):
-            ratio = err / self.mask
-            over = ratio > 1.0
-            audible = over.any(axis=1)
+        for i in range(len(filts)):
+            ratio = ratios[i]
             rw = removed_gain[i] * self.S * w  # wiener.removed_psd(h, S, f, tau), already evaluated
             noise_psd = noise[i]
             row = {
                 # np.mean's sums and divisions without its wrappers (the same bits)
                 "nmr_db": _db(float(ratio.sum() / ratio.size)),
-                "audible_frames_pct": 100.0 * (np.count_nonzero(audible) / audible.size),
+                "audible_frames_pct": 100.0 * (int(audibles[i]) / ratio.shape[0]),
                 "wiener_gap_db": _db((float(np.sum(rw)) + float(np.sum(noise_psd * w))) / self.mse_min)
                 if self.mse_min > 0
                 else None,
@@ -274,11 +281,11 @@ class PerceptualScorer:
             }
             # where the error is heard: the band over its threshold in the most frames
             row["audible_band_hz"] = row["audible_band_pct"] = None
-            counts = over.sum(axis=0)
+            counts = all_counts[i]
             if counts.max() > 0:
                 b = int(np.argmax(counts))
                 row["audible_band_hz"] = [float(f"{self.edges[b]:.6g}"), float(f"{self.edges[b + 1]:.6g}")]
-                row["audible_band_pct"] = 100.0 * float(counts[b]) / over.shape[0]
+                row["audible_band_pct"] = 100.0 * float(counts[b]) / ratio.shape[0]
             if self.listening.program == "speech":
                 k = self.k_ac
                 m = self._sii_bins  # the bins up to the top SII band edge: the same band sums
