@@ -201,40 +201,83 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     acc = np.zeros((nch, 2 * freqs.size))
     n_seg = 0
     carry = np.zeros((nch, 0))
-    carry_s = np.zeros((nch, 0))
-    kept: list[np.ndarray] = []
-    frame_index = 0
-    stride = 1
     peak = np.zeros(nch)
     sumsq = np.zeros(nch)
     sums = np.zeros(nch)
     at_full_scale = 0
     frames = 0
     near_full = 1.0 - 2.0**-15
+    short = {"carry": np.zeros((nch, 0)), "kept": [], "index": 0, "stride": 1}
 
-    # The fine PSD's decimation and transforms run in a helper thread, one block
-    # after another in file order (so the sums are the same, bit for bit); numpy's
-    # FFT releases the GIL.  At most two blocks wait for it (memory stays bounded).
-    fine_lane = Lane() if low_band is not None and helper_threads() else None
+    def short_frames(block):
+        """The critical-band powers of the short frames completed by ``block`` (every
+        ``stride``-th frame kept, at most MAX_FRAMES: the stride doubles when they fill)."""
+        buf_s = np.concatenate([short["carry"], block], axis=1) if short["carry"].size else block
+        nfr = buf_s.shape[1] // nshort
+        if nfr:
+            frame_index, stride, kept = short["index"], short["stride"], short["kept"]
+            # a frame whose index is not a multiple of the current stride is
+            # never kept (the stride only grows), so it is not transformed
+            idx = np.arange((-frame_index) % stride, nfr, stride)
+            if idx.size:
+                frames_arr = buf_s[:, : nfr * nshort].reshape(nch, nfr, nshort)[:, idx]  # (ch, kept, nshort)
+                v = sfft.rfft(frames_arr * win_s, axis=-1).view(np.float64)
+                np.multiply(v, v, out=v)
+                pw = (v[..., 0::2] + v[..., 1::2]).sum(axis=0) * bin_weight  # (kept, bins)
+                bands = np.zeros((idx.size, n_bands))
+                bands[:, filled] = np.add.reduceat(pw, starts, axis=1)
+                for i, row in zip(idx.tolist(), bands):
+                    if (frame_index + i) % stride == 0:
+                        kept.append(row)
+                        if len(kept) >= MAX_FRAMES:
+                            kept = kept[::2]
+                            stride *= 2
+            short.update(index=frame_index + nfr, stride=stride, kept=kept)
+        short["carry"] = buf_s[:, nfr * nshort :]
+
+    def side_work(block):
+        """What does not need the main thread: the fine PSD's decimation and transforms, the short frames."""
+        if low_band is not None:
+            low_band.push(block)
+        short_frames(block)
+
+    def prepared(block_fc):
+        """A decoded block made channel-major, with its sample statistics (in the decode thread):
+        (block, peak per channel, Σx², Σx, samples at full scale)."""
+        block = channel_major(block_fc)
+        block_peak = np.maximum(block.max(axis=1), -block.min(axis=1))
+        full = int(np.count_nonzero(np.abs(block) >= near_full)) if (block_peak >= near_full).any() else 0
+        return block, block_peak, np.einsum("ij,ij->i", block, block), block.sum(axis=1), full
+
+    # The fine PSD's decimation and transforms and the short frames run in a helper
+    # thread, one block after another in file order (so the sums are the same, bit for
+    # bit); numpy's FFT releases the GIL.  At most two blocks wait for it (memory stays
+    # bounded).  The sample statistics are taken in the decode thread.
+    side_lane = Lane() if helper_threads() else None
     try:
         found = None
         # blocks arrive channel-major, (channels, frames): numpy reduces and transforms
         # contiguous rows several times faster than a column of 2 channels
-        for block in prefetched(audio.iter_blocks(path, blocksize=blocksize), prepare=channel_major):
+        for block, block_peak, block_sq, block_sum, block_full in prefetched(
+            audio.iter_blocks(path, blocksize=blocksize), prepare=prepared
+        ):
             if not looked_up and getattr(digest, "ready", bool)():
                 found = lookup()  # the digest came in: a hit ends the pass here
                 if found is not None:
                     break
             n = block.shape[1]
             frames += n
-            block_peak = np.maximum(block.max(axis=1), -block.min(axis=1))
             peak = np.maximum(peak, block_peak)
-            if np.any(block_peak > MAX_PEAK):
-                raise AudioFileError(_overflow_message(info.path, float(np.max(block_peak))))
-            sumsq += np.einsum("ij,ij->i", block, block)
-            sums += block.sum(axis=1)
-            if np.any(block_peak >= near_full):  # counted only where a sample can reach it
-                at_full_scale += int(np.count_nonzero(np.abs(block) >= near_full))
+            if (block_peak > MAX_PEAK).any():
+                raise AudioFileError(_overflow_message(info.path, float(block_peak.max())))
+            sumsq += block_sq
+            sums += block_sum
+            at_full_scale += block_full
+
+            if side_lane is not None:
+                side_lane.submit(side_work, block)
+            else:
+                side_work(block)
 
             buf = np.concatenate([carry, block], axis=1) if carry.size else block
             if buf.shape[1] >= nper:
@@ -246,42 +289,15 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
                 carry = buf[:, segs.shape[1] * hop :]
             else:
                 carry = buf
-
-            if low_band is not None:
-                if fine_lane is not None:
-                    fine_lane.submit(low_band.push, block)
-                else:
-                    low_band.push(block)
-
-            buf_s = np.concatenate([carry_s, block], axis=1) if carry_s.size else block
-            nfr = buf_s.shape[1] // nshort
-            if nfr:
-                # a frame whose index is not a multiple of the current stride is
-                # never kept (the stride only grows), so it is not transformed
-                idx = np.arange((-frame_index) % stride, nfr, stride)
-                if idx.size:
-                    frames_arr = buf_s[:, : nfr * nshort].reshape(nch, nfr, nshort)[:, idx]  # (ch, kept, nshort)
-                    v = sfft.rfft(frames_arr * win_s, axis=-1).view(np.float64)
-                    np.multiply(v, v, out=v)
-                    pw = (v[..., 0::2] + v[..., 1::2]).sum(axis=0) * bin_weight  # (kept, bins)
-                    bands = np.zeros((idx.size, n_bands))
-                    bands[:, filled] = np.add.reduceat(pw, starts, axis=1)
-                    for i, row in zip(idx.tolist(), bands):
-                        if (frame_index + i) % stride == 0:
-                            kept.append(row)
-                            if len(kept) >= MAX_FRAMES:
-                                kept = kept[::2]
-                                stride *= 2
-                frame_index += nfr
-            carry_s = buf_s[:, nfr * nshort :]
             if progress is not None:
                 progress(frames, max(info.frames, frames))
 
-        if fine_lane is not None:
-            fine_lane.drain()
+        if side_lane is not None:
+            side_lane.drain()
     finally:
-        if fine_lane is not None:
-            fine_lane.close()
+        if side_lane is not None:
+            side_lane.close()
+    kept, stride = short["kept"], short["stride"]
     if found is not None:
         return found
     acc = acc[:, 0::2] + acc[:, 1::2]
