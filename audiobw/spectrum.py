@@ -207,15 +207,18 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     at_full_scale = 0
     frames = 0
     near_full = 1.0 - 2.0**-15
-    short = {"carry": np.zeros((nch, 0)), "kept": [], "index": 0, "stride": 1}
+    carry_s = np.zeros((nch, 0))
+    kept: list[np.ndarray] = []
+    frame_index = 0
+    stride = 1
 
     def short_frames(block):
         """The critical-band powers of the short frames completed by ``block`` (every
         ``stride``-th frame kept, at most MAX_FRAMES: the stride doubles when they fill)."""
-        buf_s = np.concatenate([short["carry"], block], axis=1) if short["carry"].size else block
+        nonlocal carry_s, kept, frame_index, stride
+        buf_s = np.concatenate([carry_s, block], axis=1) if carry_s.size else block
         nfr = buf_s.shape[1] // nshort
         if nfr:
-            frame_index, stride, kept = short["index"], short["stride"], short["kept"]
             # a frame whose index is not a multiple of the current stride is
             # never kept (the stride only grows), so it is not transformed
             idx = np.arange((-frame_index) % stride, nfr, stride)
@@ -232,8 +235,8 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
                         if len(kept) >= MAX_FRAMES:
                             kept = kept[::2]
                             stride *= 2
-            short.update(index=frame_index + nfr, stride=stride, kept=kept)
-        short["carry"] = buf_s[:, nfr * nshort :]
+            frame_index += nfr
+        carry_s = buf_s[:, nfr * nshort :]
 
     def side_work(block):
         """What does not need the main thread: the fine PSD's decimation and transforms, the short frames."""
@@ -246,6 +249,8 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
         (block, peak per channel, Σx², Σx, samples at full scale)."""
         block = channel_major(block_fc)
         block_peak = np.maximum(block.max(axis=1), -block.min(axis=1))
+        if (block_peak > MAX_PEAK).any():  # refused by the consumer; its squares could overflow
+            return block, block_peak, np.zeros(nch), np.zeros(nch), 0
         full = int(np.count_nonzero(np.abs(block) >= near_full)) if (block_peak >= near_full).any() else 0
         return block, block_peak, np.einsum("ij,ij->i", block, block), block.sum(axis=1), full
 
@@ -297,7 +302,6 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
     finally:
         if side_lane is not None:
             side_lane.close()
-    kept, stride = short["kept"], short["stride"]
     if found is not None:
         return found
     acc = acc[:, 0::2] + acc[:, 1::2]
