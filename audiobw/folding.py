@@ -223,12 +223,13 @@ def folded_noise_gain(
     return _fold(noise_filt, freqs_hz, weights_hz, fs_hz, direct)
 
 
-def _fold(noise_filt: Filter, freqs_hz, weights_hz, fs_hz: float, direct, folded=_folded_images):
+def _fold(noise_filt: Filter, freqs_hz, weights_hz, fs_hz: float, direct, folded=_folded_images, direct_sum=None):
     """What :func:`folded_noise_gain` does once the response is known to fall: fold its images
     into 0…fs/2 and spread the rest.  ``folded``: :func:`_folded_images`, or a callable
-    giving its result already computed (the batch)."""
+    giving its result already computed (the batch); ``direct_sum``: Σ direct·weights when
+    the caller has it."""
     target = noise_filt.varying_integral_hz()
-    acc = float(np.sum(direct * weights_hz))
+    acc = float(np.sum(direct * weights_hz)) if direct_sum is None else direct_sum
     if abs(target - acc) <= 1e-6 * abs(target):
         # the images hold less than 1 ppm (a steep filter well below fs/2): no folding needed
         g = direct
@@ -272,9 +273,10 @@ def folded_noise_gains(
     if filts[0].floor_gain() > 0:
         raise _unbounded(unbounded_reason(Chain(), filts[0]) or "the response never falls")
     need = []
-    for i, (filt, d) in enumerate(zip(filts, direct)):
+    sums = [float(np.sum(d * weights_hz)) for d in direct]
+    for i, filt in enumerate(filts):
         target = filt.varying_integral_hz()
-        if abs(target - float(np.sum(d * weights_hz))) > 1e-6 * abs(target):
+        if abs(target - sums[i]) > 1e-6 * abs(target):
             need.append(i)
     found = (
         dict(zip(need, _folded_images_many([filts[i] for i in need], freqs_hz, fs_hz, [direct[i] for i in need])))
@@ -282,6 +284,6 @@ def folded_noise_gains(
         else {}
     )
     return [
-        _fold(filt, freqs_hz, weights_hz, fs_hz, d, folded=lambda *_, i=i: found.get(i))
+        _fold(filt, freqs_hz, weights_hz, fs_hz, d, folded=lambda *_, i=i: found.get(i), direct_sum=sums[i])
         for i, (filt, d) in enumerate(zip(filts, direct))
     ]

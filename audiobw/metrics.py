@@ -287,18 +287,16 @@ class Scorer:
             gain[:, empty] = (self._band_sum(G) / np.maximum(counts, 1))[:, empty]
         with np.errstate(divide="ignore"):
             gain_db = 10 * np.log10(gain)
-        figures = []
-        for g_db in gain_db:
-            # in place, one (frames x bands) array per candidate (it stays in cache);
-            # 10·lg(max(P·g, F)) as max(10·lg P + 10·lg g, 10·lg F)
-            out = p["raw_db"] + g_db
-            np.maximum(out, p["floor_db"], out=out)
-            out -= p["frames_db"]
-            out *= out
-            # np.mean's own sums and divisions, without its wrappers (the same bits)
-            per_frame = np.sqrt(np.add.reduce(out, axis=1) / out.shape[1])
-            figures.append(float(per_frame.sum() / per_frame.size))
-        return figures
+        # every candidate's frames x bands at once, in place (each candidate's block contiguous,
+        # so its sums are those of the candidate alone); 10·lg(max(P·g, F)) as
+        # max(10·lg P + 10·lg g, 10·lg F)
+        out = p["raw_db"][None, :, :] + gain_db[:, None, :]
+        np.maximum(out, p["floor_db"], out=out)
+        out -= p["frames_db"]
+        out *= out
+        # np.mean's own sums and divisions, without its wrappers (the same bits)
+        per_frame = np.sqrt(np.add.reduce(out, axis=2) / out.shape[2])
+        return [float(x) for x in per_frame.sum(axis=1) / per_frame.shape[1]]
 
     def _thdn(self, filt: Filter, n_pow: float) -> dict:
         """THD+N of the test tone through the chain (model, AES17 ratio to total).
