@@ -163,7 +163,10 @@ class PerceptualScorer:
         t1 = np.exp(1j * th[..., None] * (self._ph_first[:, None] + B * np.arange(self._ph_nq)[None, :]))
         t2 = np.exp(1j * th[..., None] * np.arange(B)[None, :])
         lead = th.shape[:-1]
-        return t1.reshape(lead + (-1,))[..., self._ph_i1] * t2.reshape(lead + (-1,))[..., self._ph_i2]
+        # np.take gathers along the last axis about twice as fast as fancy indexing (same values)
+        out = np.take(t1.reshape(lead + (-1,)), self._ph_i1, axis=-1)
+        out *= np.take(t2.reshape(lead + (-1,)), self._ph_i2, axis=-1)
+        return out
 
     def _band_sum(self, x):
         out = np.zeros(x.shape[:-1] + (self._nb,))
