@@ -14,9 +14,9 @@ from .options import default, option_name
 #: The largest grid swept in one run (each case keeps a row of figures; far beyond any useful resolution).
 MAX_CASES = 200_000
 #: Mean time to design and score one case on one core, s, perceptual figures included (music and
-#: speech): about 1.5 ms, docs/performance.md ("Where it stands"); half that when the
+#: speech): about 1.0 ms, docs/performance.md ("Where it stands"); half that when the
 #: scoring forks onto an idle second core.
-SECONDS_PER_CASE = 1.5e-3
+SECONDS_PER_CASE = 1.0e-3
 #: Grids of at least this many cases get a time estimate on stderr before the sweep starts.
 ESTIMATE_FROM_CASES = 10_000
 
