@@ -90,3 +90,27 @@ def test_low_band_welch_counts_the_segments_of_the_full_rate_and_matches_its_bin
     _, pw = signal.welch(x, fs=fs, window="hann", nperseg=nfine, noverlap=nfine // 2, detrend=False)
     np.testing.assert_allclose(psd[0, 1:], pw[1:n_keep], rtol=1e-6)
     assert psd[0, 0] == pytest.approx(2 * pw[0], rel=1e-6)  # DC doubled, as the analysis keeps it
+
+
+@pytest.mark.parametrize("fs", [11025, 32000, 88200, 384000])
+def test_low_band_welch_at_other_rates_with_a_tone_where_images_would_fold(fs):
+    """A 41.3 Hz tone, white noise and a strong tone at 0.37·fs (far above the kept band, where
+    only the stopband stands between it and an alias): every kept bin within 1e-6 of
+    scipy.signal.welch at the full rate."""
+    from audiobw.segments import fine_length, frame_lengths
+
+    n = fs * 20
+    nper, _ = frame_lengths(fs, n)
+    nfine = fine_length(fs, nper, n)
+    assert nfine > nper
+    t = np.arange(n) / fs
+    rng = np.random.default_rng(fs)
+    x = 0.3 * np.sin(2 * np.pi * 41.3 * t) + 0.2 * np.sin(2 * np.pi * 0.37 * fs * t) + 0.01 * rng.standard_normal(n)
+    n_keep = int(np.ceil(TOP * nfine / fs)) + 1
+    lb = LowBandWelch(fs, 1, nfine, n_keep, TOP)
+    assert lb.dec.factor > 1
+    for start in range(0, n, 100000):
+        lb.push(x[None, start : start + 100000])
+    psd, _ = lb.finish(n)
+    _, pw = signal.welch(x, fs=fs, window="hann", nperseg=nfine, noverlap=nfine // 2, detrend=False)
+    np.testing.assert_allclose(psd[0, 1:], pw[1:n_keep], rtol=1e-6)
