@@ -1,8 +1,9 @@
 """The analysis pass's helper threads: blocks decoded ahead, the SHA-256 hashed alongside, and the
-lane that computes the fine low-frequency PSD block after block (so its sums are bit-identical).
+lane that computes the fine low-frequency PSD and the short frames block after block (so its
+sums are bit-identical).
 
-``AUDIOBW_THREADS=1`` turns off the lane (and the forked scoring, :mod:`audiobw.forked`):
-:func:`helper_threads`.
+``AUDIOBW_THREADS=1`` turns off decoding ahead and the lane (and the forked scoring,
+:mod:`audiobw.forked`): :func:`helper_threads`.
 """
 
 from __future__ import annotations
@@ -47,7 +48,8 @@ def digest_unchanged(digest, path, before) -> str:
 
 
 def helper_threads() -> bool:
-    """Whether the pass may use helper threads beyond decoding and hashing (see :class:`Lane`).
+    """Whether the pass may decode ahead (:func:`prefetched`) and use the helper :class:`Lane`
+    (the SHA-256 of a file not yet hashed is taken alongside either way; batch hashes first).
 
     Off with ``AUDIOBW_THREADS=1`` (batch's pool workers set it: a worker is
     one core, and ``--workers`` says how many a batch takes).
@@ -90,11 +92,16 @@ def prefetched(blocks, depth: int = 2, prepare=None):
     applied to each block in the helper thread too (the pass turns blocks
     channel-major there: numpy copies without the GIL).  At most ``depth``
     blocks wait in the queue (memory stays bounded); an exception from the
-    reader is raised here, in the consumer.
+    reader is raised here, in the consumer.  With helper threads off
+    (``AUDIOBW_THREADS=1``: a batch worker, one core) the blocks are decoded in line.
     """
     import queue
     import threading
 
+    if not helper_threads():  # a batch worker is one core: decode in line
+        for item in blocks:
+            yield item if prepare is None else prepare(item)
+        return
     q: queue.Queue = queue.Queue(maxsize=depth)
     stop = threading.Event()
     done = object()

@@ -394,14 +394,17 @@ def _quick_exit(code: int) -> None:
 
     Only when nothing is left to do: the streams flush cleanly (a failing flush returns, and the
     normal exit reports it), no other non-daemon thread is alive (the interpreter would wait for
-    it), and the atexit handlers (temporary folders, dask, multiprocessing) have run.  Every output
-    file is already written and closed (atomically).  ``AUDIOBW_QUICK_EXIT=0`` keeps the normal exit.
+    it), no profiler or tracer is on (it reports after the program returns), and the atexit
+    handlers (temporary folders, dask, multiprocessing) have run.  Every output file is already
+    written and closed (atomically).  ``AUDIOBW_QUICK_EXIT=0`` keeps the normal exit.
     """
     import atexit
     import threading
 
     if os.environ.get("AUDIOBW_QUICK_EXIT", "") == "0":
         return
+    if sys.getprofile() is not None or sys.gettrace() is not None:
+        return  # a profiler or debugger (python -m cProfile -m audiobw) writes its results after us
     if any(t is not threading.main_thread() and not t.daemon and t.is_alive() for t in threading.enumerate()):
         return
     try:

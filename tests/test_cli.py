@@ -339,3 +339,17 @@ def test_the_quick_exit_keeps_the_code_the_output_and_the_exit_hooks(tmp_path, q
         env=env,
     )
     assert ok.returncode == 0 and ok.stdout.startswith("audiobw")
+
+
+def test_a_profiled_run_keeps_the_normal_exit_so_the_profile_is_written(tmp_path):
+    """``python -m cProfile -o F -m audiobw ...`` writes F after the program returns: the quick
+    exit steps aside when a profiler (or tracer) is on."""
+    prof = tmp_path / "run.prof"
+    r = subprocess.run(
+        [sys.executable, "-m", "cProfile", "-o", str(prof), "-m", "audiobw", "--version"],
+        capture_output=True,
+        text=True,
+        cwd=REPO,
+    )
+    assert r.returncode == 0 and r.stdout.startswith("audiobw")
+    assert prof.stat().st_size > 0

@@ -162,3 +162,25 @@ def test_fine_psd_in_a_helper_thread_is_bit_identical(write_audio, rng, monkeypa
     # and against one block (no carries): the same sums up to rounding
     whole = analyse(path, blocksize=1 << 22)
     np.testing.assert_allclose(threaded.fine_psd, whole.fine_psd, rtol=1e-10)
+
+
+def test_with_helper_threads_off_the_blocks_are_decoded_in_line(monkeypatch):
+    """``AUDIOBW_THREADS=1`` (a batch worker, one core): each block is produced, and prepared, in
+    the consuming thread; with threads on, in the decode thread."""
+    import threading
+
+    from audiobw.background import prefetched
+
+    def blocks():
+        for i in range(3):
+            yield threading.get_ident(), i
+
+    def prepare(item):
+        return item[0], item[1], threading.get_ident()
+
+    me = threading.get_ident()
+    monkeypatch.setenv("AUDIOBW_THREADS", "1")
+    assert [x[1] for x in prefetched(blocks(), prepare=prepare)] == [0, 1, 2]
+    assert all(made == me and prepared == me for made, _, prepared in prefetched(blocks(), prepare=prepare))
+    monkeypatch.delenv("AUDIOBW_THREADS")
+    assert all(made != me and prepared != me for made, _, prepared in prefetched(blocks(), prepare=prepare))
