@@ -390,7 +390,7 @@ def entry():  # pragma: no cover - console script
 
 def _quick_exit(code: int) -> None:
     """End the process at once with ``code`` once its work is done, skipping the interpreter's
-    teardown (freeing every module and array one by one: about 0.1 s after a large sweep).
+    teardown (freeing every module and array one by one: about 0.17 s after a 1000-case sweep).
 
     Only when nothing is left to do: the streams flush cleanly (a failing flush returns, and the
     normal exit reports it), no other non-daemon thread is alive (the interpreter would wait for

@@ -149,17 +149,19 @@ def _delay_cross_many(
     return taus, values
 
 
-def windowed_delay_known(found, max_delay_s: float) -> float | None:
+def windowed_delay_known(found, coarse: tuple[np.ndarray, float], max_delay_s: float) -> float | None:
     """The delay a search in the causal window 0 … ``max_delay_s`` would find, when the
     unconstrained search of the same cross spectrum already found it; else None.
 
-    ``found``: ``(n, τ₀, τ, step_s, n_fft)`` of the unconstrained search (its coarse peak's
-    index, its parabola's delay, its refined delay, the coarse grid).  The windowed search
+    ``found``: ``(n, τ₀, τ)`` of the unconstrained search (its coarse peak's index, its
+    parabola's delay, its refined delay); ``coarse``: the :func:`coarse_cross` both
+    searches read.  The windowed search
     takes the first maximum of the same coarse samples inside the window: the same peak when
     it lies there (0 ≤ n < the window's end), and the same parabola and Newton step when no
     clamp at τ = 0 acts (τ₀ ≥ 0 and τ ≥ 0).
     """
-    n, tau0, tau, step_s, n_fft = found
+    n, tau0, tau = found
+    step_s, n_fft = coarse[1], coarse[0].size
     if n < min(_window_stop(max_delay_s, step_s, n_fft), n_fft // 2) and tau0 >= 0.0 and tau >= 0.0:
         return tau
     return None
@@ -228,7 +230,7 @@ def best_delays(
     for i, cross in enumerate(crosses):
         known = None
         if cross is not None and len(cross) > 2 and cross[2] is not None and max_delays[i] is not None:
-            known = windowed_delay_known(cross[2], max_delays[i])
+            known = windowed_delay_known(cross[2], cross[1], max_delays[i])
         if known is None:
             search.append(i)
         else:

@@ -241,8 +241,7 @@ class Scorer:
             if shared is not None:
                 shared[i].update(H=H, G=G, N=N)
                 if self.full_meter and coarse[i] is not None:
-                    g, step_s = coarse[i]
-                    found = None if peaks[i] is None else (*peaks[i], float(taus[i]), step_s, g.size)
+                    found = None if peaks[i] is None else (*peaks[i], float(taus[i]))
                     shared[i]["cross"] = (cs_all[i], coarse[i], found)
             err = max(p["s_total"] + s_out - 2.0 * float(crosses[i]), 0.0)
             lo3, hi3 = edges[i]

@@ -327,9 +327,8 @@ def _product_of_differences(s: np.ndarray, roots, t: np.ndarray) -> np.ndarray:
     """∏(s − r) over ``roots``, in order, in a new array (ones for no roots); ``t`` is scratch."""
     if len(roots) == 0:
         return np.ones_like(s)
-    out = np.subtract(
-        s, roots[0], out=np.empty_like(s)
-    )  # an array even for one point (a numpy scalar rounds otherwise)
+    # an array even for one point: a numpy scalar's arithmetic rounds otherwise
+    out = np.subtract(s, roots[0], out=np.empty_like(s))
     for r in roots[1:]:
         np.subtract(s, r, out=t)
         out *= t

@@ -329,16 +329,14 @@ def analyse(path, *, progress=None, blocksize: int = 1 << 17, sha256: str | None
 
     psd_ch = acc * scale_psd / n_seg
     psd_ch[:, 1:-1] *= 2.0  # one-sided
-    fine_psd = np.zeros(0)
-    n_seg_f = 0
-    if low_band is not None:
-        # one-sided, every bin doubled: the DC bin (and a kept Nyquist bin) then holds its
-        # power over the half-width trapezoid weight, so a DC offset integrates exactly
-        fine_ch, n_seg_f = low_band.finish(frames)
+    # one-sided, every bin doubled: the DC bin (and a kept Nyquist bin) then holds its
+    # power over the half-width trapezoid weight, so a DC offset integrates exactly
+    fine_ch, n_seg_f = low_band.finish(frames) if low_band is not None else (np.zeros((nch, 0)), 0)
+    if n_seg_f:
         fine_psd = fine_ch.mean(axis=0)
-    if not n_seg_f:
-        nfine = n_keep = 0
+    else:
         fine_psd = np.zeros(0)
+        nfine = n_keep = 0
     df = fs / nper
     a = Analysis(
         path=str(info.path),

@@ -146,8 +146,8 @@ def test_a_windowed_search_reuses_the_unconstrained_peak_only_inside_its_window(
     peaks: list = []
     taus, _ = _delay_cross_many(c[None, :], f, [None], [coarse], peaks)
     assert taus[0] == pytest.approx(tau0_ms * 1e-3, abs=1e-7)
-    found = (*peaks[0], float(taus[0]), coarse[1], coarse[0].size)
-    known = windowed_delay_known(found, window_ms * 1e-3)
+    found = (*peaks[0], float(taus[0]))
+    known = windowed_delay_known(found, coarse, window_ms * 1e-3)
     windowed = float(_delay_cross_many(c[None, :], f, [window_ms * 1e-3], [coarse])[0][0])
     if reused:
         assert known == windowed
