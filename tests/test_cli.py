@@ -65,6 +65,27 @@ def test_sweep_is_deterministic(prog, tmp_path, capsys):
     assert (tmp_path / "a" / "sweep.json").read_bytes() == (tmp_path / "b" / "sweep.json").read_bytes()
 
 
+def test_sweep_json_has_one_line_per_case(prog, tmp_path, capsys):
+    assert run(["sweep", prog, "--out", tmp_path / "l", *BASE], capsys)[0] == 0
+    text = (tmp_path / "l" / "sweep.json").read_text(encoding="utf-8")
+    doc = json.loads(text)
+    lines = text.splitlines()
+    start = lines.index('  "cases": [')
+    # each case on one line of its own, in order, then the closing bracket; the rest as json indents it
+    assert [json.loads(line.rstrip(",")) for line in lines[start + 1 : start + 1 + len(doc["cases"])]] == doc["cases"]
+    assert lines[start + 1 + len(doc["cases"])].strip() in ("]", "],")
+    outer = {**doc, "cases": []}
+    assert json.loads(text.replace(text[text.index('"cases": [') : text.index("\n  ]") + 4], '"cases": []')) == outer
+
+
+def test_sweep_json_text_keeps_strings_that_look_like_its_placeholder():
+    from audiobw.report.sweepio import dumps
+
+    doc = {"notes": ["\x00cases-0123456789abcdef\x00", '"cases": ['], "cases": [{"id": 1, "x": "\x00"}], "z": None}
+    assert json.loads(dumps(doc)) == doc
+    assert json.loads(dumps({**doc, "cases": []})) == {**doc, "cases": []}
+
+
 def test_default_out_is_under_the_working_directory(prog, tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     assert run(["sweep", prog, *BASE], capsys)[0] == 0
