@@ -34,22 +34,76 @@ def band_grid(low_hz: float, high_hz: float, *, floor_hz: float) -> np.ndarray:
 
 
 def flatness_db(filt: Filter, freqs_hz: np.ndarray) -> float:
-    """Peak-to-peak gain (dB) of ``filt`` over the frequencies ``freqs_hz``.
+    """Peak-to-peak gain (dB) of ``filt`` over the band the frequencies ``freqs_hz`` span.
 
     A Chebyshev type I of ripple r gives r over its ripple band; a gain that
-    reaches zero inside the band gives infinity.
+    reaches zero inside the band gives infinity.  The grid's highest and lowest
+    points are refined where they lie inside it (:func:`_refined_extreme`).
     """
-    g = filt.power_response(freqs_hz)
-    top, bottom = float(g.max()), float(g.min())
-    if not top > 0.0:
-        return math.inf
-    return math.inf if bottom <= 0.0 else 10.0 * math.log10(top / bottom)
+    return flatness_and_spread([filt], freqs_hz)[0][0]
 
 
 def delay_spread_s(filt: Filter, freqs_hz: np.ndarray) -> float:
-    """Group-delay spread max − min (s) of ``filt`` over ``freqs_hz`` (group delay −dφ/dω)."""
-    tau = filt.group_delay_s(freqs_hz)
-    return float(tau.max() - tau.min())
+    """Group-delay spread max − min (s) of ``filt`` over the band the frequencies ``freqs_hz``
+    span (group delay −dφ/dω; its extremes refined as for :func:`flatness_db`)."""
+    return flatness_and_spread([filt], freqs_hz)[0][1]
+
+
+#: Rounds of successive parabolic interpolation on each sampled peak inside the band.
+EXTREME_ROUNDS = 4
+#: At most this many of a filter's sampled peaks are refined (the highest): a Chebyshev or
+#: elliptic of order n has at most n ripple peaks in its band.
+EXTREME_PEAKS = 16
+
+
+def _refined_extreme(values: np.ndarray, freqs_hz: np.ndarray, evaluate, sense: float) -> np.ndarray:
+    """The highest (``sense`` +1) or lowest (−1) value of each row of ``values`` (filters ×
+    frequencies, sampled on ``freqs_hz``), its peaks inside the grid refined.
+
+    A peak between two grid points is missed by up to the curvature times the square of the
+    spacing, and a different grid misses it by a different amount: a wider band (a coarser grid)
+    could read less than a narrower one that it contains, and a ripple peak could read lower
+    than a band edge that is not as high.  Each sampled peak inside the grid is bracketed by its
+    neighbours and refined by successive parabolic interpolation (R. P. Brent, *Algorithms for
+    Minimization without Derivatives*, 1973, ch. 5), ``evaluate(points)`` (filters × points)
+    giving the exact value at each vertex.  The figure is the extreme of every value evaluated,
+    so it never passes the true extreme and only comes closer to it.
+    """
+    v = sense * values
+    best = v.max(axis=1)
+    n = freqs_hz.size
+    if n < 3:
+        return sense * best
+    mid = v[:, 1:-1]
+    rows, idx = np.nonzero((mid >= v[:, :-2]) & (mid >= v[:, 2:]) & np.isfinite(mid))
+    if rows.size == 0:
+        return sense * best
+    idx = idx + 1
+    order = np.lexsort((-v[rows, idx], rows))  # by filter, highest first
+    rows, idx = rows[order], idx[order]
+    first = np.searchsorted(rows, rows)  # where each filter's peaks start
+    keep = np.arange(rows.size) - first < EXTREME_PEAKS
+    rows, idx = rows[keep], idx[keep]
+    cols = np.arange(rows.size)
+    a, b, c = freqs_hz[idx - 1], freqs_hz[idx], freqs_hz[idx + 1]
+    fa, fb, fc = v[rows, idx - 1], v[rows, idx], v[rows, idx + 1]
+    for _ in range(EXTREME_ROUNDS):
+        p, q = (b - a) * (fb - fc), (b - c) * (fb - fa)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = b - 0.5 * ((b - a) * p - (b - c) * q) / (p - q)
+        ok = np.isfinite(x) & (x > a) & (x < c) & (x != b)
+        if not ok.any():
+            break
+        x = np.where(ok, x, b)
+        fx = sense * evaluate(x)[rows, cols]  # each peak's filter at that peak's point
+        fx = np.where(ok & np.isfinite(fx), fx, -np.inf)
+        np.maximum.at(best, rows, fx)
+        # keep the bracket a < b < c with b the highest evaluated
+        up, right = fx >= fb, x > b
+        a, fa = np.where(up & right, b, np.where(~up & ~right, x, a)), np.where(up & right, fb, np.where(~up & ~right, fx, fa))
+        c, fc = np.where(up & ~right, b, np.where(~up & right, x, c)), np.where(up & ~right, fb, np.where(~up & right, fx, fc))
+        b, fb = np.where(up, x, b), np.where(up, fx, fb)
+    return sense * best
 
 
 def image_bands_hz(
@@ -96,13 +150,19 @@ def alias_rejection_db(
 
 
 def flatness_and_spread(filts: list[Filter], freqs_hz: np.ndarray) -> list[tuple[float, float]]:
-    """(:func:`flatness_db`, :func:`delay_spread_s`) of each filter over ``freqs_hz``, their
-    responses evaluated together (:mod:`audiobw.batchresponse`; the same figures)."""
+    """(:func:`flatness_db`, :func:`delay_spread_s`) of each filter over the band ``freqs_hz``
+    spans, their responses evaluated together (:mod:`audiobw.batchresponse`)."""
+    f = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
+    g, tau = power_responses(filts, f), group_delays(filts, f)
+    gain = lambda x: power_responses(filts, x)  # noqa: E731
+    delay = lambda x: group_delays(filts, x)  # noqa: E731
+    tops, bottoms = _refined_extreme(g, f, gain, 1.0), _refined_extreme(g, f, gain, -1.0)
+    spreads = _refined_extreme(tau, f, delay, 1.0) - _refined_extreme(tau, f, delay, -1.0)
     out = []
-    for g, tau in zip(power_responses(filts, freqs_hz), group_delays(filts, freqs_hz)):
-        top, bottom = float(g.max()), float(g.min())
+    for top, bottom, spread in zip(tops, bottoms, spreads):
+        top, bottom = float(top), float(bottom)
         flat = math.inf if not top > 0.0 or bottom <= 0.0 else 10.0 * math.log10(top / bottom)
-        out.append((flat, float(tau.max() - tau.min())))
+        out.append((flat, float(spread)))
     return out
 
 

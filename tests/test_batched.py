@@ -107,8 +107,11 @@ def test_batched_filter_figures_are_the_per_filter_ones(response, family, order,
     got = alias_rejection_many(filts, edges, FS)
     for filt, (lo, hi), rej, (flat, spread) in zip(filts, edges, got, flatness_and_spread(filts, grid)):
         assert _same(rej, alias_rejection_db(filt, filt.spec.response, lo, hi, FS))
-        assert _same(flat, flatness_db(filt, grid))
-        assert _same(spread, delay_spread_s(filt, grid))
+        # the refinement of a peak between grid points evaluates the vertices of the whole batch in
+        # one array: a value's last bit can differ with its place in numpy's vector loop, and the
+        # next vertex with it (measured: 4e-16 relative)
+        assert _same(flat, flatness_db(filt, grid), rel=1e-13)
+        assert _same(spread, delay_spread_s(filt, grid), rel=1e-13)
 
 
 @pytest.mark.parametrize("response,family,order,stage", CASES)
