@@ -100,8 +100,14 @@ def _refined_extreme(values: np.ndarray, freqs_hz: np.ndarray, evaluate, sense: 
         np.maximum.at(best, rows, fx)
         # keep the bracket a < b < c with b the highest evaluated
         up, right = fx >= fb, x > b
-        a, fa = np.where(up & right, b, np.where(~up & ~right, x, a)), np.where(up & right, fb, np.where(~up & ~right, fx, fa))
-        c, fc = np.where(up & ~right, b, np.where(~up & right, x, c)), np.where(up & ~right, fb, np.where(~up & right, fx, fc))
+        a, fa = (
+            np.where(up & right, b, np.where(~up & ~right, x, a)),
+            np.where(up & right, fb, np.where(~up & ~right, fx, fa)),
+        )
+        c, fc = (
+            np.where(up & ~right, b, np.where(~up & right, x, c)),
+            np.where(up & ~right, fb, np.where(~up & right, fx, fc)),
+        )
         b, fb = np.where(up, x, b), np.where(up, fx, fb)
     return sense * best
 
