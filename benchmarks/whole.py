@@ -57,6 +57,10 @@ print(tot)
 """
 
 
+#: The floor work over several files in one process (the batch row's ceiling).
+FLOOR_FILES = FLOOR.replace("with sf.SoundFile(sys.argv[1]) as fh:\n    for b in", "for name in sys.argv[1:]:\n  with sf.SoundFile(name) as fh:\n    for b in")
+
+
 def _cmd_audiobw(*args):
     return [AUDIOBW, *args] if AUDIOBW else [sys.executable, "-m", "audiobw", *args]
 
@@ -235,10 +239,20 @@ def main(argv=None):
     batch = lambda w: _cmd_audiobw("batch", str(folder), "--family", "butterworth,bessel", "--order", "2,4",  # noqa: E731
                                    "--cutoffs", "2k:20k:8", "--max-loss", "0.5", "--workers", str(w),
                                    "--out", str(tmp / f"batch{w}"))
-    r = interleaved(reps, [("w1", batch(1)), ("w2", batch(2))])
+    # the machine's own ceiling for two processes: the floor work (decode + one FFT pass) over the
+    # same files, all in one process against half in each of two processes started together
+    files = sorted(str(x) for x in folder.iterdir())
+    one = [sys.executable, "-c", FLOOR_FILES, *files]
+    # (the benchmark's own temporary paths: no spaces, so the two lists split on them)
+    two = ["sh", "-c", '"$0" -c "$1" $2 & "$0" -c "$1" $3; wait', sys.executable, FLOOR_FILES,
+           " ".join(files[0::2]), " ".join(files[1::2])]
+    r = interleaved(reps, [("w1", batch(1)), ("w2", batch(2)), ("one", one), ("two", two)])
     speedup = {"min": r["w1"]["min"], "median": r["w1"]["median"], "load": r["w2"]["load"], "rss": r["w2"]["rss"]}
     row(f"batch, {n_files} one-minute files: 1 worker / 2 workers (speed-up)", speedup,
         {"min": r["w2"]["min"], "median": r["w2"]["median"]}, "≥ 1.8 ×")
+    ceiling = {"min": r["one"]["min"], "median": r["one"]["median"], "load": r["two"]["load"], "rss": r["two"]["rss"]}
+    row(f"this machine's ceiling: floor work over the {n_files} files, one process / two side by side", ceiling,
+        {"min": r["two"]["min"], "median": r["two"]["median"]}, "(none: the most two workers can gain)")
 
     print("6. helper threads on a loaded machine", flush=True)
     busy = [subprocess.Popen([sys.executable, "-c", "while True: pass"]) for _ in range(os.cpu_count() or 2)]
