@@ -17,6 +17,17 @@ from numpy import fft as sfft  # the same pocketfft as scipy.fft, without import
 #: Oversampling of the coarse delay search (inverse FFT zero-padded this many
 #: times); a parabola and a Newton step on the exact cross term refine the peak.
 DELAY_OVERSAMPLE = 2
+#: A coarse sample is a candidate for the global peak when it is a local maximum within B of the
+#: highest, B = ½·(h/2)²·Σ|c_k|·ω_k² (h the coarse step; |g''| ≤ Σ|c_k|·ω_k², and the true peak
+#: lies within h/2 of a sample).  A narrowband program makes the cross term a carrier under a
+#: slow envelope: at a half-sample step its crests are sampled up to 9 % low at 13 kHz, more than
+#: the envelope falls from one carrier cycle to the next, so the highest sample can sit on the
+#: wrong cycle (SER read up to 44 dB low before every candidate was refined).
+MAX_CANDIDATES = 16
+#: With more candidates than MAX_CANDIDATES the coarse grid is made this many times finer (B falls
+#: by its square), up to MAX_OVERSAMPLE; what is left then is refined whatever its number.
+FINER = 4
+MAX_OVERSAMPLE = 32
 
 
 #: Block length of :func:`uniform_phasor` (e^{jθk} as an outer product of two short tables).
@@ -55,7 +66,7 @@ def _check_uniform(f: np.ndarray) -> float:
     return float(df)
 
 
-def coarse_cross(c: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, float]:
+def coarse_cross(c: np.ndarray, f: np.ndarray, oversample: int = DELAY_OVERSAMPLE) -> tuple[np.ndarray, float]:
     """(g, step_s): Re Σ c_k e^{j2π f_k τ} on the coarse delay grid τ = n·step_s (one inverse FFT;
     ``c`` may hold one cross spectrum per row, along its last axis).
 
@@ -64,7 +75,7 @@ def coarse_cross(c: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, float]:
     ``coarse=``).  ``f``: a uniform grid from 0 Hz with at least 2 bins.
     """
     df = _check_uniform(f)
-    n_fft = DELAY_OVERSAMPLE * (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
+    n_fft = oversample * (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
     # Re Σ c_k e^{j2π k df τ} at τ = n/(n_fft·df), n = 0 … n_fft − 1 (circular in 1/df):
     # a real inverse FFT counts every bin but DC twice, so DC is doubled and the result halved
     # (the scale n_fft/2 is applied to the bins, a quarter of the samples)
@@ -92,61 +103,109 @@ def _window_stop(max_delay_s: float, step_s: float, n_fft: int) -> int:
     return max(3, min(n_fft // 2, int(math.ceil(max_delay_s / step_s)) + 2))
 
 
+def _candidates(g: np.ndarray, stop: int | None, bound: float) -> np.ndarray:
+    """Coarse samples that may hold the global peak: the highest (first), then every other local
+    maximum (circular neighbours) within ``bound`` of it; in ``g[:stop]`` when ``stop`` is given."""
+    region = g if stop is None else g[:stop]
+    n0 = int(np.argmax(region))
+    idx = np.flatnonzero(region >= region[n0] - bound)
+    if idx.size > 1:
+        top = g[idx]
+        idx = idx[(idx != n0) & (top >= g[idx - 1]) & (top >= g[(idx + 1) % g.size])]
+        return np.concatenate(([n0], idx))
+    return np.array([n0])
+
+
 def _delay_cross_many(
     c: np.ndarray, f: np.ndarray, max_delays: list, coarse: list, peaks: list | None = None
 ) -> tuple[np.ndarray, np.ndarray]:
     """:func:`_delay_cross` of each row of ``c`` (cross spectra, cases × bins), with its own
     ``max_delays[i]`` and ``coarse[i]``; the refinement's phasors and sums of all rows at once.
     ``peaks``, when given, receives for each row ``(n, τ₀)``: the coarse peak's index and its
-    parabola's delay (None where nothing was searched), for :func:`windowed_delay_known`."""
+    parabola's delay (None where nothing was searched, or where more than one coarse peak was
+    refined), for :func:`windowed_delay_known`.
+
+    Every coarse peak that may be the global one (:data:`MAX_CANDIDATES`) is refined, and the
+    highest refined value wins; a program whose cross term has one such peak (any broadband
+    program) takes exactly the one refinement it always took.
+    """
     n_rows = c.shape[0]
     taus, values = np.zeros(n_rows), np.zeros(n_rows)
-    rows, steps = [], []
+    # the refinement's pairs: row, coarse step (s), parabola's delay (s), coarse index
+    p_row: list[int] = []
+    p_step: list[float] = []
+    p_tau: list[float] = []
+    p_n: list[int] = []
+    single = np.zeros(n_rows, dtype=bool)
     if peaks is not None:
         peaks[:] = [None] * n_rows
+    om = 2.0 * np.pi * f
+    curvature = None
     for i in range(n_rows):
         ci = c[i]
         if f.size < 2 or (coarse[i] is None and not ci.any()):  # a given coarse search: a row with power
             values[i] = float(np.sum(ci.real))
             continue
         g, step_s = coarse_cross(ci, f) if coarse[i] is None else coarse[i]
-        n_fft = g.size
         max_delay_s = max_delays[i]
-        if max_delay_s is None:
-            n = int(np.argmax(g))
-        else:
+        if curvature is None:
+            # Σ|c_k|·ω_k² of every row: |g''| never exceeds it (no matrix product: BLAS threads)
+            curvature = (np.abs(c) * (om * om)).sum(axis=1)
+        oversample = first = g.size // (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
+        while True:
+            n_fft = g.size
             # a causal window 0 … max_delay_s: a tonal program makes the cross term nearly
             # periodic, and a delay far beyond the filter's own would match one partial
             # while misaligning the rest (the window is at least three coarse steps)
-            n = int(np.argmax(g[: _window_stop(max_delay_s, step_s, n_fft)]))
-        # parabola through the peak sample and its neighbours, then one Newton step on the exact sum
-        y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
-        den = y0 - 2.0 * y1 + y2
-        frac = 0.5 * (y0 - y2) / den if den < 0 else 0.0
-        tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
-        if max_delay_s is not None:
-            tau = max(tau, 0.0)
-        elif peaks is not None:
-            peaks[i] = (n, tau)
-        taus[i] = tau
-        rows.append(i)
-        steps.append(step_s)
-    if not rows:
+            stop = None if max_delay_s is None else _window_stop(max_delay_s, step_s, n_fft)
+            cands = _candidates(g, stop, 0.5 * (0.5 * step_s) ** 2 * float(curvature[i]))
+            if cands.size <= MAX_CANDIDATES or oversample * FINER > MAX_OVERSAMPLE:
+                break
+            oversample *= FINER
+            g, step_s = coarse_cross(ci, f, oversample=oversample)
+        single[i] = cands.size == 1 and oversample == first  # the shared coarse grid's own peak
+        for n in cands.tolist():
+            # parabola through the peak sample and its neighbours (refined below by a Newton step)
+            y0, y1, y2 = g[n - 1], g[n], g[(n + 1) % n_fft]
+            den = y0 - 2.0 * y1 + y2
+            frac = 0.5 * (y0 - y2) / den if den < 0 else 0.0
+            tau = ((n if n < n_fft // 2 else n - n_fft) + frac) * step_s
+            if max_delay_s is not None:
+                tau = max(tau, 0.0)
+            p_row.append(i)
+            p_step.append(step_s)
+            p_tau.append(tau)
+            p_n.append(n)
+    if not p_row:
         return taus, values
-    om = 2.0 * np.pi * f
-    e = c[rows] * uniform_phasors(f.size, 2.0 * np.pi * (f[1] - f[0]) * taus[rows])
-    for j, i in enumerate(rows):
-        ej = e[j]
-        g0 = float(np.sum(ej.real))
-        d1 = -float(np.dot(om, ej.imag))  # d/dτ Re Σ c e^{jωτ}
-        d2 = -float(np.dot(om * om, ej.real))  # d²/dτ²
-        values[i] = g0
-        if d2 < 0.0:
-            delta = -d1 / d2
-            # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
-            if abs(delta) <= steps[j] and (max_delays[i] is None or taus[i] + delta >= 0.0):
-                taus[i], values[i] = taus[i] + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
+    rows = np.array(p_row)
+    t = np.array(p_tau)
+    best = np.full(n_rows, -np.inf)
+    df = f[1] - f[0]
+    for lo in range(0, rows.size, PHASOR_CHUNK):
+        sl = slice(lo, lo + PHASOR_CHUNK)
+        e = c[rows[sl]] * uniform_phasors(f.size, 2.0 * np.pi * df * t[sl])
+        for j, ej in enumerate(e, start=lo):
+            i = p_row[j]
+            tau = p_tau[j]
+            g0 = float(np.sum(ej.real))
+            d1 = -float(np.dot(om, ej.imag))  # d/dτ Re Σ c e^{jωτ}
+            d2 = -float(np.dot(om * om, ej.real))  # d²/dτ²
+            value = g0
+            if d2 < 0.0:
+                delta = -d1 / d2
+                # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
+                if abs(delta) <= p_step[j] and (max_delays[i] is None or tau + delta >= 0.0):
+                    tau, value = tau + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
+            if value > best[i]:  # the first candidate (the highest sample) wins a tie
+                best[i], taus[i], values[i] = value, tau, value
+                if peaks is not None and max_delays[i] is None and single[i]:
+                    peaks[i] = (p_n[j], p_tau[j])
     return taus, values
+
+
+#: Refinement pairs (candidate delays) whose phasors are formed at once.
+PHASOR_CHUNK = 64
 
 
 def windowed_delay_known(found, coarse: tuple[np.ndarray, float], max_delay_s: float) -> float | None:

@@ -263,6 +263,65 @@ def test_ser_matches_the_time_domain_error_at_the_best_delay(write_audio, family
             assert got == pytest.approx(truth, abs=0.2), (family, order, fc, got, truth)
 
 
+def _narrowband(rng, fs, n, centre_hz, width_hz, rms=0.1):
+    """A periodic random program whose energy lies within ``width_hz`` of ``centre_hz``."""
+    X = np.fft.rfft(rng.normal(size=n))
+    X[np.abs(np.fft.rfftfreq(n, 1 / fs) - centre_hz) > width_hz / 2] = 0.0
+    x = np.fft.irfft(X, n)
+    return x * (rms / np.sqrt(np.mean(x**2)))
+
+
+def _time_domain_ser_db_global(x, y, max_lag=96, over=16, peaks=12):
+    """10·lg(Σx² / min_τ Σ(y(t) − x(t−τ))²) searched over every delay within ±``max_lag`` samples:
+    the cross-correlation oversampled ``over`` times (zero-padded inverse FFT), its ``peaks``
+    highest local maxima each refined by scipy.optimize.minimize_scalar on the time-domain error
+    (a narrowband program's cross-correlation has a crest on every carrier cycle)."""
+    from scipy.optimize import minimize_scalar
+
+    n = x.size
+    X, Y = np.fft.rfft(x), np.fft.rfft(y)
+    m = over * n
+    xc = np.fft.irfft(Y * np.conj(X), m) * over  # xc at lag k/over samples
+    lags = np.r_[np.arange(0, max_lag * over), np.arange(m - max_lag * over, m)]
+    v = xc[lags]
+    local = np.flatnonzero((v >= np.roll(v, 1)) & (v >= np.roll(v, -1)))
+    local = local[np.argsort(v[local])[::-1][:peaks]]
+
+    def err(t):
+        return float(np.mean((y - _shift(x, t)) ** 2))
+
+    best = math.inf
+    for j in local:
+        k = lags[j]
+        t0 = (k if k < m // 2 else k - m) / over
+        r = minimize_scalar(err, bounds=(t0 - 1.0 / over, t0 + 1.0 / over), method="bounded", options={"xatol": 1e-6})
+        best = min(best, r.fun, err(t0))
+    return 10 * math.log10(np.mean(x**2) / best)
+
+
+@pytest.mark.parametrize("centre,width", [(5000.0, 60.0), (13000.0, 200.0), (17000.0, 600.0)])
+def test_ser_of_a_narrowband_program_finds_the_right_carrier_cycle(write_audio, centre, width):
+    """A narrowband program's cross term is a carrier under a slow envelope: its crests, sampled at
+    the coarse search's half-sample step, read up to 9 % low at 13 kHz, more than the envelope falls
+    from one cycle to the next, so the highest sample could sit one cycle off.  Against the
+    time-domain error searched over every delay within ±2 ms (_time_domain_ser_db_global), within
+    0.2 dB (measured: 0.07 dB at most, SER 27–83 dB).  Before every candidate peak was refined the
+    scorer read 15–40 dB low on these (Chebyshev I 6 at 21 kHz on 5 kHz ± 30 Hz: 33.1 against
+    73.0 dB; at 13 kHz ± 100 Hz 30.7 against 45.8 dB; at 17 kHz ± 300 Hz 22.6 against 38.0 dB)."""
+    fs, n = 48000, 1 << 17
+    x = _narrowband(np.random.default_rng(5), fs, n, centre, width)
+    sc = Scorer(analyse(write_audio("nb.wav", x[:, None], fs)), Chain(**QUIET), Meter())
+    f = np.fft.rfftfreq(n, 1 / fs)
+    for family, order, fc in (("chebyshev1", 6, 21000.0), ("elliptic", 7, 22000.0), ("butterworth", 8, 20000.0)):
+        filt = design(FilterSpec("lowpass", family, order, None, fc))
+        z, p, k = filt.zpk()
+        _, h = signal.freqs_zpk(z, p, k, worN=2 * np.pi * f)
+        y = np.fft.irfft(np.fft.rfft(x) * h, n)
+        truth = _time_domain_ser_db_global(x, y)
+        got = sc.score(filt)["ser_db"]
+        assert got == pytest.approx(truth, abs=0.2), (family, order, fc, got, truth)
+
+
 # --- THD+N with the polynomial's DC and 3rd-order fundamental (issue 12, item 3) ---
 
 

@@ -341,6 +341,61 @@ def test_best_delay_in_a_causal_window_stays_in_it():
     assert best_delay(s, np.ones(f.size, complex), f, w, max_delay_s=1e-3)[0] == pytest.approx(0.0, abs=1e-9)
 
 
+def _cross_max(c, f, lo_s=None, hi_s=None, over=64, top=40):
+    """max over τ of Re Σ c_k e^{j2πf_kτ} (in lo_s … hi_s when given): a 64-times oversampled
+    inverse FFT (numpy.fft.irfft), then Newton's method to convergence from its 40 highest crests."""
+    n_fft = over * 2 * (f.size - 1)
+    d = c * (n_fft / 2.0)
+    d[0] *= 2.0
+    g = np.fft.irfft(d, n_fft)
+    step = 1.0 / (n_fft * (f[1] - f[0]))
+    t_all = np.where(np.arange(n_fft) < n_fft // 2, np.arange(n_fft), np.arange(n_fft) - n_fft) * step
+    ok = np.ones(n_fft, bool) if lo_s is None else (t_all >= lo_s) & (t_all <= hi_s)
+    crest = np.flatnonzero(ok & (g >= np.roll(g, 1)) & (g >= np.roll(g, -1)))
+    crest = crest[np.argsort(g[crest])[::-1][:top]]
+    om = 2 * np.pi * f
+    best = -np.inf
+    for k in crest:
+        tau = t_all[k]
+        for _ in range(8):
+            e = c * np.exp(1j * om * tau)
+            d1, d2 = -np.dot(om, e.imag), -np.dot(om * om, e.real)
+            if d2 >= 0:
+                break
+            tau += float(np.clip(-d1 / d2, -step, step))
+        if lo_s is not None:
+            tau = min(max(tau, lo_s), hi_s)
+        best = max(best, float(np.sum((c * np.exp(1j * om * tau)).real)), float(g[k]))
+    return best
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    centre=st.floats(300.0, 23000.0),
+    width=st.floats(2.0, 2000.0),
+    delay_us=st.floats(0.0, 400.0),
+    slope=st.floats(-0.2, 0.2),
+)
+def test_best_delay_finds_the_highest_crest_of_a_narrowband_cross_term(centre, width, delay_us, slope):
+    """A band of width ``width`` around ``centre`` through a response with a delay and a phase
+    curvature: the delay the search returns reaches the highest crest of the cross term, within
+    1e-9 of its height (the whole ±1/(2·df) and the causal window 0…1 ms alike), against
+    _cross_max.  Before every candidate crest was refined, the highest half-sample-grid sample
+    could sit one carrier cycle off: 1e-4 to 3e-4 of the height, SER read up to 44 dB low."""
+    f = np.linspace(0.0, 24000.0, 8193)
+    w = np.full(f.size, f[1] - f[0])
+    s = np.exp(-0.5 * ((f - centre) / width) ** 2) + 1e-12
+    x = (f - centre) / 1000.0
+    h = np.exp(-2j * np.pi * f * delay_us * 1e-6 - 1j * slope * x * x)
+    c = s * w * h
+    om = 2 * np.pi * f
+    for window in (None, 1e-3):
+        tau = best_delay(s, h, f, w, max_delay_s=window)[0]
+        got = float(np.sum((c * np.exp(1j * om * tau)).real))
+        want = _cross_max(c, f) if window is None else _cross_max(c, f, 0.0, window)
+        assert got >= want - 1e-9 * np.sum(np.abs(c)), (window, tau)
+
+
 def test_removed_part_never_grows_with_a_wider_butterworth():
     # A wider lowpass removes less of a pink-ish program, phase included, at its best delay.
     from scipy.signal import butter, sosfreqz
