@@ -28,6 +28,8 @@ MAX_CANDIDATES = 16
 #: by its square), up to MAX_OVERSAMPLE; what is left then is refined whatever its number.
 FINER = 4
 MAX_OVERSAMPLE = 32
+#: Refinement pairs (candidate delays) whose phasors are formed at once.
+PHASOR_CHUNK = 64
 
 
 #: Block length of :func:`uniform_phasor` (e^{jθk} as an outer product of two short tables).
@@ -66,6 +68,11 @@ def _check_uniform(f: np.ndarray) -> float:
     return float(df)
 
 
+def _unpadded_size(n_bins: int) -> int:
+    """The inverse FFT length of ``n_bins`` bins from 0 Hz before zero-padding (a power of two)."""
+    return 1 << int(math.ceil(math.log2(2 * (n_bins - 1))))
+
+
 def coarse_cross(c: np.ndarray, f: np.ndarray, oversample: int = DELAY_OVERSAMPLE) -> tuple[np.ndarray, float]:
     """(g, step_s): Re Σ c_k e^{j2π f_k τ} on the coarse delay grid τ = n·step_s (one inverse FFT;
     ``c`` may hold one cross spectrum per row, along its last axis).
@@ -75,7 +82,7 @@ def coarse_cross(c: np.ndarray, f: np.ndarray, oversample: int = DELAY_OVERSAMPL
     ``coarse=``).  ``f``: a uniform grid from 0 Hz with at least 2 bins.
     """
     df = _check_uniform(f)
-    n_fft = oversample * (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
+    n_fft = oversample * _unpadded_size(f.size)
     # Re Σ c_k e^{j2π k df τ} at τ = n/(n_fft·df), n = 0 … n_fft − 1 (circular in 1/df):
     # a real inverse FFT counts every bin but DC twice, so DC is doubled and the result halved
     # (the scale n_fft/2 is applied to the bins, a quarter of the samples)
@@ -151,7 +158,7 @@ def _delay_cross_many(
         if curvature is None:
             # Σ|c_k|·ω_k² of every row: |g''| never exceeds it (no matrix product: BLAS threads)
             curvature = (np.abs(c) * (om * om)).sum(axis=1)
-        oversample = first = g.size // (1 << int(math.ceil(math.log2(2 * (f.size - 1)))))
+        oversample = first = g.size // _unpadded_size(f.size)
         while True:
             n_fft = g.size
             # a causal window 0 … max_delay_s: a tonal program makes the cross term nearly
@@ -180,7 +187,6 @@ def _delay_cross_many(
         return taus, values
     rows = np.array(p_row)
     t = np.array(p_tau)
-    best = np.full(n_rows, -np.inf)
     df = f[1] - f[0]
     for lo in range(0, rows.size, PHASOR_CHUNK):
         sl = slice(lo, lo + PHASOR_CHUNK)
@@ -197,15 +203,13 @@ def _delay_cross_many(
                 # stay on the peak the coarse search found (and at τ ≥ 0 in a causal window)
                 if abs(delta) <= p_step[j] and (max_delays[i] is None or tau + delta >= 0.0):
                     tau, value = tau + delta, g0 + 0.5 * d1 * delta  # the quadratic's maximum
-            if value > best[i]:  # the first candidate (the highest sample) wins a tie
-                best[i], taus[i], values[i] = value, tau, value
+            # each searched row takes its highest refined candidate; the first (the highest
+            # sample) is taken as it comes and wins a tie
+            if j == 0 or p_row[j - 1] != i or value > values[i]:
+                taus[i], values[i] = tau, value
                 if peaks is not None and max_delays[i] is None and single[i]:
                     peaks[i] = (p_n[j], p_tau[j])
     return taus, values
-
-
-#: Refinement pairs (candidate delays) whose phasors are formed at once.
-PHASOR_CHUNK = 64
 
 
 def windowed_delay_known(found, coarse: tuple[np.ndarray, float], max_delay_s: float) -> float | None:

@@ -28,6 +28,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -53,9 +54,6 @@ def in_process(path: Path, repeats: int) -> dict:
     arguments are taken from one run of the command (``audiobw.sweep.run_sweep`` wrapped)."""
     import contextlib
     import io
-    import tempfile
-
-    import numpy as np
 
     import audiobw.forked as forked
 
@@ -63,7 +61,7 @@ def in_process(path: Path, repeats: int) -> dict:
     from audiobw import sweep
     from audiobw.batchresponse import responses
     from audiobw.cli import main as cli
-    from audiobw.delay import DELAY_OVERSAMPLE, coarse_cross
+    from audiobw.delay import coarse_cross
     from audiobw.filters import design
     from audiobw.metrics import Scorer
     from audiobw.perceptual.scoring import PerceptualScorer
@@ -98,35 +96,34 @@ def in_process(path: Path, repeats: int) -> dict:
     t_resp = _min_time(lambda: [responses(b, f) for b in batches], repeats)
     cs = [swm * responses(b, f) for b in batches]
     t_fft = _min_time(lambda: [coarse_cross(c, f) for c in cs], repeats)
-    n_fft = DELAY_OVERSAMPLE * (1 << int(np.ceil(np.log2(2 * (f.size - 1)))))
     return {"scored": n, "score": t_score / n, "response": t_resp / n, "inverse_fft": t_fft / n,
-            "bins": int(f.size), "n_fft": n_fft}
+            "bins": int(f.size), "n_fft": coarse_cross(cs[0], f)[0].shape[-1]}
 
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeats", type=int, default=5)
     a = ap.parse_args(argv)
+    load0 = os.getloadavg()[0]
     p3 = program("noise", 180)
-    import tempfile
-
     tmp = Path(tempfile.mkdtemp(prefix="audiobw-budget-"))
     floor = [sys.executable, "-c", FLOOR, str(p3)]
     r = interleaved(a.repeats, [("floor", floor), ("c100", sweep_cmd(p3, ORDERS, 5, tmp / "a")),
                                 ("c1000", sweep_cmd(p3, ORDERS, 50, tmp / "b"))])
     t_floor, t100, t1000 = r["floor"]["min"], r["c100"]["min"], r["c1000"]["min"]
     cores = os.cpu_count() or 1
-    scored100, scored1000, scored10k = 80, 800, 8000  # the even-order elliptic fifth is refused
+    m = in_process(p3, a.repeats)
+    share = m["scored"] / 1000  # the even-order elliptic cases are refused (no row)
+    scored100, scored1000, scored10k = 100 * share, 1000 * share, 10000 * share
     # the fixed part: the 100-case process less its own 80 cases at the 1000-case rate
     per_case_wall = (t1000 - t100) / (scored1000 - scored100)
     fixed = t100 - scored100 * per_case_wall
     budget_1000 = 0.1 * t100 / (scored1000 - scored100) * cores
     budget_10k = (2.5 * t_floor - fixed) / scored10k * cores
-    m = in_process(p3, a.repeats)
     ms = lambda s: f"{s * 1e3:.3f} ms"  # noqa: E731
     lines = [
         f"Run: {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}; {cores} cores; load average at start "
-        f"{os.getloadavg()[0]:.2f}; {a.repeats} runs each, minima.",
+        f"{load0:.2f}; {a.repeats} runs each, minima.",
         "",
         f"Whole processes: floor {t_floor:.2f} s, 100 cases {t100:.2f} s, 1000 cases {t1000:.2f} s "
         f"(fixed part {fixed:.2f} s).",
